@@ -1,0 +1,25 @@
+"""bitsift: rank the columns of a large table by information gain about a categorical target,
+computed inside the database.
+
+>>> import bitsift
+>>> bitsift.__version__
+'0.1.0'
+"""
+
+from bitsift.api import CheckReport, check, rank, statement
+from bitsift.errors import BitsiftError
+from bitsift.result import AttributeScore, Ranking
+from bitsift.spec import Thresholds
+from bitsift.version import __version__
+
+__all__ = [
+    "AttributeScore",
+    "BitsiftError",
+    "CheckReport",
+    "Ranking",
+    "Thresholds",
+    "__version__",
+    "check",
+    "rank",
+    "statement",
+]

@@ -1,0 +1,294 @@
+"""The library entry points: :func:`rank`, :func:`statement` and :func:`check`.
+
+The CLI is a thin shell over these functions; they never print and never exit.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from sqlglot import exp
+
+from bitsift import reference
+from bitsift.dialects import Capabilities, capabilities
+from bitsift.engines.base import Engine
+from bitsift.errors import DataError, SpecError
+from bitsift.metrics import score, sort_scores
+from bitsift.result import Ranking
+from bitsift.schema import Column
+from bitsift.sources import open_source, parse_table_name
+from bitsift.spec import RankOptions, RankSpec, Thresholds, resolve
+from bitsift.sqlbuild import bounds_statement, paste_statement, rank_statement
+
+
+def _names(value: str | Iterable[str] | None) -> tuple[str, ...]:
+    if value is None:
+        return ()
+    if isinstance(value, str):
+        return tuple(v.strip() for v in value.split(",") if v.strip())
+    return tuple(value)
+
+
+def make_options(target: str, **options: Any) -> RankOptions:
+    """:class:`RankOptions` from keyword arguments as :func:`rank` takes them."""
+    attributes = options.pop("attributes", None)
+    thresholds = options.pop("thresholds", None) or Thresholds()
+    unknown = sorted(set(options) - set(RankOptions.__dataclass_fields__))
+    if unknown:
+        raise SpecError("unknown option(s): " + ", ".join(unknown))
+    for key in ("exclude", "categorical", "numeric"):
+        options[key] = _names(options.get(key))
+    return RankOptions(
+        target=target,
+        attributes=_names(attributes) or None,
+        thresholds=thresholds,
+        **options,
+    )
+
+
+def rank(source: Any, target: str, table: str | None = None, **options: Any) -> Ranking:
+    """Rank the attributes of a table by information gain about ``target``, in the database.
+
+    ``source``: a DuckDB database file (with ``table``), a Parquet/CSV file, a SQLAlchemy URL
+    (with ``table``), an open DuckDB connection, or a SQLAlchemy Engine or Connection.
+    ``options``: ``attributes``, ``exclude``, ``categorical``, ``numeric`` (lists or
+    comma-separated strings), ``missing`` ("category" or "drop"), ``bins``, ``where``, ``sort``,
+    ``limit``, ``timeout`` (seconds), ``thresholds`` (:class:`~bitsift.spec.Thresholds`).
+
+    >>> import duckdb
+    >>> con = duckdb.connect()
+    >>> _ = con.execute("CREATE TABLE t AS SELECT i % 2 AS a, i % 4 AS b, i % 2 = 0 AS y "
+    ...                 "FROM range(100) r(i)")
+    >>> r = rank(con, target="y", table="t")
+    >>> [(s.attribute, round(s.information_gain, 3)) for s in r.attributes]
+    [('a', 1.0), ('b', 1.0)]
+    >>> round(r["b"].gain_ratio, 12)
+    0.5
+    """
+    spec_options = make_options(target, **options)
+    opened = open_source(source, table)
+    with opened.engine as engine:
+        columns = engine.columns(opened.table, opened.display)
+        spec = resolve(spec_options, columns, opened.table, opened.display,
+                       engine.caps.sqlglot_dialect)
+        engine.set_timeout(spec_options.timeout)
+        return run_ranking(engine, spec)
+
+
+def fetch_cuts(engine: Engine, spec: RankSpec) -> dict[str, list[float]]:
+    """Run the boundaries pre-pass; duplicate and non-finite boundaries are dropped."""
+    statement = bounds_statement(spec, engine.caps)
+    if statement is None:
+        return {}
+    record = engine.fetch(statement.sql).records()[0]
+    cuts: dict[str, list[float]] = {}
+    for index, attribute in enumerate(spec.attributes, start=1):
+        if attribute.kind != "numeric":
+            continue
+        values = [record.get(f"c{index}_{j}") for j in range(1, spec.options.bins)]
+        finite = {float(v) for v in values if v is not None and math.isfinite(float(v))}
+        cuts[attribute.name] = sorted(finite)
+    return cuts
+
+
+def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
+    """Compute a :class:`Ranking` for a resolved spec on an open engine."""
+    cuts = fetch_cuts(engine, spec)
+    statement = rank_statement(spec, engine.caps, cuts)
+    records = engine.fetch(statement.sql).records()
+    by_index = {r["attribute_index"]: r for r in records if r["attribute_index"] is not None}
+    excluded = int(records[0]["rows_excluded"] or 0) if records else 0
+    target_row = by_index.get(0)
+    if target_row is None or int(target_row["rows_used"] or 0) == 0:
+        if excluded:
+            raise DataError(
+                f"every row of {spec.source_name} has a NULL {spec.target!r} ({excluded} rows)"
+            )
+        raise DataError(f"{spec.source_name} has no rows to rank"
+                        + (" matching --where" if spec.where else ""))
+    classes = int(target_row["classes"])
+    if classes < 2:
+        raise DataError(
+            f"target {spec.target!r} has a single class in {spec.source_name}: nothing to rank"
+        )
+    scores = []
+    for index, attribute in enumerate(spec.attributes, start=1):
+        row = by_index.get(index)
+        if row is None:
+            # --missing drop and the attribute is NULL on every row: nothing to measure.
+            row = {"distinct_values": 0, "rows_used": 0, "g_statistic": 0.0, "dof": 0,
+                   "information_gain": 0.0, "target_entropy": 0.0, "gain_ratio": 0.0,
+                   "symmetric_uncertainty": 0.0, "conditional_entropy": 0.0,
+                   "attribute_entropy": 0.0}
+        scores.append(score(row, attribute.name, attribute.kind, spec.options.thresholds,
+                            cuts.get(attribute.name)))
+    ordered = sort_scores(scores, spec.options.sort)
+    if spec.options.limit:
+        ordered = ordered[: spec.options.limit]
+    return Ranking(
+        target=spec.target,
+        table=spec.source_name,
+        rows=int(target_row["rows_used"]),
+        rows_excluded=excluded,
+        target_entropy=float(target_row["target_entropy"]),
+        classes=classes,
+        attributes=ordered,
+        dialect=engine.caps.name,
+        sort=spec.options.sort,
+        statements=list(engine.statements),
+    )
+
+
+def statement(
+    source: Any = None,
+    target: str = "",
+    table: str | None = None,
+    *,
+    dialect: str | None = None,
+    **options: Any,
+) -> str:
+    """The paste-ready, self-contained ranking statement for ``dialect``.
+
+    With a ``source``, column types are introspected; without one, ``table`` plus
+    ``attributes`` and ``numeric`` describe the columns (``numeric`` columns are binned).
+
+    >>> print(statement(table="sales.orders", target="late", attributes="region",
+    ...                 numeric="amount", dialect="postgres").splitlines()[1])
+    -- table: sales.orders
+    """
+    spec_options = make_options(target, **options)
+    if source is not None:
+        opened = open_source(source, table)
+        with opened.engine as engine:
+            columns = engine.columns(opened.table, opened.display)
+            caps = capabilities(dialect) if dialect else engine.caps
+            spec = resolve(spec_options, columns, opened.table, opened.display,
+                           engine.caps.sqlglot_dialect)
+            return paste_statement(spec, caps)
+    if not table:
+        raise SpecError("--table is required without a SOURCE")
+    if not spec_options.attributes and not spec_options.numeric:
+        raise SpecError("without a SOURCE, name the columns with --attributes and/or --numeric")
+    caps = capabilities(dialect or "duckdb")
+    columns = _declared_columns(spec_options)
+    attribute_names = tuple(dict.fromkeys((spec_options.attributes or ()) + spec_options.numeric))
+    spec_options = make_options(
+        target,
+        **{**_options_dict(spec_options), "attributes": attribute_names},
+    )
+    source_table = parse_table_name(table, caps.sqlglot_dialect)
+    spec = resolve(spec_options, columns, source_table, table, caps.sqlglot_dialect)
+    return paste_statement(spec, caps)
+
+
+def _options_dict(options: RankOptions) -> dict[str, Any]:
+    return {k: getattr(options, k) for k in RankOptions.__dataclass_fields__ if k != "target"}
+
+
+def _declared_columns(options: RankOptions) -> list[Column]:
+    names = [options.target, *(options.attributes or ()), *options.numeric]
+    return [
+        Column(name=n, family="float" if n in options.numeric else "other")
+        for n in dict.fromkeys(names)
+    ]
+
+
+METRICS_CHECKED: tuple[str, ...] = (
+    "information_gain",
+    "gain_ratio",
+    "symmetric_uncertainty",
+    "conditional_entropy",
+    "attribute_entropy",
+    "target_entropy",
+    "g_statistic",
+    "p_value",
+)
+
+
+@dataclass
+class CheckReport:
+    """Largest absolute difference per metric between the database and the NumPy reference."""
+
+    ranking: Ranking
+    sample_rows: int
+    whole_table: bool
+    differences: dict[str, float] = field(default_factory=dict)
+    tolerance: float = 1e-9
+
+    @property
+    def ok(self) -> bool:
+        """True unless the whole table was compared and some metric differs beyond tolerance."""
+        return not self.whole_table or all(
+            d <= self.tolerance for d in self.relative_differences.values()
+        )
+
+    relative_differences: dict[str, float] = field(default_factory=dict)
+
+
+def check(source: Any, target: str, table: str | None = None, *, sample_rows: int = 100_000,
+          **options: Any) -> CheckReport:
+    """Rank in the database, then recompute on rows pulled into NumPy, and compare.
+
+    When the table has at most ``sample_rows`` rows the whole table is compared and the
+    numbers must agree to 1e-9 (relative for the G statistic); otherwise a sample is pulled
+    and the differences are reported for information only.
+    """
+    if sample_rows < 1:
+        raise SpecError(f"--sample-rows must be at least 1, not {sample_rows}")
+    spec_options = make_options(target, **options)
+    opened = open_source(source, table)
+    with opened.engine as engine:
+        columns = engine.columns(opened.table, opened.display)
+        spec = resolve(spec_options, columns, opened.table, opened.display,
+                       engine.caps.sqlglot_dialect)
+        engine.set_timeout(spec_options.timeout)
+        ranking = run_ranking(engine, spec)
+        total = ranking.rows + ranking.rows_excluded
+        whole = total <= sample_rows
+        data = _pull_rows(engine, spec, None if whole else sample_rows)
+    return _compare(ranking, spec, data, whole)
+
+
+def _pull_rows(engine: Engine, spec: RankSpec, limit: int | None) -> dict[str, list[Any]]:
+    names = [spec.target, *(a.name for a in spec.attributes)]
+    query = exp.select(*(exp.column(exp.to_identifier(n, quoted=True)) for n in names)).from_(
+        spec.source.copy()
+    )
+    if spec.where is not None:
+        query = query.where(spec.where.expression.copy())
+    if limit is not None:
+        query = query.limit(limit)
+    result = engine.fetch(query.sql(engine.caps.sqlglot_dialect))
+    columns = list(zip(*result.rows, strict=True)) if result.rows else [() for _ in names]
+    return {n: list(c) for n, c in zip(names, columns, strict=True)}
+
+
+def _compare(ranking: Ranking, spec: RankSpec, data: Mapping[str, Sequence[Any]],
+             whole: bool) -> CheckReport:
+    absolute: dict[str, float] = dict.fromkeys(METRICS_CHECKED, 0.0)
+    relative: dict[str, float] = dict.fromkeys(METRICS_CHECKED, 0.0)
+    y = data[spec.target]
+    kinds = {a.name: a for a in spec.attributes}
+    for scored in ranking.attributes:
+        values = list(data[scored.attribute])
+        if kinds[scored.attribute].kind == "numeric":
+            values = reference.bin_values(values, scored.cuts or [])
+        table = reference.contingency(values, y, spec.options.missing)
+        if table.sum() == 0:
+            continue
+        expected = reference.metrics(table)
+        for metric in METRICS_CHECKED:
+            got = getattr(scored, metric)
+            diff = abs(got - expected[metric])
+            absolute[metric] = max(absolute[metric], diff)
+            relative[metric] = max(relative[metric], diff / max(1.0, abs(expected[metric])))
+    return CheckReport(
+        ranking=ranking,
+        sample_rows=len(y),
+        whole_table=whole,
+        differences=absolute,
+        relative_differences=relative,
+    )

@@ -1,0 +1,166 @@
+"""The ``bitsift`` command: parses options, calls the library, formats. Nothing else."""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Callable, Sequence
+from typing import Any
+
+import click
+
+from bitsift import api
+from bitsift.dialects import CAPABILITIES
+from bitsift.errors import BitsiftError
+from bitsift.formatting import FORMATS, render
+from bitsift.spec import MISSING_MODES, SORT_METRICS, Thresholds
+from bitsift.version import __version__
+
+_DEBUG = {"on": False}
+
+
+def _comma_list(_ctx: click.Context, _param: click.Parameter, value: Sequence[str]) -> tuple[str, ...]:
+    names: list[str] = []
+    for item in value:
+        names += [v.strip() for v in item.split(",") if v.strip()]
+    return tuple(names)
+
+
+def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """The options shared by every command that ranks (rank, sql, check)."""
+    options = [
+        click.option("--target", "-y", required=True, help="The categorical outcome column."),
+        click.option("--table", "-t", help="[schema.]table in a database SOURCE."),
+        click.option("--attributes", "-a", multiple=True, callback=_comma_list,
+                     help="Columns to rank (comma-separated; default: all but the target)."),
+        click.option("--exclude", "-x", multiple=True, callback=_comma_list,
+                     help="Columns to leave out."),
+        click.option("--categorical", multiple=True, callback=_comma_list,
+                     help="Treat these columns as categories even if numeric."),
+        click.option("--numeric", multiple=True, callback=_comma_list,
+                     help="Bin these number columns (floats and decimals always are)."),
+        click.option("--missing", type=click.Choice(MISSING_MODES), default="category",
+                     show_default=True,
+                     help="NULL attribute values: their own category, or dropped per attribute."),
+        click.option("--bins", type=int, default=10, show_default=True,
+                     help="Quantile bins for numeric attributes."),
+        click.option("--where", help="Only rows matching this condition (checked by sqlglot)."),
+        click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
+                     show_default=True, help="Metric to sort by (descending)."),
+        click.option("--limit", type=int, help="Show the top N attributes only."),
+        click.option("--timeout", type=float, help="Statement timeout in seconds."),
+        click.option("--high-cardinality", "high_cardinality", type=int, default=1000,
+                     show_default=True, help="Flag attributes with more distinct values."),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def _library_options(kwargs: dict[str, Any]) -> dict[str, Any]:
+    cap = kwargs.pop("high_cardinality")
+    kwargs["thresholds"] = Thresholds(high_cardinality=cap)
+    kwargs["attributes"] = kwargs.get("attributes") or None
+    return kwargs
+
+
+def _notes(notes: Sequence[str]) -> None:
+    for note in notes:
+        click.echo(f"note: {note}", err=True)
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="bitsift")
+@click.option("--debug", is_flag=True, help="Show tracebacks and the SQL sent.")
+def cli(debug: bool) -> None:
+    """Rank a table's columns by information gain about a categorical target, in the database.
+
+    SOURCE is a DuckDB database file (with --table), a Parquet or CSV file read in place, or a
+    SQLAlchemy URL such as postgresql+psycopg://user@host/db (with --table).
+    """
+    _DEBUG["on"] = debug
+
+
+@cli.command("rank")
+@click.argument("source")
+@rank_options
+@click.option("--format", "-f", "fmt", type=click.Choice(FORMATS), default="table",
+              show_default=True)
+def rank_command(source: str, fmt: str, **kwargs: Any) -> None:
+    """Rank the attributes of SOURCE by what they tell about --target."""
+    ranking = api.rank(source, **_library_options(kwargs))
+    if _DEBUG["on"]:
+        for statement in ranking.statements:
+            click.echo(f"-- sent to {ranking.dialect}:\n{statement};", err=True)
+    click.echo(render(ranking, fmt), nl=False)
+
+
+@cli.command("sql")
+@click.argument("source", required=False)
+@rank_options
+@click.option("--dialect", "-d", type=click.Choice(sorted(CAPABILITIES), case_sensitive=False),
+              help="SQL dialect to write (default: the SOURCE's, or duckdb).")
+def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
+    """Print the self-contained ranking statement, formatted for pasting into a console.
+
+    Without SOURCE, describe the columns with --table, --attributes and --numeric.
+    """
+    options = _library_options(kwargs)
+    options.pop("timeout", None)
+    options.pop("limit", None)
+    click.echo(api.statement(source, dialect=dialect, **options), nl=False)
+
+
+@cli.command("check")
+@click.argument("source")
+@rank_options
+@click.option("--sample-rows", type=int, default=100_000, show_default=True,
+              help="Rows pulled into NumPy for the reference computation.")
+def check_command(source: str, sample_rows: int, **kwargs: Any) -> None:
+    """Compare the in-database metrics with the NumPy reference on pulled rows.
+
+    Exits 1 when the whole table fit in the sample and a metric differs by more than 1e-9.
+    """
+    report = api.check(source, sample_rows=sample_rows, **_library_options(kwargs))
+    scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
+    click.echo(f"{report.ranking.table}: {len(report.ranking.attributes)} attributes, "
+               f"database vs NumPy reference on the {scope}")
+    width = max(len(k) for k in report.differences)
+    for metric, difference in report.differences.items():
+        click.echo(f"  {metric.ljust(width)}  max |difference| = {difference:.3e}")
+    if report.whole_table:
+        verdict = "agree" if report.ok else "DISAGREE"
+        click.echo(f"result: database and reference {verdict} (tolerance {report.tolerance:g})")
+    else:
+        click.echo("result: sample only, differences are informative (no exact comparison)")
+    if not report.ok:
+        sys.exit(1)
+
+
+def main(argv: Sequence[str] | None = None) -> None:
+    """Console entry point: one clear error line and exit 1 for bitsift errors."""
+    args = list(sys.argv[1:] if argv is None else argv)
+    try:
+        cli.main(args=args, prog_name="bitsift", standalone_mode=False)
+    except click.exceptions.Abort:
+        click.echo("Aborted.", err=True)
+        sys.exit(130)
+    except click.ClickException as error:
+        error.show()
+        sys.exit(error.exit_code)
+    except KeyboardInterrupt:
+        click.echo("Interrupted.", err=True)
+        sys.exit(130)
+    except BitsiftError as error:
+        if _DEBUG["on"] or "--debug" in args:
+            raise
+        click.echo(f"Error: {error}", err=True)
+        sys.exit(1)
+    except Exception as error:  # noqa: BLE001 - no tracebacks for users unless --debug
+        if _DEBUG["on"] or "--debug" in args:
+            raise
+        first = (str(error).strip().splitlines() or [""])[0]
+        click.echo(f"Error: unexpected {type(error).__name__}: {first} "
+                   "(run with --debug for details)", err=True)
+        sys.exit(1)
+
+

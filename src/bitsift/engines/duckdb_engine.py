@@ -1,0 +1,150 @@
+"""DuckDB, the embedded default: database files opened read-only, Parquet/CSV read in place."""
+
+from __future__ import annotations
+
+import threading
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import duckdb
+from sqlglot import exp
+
+from bitsift.dialects import capabilities
+from bitsift.engines.base import Engine, FetchResult
+from bitsift.errors import (
+    QueryError,
+    QueryTimeoutError,
+    SourceError,
+    TableNotFoundError,
+    unknown_names_message,
+)
+from bitsift.schema import Column, family_of
+
+FILE_READERS: dict[str, str] = {
+    ".parquet": "read_parquet",
+    ".pq": "read_parquet",
+    ".csv": "read_csv_auto",
+    ".tsv": "read_csv_auto",
+    ".txt": "read_csv_auto",
+    ".gz": "read_csv_auto",
+    ".json": "read_json_auto",
+    ".ndjson": "read_json_auto",
+    ".jsonl": "read_json_auto",
+}
+
+
+def file_reader(path: str) -> str | None:
+    """The DuckDB table function that reads ``path`` in place, or None for a database file."""
+    suffixes = Path(path).suffixes
+    if suffixes[-2:-1] == [".csv"] and suffixes[-1] in (".gz", ".zst"):
+        return "read_csv_auto"
+    return FILE_READERS.get(suffixes[-1].lower()) if suffixes else None
+
+
+def file_table(path: str) -> exp.Expression:
+    """``read_parquet('path')``: the path is a string literal, never an identifier."""
+    reader = file_reader(path)
+    assert reader is not None
+    return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path)]))
+
+
+@dataclass
+class DuckDBEngine(Engine):
+    connection: duckdb.DuckDBPyConnection | None = None
+    owned: bool = True
+    timeout: float | None = field(default=None)
+
+    @classmethod
+    def open_file(cls, path: str) -> DuckDBEngine:
+        """A database file opened read-only, or an in-memory session for Parquet/CSV files."""
+        caps = capabilities("duckdb")
+        if file_reader(path) is not None:
+            if not any(ch in path for ch in "*?[") and not Path(path).exists():
+                raise SourceError(f"no such file: {path}")
+            return cls(caps=caps, connection=duckdb.connect(":memory:"))
+        if not Path(path).exists():
+            raise SourceError(f"no such file: {path}")
+        try:
+            connection = duckdb.connect(path, read_only=True)
+        except duckdb.Error as error:
+            raise SourceError(f"cannot open {path} as a DuckDB database: {_line(error)}") from None
+        return cls(caps=caps, connection=connection)
+
+    @classmethod
+    def wrap(cls, connection: duckdb.DuckDBPyConnection) -> DuckDBEngine:
+        """A connection the caller opened and keeps ownership of."""
+        return cls(caps=capabilities("duckdb"), connection=connection, owned=False)
+
+    @property
+    def con(self) -> duckdb.DuckDBPyConnection:
+        assert self.connection is not None, "engine is closed"
+        return self.connection
+
+    def columns(self, table: exp.Expression, display: str) -> list[Column]:
+        query = exp.select(exp.Star()).from_(table).limit(0).sql("duckdb")
+        try:
+            relation = self.con.sql(query)
+            names, types = relation.columns, relation.types
+        except duckdb.CatalogException:
+            raise TableNotFoundError(self._missing_table_message(table, display)) from None
+        except duckdb.IOException as error:
+            raise SourceError(f"cannot read {display}: {_line(error)}") from None
+        except duckdb.Error as error:
+            raise SourceError(f"cannot read {display}: {_line(error)}") from None
+        return [
+            Column(name=n, family=family_of(str(t), "duckdb"), type_name=str(t))
+            for n, t in zip(names, types, strict=True)
+        ]
+
+    def _missing_table_message(self, table: exp.Expression, display: str) -> str:
+        rows = self.con.execute(
+            "SELECT table_schema, table_name FROM information_schema.tables"
+        ).fetchall()
+        names = [n for _, n in rows] + [f"{s}.{n}" for s, n in rows]
+        return unknown_names_message("table", [display], names)
+
+    def set_timeout(self, seconds: float | None) -> None:
+        # DuckDB has no statement timeout setting; a timer interrupts the query instead.
+        self.timeout = seconds
+
+    def fetch(self, sql: str) -> FetchResult:
+        self.statements.append(sql)
+        timer = None
+        fired = threading.Event()
+        if self.timeout:
+            def interrupt() -> None:
+                fired.set()
+                self.con.interrupt()
+
+            timer = threading.Timer(self.timeout, interrupt)
+            timer.start()
+        try:
+            cursor = self.con.execute(sql)
+            names = [d[0] for d in cursor.description or []]
+            rows = cursor.fetchall()
+        except (duckdb.InterruptException, RuntimeError) as error:
+            if fired.is_set():
+                raise QueryTimeoutError(
+                    f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
+                ) from None
+            raise QueryError(f"DuckDB error: {_line(error)}") from None
+        except duckdb.Error as error:
+            if fired.is_set():
+                raise QueryTimeoutError(
+                    f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
+                ) from None
+            raise QueryError(f"DuckDB error: {_line(error)}") from None
+        finally:
+            if timer is not None:
+                timer.cancel()
+        return FetchResult(columns=names, rows=rows)
+
+    def close(self) -> None:
+        if self.owned and self.connection is not None:
+            self.connection.close()
+        self.connection = None
+
+
+def _line(error: BaseException) -> str:
+    text = str(error).strip()
+    return text.splitlines()[0] if text else type(error).__name__

@@ -1,0 +1,69 @@
+"""Exceptions raised by bitsift's library code.
+
+The CLI turns every :class:`BitsiftError` into one line on stderr and exit code 1.
+Messages name every offending item and, where it helps, suggest close matches.
+"""
+
+from __future__ import annotations
+
+import difflib
+from collections.abc import Iterable
+
+
+class BitsiftError(Exception):
+    """Base class of every error bitsift reports to its user."""
+
+
+class SpecError(BitsiftError):
+    """The request itself is invalid (bad option value, contradictory options)."""
+
+
+class SourceError(BitsiftError):
+    """The data source cannot be opened or read (missing file, bad URL, missing driver)."""
+
+
+class MissingDriverError(SourceError):
+    """A SQLAlchemy dialect needs a driver that is not installed."""
+
+
+class TableNotFoundError(SourceError):
+    """The named table does not exist in the source."""
+
+
+class ColumnError(BitsiftError):
+    """One or more named columns do not exist, or cannot be used as asked."""
+
+
+class DataError(BitsiftError):
+    """The data cannot be ranked (empty table, a target with one class...)."""
+
+
+class PredicateError(BitsiftError):
+    """A ``--where`` predicate was rejected."""
+
+
+class QueryError(BitsiftError):
+    """The database refused or aborted a statement bitsift sent."""
+
+
+class QueryTimeoutError(QueryError):
+    """The statement timeout fired."""
+
+
+def suggest(name: str, candidates: Iterable[str]) -> str:
+    """Return ``" (did you mean 'x'?)"`` for the closest candidate, or ``""``."""
+    pool = list(candidates)
+    matches = difflib.get_close_matches(name, pool, n=1, cutoff=0.6)
+    if not matches:
+        lowered = {c.lower(): c for c in pool}
+        if name.lower() in lowered:
+            matches = [lowered[name.lower()]]
+    return f" (did you mean {matches[0]!r}?)" if matches else ""
+
+
+def unknown_names_message(what: str, names: Iterable[str], candidates: Iterable[str]) -> str:
+    """Build one line naming every unknown name with a suggestion for each."""
+    pool = list(candidates)
+    parts = [f"{n!r}{suggest(n, pool)}" for n in names]
+    plural = "s" if len(parts) > 1 else ""
+    return f"unknown {what}{plural}: " + ", ".join(parts)

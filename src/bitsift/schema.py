@@ -1,0 +1,62 @@
+"""Column discovery results and the mapping from column types to attribute kinds."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import sqlglot
+from sqlglot import exp
+
+#: Coarse type families; the only thing bitsift needs to know about a column's type.
+Family = Literal["integer", "float", "decimal", "text", "boolean", "date", "timestamp", "other"]
+Kind = Literal["categorical", "numeric"]
+
+NUMERIC_FAMILIES: frozenset[str] = frozenset({"integer", "float", "decimal"})
+
+_FAMILY_OF_TYPE: dict[str, Family] = {}
+for _family, _types in {
+    "integer": exp.DataType.INTEGER_TYPES,
+    "float": exp.DataType.REAL_TYPES - exp.DataType.INTEGER_TYPES,
+    "text": exp.DataType.TEXT_TYPES,
+    "date": {exp.DataType.Type.DATE, exp.DataType.Type.DATE32},
+    "timestamp": exp.DataType.TEMPORAL_TYPES
+    - {exp.DataType.Type.DATE, exp.DataType.Type.DATE32},
+    "boolean": {exp.DataType.Type.BOOLEAN},
+}.items():
+    for _t in _types:
+        _FAMILY_OF_TYPE[_t.value] = _family  # type: ignore[assignment]
+for _t in (exp.DataType.Type.DECIMAL, exp.DataType.Type.BIGDECIMAL, exp.DataType.Type.MONEY,
+           exp.DataType.Type.SMALLMONEY, exp.DataType.Type.UDECIMAL):
+    _FAMILY_OF_TYPE[_t.value] = "decimal"
+
+
+@dataclass(frozen=True)
+class Column:
+    """A column of the source table as the catalog spells it."""
+
+    name: str
+    family: Family
+    type_name: str = ""
+
+    @property
+    def default_kind(self) -> Kind:
+        """Floating and decimal columns are numeric; everything else is categorical."""
+        return "numeric" if self.family in ("float", "decimal") else "categorical"
+
+
+def family_of(type_name: str, dialect: str = "duckdb") -> Family:
+    """Map a type name as an engine prints it to a :data:`Family`.
+
+    >>> family_of("DECIMAL(8,2)")
+    'decimal'
+    >>> family_of("BIGINT")
+    'integer'
+    >>> family_of("character varying", "postgres")
+    'text'
+    """
+    try:
+        data_type = exp.DataType.build(type_name, dialect=dialect)
+    except (sqlglot.errors.ParseError, ValueError):
+        return "other"
+    return _FAMILY_OF_TYPE.get(data_type.this.value, "other")

@@ -1,0 +1,40 @@
+"""Finding and loading the Jinja2 templates (SQL and HTML) shipped inside the wheel."""
+
+from __future__ import annotations
+
+import functools
+from importlib import resources
+from pathlib import Path
+
+import jinja2
+
+
+def templates_dir() -> Path:
+    """The installed ``bitsift/templates`` folder, or the repository's ``templates/`` in a checkout.
+
+    The wheel maps the repository's top-level ``templates/`` into the package; an editable
+    install imports from ``src/`` and finds the folder two levels up.
+    """
+    packaged = Path(str(resources.files("bitsift"))) / "templates"
+    if packaged.is_dir():
+        return packaged
+    checkout = Path(__file__).resolve().parents[2] / "templates"
+    if checkout.is_dir():
+        return checkout
+    raise FileNotFoundError(f"bitsift templates not found in {packaged} nor {checkout}")
+
+
+@functools.cache
+def environment() -> jinja2.Environment:
+    """The shared Jinja2 environment: strict about undefined names, no autoescaping for SQL."""
+    return jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(templates_dir())),
+        undefined=jinja2.StrictUndefined,
+        autoescape=jinja2.select_autoescape(enabled_extensions=("html",), default=False),
+        keep_trailing_newline=True,
+    )
+
+
+def render(name: str, **context: object) -> str:
+    """Render template ``name`` with ``context``."""
+    return environment().get_template(name).render(**context)
