@@ -4,7 +4,7 @@ VENV ?= .venv
 PY := $(VENV)/bin/python
 ROWS ?= 200000
 
-.PHONY: demo test lint bench install clean
+.PHONY: demo test lint bench install clean browser
 
 $(PY):
 	$(PYTHON) -m venv $(VENV)
@@ -24,9 +24,17 @@ install: $(VENV)/.installed
 demo: $(VENV)/.installed
 	$(PY) examples/make_demo.py --rows $(ROWS)
 	$(VENV)/bin/bitsift rank examples/data/greenhouse.duckdb --table trays --target outcome
+	$(VENV)/bin/bitsift run examples/greenhouse_job.toml
+
+## browser: headless Chromium for tests/test_report_browser.py (installed only when root and missing)
+browser:
+	@if [ ! -x /usr/bin/chromium ] && [ "$$(id -u)" = 0 ] && command -v apt-get >/dev/null; then \
+		apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq chromium \
+		|| echo "warning: chromium not installed: the browser test skips (fails with CI=true)"; \
+	fi
 
 ## test: lint, then the whole suite (PostgreSQL and MariaDB tests need the local servers)
-test: $(VENV)/.installed-test
+test: $(VENV)/.installed-test browser
 	$(VENV)/bin/ruff check src tests examples benchmarks
 	$(PY) -m pytest
 

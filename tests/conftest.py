@@ -20,7 +20,9 @@ ROOT = Path(__file__).resolve().parents[1]
 POSTGRES_URL = os.environ.get(
     "BITSIFT_TEST_POSTGRES_URL", "postgresql+psycopg://postgres@127.0.0.1:5432/test"
 )
-MARIADB_URL = os.environ.get("BITSIFT_TEST_MARIADB_URL", "mysql+pymysql://root@127.0.0.1:3306/test")
+MARIADB_URL = os.environ.get(
+    "BITSIFT_TEST_MARIADB_URL", "mysql+pymysql://root@127.0.0.1:3306/test"
+)
 IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
 
 
@@ -34,7 +36,8 @@ def _server(url: str, what: str) -> sa.Engine:
         with engine.connect() as connection:
             connection.exec_driver_sql("SELECT 1")
     except Exception as error:  # noqa: BLE001
-        message = f"{what} unreachable at {engine.url.render_as_string(hide_password=True)}: {error}"
+        where = engine.url.render_as_string(hide_password=True)
+        message = f"{what} unreachable at {where}: {error}"
         if IN_CI:
             pytest.fail(message)
         pytest.skip(message)

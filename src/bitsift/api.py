@@ -13,7 +13,7 @@ from typing import Any
 from sqlglot import exp
 
 from bitsift import reference
-from bitsift.dialects import Capabilities, capabilities
+from bitsift.dialects import capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import DataError, SpecError
 from bitsift.metrics import score, sort_scores

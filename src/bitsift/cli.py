@@ -18,7 +18,9 @@ from bitsift.version import __version__
 _DEBUG = {"on": False}
 
 
-def _comma_list(_ctx: click.Context, _param: click.Parameter, value: Sequence[str]) -> tuple[str, ...]:
+def _comma_list(
+    _ctx: click.Context, _param: click.Parameter, value: Sequence[str]
+) -> tuple[str, ...]:
     names: list[str] = []
     for item in value:
         names += [v.strip() for v in item.split(",") if v.strip()]
@@ -164,3 +166,14 @@ def main(argv: Sequence[str] | None = None) -> None:
         sys.exit(1)
 
 
+# The scheduled-run commands (run, drift, models) live in their own module.
+from bitsift.cli_jobs import JOB_COMMANDS  # noqa: E402
+
+for _command in JOB_COMMANDS:
+    cli.add_command(_command)
+
+# The reports people read (report, profile) live in their own module.
+from bitsift.cli_report import profile_command, report_command  # noqa: E402
+
+cli.add_command(report_command)
+cli.add_command(profile_command)

@@ -32,21 +32,43 @@ QuantileMethod = Literal["quantile_cont", "percentile_cont", "window"]
 
 @dataclass(frozen=True)
 class Capabilities:
-    """What the query builder may use on one dialect."""
+    """What the query builder and the engines may use on one dialect."""
 
     name: str
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
     quantile: QuantileMethod = "window"
-    #: Statement run on the session to set a timeout; ``{ms}`` / ``{seconds}`` are replaced
-    #: by integers. ``None``: the engine has no statement timeout.
-    timeout_statement: str | None = None
-    #: Statement that makes the session read-only, if the engine has one.
+    #: Type (spelled in the dialect) that grouped text values are cast to so that they compare
+    #: byte-exactly. ``None``: the engine's default comparison already tells 'a' from 'A'
+    #: and 'x' from 'x '. MySQL/MariaDB's default collations are case-insensitive and
+    #: PAD SPACE, SQL Server's are case-insensitive and always pad.
+    exact_key_type: str | None = None
+    #: Run at the start of every transaction bitsift opens, to make it read-only. Must be
+    #: transaction-scoped (PostgreSQL, MySQL/MariaDB ``SET TRANSACTION READ ONLY``) unless
+    #: :attr:`read_only_reset` undoes it when bitsift closes the connection.
     read_only_statement: str | None = None
+    #: Undoes a session-scoped :attr:`read_only_statement` at close (SQLite's pragma).
+    read_only_reset: str | None = None
+    #: Run at the start of every transaction to set a statement timeout; ``{ms}``,
+    #: ``{seconds}`` (decimal) and ``{whole_seconds}`` (integer, at least 1) are replaced.
+    timeout_statement: str | None = None
+    #: Alternatively, a prefix put before every statement (MariaDB's ``SET STATEMENT ... FOR``,
+    #: which leaves no session state behind), with the same placeholders.
+    timeout_prefix: str | None = None
+    #: The engine has no server-side timeout, and bitsift interrupts the query from the
+    #: client instead (DuckDB ``interrupt()``, SQLite's progress handler).
+    timeout_in_client: bool = False
+    #: SQLite builds without math functions lack LN and FLOOR: bitsift registers Python's.
+    register_math_functions: bool = False
     #: Does the engine have a chi-square survival function? (none listed has; p comes from Python)
     has_chi2: bool = False
     #: True when the entry was checked by executing SQL on a real engine in the test suite.
     executed_in_tests: bool = False
+
+    @property
+    def has_timeout(self) -> bool:
+        """True when ``--timeout`` is enforced on this dialect, by the server or by bitsift."""
+        return bool(self.timeout_statement or self.timeout_prefix or self.timeout_in_client)
 
 
 _DEFAULT = Capabilities(name="generic", sqlglot_dialect="")
@@ -59,16 +81,20 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="duckdb",
             sqlglot_dialect="duckdb",
             quantile="quantile_cont",
+            timeout_in_client=True,
             executed_in_tests=True,
         ),
-        # SQLite has neither GROUPING SETS nor a quantile aggregate; UNION ALL of narrow
-        # GROUP BYs measured faster than the cross join (see benchmarks/RESULTS.md).
+        # No GROUPING SETS, no quantile aggregate; math functions only in builds with
+        # SQLITE_ENABLE_MATH_FUNCTIONS (Python's 3.40 has them).
         replace(
             _DEFAULT,
             name="sqlite",
             sqlglot_dialect="sqlite",
             count_strategy="union_all",
             read_only_statement="PRAGMA query_only = ON",
+            read_only_reset="PRAGMA query_only = OFF",
+            timeout_in_client=True,
+            register_math_functions=True,
             executed_in_tests=True,
         ),
         replace(
@@ -76,40 +102,56 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="postgres",
             sqlglot_dialect="postgres",
             quantile="percentile_cont",
-            timeout_statement="SET statement_timeout = {ms}",
-            read_only_statement="SET SESSION CHARACTERISTICS AS TRANSACTION READ ONLY",
+            timeout_statement="SET LOCAL statement_timeout = {ms}",
+            read_only_statement="SET TRANSACTION READ ONLY",
             executed_in_tests=True,
         ),
-        # MySQL/MariaDB: WITH ROLLUP only, and MariaDB has no GROUPING().
+        # WITH ROLLUP only (sqlglot would emit GROUPING SETS anyway); PERCENTILE_CONT is a
+        # window function only; default collations are case-insensitive.
         replace(
             _DEFAULT,
             name="mysql",
             sqlglot_dialect="mysql",
             count_strategy="union_all",
+            exact_key_type="BINARY",
             timeout_statement="SET SESSION max_execution_time = {ms}",
-            read_only_statement="SET SESSION TRANSACTION READ ONLY",
+            read_only_statement="SET TRANSACTION READ ONLY",
         ),
-        # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect) but names its timeout differently.
+        # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect), has no GROUPING() at all, and
+        # names its timeout differently; its default utf8mb4_general_ci is case-insensitive
+        # and PAD SPACE, so text is grouped as BINARY.
         replace(
             _DEFAULT,
             name="mariadb",
             sqlglot_dialect="mysql",
             count_strategy="union_all",
-            timeout_statement="SET SESSION max_statement_time = {seconds}",
-            read_only_statement="SET SESSION TRANSACTION READ ONLY",
+            exact_key_type="BINARY",
+            timeout_prefix="SET STATEMENT max_statement_time = {seconds} FOR ",
+            read_only_statement="SET TRANSACTION READ ONLY",
             executed_in_tests=True,
         ),
-        replace(_DEFAULT, name="snowflake", sqlglot_dialect="snowflake",
-                quantile="percentile_cont",
-                timeout_statement="ALTER SESSION SET STATEMENT_TIMEOUT_IN_SECONDS = {seconds}"),
+        replace(
+            _DEFAULT,
+            name="snowflake",
+            sqlglot_dialect="snowflake",
+            quantile="percentile_cont",
+            timeout_statement="ALTER SESSION SET STATEMENT_TIMEOUT_IN_SECONDS = {whole_seconds}",
+        ),
         replace(_DEFAULT, name="bigquery", sqlglot_dialect="bigquery"),
-        replace(_DEFAULT, name="redshift", sqlglot_dialect="redshift",
-                quantile="percentile_cont",
-                timeout_statement="SET statement_timeout TO {ms}"),
+        # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.
+        replace(
+            _DEFAULT,
+            name="redshift",
+            sqlglot_dialect="redshift",
+            timeout_statement="SET statement_timeout TO {ms}",
+        ),
+        # Trino has only approx_percentile: window method.
         replace(_DEFAULT, name="trino", sqlglot_dialect="trino"),
-        replace(_DEFAULT, name="tsql", sqlglot_dialect="tsql"),
-        replace(_DEFAULT, name="oracle", sqlglot_dialect="oracle",
-                quantile="percentile_cont"),
+        # PERCENTILE_CONT is window-only; collations are usually case-insensitive and
+        # comparisons always ignore trailing spaces: group text as VARBINARY.
+        replace(_DEFAULT, name="tsql", sqlglot_dialect="tsql", exact_key_type="VARBINARY(8000)"),
+        replace(_DEFAULT, name="oracle", sqlglot_dialect="oracle", quantile="percentile_cont"),
+        # sqlglot rewrites exact percentiles to percentile_approx for Spark: window method.
         replace(_DEFAULT, name="databricks", sqlglot_dialect="databricks"),
         replace(_DEFAULT, name="spark", sqlglot_dialect="spark"),
         replace(_DEFAULT, name="clickhouse", sqlglot_dialect="clickhouse"),

@@ -103,8 +103,11 @@ def _markdown_escape(text: str) -> str:
 def as_markdown(ranking: Ranking) -> str:
     """A GitHub-flavoured Markdown table with a one-line summary."""
     header = [h for _, h in _TABLE_COLUMNS]
-    lines = [_summary(ranking), "", "| " + " | ".join(header) + " |"]
-    lines.append("|" + "|".join("---" if i < 2 else "---:" for i in range(len(header))) + "|")
+    # "H(Y|X)" holds a pipe: unescaped, it would split the header into one cell too many.
+    lines = [_summary(ranking), "", "| " + " | ".join(map(_markdown_escape, header)) + " |"]
+    text_columns = {0, 1, len(header) - 1}  # attribute, kind, flags: left; numbers: right
+    lines.append("|" + "|".join("---" if i in text_columns else "---:"
+                                for i in range(len(header))) + "|")
     for row in _rows(ranking):
         lines.append("| " + " | ".join(_markdown_escape(c) for c in row) + " |")
     return "\n".join(lines) + "\n"

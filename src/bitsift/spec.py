@@ -50,7 +50,8 @@ class RankOptions:
     def __post_init__(self) -> None:
         problems = []
         if self.missing not in MISSING_MODES:
-            problems.append(f"--missing must be one of {', '.join(MISSING_MODES)}, not {self.missing!r}")
+            modes = ", ".join(MISSING_MODES)
+            problems.append(f"--missing must be one of {modes}, not {self.missing!r}")
         if self.sort not in SORT_METRICS:
             problems.append(f"--sort must be one of {', '.join(SORT_METRICS)}, not {self.sort!r}")
         if not 2 <= self.bins <= 1000:
@@ -85,6 +86,8 @@ class RankSpec:
     attributes: tuple[AttributeSpec, ...]
     options: RankOptions
     where: Predicate | None = None
+    #: Type family of the target column (decides byte-exact grouping, see dialects.py).
+    target_family: str = "other"
 
     @property
     def numeric(self) -> tuple[AttributeSpec, ...]:
@@ -92,7 +95,7 @@ class RankSpec:
 
 
 def _match(names: Sequence[str], columns: dict[str, Column]) -> tuple[list[str], list[str]]:
-    """Resolve user spellings to catalog spellings (exact first, then case-insensitive if unique)."""
+    """Resolve user spellings to catalog spellings (exact, else a unique case-insensitive match)."""
     lowered: dict[str, list[str]] = {}
     for c in columns:
         lowered.setdefault(c.lower(), []).append(c)
@@ -166,4 +169,5 @@ def resolve(
         attributes=tuple(attributes),
         options=options,
         where=where,
+        target_family=by_name[target].family,
     )

@@ -14,12 +14,21 @@ from dataclasses import dataclass
 import sqlglot
 from sqlglot import exp
 
-from bitsift.version import __version__
 from bitsift.dialects import Capabilities
 from bitsift.spec import RankSpec
 from bitsift.templates import render
+from bitsift.version import __version__
 
 CANONICAL = "duckdb"
+
+#: Placeholder function the templates wrap around a grouped value that must compare
+#: byte-exactly; :func:`_apply_hooks` turns it into the dialect's cast (see
+#: :attr:`~bitsift.dialects.Capabilities.exact_key_type`).
+EXACT_KEY = "bitsift_exact_key"
+
+#: Type families whose values are compared under a collation (so 'a' may equal 'A').
+#: "other" is here because paste mode without a connection does not know the types.
+COLLATED_FAMILIES: frozenset[str] = frozenset({"text", "other"})
 
 #: Statement node types that must never appear in SQL bitsift sends.
 _WRITES: tuple[type[exp.Expression], ...] = (exp.DDL, exp.DML, exp.Command, exp.Into)
@@ -69,6 +78,18 @@ class Statement:
     dialect: str
 
 
+def _exact(family: str, caps: Capabilities) -> bool:
+    return caps.exact_key_type is not None and family in COLLATED_FAMILIES
+
+
+def _qualified(predicate: exp.Expression, alias: str) -> exp.Expression:
+    """The predicate with every column qualified by the table alias ``alias``."""
+    tree = predicate.copy()
+    for column in tree.find_all(exp.Column):
+        column.set("table", exp.to_identifier(alias))
+    return tree
+
+
 def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[float]] | None,
              ) -> dict[str, object]:
     attributes = []
@@ -89,6 +110,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
                 "label": literal(attribute.name),
                 "kind": attribute.kind,
                 "cuts": attribute_cuts,
+                "exact": _exact(attribute.family, caps),
             }
         )
     numeric = [a for a in attributes if a["cuts"] is not None]
@@ -103,8 +125,12 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "source": source_sql(spec.source),
         "target": quote(spec.target),
         "target_label": literal(spec.target),
+        "target_exact": _exact(spec.target_family, caps),
         "attributes": attributes,
         "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
+        "qualified_where": _qualified(spec.where.expression, "src").sql(CANONICAL)
+        if spec.where
+        else None,
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
@@ -121,9 +147,29 @@ def _finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
     tree = trees[0]
     if any(isinstance(node, _WRITES) for node in tree.walk()):
         raise BuildError(f"generated SQL contains a write or command:\n{text}")
+    tree = _apply_hooks(tree, caps)
     sql = tree.sql(dialect=caps.sqlglot_dialect, pretty=pretty, unsupported_level=
                    sqlglot.ErrorLevel.RAISE)
     return Statement(sql=sql, tree=tree, dialect=caps.name)
+
+
+def _apply_hooks(tree: exp.Expression, caps: Capabilities) -> exp.Expression:
+    """Replace the templates' placeholder functions with the dialect's own constructs.
+
+    Done on the parsed tree because sqlglot cannot transpile them from DuckDB text: DuckDB's
+    BLOB becomes ``CAST(x AS VARBINARY)`` in MySQL, which MySQL and MariaDB reject.
+    """
+
+    def hook(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.Anonymous) and node.name.lower() == EXACT_KEY:
+            (argument,) = node.expressions
+            if caps.exact_key_type is None:
+                return argument
+            to = exp.DataType.build(caps.exact_key_type, dialect=caps.sqlglot_dialect)
+            return exp.Cast(this=argument, to=to)
+        return node
+
+    return tree.transform(hook)
 
 
 def rank_statement(

@@ -30,7 +30,7 @@ def environment() -> jinja2.Environment:
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir())),
         undefined=jinja2.StrictUndefined,
-        autoescape=jinja2.select_autoescape(enabled_extensions=("html",), default=False),
+        autoescape=jinja2.select_autoescape(enabled_extensions=("html", "html.j2"), default=False),
         keep_trailing_newline=True,
     )
 

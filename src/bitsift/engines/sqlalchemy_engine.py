@@ -1,10 +1,13 @@
-"""Any SQLAlchemy engine: URL, Engine or Connection; dialect mapped to bitsift's capability table."""
+"""Any SQLAlchemy engine (URL, Engine or Connection), its dialect mapped to the capability table."""
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
-from dataclasses import dataclass
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
 from typing import Any
 
 import sqlalchemy as sa
@@ -12,6 +15,7 @@ from sqlalchemy.engine import URL, make_url
 from sqlglot import exp
 
 from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
+from bitsift.engines import sqlite_support
 from bitsift.engines.base import Engine, FetchResult, resolve_name
 from bitsift.errors import (
     MissingDriverError,
@@ -23,11 +27,11 @@ from bitsift.errors import (
 )
 from bitsift.schema import Column, Family
 
-#: Which pip extra brings the driver of a SQLAlchemy backend.
-DRIVER_EXTRAS: dict[str, str] = {
-    "postgresql": "postgres",
-    "mysql": "mysql",
-    "mariadb": "mysql",
+#: Which pip extra brings a driver for a SQLAlchemy backend, and the URL scheme it serves.
+DRIVER_EXTRAS: dict[str, tuple[str, str]] = {
+    "postgresql": ("postgres", "postgresql+psycopg"),
+    "mysql": ("mysql", "mysql+pymysql"),
+    "mariadb": ("mysql", "mariadb+pymysql"),
 }
 
 #: Environment variable that may hold the password instead of the URL.
@@ -35,9 +39,19 @@ PASSWORD_VARIABLE = "BITSIFT_PASSWORD"
 
 _TIMEOUT_PATTERNS = re.compile(
     r"statement timeout|max_statement_time|max_execution_time|query execution was interrupted"
-    r"|canceling statement due to statement timeout",
+    r"|canceling statement due to statement timeout|^interrupted$",
     re.IGNORECASE,
 )
+
+
+def missing_driver_message(drivername: str, backend: str, error: BaseException) -> str:
+    """One line naming the missing module and the extra that brings a working driver."""
+    module = getattr(error, "name", None) or _line(error)
+    line = f"no driver for {drivername}:// (module {module!r} is not installed)"
+    if backend in DRIVER_EXTRAS:
+        extra, scheme = DRIVER_EXTRAS[backend]
+        line += f"; pip install 'bitsift[{extra}]' and use {scheme}://"
+    return line
 
 
 def _family(sa_type: Any) -> Family:
@@ -68,10 +82,21 @@ def safe_url(url: str | URL) -> str:
 
 @dataclass
 class SqlAlchemyEngine(Engine):
+    """Runs bitsift's statements through SQLAlchemy, each in its own read-only transaction.
+
+    Read-only and timeout settings are transaction-scoped (or undone at close), so an Engine
+    or Connection the caller passes in is handed back as it was. A Connection that is already
+    inside a transaction is used as is: its transaction is neither ended nor changed.
+    """
+
     connection: sa.Connection | None = None
     engine: sa.Engine | None = None
     owned: bool = True
-    secret: str | None = None
+    secret: str | None = field(default=None, repr=False)
+    timeout: float | None = None
+    #: The caller's Connection had an open transaction: leave it alone.
+    borrowed_transaction: bool = False
+    _session_read_only: bool = False
 
     @classmethod
     def open_url(cls, url: str) -> SqlAlchemyEngine:
@@ -85,20 +110,28 @@ class SqlAlchemyEngine(Engine):
         backend = parsed.get_backend_name()
         try:
             engine = sa.create_engine(parsed, poolclass=sa.pool.NullPool)
-        except (ModuleNotFoundError, ImportError, sa.exc.NoSuchModuleError) as error:
-            extra = DRIVER_EXTRAS.get(backend)
-            hint = f": pip install 'bitsift[{extra}]'" if extra else ""
+        except (ModuleNotFoundError, ImportError) as error:
+            raise MissingDriverError(missing_driver_message(parsed.drivername, backend, error)
+                                     ) from None
+        except sa.exc.NoSuchModuleError:
             raise MissingDriverError(
-                f"the driver for {parsed.drivername} is not installed{hint} ({_line(error)})"
+                f"SQLAlchemy has no dialect {parsed.drivername!r} installed"
+                + (f"; pip install 'bitsift[{DRIVER_EXTRAS[backend][0]}]' and use "
+                   f"{DRIVER_EXTRAS[backend][1]}://" if backend in DRIVER_EXTRAS else "")
             ) from None
-        self = cls._from_engine(engine, owned=True, secret=secret)
-        return self
+        return cls._from_engine(engine, owned=True, secret=secret)
 
     @classmethod
     def wrap(cls, source: sa.Engine | sa.Connection) -> SqlAlchemyEngine:
         """An Engine or Connection the caller keeps ownership of."""
         if isinstance(source, sa.Connection):
-            return cls._connected(source, engine=None, owned=False, secret=None)
+            self = cls._connected(source, engine=None, owned=False, secret=None)
+            self.borrowed_transaction = source.in_transaction()
+            if self.borrowed_transaction:
+                self.notes.append("running inside the caller's open transaction: bitsift "
+                                  "cannot make it read-only nor set a timeout on it")
+            self._prepare()
+            return self
         return cls._from_engine(source, owned=False, secret=None)
 
     @classmethod
@@ -106,13 +139,14 @@ class SqlAlchemyEngine(Engine):
         try:
             connection = engine.connect()
         except Exception as error:  # noqa: BLE001 - any driver error
-            message = _scrub(_line(error), secret)
+            message = _scrub(_line(getattr(error, "orig", None) or error), secret)
             raise SourceError(
                 f"cannot connect to {safe_url(engine.url)}: {message}"
             ) from None
+        # The connection is ours even when the Engine is the caller's: close it afterwards.
         self = cls._connected(connection, engine=engine if owned else None, owned=True,
                               secret=secret)
-        self._make_read_only()
+        self._prepare()
         return self
 
     @classmethod
@@ -134,14 +168,42 @@ class SqlAlchemyEngine(Engine):
         assert self.connection is not None, "engine is closed"
         return self.connection
 
+    def _driver_connection(self) -> Any:
+        return self.con.connection.driver_connection
+
+    def _prepare(self) -> None:
+        """Once per connection: math functions for SQLite, session-scoped read-only mode."""
+        if self.caps.register_math_functions:
+            added = sqlite_support.register_math_functions(self._driver_connection())
+            if added:
+                self.notes.append("this SQLite build lacks " + ", ".join(added)
+                                  + ": bitsift registered Python's on the connection")
+        if (self.caps.read_only_statement and self.caps.read_only_reset
+                and not self.borrowed_transaction):
+            self._session(self.caps.read_only_statement)
+            self._session_read_only = True
+
+    def _execute(self, statement: str) -> sa.CursorResult[Any]:
+        # no_parameters: the text goes to cursor.execute() alone, so a '%' in a name or a
+        # --where literal is not taken for a placeholder by psycopg or PyMySQL.
+        return self.con.exec_driver_sql(statement, execution_options={"no_parameters": True})
+
     def _session(self, statement: str) -> None:
         self.statements.append(statement)
-        self.con.exec_driver_sql(statement)
+        self._execute(statement)
 
-    def _make_read_only(self) -> None:
-        if self.caps.read_only_statement:
+    def _begin(self) -> None:
+        """Start a transaction: read-only, with the timeout, both scoped to it."""
+        if self.borrowed_transaction:
+            return
+        if self.caps.read_only_statement and not self.caps.read_only_reset:
             self._session(self.caps.read_only_statement)
-        self.con.commit()
+        if self.timeout and self.caps.timeout_statement:
+            self._session(_timeout_text(self.caps.timeout_statement, self.timeout))
+
+    def _end(self) -> None:
+        if not self.borrowed_transaction:
+            self._rollback_quietly()
 
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
         assert isinstance(table, exp.Table)
@@ -151,16 +213,18 @@ class SqlAlchemyEngine(Engine):
             tables = inspector.get_table_names(schema=schema) + inspector.get_view_names(
                 schema=schema
             )
-        except Exception as error:  # noqa: BLE001 - unknown schema and friends
+            real = resolve_name(name, tables)
+            if real is None:
+                raise TableNotFoundError(unknown_names_message("table", [display], tables))
+            columns = inspector.get_columns(real, schema=schema)
+        except sa.exc.DBAPIError as error:  # unknown schema and friends
             raise TableNotFoundError(
-                f"cannot list tables of schema {schema!r}: {_scrub(_line(error), self.secret)}"
+                f"cannot list tables of schema {schema!r}: "
+                f"{_scrub(_line(error.orig or error), self.secret)}"
             ) from None
-        real = resolve_name(name, tables)
-        if real is None:
-            raise TableNotFoundError(unknown_names_message("table", [display], tables))
+        finally:
+            self._end()
         table.set("this", exp.to_identifier(real, quoted=True))
-        columns = inspector.get_columns(real, schema=schema)
-        self.con.rollback()
         return [
             Column(name=c["name"], family=_family(c["type"]), type_name=str(c["type"]))
             for c in columns
@@ -169,47 +233,71 @@ class SqlAlchemyEngine(Engine):
     def set_timeout(self, seconds: float | None) -> None:
         if not seconds:
             return
-        if self.caps.timeout_statement is None:
+        if not self.caps.has_timeout:
             self.notes.append(
                 f"{self.caps.name} has no statement timeout; --timeout {seconds:g} is not applied"
             )
             return
-        statement = self.caps.timeout_statement.format(
-            ms=max(1, round(seconds * 1000)), seconds=max(1, round(seconds))
-        )
-        self._session(statement)
-        self.con.commit()
+        self.timeout = seconds
 
     def fetch(self, sql: str) -> FetchResult:
-        self.statements.append(sql)
+        text = sql
+        if self.timeout and self.caps.timeout_prefix and not self.borrowed_transaction:
+            text = _timeout_text(self.caps.timeout_prefix, self.timeout) + sql
+        self.statements.append(text)
+        client_timeout = (self.timeout if self.caps.timeout_in_client
+                          and not self.borrowed_transaction else None)
         try:
-            result = self.con.exec_driver_sql(sql)
-            names = list(result.keys())
-            rows = [tuple(r) for r in result.fetchall()]
-            self.con.rollback()
-        except sa.exc.DBAPIError as error:
-            self._rollback_quietly()
-            message = _scrub(_line(error.orig or error), self.secret)
-            if _TIMEOUT_PATTERNS.search(message):
-                raise QueryTimeoutError(
-                    f"the query hit the --timeout and was cancelled by the server ({message})"
-                ) from None
-            raise QueryError(f"{self.caps.name} error: {message}") from None
+            self._begin()
+            with self._client_deadline(client_timeout) as fired:
+                try:
+                    result = self._execute(text)
+                    names = list(result.keys())
+                    rows = [tuple(r) for r in result.fetchall()]
+                except sa.exc.DBAPIError as error:
+                    message = _scrub(_line(error.orig or error), self.secret)
+                    if fired() or _TIMEOUT_PATTERNS.search(message):
+                        raise QueryTimeoutError(
+                            f"the query ran longer than --timeout {self.timeout:g} s and was "
+                            f"cancelled ({message})"
+                        ) from None
+                    raise QueryError(f"{self.caps.name} error: {message}") from None
+        finally:
+            self._end()
         return FetchResult(columns=names, rows=rows)
 
+    @contextmanager
+    def _client_deadline(self, seconds: float | None) -> Iterator[Callable[[], bool]]:
+        if seconds and self.caps.name == "sqlite":
+            with sqlite_support.deadline(self._driver_connection(), seconds) as fired:
+                yield fired
+        else:
+            yield lambda: False
+
     def _rollback_quietly(self) -> None:
-        try:
+        with contextlib.suppress(Exception):  # the connection may be gone
             self.con.rollback()
-        except Exception:  # noqa: BLE001, S110 - connection may be gone
-            pass
 
     def close(self) -> None:
+        reset = self.caps.read_only_reset
+        if self.connection is not None and self._session_read_only and reset:
+            with contextlib.suppress(Exception):  # closing anyway
+                self._session(reset)
         if self.connection is not None and self.owned:
             self.connection.close()
         if self.engine is not None:
             self.engine.dispose()
         self.connection = None
         self.engine = None
+
+
+def _timeout_text(template: str, seconds: float) -> str:
+    """A timeout statement with its placeholders filled from a validated number of seconds."""
+    return template.format(
+        ms=max(1, round(seconds * 1000)),
+        seconds=f"{max(seconds, 0.000001):.6f}",
+        whole_seconds=max(1, round(seconds)),
+    )
 
 
 def _scrub(text: str, secret: str | None) -> str:

@@ -1,0 +1,324 @@
+"""What the benchmark compares. Each contender runs in a worker process and returns its metrics.
+
+(a) ``bitsift``        bitsift.rank on the table, as a user calls it.
+(b) ``export``         the analyst's export path: the table read into pandas, metrics in NumPy.
+                       ``reader="dbapi"`` is ``pandas.read_sql`` (rows through the DB-API, as on
+                       any database); ``reader="arrow"`` is DuckDB's own ``.df()`` (Arrow, DuckDB
+                       only): the fastest export there is.
+(c) ``handwritten``    the quantile query for the numeric columns, then K ``GROUP BY attribute,
+                       target`` queries run one after the other, metrics from the counts in NumPy.
+(d) ``floor``          one query reading every referenced column once: ``SELECT MIN(a1), …``.
+    ``strategy``       bitsift's own builder with one count strategy forced (strategy comparison).
+
+Every contender opens its own connection inside the timed region, like a fresh ``bitsift rank``.
+The SQL here is written by hand on purpose (it is what the analyst would type); the only names in
+it are the generated table's own.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+from datagen import TARGET, AttributeDef, Dataset, layout
+from sqlglot import exp
+
+#: Per attribute: metric name -> value. What the contenders must agree on.
+Metrics = dict[str, dict[str, float]]
+METRIC_NAMES: tuple[str, ...] = (
+    "information_gain",
+    "gain_ratio",
+    "symmetric_uncertainty",
+    "g_statistic",
+    "dof",
+    "distinct",
+)
+BINS = 10
+PROBABILITIES: tuple[float, ...] = tuple(round(j / BINS, 12) for j in range(1, BINS))
+#: One statement per ranking, or per-attribute statements (sequential or over a pool).
+STRATEGIES: tuple[str, ...] = (
+    "grouping_sets",
+    "union_all",
+    "cross_join",
+    "per_attribute_sequential",
+    "per_attribute_concurrent",
+)
+
+
+def _dialect(dataset: Dataset) -> str:
+    return "duckdb" if dataset.engine == "duckdb" else "postgres"
+
+
+def _identifier(name: str, dataset: Dataset) -> str:
+    return exp.to_identifier(name, quoted=True).sql(_dialect(dataset))
+
+
+def _table(dataset: Dataset) -> str:
+    return ".".join(_identifier(part, dataset) for part in dataset.table.split("."))
+
+
+def _bitsift_source(dataset: Dataset) -> str:
+    return dataset.location
+
+
+@contextmanager
+def _dbapi_cursor(dataset: Dataset) -> Iterator[Any]:
+    """A plain DB-API cursor, read-only for DuckDB files."""
+    if dataset.engine == "duckdb":
+        import duckdb
+
+        connection = duckdb.connect(dataset.location, read_only=True)
+        try:
+            yield connection.cursor()
+        finally:
+            connection.close()
+    else:
+        import psycopg
+
+        url = dataset.location.replace("postgresql+psycopg://", "postgresql://", 1)
+        with psycopg.connect(url) as connection, connection.cursor() as cursor:
+            yield cursor
+
+
+def _metrics_from_table(table: np.ndarray) -> dict[str, float]:
+    """The metrics of one attribute from its value × class count table (NumPy reference)."""
+    from bitsift import reference
+
+    values = reference.metrics(table)
+    return {
+        "information_gain": values["information_gain"],
+        "gain_ratio": values["gain_ratio"],
+        "symmetric_uncertainty": values["symmetric_uncertainty"],
+        "g_statistic": values["g_statistic"],
+        "dof": values["dof"],
+        "distinct": values["distinct"],
+    }
+
+
+def _finite_sorted(values: Sequence[Any]) -> list[float]:
+    """Cut points as bitsift uses them: duplicates and non-finite values dropped."""
+    return sorted({float(v) for v in values if v is not None and np.isfinite(float(v))})
+
+
+# (a) ------------------------------------------------------------------------------------------
+
+
+def run_bitsift(dataset: Dataset) -> Metrics:
+    """``bitsift.rank`` exactly as a user calls it."""
+    import bitsift
+
+    ranking = bitsift.rank(_bitsift_source(dataset), target=TARGET, table=dataset.table)
+    return {
+        s.attribute: {
+            "information_gain": s.information_gain,
+            "gain_ratio": s.gain_ratio,
+            "symmetric_uncertainty": s.symmetric_uncertainty,
+            "g_statistic": s.g_statistic,
+            "dof": float(s.dof),
+            "distinct": float(s.distinct),
+        }
+        for s in ranking.attributes
+    }
+
+
+# (b) ------------------------------------------------------------------------------------------
+
+
+def _read_frame(dataset: Dataset, reader: str) -> Any:
+    import pandas as pd
+
+    columns = ", ".join(_identifier(n, dataset) for n in [TARGET, *_names(dataset)])
+    query = f"SELECT {columns} FROM {_table(dataset)}"
+    if dataset.engine == "duckdb":
+        import duckdb
+
+        with duckdb.connect(dataset.location, read_only=True) as connection:
+            if reader == "arrow":
+                return connection.sql(query).df()
+            with warnings.catch_warnings():
+                # pandas reads any DB-API connection but warns that it only tests SQLAlchemy's.
+                warnings.simplefilter("ignore", UserWarning)
+                return pd.read_sql(query, connection)
+    import sqlalchemy as sa
+
+    engine = sa.create_engine(dataset.location, poolclass=sa.pool.NullPool)
+    try:
+        with engine.connect() as connection:
+            return pd.read_sql(sa.text(query), connection)
+    finally:
+        engine.dispose()
+
+
+def _codes(series: Any) -> tuple[np.ndarray, int]:
+    """Integer codes of a column, NULL its own value (as bitsift's default ``missing=category``)."""
+    import pandas as pd
+
+    codes, uniques = pd.factorize(series, use_na_sentinel=False)
+    return codes, len(uniques)
+
+
+def _binned(series: Any) -> Any:
+    """Quantile bins as bitsift cuts them: exact quantiles (linear), bin k is cut[k-1] <= x < cut[k]."""
+    import pandas as pd
+
+    values = series.to_numpy(dtype=float, na_value=np.nan)
+    present = ~np.isnan(values)
+    cuts = _finite_sorted(np.quantile(values[present], PROBABILITIES)) if present.any() else []
+    bins = np.searchsorted(np.asarray(cuts), values, side="right").astype(float)
+    bins[np.isnan(values)] = np.nan
+    return pd.Series(bins)
+
+
+def run_export(dataset: Dataset, reader: str = "dbapi") -> Metrics:
+    """Read every column into pandas, then count and compute in NumPy (factorize + bincount)."""
+    frame = _read_frame(dataset, reader)
+    y_present = frame[TARGET].notna().to_numpy()
+    frame = frame[y_present]
+    y_codes, classes = _codes(frame[TARGET])
+    metrics: Metrics = {}
+    for attribute in layout(dataset.attributes):
+        column = frame[attribute.name]
+        if attribute.kind == "numeric":
+            column = _binned(column)
+        x_codes, values = _codes(column)
+        counts = np.bincount(x_codes * classes + y_codes, minlength=values * classes)
+        metrics[attribute.name] = _metrics_from_table(counts.reshape(values, classes))
+    return metrics
+
+
+# (c) ------------------------------------------------------------------------------------------
+
+
+def _names(dataset: Dataset) -> list[str]:
+    return [a.name for a in layout(dataset.attributes)]
+
+
+def _quantile_query(dataset: Dataset, numeric: Sequence[AttributeDef]) -> str:
+    levels = ", ".join(repr(p) for p in PROBABILITIES)
+    target = _identifier(TARGET, dataset)
+    if dataset.engine == "duckdb":
+        parts = [f"quantile_cont({_identifier(a.name, dataset)}, [{levels}])" for a in numeric]
+    else:
+        parts = [
+            f"percentile_cont(ARRAY[{levels}]) WITHIN GROUP (ORDER BY {_identifier(a.name, dataset)})"
+            for a in numeric
+        ]
+    return f"SELECT {', '.join(parts)} FROM {_table(dataset)} WHERE {target} IS NOT NULL"
+
+
+def _bin_expression(column: str, cuts: Sequence[float]) -> str:
+    whens = " ".join(f"WHEN {column} < {c!r} THEN {k}" for k, c in enumerate(cuts))
+    return f"CASE WHEN {column} IS NULL THEN NULL {whens} ELSE {len(cuts)} END"
+
+
+def _count_query(dataset: Dataset, attribute: AttributeDef, cuts: Sequence[float] | None) -> str:
+    column = _identifier(attribute.name, dataset)
+    value = column if cuts is None else _bin_expression(column, cuts)
+    target = _identifier(TARGET, dataset)
+    return (
+        f"SELECT {value} AS v, {target} AS y, COUNT(*) AS n FROM {_table(dataset)}"
+        f" WHERE {target} IS NOT NULL GROUP BY 1, 2"
+    )
+
+
+def _table_from_counts(rows: Sequence[tuple[Any, Any, int]]) -> np.ndarray:
+    values = {v: i for i, v in enumerate(dict.fromkeys(r[0] for r in rows))}
+    classes = {c: j for j, c in enumerate(dict.fromkeys(r[1] for r in rows))}
+    table = np.zeros((len(values), len(classes)))
+    for value, klass, n in rows:
+        table[values[value], classes[klass]] += n
+    return table
+
+
+def run_handwritten(dataset: Dataset) -> Metrics:
+    """The quantile query, then one GROUP BY per attribute, sequentially; metrics in NumPy."""
+    attributes = layout(dataset.attributes)
+    numeric = [a for a in attributes if a.kind == "numeric"]
+    metrics: Metrics = {}
+    with _dbapi_cursor(dataset) as cursor:
+        cuts: dict[str, list[float]] = {}
+        if numeric:
+            cursor.execute(_quantile_query(dataset, numeric))
+            row = cursor.fetchone()
+            cuts = {a.name: _finite_sorted(row[i]) for i, a in enumerate(numeric)}
+        for attribute in attributes:
+            cursor.execute(_count_query(dataset, attribute, cuts.get(attribute.name)))
+            table = _table_from_counts(cursor.fetchall())
+            metrics[attribute.name] = _metrics_from_table(table)
+    return metrics
+
+
+# (d) ------------------------------------------------------------------------------------------
+
+
+def run_floor(dataset: Dataset) -> Metrics:
+    """Read every referenced column once: the cost of the scan alone."""
+    columns = [TARGET, *_names(dataset)]
+    minima = ", ".join(f"MIN({_identifier(n, dataset)})" for n in columns)
+    with _dbapi_cursor(dataset) as cursor:
+        if dataset.engine == "duckdb":
+            # DuckDB answers a bare MIN from its per-segment statistics without reading a value;
+            # switched off, the query decodes every value once, which is the floor we want.
+            cursor.execute("SET disabled_optimizers = 'statistics_propagation'")
+        cursor.execute(f"SELECT {minima} FROM {_table(dataset)}")
+        cursor.fetchall()
+    return {}
+
+
+# strategies -----------------------------------------------------------------------------------
+
+
+def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
+    """A ranking through bitsift's own builder, with the count strategy forced."""
+    from bitsift.api import fetch_cuts, make_options, run_ranking
+    from bitsift.sources import open_source
+    from bitsift.spec import resolve
+
+    opened = open_source(_bitsift_source(dataset), dataset.table)
+    with opened.engine as engine:
+        columns = engine.columns(opened.table, opened.display)
+        spec = resolve(make_options(TARGET), columns, opened.table, opened.display,
+                       engine.caps.sqlglot_dialect)
+        if strategy in ("grouping_sets", "union_all", "cross_join"):
+            engine.caps = replace(engine.caps, count_strategy=strategy, **_single_statement())
+            ranking = run_ranking(engine, spec)
+        else:
+            import strategies
+
+            concurrent = strategy == "per_attribute_concurrent"
+            cuts = fetch_cuts(engine, spec)
+            ranking = strategies.rank_per_attribute(
+                engine, spec, cuts, workers=workers if concurrent else 1
+            )
+    return {
+        s.attribute: {
+            "information_gain": s.information_gain,
+            "gain_ratio": s.gain_ratio,
+            "symmetric_uncertainty": s.symmetric_uncertainty,
+            "g_statistic": s.g_statistic,
+            "dof": float(s.dof),
+            "distinct": float(s.distinct),
+        }
+        for s in ranking.attributes
+    }
+
+
+def _single_statement() -> dict[str, Any]:
+    """Capability overrides that force bitsift's one-statement run mode (if it has a pool field)."""
+    from bitsift.dialects import Capabilities
+
+    fields = Capabilities.__dataclass_fields__
+    return {"run_pool": 0} if "run_pool" in fields else {}
+
+
+CONTENDERS: dict[str, Callable[..., Metrics]] = {
+    "bitsift": run_bitsift,
+    "export": run_export,
+    "handwritten": run_handwritten,
+    "floor": run_floor,
+    "strategy": run_strategy,
+}

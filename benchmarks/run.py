@@ -1,0 +1,317 @@
+"""The side-by-side benchmark: bitsift against the export path, hand-written SQL and the scan floor.
+
+    python benchmarks/run.py --rows 10000000 --attributes 16 --engine duckdb
+    python benchmarks/run.py --rows 2000000 --attributes 16 --engine postgres
+    python benchmarks/run.py --mode strategies --rows 2000000 --engine postgres
+
+``--mode side-by-side`` (default) measures, interleaved (A B C D A B C D …, after a warm-up):
+(a) bitsift.rank, (b) the export to pandas plus NumPy, (c) K per-attribute GROUP BY queries run
+sequentially, (d) one query reading every column once. ``--mode strategies`` measures bitsift's
+own count strategies against each other. See benchmarks/README.md.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import sys
+from collections.abc import Sequence
+from dataclasses import asdict, dataclass
+from pathlib import Path
+from typing import Any
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from contenders import STRATEGIES  # noqa: E402
+from datagen import DEFAULT_POSTGRES_URL, Dataset, generated_table, layout  # noqa: E402
+from measure import Measurement, Summary, Task, interleaved, max_differences, summarize  # noqa: E402
+
+#: Side-by-side contenders: key -> (label, contender, params).
+SIDE_BY_SIDE: dict[str, tuple[str, str, dict[str, Any]]] = {
+    "a": ("(a) bitsift.rank", "bitsift", {}),
+    "b": ("(b) export: pandas.read_sql + NumPy", "export", {"reader": "dbapi"}),
+    "b_arrow": ("(b') export: DuckDB .df() (Arrow) + NumPy", "export", {"reader": "arrow"}),
+    "c": ("(c) K GROUP BY queries, sequential", "handwritten", {}),
+    "d": ("(d) scan floor: SELECT MIN(each column)", "floor", {}),
+}
+
+
+@dataclass(frozen=True)
+class Ratio:
+    """A ratio of two medians, and the issue's target for it where there is one."""
+
+    name: str
+    value: float
+    target: str = ""
+    met: bool | None = None
+
+
+def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--rows", type=int, default=10_000_000)
+    parser.add_argument("--attributes", type=int, default=16)
+    parser.add_argument("--engine", choices=("duckdb", "postgres"), default="duckdb")
+    parser.add_argument("--mode", choices=("side-by-side", "strategies"), default="side-by-side")
+    parser.add_argument("--repeats", type=int, default=5, help="measured rounds (median)")
+    parser.add_argument("--warmup", type=int, default=1, help="discarded rounds first")
+    parser.add_argument("--export-rows", type=int, default=None,
+                        help="measure the export path on this many rows and scale linearly")
+    parser.add_argument("--no-export", action="store_true", help="leave the export path out")
+    parser.add_argument("--workers", type=int, default=2,
+                        help="connections for the concurrent per-attribute strategy")
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--postgres-url", default=DEFAULT_POSTGRES_URL)
+    parser.add_argument("--json", type=Path, default=None, help="also write the results here")
+    parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    args = parser.parse_args(argv)
+    if args.rows < 1 or args.attributes < 1 or args.repeats < 1 or args.warmup < 0:
+        parser.error("--rows, --attributes and --repeats must be positive, --warmup >= 0")
+    if args.export_rows is not None and not 1 <= args.export_rows <= args.rows:
+        parser.error("--export-rows must be between 1 and --rows")
+    return args
+
+
+def side_by_side_tasks(dataset: Dataset, export_dataset: Dataset | None) -> list[Task]:
+    """(a) (b) [(b')] (c) (d), in the interleaving order."""
+    tasks = []
+    for key, (label, contender, params) in SIDE_BY_SIDE.items():
+        on = dataset
+        if contender == "export":
+            if export_dataset is None or (key == "b_arrow" and dataset.engine != "duckdb"):
+                continue
+            on = export_dataset
+        tasks.append(Task(label=key, contender=contender, dataset=on, params=params,
+                          stands_for_rows=dataset.rows))
+    return tasks
+
+
+def strategy_tasks(dataset: Dataset, workers: int) -> list[Task]:
+    """bitsift as shipped, each forced count strategy, and the scan floor."""
+    tasks = [Task(label="a", contender="bitsift", dataset=dataset)]
+    for strategy in STRATEGIES:
+        params: dict[str, Any] = {"strategy": strategy}
+        if strategy == "per_attribute_concurrent":
+            params["workers"] = workers
+        tasks.append(Task(label=strategy, contender="strategy", dataset=dataset, params=params))
+    tasks.append(Task(label="d", contender="floor", dataset=dataset))
+    return tasks
+
+
+def label_of(key: str, workers: int = 2) -> str:
+    if key in SIDE_BY_SIDE:
+        return SIDE_BY_SIDE[key][0]
+    if key == "per_attribute_concurrent":
+        return f"per-attribute statements, {workers} connections"
+    return key.replace("_", " ")
+
+
+def side_by_side_ratios(s: dict[str, Summary], engine: str) -> list[Ratio]:
+    """a/d, b/a, c/a and the memory ratio, each with the issue's target where it has one."""
+    a = s["a"].median_seconds
+    ratios = [Ratio("a/d (bitsift / scan floor)", a / s["d"].median_seconds,
+                    *(("<= 2.0", a / s["d"].median_seconds <= 2.0) if engine == "duckdb"
+                      else ("", None)))]
+    if "b" in s:
+        b = s["b"].scaled_seconds / a
+        ratios.append(Ratio("b/a (export / bitsift)", b,
+                            *((">= 50", b >= 50) if engine == "duckdb" else ("", None))))
+        rss = s["b"].scaled_peak_rss_mib / s["a"].median_peak_rss_mib
+        ratios.append(Ratio("peak RSS b/a", rss,
+                            *((">= 10", rss >= 10) if engine == "duckdb" else ("", None))))
+    if "b_arrow" in s:
+        ratios.append(Ratio("b'/a (Arrow export / bitsift)", s["b_arrow"].scaled_seconds / a))
+        ratios.append(Ratio("peak RSS b'/a",
+                            s["b_arrow"].scaled_peak_rss_mib / s["a"].median_peak_rss_mib))
+    c = s["c"].median_seconds / a
+    ratios.append(Ratio("c/a (K queries / bitsift)", c,
+                        *(("> 1", c > 1) if engine == "postgres" else ("", None))))
+    return ratios
+
+
+def strategy_ratios(s: dict[str, Summary]) -> list[Ratio]:
+    floor = s["d"].median_seconds
+    best = min(STRATEGIES, key=lambda k: s[k].median_seconds)
+    a = s["a"].median_seconds
+    return [Ratio(f"{label_of(k)} / scan floor", s[k].median_seconds / floor)
+            for k in ["a", *STRATEGIES]] + [
+        Ratio(f"bitsift / fastest strategy ({best})", a / s[best].median_seconds),
+    ]
+
+
+def agreement(tasks: Sequence[Task], measurements: Sequence[Measurement],
+              ) -> dict[str, dict[str, float]]:
+    """Largest relative difference of each contender's metrics from bitsift's (same data only)."""
+    last = {m.label: m for m in measurements}
+    reference = last["a"].metrics
+    rows = {t.label: t.dataset.rows for t in tasks}
+    return {
+        t.label: max_differences(reference, last[t.label].metrics)
+        for t in tasks
+        if t.label != "a" and last[t.label].metrics and rows[t.label] == rows["a"]
+    }
+
+
+def _meminfo_gib() -> float:
+    for line in Path("/proc/meminfo").read_text().splitlines():
+        if line.startswith("MemTotal:"):
+            return int(line.split()[1]) / 1024**2
+    return 0.0
+
+
+def versions(dataset: Dataset) -> dict[str, str]:
+    """Versions of everything measured."""
+    import duckdb
+    import numpy
+    import pandas
+    import sqlglot
+
+    import bitsift
+
+    found = {
+        "python": platform.python_version(),
+        "bitsift": bitsift.__version__,
+        "duckdb": duckdb.__version__,
+        "sqlglot": sqlglot.__version__,
+        "pandas": pandas.__version__,
+        "numpy": numpy.__version__,
+    }
+    if dataset.engine == "postgres":
+        import sqlalchemy as sa
+
+        engine = sa.create_engine(dataset.location, poolclass=sa.pool.NullPool)
+        with engine.connect() as connection:
+            found["postgres"] = str(connection.exec_driver_sql("SHOW server_version").scalar())
+        engine.dispose()
+    return found
+
+
+def machine() -> dict[str, Any]:
+    return {
+        "cores": os.cpu_count(),
+        "memory_gib": round(_meminfo_gib(), 1),
+        "platform": platform.platform(),
+    }
+
+
+def describe_dataset(dataset: Dataset) -> str:
+    numeric = sum(1 for a in layout(dataset.attributes) if a.kind == "numeric")
+    return (f"{dataset.engine}, {dataset.rows:,} rows x {dataset.attributes} attributes "
+            f"({numeric} numeric, {dataset.attributes - numeric} categorical)")
+
+
+def format_report(result: dict[str, Any]) -> str:
+    """The human-readable report printed at the end."""
+    lines = [
+        f"bitsift benchmark ({result['mode']}): {result['dataset']}",
+        f"{result['repeats']} measured rounds after {result['warmup']} warm-up, interleaved; "
+        f"median wall time; peak RSS of each contender's own process",
+        f"machine: {result['machine']['cores']} cores, {result['machine']['memory_gib']} GiB; "
+        f"load average {result['load_before'][0]:.2f} before, {result['load_after'][0]:.2f} after",
+        "versions: " + ", ".join(f"{k} {v}" for k, v in result["versions"].items()),
+        "",
+        f"{'contender':<48} {'median s':>10} {'min s':>9} {'max s':>9} {'peak RSS MiB':>13}",
+    ]
+    for key, s in result["summaries"].items():
+        scaled = s["stands_for_rows"] != s["measured_rows"]
+        lines.append(
+            f"{result['labels'][key]:<48} {s['median_seconds']:>10.3f} {s['min_seconds']:>9.3f} "
+            f"{s['max_seconds']:>9.3f} {s['median_peak_rss_mib']:>13.0f}"
+        )
+        if scaled:
+            factor = s["stands_for_rows"] / s["measured_rows"]
+            note = f"  measured at {s['measured_rows']:,} rows; scaled x{factor:.3g}"
+            lines.append(
+                f"{note:<48} {s['scaled_seconds']:>10.3f} {'':>9} {'':>9} "
+                f"{s['scaled_peak_rss_mib']:>13.0f}"
+            )
+    lines += ["", "ratios:"]
+    for ratio in result["ratios"]:
+        verdict = ""
+        if ratio["met"] is not None:
+            verdict = f"   target {ratio['target']}: {'met' if ratio['met'] else 'MISSED'}"
+        lines.append(f"  {ratio['name']:<46} {ratio['value']:>9.2f}{verdict}")
+    lines += ["", "agreement with (a), largest relative difference over attributes:"]
+    for key, diffs in result["agreement"].items():
+        worst = max(diffs.values()) if diffs else 0.0
+        lines.append(f"  {result['labels'][key]:<46} {worst:.1e}")
+    if any(s["stands_for_rows"] != s["measured_rows"] for s in result["summaries"].values()):
+        lines.append("  (contenders measured on fewer rows are compared on their own table only)")
+    return "\n".join(lines)
+
+
+def _progress(quiet: bool) -> Any:
+    def show(m: Measurement) -> None:
+        if not quiet:
+            kind = "warm-up" if m.round < 0 else f"round {m.round + 1}"
+            print(f"  {kind:<8} {m.label:<26} {m.seconds:8.3f} s {m.peak_rss_mib:8.0f} MiB",
+                  file=sys.stderr, flush=True)
+
+    return show
+
+
+def measure_all(args: argparse.Namespace) -> dict[str, Any]:
+    """Generate the table(s), run the rounds, and collect everything reported."""
+    def table(rows: int) -> Any:
+        return generated_table(args.engine, rows, args.attributes, args.seed, args.postgres_url)
+
+    with table(args.rows) as dataset:
+        export_rows = args.export_rows or args.rows
+        exporting = args.mode == "side-by-side" and not args.no_export
+        if exporting and export_rows != args.rows:
+            with table(export_rows) as export_dataset:
+                return _measure(args, dataset, export_dataset)
+        return _measure(args, dataset, dataset if exporting else None)
+
+
+def _measure(args: argparse.Namespace, dataset: Dataset, export_dataset: Dataset | None,
+             ) -> dict[str, Any]:
+    if args.mode == "side-by-side":
+        tasks = side_by_side_tasks(dataset, export_dataset)
+    else:
+        tasks = strategy_tasks(dataset, args.workers)
+    load_before = os.getloadavg()
+    measurements = interleaved(tasks, args.repeats, args.warmup, _progress(args.quiet))
+    load_after = os.getloadavg()
+    summaries = summarize(tasks, measurements)
+    ratios = (side_by_side_ratios(summaries, args.engine) if args.mode == "side-by-side"
+              else strategy_ratios(summaries))
+    return {
+        "mode": args.mode,
+        "engine": args.engine,
+        "rows": args.rows,
+        "attributes": args.attributes,
+        "dataset": describe_dataset(dataset),
+        "dataset_table": dataset.table,
+        "repeats": args.repeats,
+        "warmup": args.warmup,
+        "machine": machine(),
+        "versions": versions(dataset),
+        "load_before": load_before,
+        "load_after": load_after,
+        "labels": {t.label: label_of(t.label, args.workers) for t in tasks},
+        "summaries": {
+            k: {**asdict(s), "scaled_seconds": s.scaled_seconds,
+                "scaled_peak_rss_mib": s.scaled_peak_rss_mib}
+            for k, s in summaries.items()
+        },
+        "ratios": [asdict(r) for r in ratios],
+        "agreement": agreement(tasks, measurements),
+        "measurements": [
+            {k: v for k, v in asdict(m).items() if k != "metrics"} for m in measurements
+        ],
+    }
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args = parse_args(argv)
+    result = measure_all(args)
+    print(format_report(result))
+    if args.json is not None:
+        args.json.write_text(json.dumps(result, indent=2) + "\n")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

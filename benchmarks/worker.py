@@ -1,0 +1,55 @@
+"""Run one contender in this (fresh) process and print one JSON line: time, RSS, metrics.
+
+Usage (by measure.py, not by hand): ``python benchmarks/worker.py '<task as JSON>'``.
+Imports happen before the clock starts; the timed region opens the connection, runs the
+contender and has its metrics in hand. Peak RSS is read by the parent with ``wait4``.
+"""
+
+from __future__ import annotations
+
+import importlib
+import json
+import sys
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from contenders import CONTENDERS  # noqa: E402
+from datagen import Dataset  # noqa: E402
+
+#: Modules each contender needs, imported before the clock starts (its driver comes per engine).
+PRELOAD: dict[str, tuple[str, ...]] = {
+    "bitsift": ("bitsift", "bitsift.api", "sqlalchemy"),
+    "export": ("pandas", "sqlalchemy", "bitsift.reference"),
+    "handwritten": ("bitsift.reference",),
+    "floor": (),
+    "strategy": ("bitsift", "bitsift.api", "sqlalchemy", "strategies"),
+}
+DRIVERS: dict[str, tuple[str, ...]] = {"duckdb": ("duckdb",), "postgres": ("psycopg",)}
+
+
+def rss_kib() -> int:
+    """Current resident set size of this process, from /proc."""
+    for line in Path("/proc/self/status").read_text().splitlines():
+        if line.startswith("VmRSS:"):
+            return int(line.split()[1])
+    return 0
+
+
+def main(argv: list[str]) -> None:
+    task = json.loads(argv[1])
+    contender = task["contender"]
+    dataset = Dataset.from_json(task["dataset"])
+    for module in PRELOAD[contender] + DRIVERS[dataset.engine]:
+        importlib.import_module(module)
+    run = CONTENDERS[contender]
+    before = rss_kib()
+    start = time.perf_counter()
+    metrics = run(dataset, **task.get("params", {}))
+    seconds = time.perf_counter() - start
+    print(json.dumps({"seconds": seconds, "rss_before_kib": before, "metrics": metrics}))
+
+
+if __name__ == "__main__":
+    main(sys.argv)

@@ -1,0 +1,111 @@
+"""The ``report`` and ``profile`` commands: options in, library call, output out.
+
+Registered on the ``bitsift`` group at the bottom of :mod:`bitsift.cli`.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+import time
+from typing import IO, Any
+
+import click
+
+from bitsift.cli import _DEBUG, _comma_list, _library_options, rank_options
+from bitsift.profile import DEFAULT_MAX_VALUES, ProfiledRun, Progress, profile, rank_and_profile
+from bitsift.report import profile_dict, profile_text, render_report
+
+
+def progress_printer(quiet: bool, stream: IO[str] | None = None) -> Progress | None:
+    """Status lines on stderr, only when it is a terminal and --quiet is not given."""
+    out = stream if stream is not None else sys.stderr
+    isatty = getattr(out, "isatty", None)
+    if quiet or not (callable(isatty) and isatty()):
+        return None
+    started = time.monotonic()
+
+    def say(message: str) -> None:
+        click.echo(f"bitsift [{time.monotonic() - started:5.1f} s] {message}", file=out)
+
+    return say
+
+
+def _after_run(run: ProfiledRun, quiet: bool) -> None:
+    if _DEBUG["on"]:
+        for statement in run.ranking.statements:
+            click.echo(f"-- sent to {run.ranking.dialect}:\n{statement};", err=True)
+    if not quiet:
+        for note in run.notes:
+            click.echo(f"note: {note}", err=True)
+
+
+_sensitive_option = click.option(
+    "--sensitive", multiple=True, callback=_comma_list,
+    help="Columns that describe people (comma-separated): marked in every output.",
+)
+_max_values_option = click.option(
+    "--max-values", type=int, default=DEFAULT_MAX_VALUES, show_default=True,
+    help="Values of a categorical attribute listed one by one; the rest are merged.",
+)
+_quiet_option = click.option("--quiet", "-q", is_flag=True, help="No progress or notes on stderr.")
+
+
+@click.command("report")
+@click.argument("source")
+@rank_options
+@click.option("--out", "-o", required=True, type=click.Path(dir_okay=False, allow_dash=True),
+              help="The HTML file to write ('-' for standard output).")
+@click.option("--top", type=int, default=20, show_default=True,
+              help="Drill down into the top N attributes (0: every attribute).")
+@_max_values_option
+@_sensitive_option
+@click.option("--title", help="Heading of the report (default: names the target and table).")
+@_quiet_option
+def report_command(source: str, out: str, top: int, max_values: int,
+                   sensitive: tuple[str, ...], title: str | None, quiet: bool,
+                   **kwargs: Any) -> None:
+    """Write a self-contained HTML report: ranking chart, every metric, per-value drill-down."""
+    if top < 0:
+        raise click.BadParameter("must be 0 (all) or more", param_hint="--top")
+    say = progress_printer(quiet)
+    run = rank_and_profile(source, top=top or None, max_values=max_values, sensitive=sensitive,
+                           progress=say, **_library_options(kwargs))
+    _after_run(run, quiet)
+    if say:
+        say(f"writing {out}")
+    html = render_report([run], title=title)
+    if out == "-":
+        click.echo(html, nl=False)
+        return
+    with open(out, "w", encoding="utf-8") as handle:
+        handle.write(html)
+    if not quiet:
+        drilled = len(run.profiled())
+        click.echo(f"wrote {out} ({len(run.ranking.attributes)} attributes ranked, "
+                   f"{drilled} drilled into)", err=True)
+
+
+@click.command("profile")
+@click.argument("source")
+@rank_options
+@click.option("--attribute", "profile_attributes", multiple=True, required=True,
+              callback=_comma_list, help="The attribute(s) to drill into (comma-separated).")
+@click.option("--format", "-f", "fmt", type=click.Choice(("table", "json")), default="table",
+              show_default=True)
+@_max_values_option
+@_sensitive_option
+@_quiet_option
+def profile_command(source: str, profile_attributes: tuple[str, ...], fmt: str, max_values: int,
+                    sensitive: tuple[str, ...], quiet: bool, **kwargs: Any) -> None:
+    """Show, value by value, why an attribute tells about --target (counted in the database)."""
+    options = _library_options(kwargs)
+    if options.pop("attributes", None):
+        raise click.UsageError("profile drills into --attribute; --attributes is for rank/report")
+    run = profile(source, attributes=profile_attributes, max_values=max_values,
+                  sensitive=sensitive, progress=progress_printer(quiet), **options)
+    _after_run(run, quiet)
+    if fmt == "json":
+        click.echo(json.dumps(profile_dict(run), indent=2))
+    else:
+        click.echo(profile_text(run), nl=False)

@@ -1,0 +1,270 @@
+"""Drift between two runs of a job, read from the history table.
+
+An attribute drifts when its information gain moves by more than ``ig_change`` bits, its place
+in the ranking by more than ``rank_change`` positions, when it appears or disappears, or when it
+gains or loses a trust flag. Rankings that appear or disappear between runs are reported too.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import asdict, dataclass, field
+from typing import Any
+
+from bitsift.errors import BitsiftError, SpecError
+from bitsift.history import Destination, RunInfo, open_store
+
+#: Exit code of ``bitsift drift`` when something drifted, so schedulers can alert.
+DRIFT_EXIT_CODE = 3
+#: Information gain differences below this are rounding, never drift.
+FLOAT_NOISE = 1e-9
+
+
+@dataclass(frozen=True)
+class DriftThresholds:
+    """How far an attribute may move before it counts as drift (strictly more than this)."""
+
+    #: Absolute change of information gain, in bits.
+    ig_change: float = 0.01
+    #: Change of place in the ranking, in positions.
+    rank_change: int = 3
+
+    def __post_init__(self) -> None:
+        if self.ig_change < 0:
+            raise SpecError(f"--ig-change must be at least 0, not {self.ig_change}")
+        if self.rank_change < 0:
+            raise SpecError(f"--rank-change must be at least 0, not {self.rank_change}")
+
+
+@dataclass(frozen=True)
+class Change:
+    """One finding. ``kind`` is one of ``information_gain``, ``rank``, ``appeared``,
+    ``disappeared``, ``flag_gained``, ``flag_lost``, ``ranking_appeared``,
+    ``ranking_disappeared``."""
+
+    kind: str
+    ranking: str
+    segment: str
+    attribute: str | None
+    before: Any = None
+    after: Any = None
+
+
+@dataclass
+class DriftReport:
+    """The changes between an older and a newer run of one job."""
+
+    job: str
+    old: RunInfo | None
+    new: RunInfo | None
+    thresholds: DriftThresholds
+    changes: list[Change] = field(default_factory=list)
+    #: Things worth knowing that are not drift (e.g. a ranking's settings changed).
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def drifted(self) -> bool:
+        return bool(self.changes)
+
+    def to_dict(self) -> dict[str, Any]:
+        def run(info: RunInfo | None) -> dict[str, Any] | None:
+            if info is None:
+                return None
+            return {"run_id": info.run_id, "run_at": _stamp(info.run_at), "rows": info.rows}
+
+        return {
+            "job": self.job,
+            "old_run": run(self.old),
+            "new_run": run(self.new),
+            "thresholds": asdict(self.thresholds),
+            "drifted": self.drifted,
+            "changes": [asdict(c) for c in self.changes],
+            "notes": list(self.notes),
+        }
+
+
+def _stamp(moment: _dt.datetime) -> str:
+    return moment.strftime("%Y-%m-%d %H:%M:%S UTC")
+
+
+def _flags(text: str | None) -> set[str]:
+    return {f for f in (text or "").split(",") if f}
+
+
+def _key(row: Mapping[str, Any]) -> tuple[str, str, str]:
+    return (row["ranking"], row["segment"] or "", row["attribute"])
+
+
+def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[str, Any]],
+            thresholds: DriftThresholds | None = None) -> tuple[list[Change], list[str]]:
+    """Changes and notes between two runs' history rows (as dicts with the table's columns)."""
+    limits = thresholds or DriftThresholds()
+    old = {_key(r): r for r in old_rows}
+    new = {_key(r): r for r in new_rows}
+    old_rankings = {(k[0], k[1]) for k in old}
+    new_rankings = {(k[0], k[1]) for k in new}
+    changes: list[Change] = []
+    notes: list[str] = []
+    for ranking, segment in sorted(old_rankings - new_rankings):
+        changes.append(Change("ranking_disappeared", ranking, segment, None))
+    for ranking, segment in sorted(new_rankings - old_rankings):
+        changes.append(Change("ranking_appeared", ranking, segment, None))
+    for ranking, segment in sorted(old_rankings & new_rankings):
+        before_options = {r["options"] for k, r in old.items() if k[:2] == (ranking, segment)}
+        after_options = {r["options"] for k, r in new.items() if k[:2] == (ranking, segment)}
+        if before_options != after_options:
+            notes.append(f"the settings of ranking {ranking!r} changed between the runs; "
+                         "moves may come from that rather than from the data")
+    for key in sorted(old.keys() | new.keys()):
+        ranking, segment, attribute = key
+        if (ranking, segment) not in old_rankings or (ranking, segment) not in new_rankings:
+            continue
+        before, after = old.get(key), new.get(key)
+        if before is None:
+            assert after is not None
+            changes.append(Change("appeared", ranking, segment, attribute, None,
+                                  _summary(after)))
+            continue
+        if after is None:
+            changes.append(Change("disappeared", ranking, segment, attribute, _summary(before)))
+            continue
+        changes += _attribute_changes(key, before, after, limits)
+    return changes, notes
+
+
+def _summary(row: Mapping[str, Any]) -> dict[str, Any]:
+    return {"position": row["position"], "information_gain": row["information_gain"]}
+
+
+def _attribute_changes(key: tuple[str, str, str], before: Mapping[str, Any],
+                       after: Mapping[str, Any], limits: DriftThresholds) -> list[Change]:
+    ranking, segment, attribute = key
+    changes = []
+    ig_before, ig_after = float(before["information_gain"]), float(after["information_gain"])
+    # Parallel aggregation sums in varying order: identical data can differ in the last bits.
+    if abs(ig_after - ig_before) > limits.ig_change + FLOAT_NOISE:
+        changes.append(Change("information_gain", ranking, segment, attribute, ig_before,
+                              ig_after))
+    if abs(int(after["position"]) - int(before["position"])) > limits.rank_change:
+        changes.append(Change("rank", ranking, segment, attribute, int(before["position"]),
+                              int(after["position"])))
+    flags_before, flags_after = _flags(before["flags"]), _flags(after["flags"])
+    for flag in sorted(flags_after - flags_before):
+        changes.append(Change("flag_gained", ranking, segment, attribute, None, flag))
+    for flag in sorted(flags_before - flags_after):
+        changes.append(Change("flag_lost", ranking, segment, attribute, flag, None))
+    return changes
+
+
+def _pick_runs(runs: Sequence[RunInfo], old: str | None, new: str | None,
+               job: str) -> tuple[RunInfo | None, RunInfo | None]:
+    by_id = {r.run_id: r for r in runs}
+    for wanted in (old, new):
+        if wanted is not None and wanted not in by_id:
+            known = ", ".join(r.run_id for r in runs[:5]) or "none"
+            raise BitsiftError(f"job {job!r} has no run {wanted!r} (newest runs: {known})")
+    if old is not None and new is None:
+        raise SpecError("--old needs --new: name both runs, or only --new, or neither")
+    if new is None:
+        return (runs[1] if len(runs) > 1 else None), (runs[0] if runs else None)
+    newer = by_id[new]
+    if old is not None:
+        return by_id[old], newer
+    earlier = [r for r in runs if (r.run_at, r.run_id) < (newer.run_at, newer.run_id)]
+    return (earlier[0] if earlier else None), newer
+
+
+def drift(destination: Destination, job: str, *, old: str | None = None, new: str | None = None,
+          thresholds: DriftThresholds | None = None) -> DriftReport:
+    """Compare two runs of ``job`` in the history at ``destination``.
+
+    Without run ids: the two newest runs. With ``new`` only: that run and the one before it.
+    Fewer than two runs gives an empty report with a note.
+    """
+    limits = thresholds or DriftThresholds()
+    with open_store(destination) as store:
+        store.check()
+        runs = store.runs(job)
+        older, newer = _pick_runs(runs, old, new, job)
+        report = DriftReport(job=job, old=older, new=newer, thresholds=limits)
+        if older is None or newer is None:
+            report.notes.append(
+                f"job {job!r} has {len(runs)} run{'s' if len(runs) != 1 else ''} in "
+                f"{destination.table}: nothing to compare yet"
+            )
+            return report
+        rows = store.read(job, [older.run_id, newer.run_id])
+    report.changes, report.notes = compare(
+        [r for r in rows if r["run_id"] == older.run_id],
+        [r for r in rows if r["run_id"] == newer.run_id],
+        limits,
+    )
+    return report
+
+
+_LABELS = {
+    "information_gain": "information gain",
+    "rank": "rank",
+    "appeared": "appeared",
+    "disappeared": "disappeared",
+    "flag_gained": "flag gained",
+    "flag_lost": "flag lost",
+    "ranking_appeared": "ranking appeared",
+    "ranking_disappeared": "ranking disappeared",
+}
+
+
+def _describe(change: Change) -> str:
+    if change.kind == "information_gain":
+        delta = change.after - change.before
+        return f"{change.before:.4f} -> {change.after:.4f} bits ({delta:+.4f})"
+    if change.kind == "rank":
+        return f"#{change.before} -> #{change.after}"
+    if change.kind == "appeared":
+        return f"now #{change.after['position']}, IG {change.after['information_gain']:.4f}"
+    if change.kind == "disappeared":
+        return f"was #{change.before['position']}, IG {change.before['information_gain']:.4f}"
+    if change.kind == "flag_gained":
+        return str(change.after)
+    if change.kind == "flag_lost":
+        return str(change.before)
+    return ""
+
+
+def render_text(report: DriftReport) -> str:
+    """A plain-text report: the two runs, one line per change, and the verdict."""
+    lines = []
+    if report.old is not None and report.new is not None:
+        lines.append(f"job {report.job}: run {report.new.run_id} ({_stamp(report.new.run_at)}) "
+                     f"against run {report.old.run_id} ({_stamp(report.old.run_at)})")
+    limits = report.thresholds
+    lines.append(f"thresholds: information gain moves > {limits.ig_change:g} bits, "
+                 f"rank moves > {limits.rank_change} places")
+    if report.changes:
+        rows = [
+            (c.ranking + (f" {c.segment}" if c.segment else ""), c.attribute or "-",
+             _LABELS[c.kind], _describe(c))
+            for c in report.changes
+        ]
+        header = ("ranking", "attribute", "change", "detail")
+        widths = [max(len(r[i]) for r in [header, *rows]) for i in range(3)]
+        lines.append("")
+        for row in [header, *rows]:
+            lines.append("  ".join(v.ljust(w) for v, w in zip(row[:3], widths, strict=True))
+                         + "  " + row[3])
+        lines.append("")
+    lines += [f"note: {n}" for n in report.notes]
+    count = len(report.changes)
+    if report.drifted:
+        lines.append(f"DRIFT: {count} change{'s' if count != 1 else ''} beyond the thresholds "
+                     f"(exit code {DRIFT_EXIT_CODE})")
+    else:
+        lines.append("no drift beyond the thresholds")
+    return "\n".join(lines) + "\n"
+
+
+def render_json(report: DriftReport) -> str:
+    """The report as JSON (see :meth:`DriftReport.to_dict`)."""
+    return json.dumps(report.to_dict(), indent=2) + "\n"

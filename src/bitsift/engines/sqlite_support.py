@@ -1,0 +1,68 @@
+"""What SQLite lacks and bitsift adds on the connection: math functions and a query timeout.
+
+SQLite has no statement timeout, and its LN/FLOOR exist only in builds compiled with
+SQLITE_ENABLE_MATH_FUNCTIONS (Python's own sqlite3 3.40 has them, some distributions' builds
+do not). bitsift registers Python's ``math.log`` / ``math.floor`` under those names when the
+connection lacks them, and enforces ``--timeout`` with a progress handler that aborts the
+running statement once the deadline has passed (SQLite then raises "interrupted").
+"""
+
+from __future__ import annotations
+
+import math
+import sqlite3
+import time
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from typing import Any
+
+#: Functions the generated SQL calls that a bare SQLite build may lack, and Python stand-ins.
+MATH_FUNCTIONS: dict[str, Callable[[Any], Any]] = {
+    "ln": lambda x: math.log(x) if x is not None and x > 0 else None,
+    "floor": lambda x: math.floor(x) if x is not None else None,
+}
+
+#: How many SQLite virtual-machine steps run between two looks at the clock.
+PROGRESS_STEPS = 10_000
+
+
+def missing_math_functions(connection: sqlite3.Connection) -> list[str]:
+    """Names from :data:`MATH_FUNCTIONS` the connection cannot call."""
+    missing = []
+    for name in MATH_FUNCTIONS:
+        try:
+            connection.execute(f"SELECT {name}(2.5)").fetchone()  # name from the table above
+        except sqlite3.OperationalError:
+            missing.append(name)
+    return missing
+
+
+def register_math_functions(connection: sqlite3.Connection, names: list[str] | None = None
+                            ) -> list[str]:
+    """Register Python stand-ins for the missing (or the given) math functions; returns them."""
+    chosen = missing_math_functions(connection) if names is None else names
+    for name in chosen:
+        connection.create_function(name, 1, MATH_FUNCTIONS[name], deterministic=True)
+    return chosen
+
+
+@contextmanager
+def deadline(connection: sqlite3.Connection, seconds: float | None) -> Iterator[Callable[[], bool]]:
+    """Abort statements on ``connection`` that run past ``seconds``; yields "has it fired?"."""
+    fired = {"yes": False}
+    if not seconds:
+        yield lambda: False
+        return
+    stop_at = time.monotonic() + seconds
+
+    def check() -> int:
+        if time.monotonic() > stop_at:
+            fired["yes"] = True
+            return 1
+        return 0
+
+    connection.set_progress_handler(check, PROGRESS_STEPS)
+    try:
+        yield lambda: fired["yes"]
+    finally:
+        connection.set_progress_handler(None, 0)

@@ -1,0 +1,596 @@
+"""Job files: a TOML file naming a source, one or more rankings and a results destination.
+
+A job is validated as a whole before anything runs, and every problem is reported at once with
+its line in the file. tomllib gives no line numbers for keys, so :func:`scan_lines` finds them in
+the text. The format is documented in docs/scheduled-runs.md::
+
+    job = "greenhouse-nightly"
+    source = "data/greenhouse.duckdb"        # or a SQLAlchemy URL; paths relative to this file
+
+    [results]
+    destination = "data/history.duckdb"     # a DuckDB file or a SQLAlchemy URL
+    table = "bitsift_history"               # [schema.]table
+
+    [defaults]                               # optional: settings shared by every ranking
+    table = "trays"
+    target = "outcome"
+
+    [[ranking]]
+    name = "all-trays"
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import re
+import tomllib
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import sqlalchemy as sa
+
+from bitsift import api
+from bitsift.engines.base import resolve_name
+from bitsift.engines.duckdb_engine import file_reader
+from bitsift.errors import (
+    BitsiftError,
+    PredicateError,
+    SourceError,
+    SpecError,
+    TableNotFoundError,
+    suggest,
+    unknown_names_message,
+)
+from bitsift.history import DEFAULT_TABLE, Destination, HistoryError, open_store, ranking_rows
+from bitsift.predicate import parse_predicate
+from bitsift.result import Ranking
+from bitsift.schema import Column
+from bitsift.sources import open_source, parse_table_name
+from bitsift.spec import RankOptions, Thresholds, resolve
+
+TOP_KEYS: tuple[str, ...] = ("job", "source", "results", "defaults", "ranking")
+RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
+#: A ranking's settings: the CLI's rank options, plus a name.
+RANKING_KEYS: tuple[str, ...] = (
+    "name", "table", "target", "attributes", "exclude", "categorical", "numeric", "missing",
+    "bins", "where", "sort", "limit", "timeout", "high_cardinality",
+)
+DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
+NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric")
+_STRINGS = ("name", "table", "target", "where", "missing", "sort")
+_INTEGERS = ("bins", "limit", "high_cardinality")
+_NUMBERS = ("timeout",)
+MAX_NAME = 200
+MAX_RUN_ID = 100
+
+
+# --- problems ---------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One thing wrong with a job file, at a line (``None``: the file as a whole)."""
+
+    line: int | None
+    message: str
+
+
+class JobError(SpecError):
+    """The job file is invalid; :attr:`problems` lists every problem found."""
+
+    def __init__(self, path: Path, problems: Sequence[Problem]) -> None:
+        self.path = path
+        self.problems = sorted(problems, key=lambda p: (p.line or 0))
+        count = len(self.problems)
+        lines = [f"{path}:{p.line}: {p.message}" if p.line else f"{path}: {p.message}"
+                 for p in self.problems]
+        super().__init__(f"{count} problem{'s' if count > 1 else ''} in job file {path}:\n  "
+                         + "\n  ".join(lines))
+
+
+class RunError(BitsiftError):
+    """A ranking failed while the job ran; nothing was written."""
+
+
+# --- where each key is written ----------------------------------------------------------------
+
+
+_BARE_KEY = r"[A-Za-z0-9_-]+"
+_QUOTED_KEY = r'"(?:[^"\\]|\\.)*"|\'[^\']*\''
+_KEY_PART = rf"(?:{_BARE_KEY}|{_QUOTED_KEY})"
+_KEY_LINE = re.compile(rf"^\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*=")
+_HEADER_LINE = re.compile(rf"^\s*(\[\[?)\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*\]\]?")
+
+
+@dataclass
+class LineMap:
+    """Line numbers of tables (``("ranking", 2)`` is the third ``[[ranking]]``) and their keys."""
+
+    sections: dict[tuple[str, int], int] = field(default_factory=dict)
+    keys: dict[tuple[str, int, str], int] = field(default_factory=dict)
+
+    def of(self, section: str, index: int = 0, key: str | None = None) -> int | None:
+        """The line of ``key`` in a table, else the table's header line, else ``None``."""
+        if key is not None and (section, index, key) in self.keys:
+            return self.keys[section, index, key]
+        return self.sections.get((section, index))
+
+
+def _unquote(key: str) -> str:
+    parts = re.findall(_KEY_PART, key)
+    return ".".join(p[1:-1] if p[:1] in "\"'" else p for p in parts)
+
+
+def _value_state(text: str, mode: str | None, depth: int) -> tuple[str | None, int]:
+    """Follow a value through one line: open multi-line strings and bracket depth after it."""
+    i = 0
+    while i < len(text):
+        if mode is not None:
+            if mode == '"""' and text[i] == "\\":
+                i += 2
+                continue
+            if text.startswith(mode, i):
+                mode = None
+                i += 3
+                continue
+            i += 1
+            continue
+        ch = text[i]
+        if ch == "#":
+            break
+        if text.startswith('"""', i) or text.startswith("'''", i):
+            mode = text[i:i + 3]
+            i += 3
+            continue
+        if ch == '"':
+            i += 1
+            while i < len(text) and text[i] != '"':
+                i += 2 if text[i] == "\\" else 1
+        elif ch == "'":
+            end = text.find("'", i + 1)
+            i = len(text) if end < 0 else end
+        elif ch in "[{":
+            depth += 1
+        elif ch in "]}":
+            depth -= 1
+        i += 1
+    return mode, depth
+
+
+def scan_lines(text: str) -> LineMap:
+    """Find the line (1-based) of every table header and key of a TOML document.
+
+    Approximate by design (the document has already been parsed by tomllib): it follows
+    strings and brackets so that text inside multi-line values is not taken for keys.
+
+    >>> m = scan_lines('job = "j"\\n[[ranking]]\\ntarget = "y"\\n[[ranking]]\\nbins = 4\\n')
+    >>> m.of("", 0, "job"), m.of("ranking", 1), m.of("ranking", 1, "bins")
+    (1, 4, 5)
+    """
+    found = LineMap()
+    section: tuple[str, int] = ("", 0)
+    arrays: dict[str, int] = {}
+    mode: str | None = None
+    depth = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        if mode is not None or depth > 0:
+            mode, depth = _value_state(line, mode, depth)
+            continue
+        header = _HEADER_LINE.match(line)
+        if header:
+            name = _unquote(header.group(2))
+            index = 0
+            if header.group(1) == "[[":
+                index = arrays.get(name, -1) + 1
+                arrays[name] = index
+            section = (name, index)
+            found.sections.setdefault(section, number)
+            parent, _, child = name.rpartition(".")
+            if parent:
+                # [ranking.extra] is key "extra" of the current [[ranking]]: report it there.
+                found.keys.setdefault((parent, arrays.get(parent, 0), child), number)
+            continue
+        key = _KEY_LINE.match(line)
+        if key:
+            found.keys.setdefault((*section, _unquote(key.group(1))), number)
+            mode, depth = _value_state(line[key.end():], None, 0)
+    return found
+
+
+def _toml_problem(error: tomllib.TOMLDecodeError) -> Problem:
+    text = str(error)
+    match = re.search(r"\(at line (\d+), column \d+\)", text)
+    message = re.sub(r"\s*\(at (line \d+, column \d+|end of document)\)", "", text)
+    return Problem(int(match.group(1)) if match else None, f"not valid TOML: {message}")
+
+
+# --- the job ----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class JobRanking:
+    """One ranking of a job: where it reads, what it asks, and where its settings are written."""
+
+    name: str
+    target: str
+    table: str | None
+    #: Keyword options for :func:`bitsift.api.rank` (without target and table).
+    options: Mapping[str, Any]
+    #: The settings as written (after [defaults]), for the history's options column.
+    settings: Mapping[str, Any]
+    line: int | None = None
+    key_lines: Mapping[str, int | None] = field(default_factory=dict)
+
+    def line_of(self, key: str) -> int | None:
+        """The line setting ``key`` (in the ranking or in [defaults]), else the ranking's line."""
+        return self.key_lines.get(key) or self.line
+
+
+@dataclass(frozen=True)
+class Job:
+    """A validated job file."""
+
+    path: Path
+    name: str
+    #: A SQLAlchemy URL, or a file path resolved against the job file's folder.
+    source: str
+    destination: Destination
+    rankings: tuple[JobRanking, ...]
+    lines: LineMap = field(default_factory=LineMap)
+
+    def ranking(self, name: str) -> JobRanking:
+        for ranking in self.rankings:
+            if ranking.name == name:
+                return ranking
+        raise KeyError(name)
+
+
+def _is_url(text: str) -> bool:
+    return "://" in text
+
+
+class _Reader:
+    """Reads the parsed TOML into a :class:`Job`, collecting every problem on the way."""
+
+    def __init__(self, path: Path, data: dict[str, Any], lines: LineMap) -> None:
+        self.path = path
+        self.data = data
+        self.lines = lines
+        self.problems: list[Problem] = []
+        #: (name, line) of every ranking, valid or not, to report duplicate names.
+        self.names: list[tuple[str, int | None]] = []
+
+    def problem(self, line: int | None, message: str) -> None:
+        self.problems.append(Problem(line, message))
+
+    def unknown_keys(self, table: Mapping[str, Any], allowed: Sequence[str], section: str,
+                     index: int, where: str) -> None:
+        for key in table:
+            if key not in allowed:
+                self.problem(self.lines.of(section, index, key),
+                             f"unknown key {key!r} in {where}{suggest(key, allowed)}")
+
+    def string(self, table: Mapping[str, Any], key: str, section: str, index: int = 0, *,
+               required: bool = False, where: str = "") -> str | None:
+        value = table.get(key)
+        line = self.lines.of(section, index, key)
+        if value is None:
+            if required:
+                self.problem(self.lines.of(section, index), f"{where}{key} is required")
+            return None
+        if not isinstance(value, str) or not value.strip():
+            self.problem(line, f"{where}{key} must be a non-empty string, not {value!r}")
+            return None
+        return value
+
+    def location(self, text: str) -> str:
+        if _is_url(text):
+            return text
+        path = Path(text).expanduser()
+        if not path.is_absolute():
+            path = self.path.parent / path
+        return str(path)
+
+    def read(self) -> Job:
+        data = self.data
+        self.unknown_keys(data, TOP_KEYS, "", 0, "the job file")
+        name = self.string(data, "job", "", 0) or self.path.stem
+        if len(name) > MAX_NAME:
+            self.problem(self.lines.of("", 0, "job"), f"job name longer than {MAX_NAME} characters")
+        source = self.source()
+        destination = self.destination()
+        rankings = self.rankings(source)
+        if self.problems:
+            raise JobError(self.path, self.problems)
+        assert source is not None and destination is not None
+        return Job(path=self.path, name=name, source=source, destination=destination,
+                   rankings=tuple(rankings), lines=self.lines)
+
+    def source(self) -> str | None:
+        text = self.string(self.data, "source", "", 0, required=True)
+        if text is None:
+            return None
+        line = self.lines.of("", 0, "source")
+        location = self.location(text)
+        if _is_url(location):
+            if not location.startswith("duckdb:///"):
+                try:
+                    sa.engine.make_url(location)
+                except Exception:  # noqa: BLE001 - any parse failure
+                    self.problem(line, "source is not a valid database URL")
+        elif not any(ch in location for ch in "*?[") and not Path(location).exists():
+            self.problem(line, f"source file not found: {location}")
+        return location
+
+    def destination(self) -> Destination | None:
+        results = self.data.get("results")
+        if results is None:
+            self.problem(None, "a [results] table with destination (and table) is required")
+            return None
+        if not isinstance(results, dict):
+            self.problem(self.lines.of("", 0, "results"),
+                         "results must be a table: [results] with destination and table")
+            return None
+        self.unknown_keys(results, RESULTS_KEYS, "results", 0, "[results]")
+        text = self.string(results, "destination", "results", required=True, where="results.")
+        table = self.string(results, "table", "results", where="results.") or DEFAULT_TABLE
+        if text is None:
+            return None
+        destination = Destination(self.location(text), table)
+        for message in destination.problems():
+            key = "table" if "table" in message else "destination"
+            self.problem(self.lines.of("results", 0, key), message)
+        return destination
+
+    def rankings(self, source: str | None) -> list[JobRanking]:
+        defaults = self.data.get("defaults", {})
+        if not isinstance(defaults, dict):
+            self.problem(self.lines.of("", 0, "defaults"), "defaults must be a table: [defaults]")
+            defaults = {}
+        self.unknown_keys(defaults, DEFAULT_KEYS, "defaults", 0, "[defaults]")
+        entries = self.data.get("ranking")
+        if entries is None:
+            self.problem(None, "no rankings: add at least one [[ranking]] table")
+            return []
+        if not isinstance(entries, list) or not all(isinstance(e, dict) for e in entries):
+            self.problem(self.lines.of("ranking", 0) or self.lines.of("", 0, "ranking"),
+                         "rankings are written [[ranking]] (double brackets), one per ranking")
+            return []
+        rankings = []
+        for index, entry in enumerate(entries):
+            ranking = self.ranking(index, entry, defaults, source)
+            if ranking is not None:
+                rankings.append(ranking)
+        self.unique_names()
+        return rankings
+
+    def unique_names(self) -> None:
+        seen: dict[str, int | None] = {}
+        for name, line in self.names:
+            if name in seen:
+                self.problem(line, f"ranking name {name!r} is already used at line {seen[name]}:"
+                             " give each ranking its own name = \"...\"")
+            else:
+                seen[name] = line
+
+    def ranking(self, index: int, entry: Mapping[str, Any], defaults: Mapping[str, Any],
+                source: str | None) -> JobRanking | None:
+        where = f"ranking {index + 1}: "
+        self.unknown_keys(entry, RANKING_KEYS, "ranking", index, f"ranking {index + 1}")
+        merged = {**{k: v for k, v in defaults.items() if k in DEFAULT_KEYS},
+                  **{k: v for k, v in entry.items() if k in RANKING_KEYS}}
+        key_lines = {k: (self.lines.of("ranking", index, k) if k in entry
+                         else self.lines.of("defaults", 0, k)) for k in merged}
+        header = self.lines.of("ranking", index)
+        before = len(self.problems)
+        typed = {}
+        for key, value in merged.items():
+            message = _type_problem(key, value)
+            if message:
+                self.problem(key_lines[key], where + message)
+            else:
+                typed[key] = value
+        target = typed.get("target")
+        if "target" not in merged:
+            self.problem(header, where + "target is required (in the ranking or in [defaults])")
+        table = typed.get("table")
+        self.table_problems(table, source, key_lines.get("table") or header, where)
+        options = {k: v for k, v in typed.items()
+                   if k in RankOptions.__dataclass_fields__ and k != "target"}
+        if "high_cardinality" in typed:
+            options["thresholds"] = Thresholds(high_cardinality=typed["high_cardinality"])
+        try:
+            # The library's own checks of option values, so the job file and the CLI agree.
+            api.make_options(target or "", **options)
+        except SpecError as error:
+            for part in str(error).split("; "):
+                option = re.search(r"--([a-z-]+)", part)
+                key = option.group(1).replace("-", "_") if option else ""
+                if key in key_lines:
+                    part = part.replace(option.group(0), key, 1)  # type: ignore[union-attr]
+                self.problem(key_lines.get(key) or header, where + part)
+        name = typed.get("name") or (f"{table}.{target}" if table else str(target))
+        self.names.append((name, key_lines.get("name") or header))
+        if len(self.problems) > before or target is None:
+            return None
+        return JobRanking(name=name, target=target, table=table, options=options,
+                          settings=merged, line=header, key_lines=key_lines)
+
+    def table_problems(self, table: Any, source: str | None, line: int | None,
+                       where: str) -> None:
+        if source is None or (table is not None and not isinstance(table, str)):
+            return
+        data_file = not _is_url(source) and file_reader(source) is not None
+        if data_file and table:
+            self.problem(line, where + f"table is not used with a data file source "
+                         f"({Path(source).name}): remove it")
+        elif not data_file and not table:
+            self.problem(line, where + "table is required (in the ranking or in [defaults])")
+        elif table:
+            try:
+                parse_table_name(table, "")
+            except SpecError:
+                self.problem(line, where + f"table must be [schema.]table, not {table!r}")
+
+
+def _type_problem(key: str, value: Any) -> str | None:
+    """Why ``value`` has the wrong type for ``key``, or None."""
+    if key in _STRINGS:
+        if not isinstance(value, str) or not value.strip():
+            return f"{key} must be a non-empty string, not {value!r}"
+        if key == "name" and len(value) > MAX_NAME:
+            return f"name longer than {MAX_NAME} characters"
+    elif key in NAME_LISTS:
+        names = [value] if isinstance(value, str) else value
+        if not isinstance(names, list) or not all(isinstance(n, str) and n for n in names):
+            return f"{key} must be a list of column names (or one comma-separated string)"
+    elif key in _INTEGERS:
+        if isinstance(value, bool) or not isinstance(value, int):
+            return f"{key} must be a whole number, not {value!r}"
+        if key == "high_cardinality" and value < 1:
+            return f"high_cardinality must be at least 1, not {value}"
+    elif key in _NUMBERS and (isinstance(value, bool) or not isinstance(value, int | float)):
+        return f"{key} must be a number of seconds, not {value!r}"
+    return None
+
+
+def load_job(path: str | Path) -> Job:
+    """Read and validate a job file; :class:`JobError` lists every problem with its line."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as error:
+        raise JobError(path, [Problem(None, f"cannot read the job file: {error.strerror}")]
+                       ) from None
+    except UnicodeDecodeError:
+        raise JobError(path, [Problem(None, "the job file is not UTF-8 text")]) from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise JobError(path, [_toml_problem(error)]) from None
+    return _Reader(path, data, scan_lines(text)).read()
+
+
+# --- checks against the source and the destination --------------------------------------------
+
+
+def preflight(job: Job, *, destination: bool = True) -> None:
+    """Check every ranking against the source's catalog and (with ``destination``) the results
+    table's layout.
+
+    Nothing is ranked and nothing is written; every problem is reported at once.
+    """
+    problems: list[Problem] = []
+    source_line = job.lines.of("", 0, "source")
+    for ranking in job.rankings:
+        where = f"ranking {ranking.name!r}: "
+        try:
+            opened = open_source(job.source, ranking.table)
+        except SourceError as error:
+            problems.append(Problem(source_line, str(error)))
+            break
+        except BitsiftError as error:
+            problems.append(Problem(ranking.line_of("table"), where + str(error)))
+            continue
+        with opened.engine as engine:
+            try:
+                columns = engine.columns(opened.table, opened.display)
+            except TableNotFoundError as error:
+                problems.append(Problem(ranking.line_of("table"), where + str(error)))
+                continue
+            except BitsiftError as error:
+                problems.append(Problem(source_line, where + str(error)))
+                continue
+            problems += _ranking_problems(ranking, columns, opened.table, opened.display,
+                                          engine.caps.sqlglot_dialect)
+    if destination:
+        try:
+            with open_store(job.destination) as store:
+                store.check()
+        except HistoryError as error:
+            problems.append(Problem(job.lines.of("results", 0), str(error)))
+    if problems:
+        raise JobError(job.path, problems)
+
+
+def _ranking_problems(ranking: JobRanking, columns: Sequence[Column], table: Any,
+                      display: str, dialect: str) -> list[Problem]:
+    where = f"ranking {ranking.name!r}: "
+    options = api.make_options(ranking.target, **ranking.options)
+    names = [c.name for c in columns]
+    problems = []
+    for key in ("target", *NAME_LISTS):
+        wanted = (ranking.target,) if key == "target" else getattr(options, key) or ()
+        unknown = [n for n in wanted if resolve_name(n, names) is None]
+        if unknown:
+            message = unknown_names_message("column", unknown, names)
+            problems.append(Problem(ranking.line_of(key), f"{where}{key}: {message} in {display}"))
+    if options.where:
+        try:
+            parse_predicate(options.where, {c.name: c for c in columns}, dialect)
+        except PredicateError as error:
+            problems.append(Problem(ranking.line_of("where"), where + str(error)))
+    if not problems:
+        try:
+            resolve(options, columns, table, display, dialect)
+        except BitsiftError as error:
+            problems.append(Problem(ranking.line, where + str(error)))
+    return problems
+
+
+# --- running ------------------------------------------------------------------------------------
+
+
+@dataclass
+class RunResult:
+    """What a run did: its id, when it started, each ranking, and the rows written."""
+
+    job: Job
+    run_id: str
+    run_at: _dt.datetime
+    rankings: list[tuple[JobRanking, Ranking]]
+    rows_written: int
+
+
+def default_run_id(run_at: _dt.datetime) -> str:
+    """A run id from the start time, sortable: ``2026-01-02T03:04:05.123456Z``."""
+    return run_at.astimezone(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def check_run_id(run_id: str) -> str:
+    """``run_id`` if it is usable (1 to 100 printable characters), else :class:`SpecError`."""
+    if not run_id.strip() or len(run_id) > MAX_RUN_ID or not run_id.isprintable():
+        raise SpecError(f"--run-id must be 1 to {MAX_RUN_ID} printable characters, not {run_id!r}")
+    return run_id
+
+
+def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = None) -> RunResult:
+    """Rank every ranking of ``job``, then write all rows in one transaction.
+
+    A ranking that fails raises :class:`RunError` and nothing is written. Running again with
+    the same ``run_id`` replaces that run's rows.
+    """
+    run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
+    run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
+    preflight(job)
+    done: list[tuple[JobRanking, Ranking]] = []
+    for ranking in job.rankings:
+        try:
+            result = api.rank(job.source, ranking.target, ranking.table, **ranking.options)
+        except BitsiftError as error:
+            raise RunError(
+                f"job {job.name!r}, ranking {ranking.name!r} ({job.path.name} line "
+                f"{ranking.line}) failed, so run {run_id} wrote nothing: {error}"
+            ) from error
+        done.append((ranking, result))
+    rows = [
+        row
+        for ranking, result in done
+        for row in ranking_rows(result, run_id=run_id, run_at=run_at, job=job.name,
+                                ranking_name=ranking.name, options=ranking.settings)
+    ]
+    with open_store(job.destination, write=True) as store:
+        written = store.replace_run(job.name, run_id, rows)
+    return RunResult(job=job, run_id=run_id, run_at=run_at, rankings=done, rows_written=written)

@@ -1,0 +1,236 @@
+-- bitsift <version> - information-gain ranking, dialect spark, <time>
+-- table: bitsift_golden
+-- target: y
+-- attributes: word (categorical), level (categorical), score (numeric)
+-- missing values: drop; numeric bins: 3 (quantile)
+-- where: level <> 3 OR word IS NULL
+-- one row per attribute (attribute_index 0 describes the target); entropies in bits.
+-- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
+-- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
+WITH ordered_3 AS (
+  SELECT
+    CAST(`score` AS DOUBLE) AS v,
+    ROW_NUMBER() OVER (ORDER BY `score` NULLS LAST) AS rn,
+    COUNT(*) OVER () AS cnt
+  FROM `bitsift_golden`
+  WHERE
+    NOT `y` IS NULL AND NOT `score` IS NULL AND (
+      `level` <> 3 OR `word` IS NULL
+    )
+), bounds_3 AS (
+  SELECT
+    MAX(CASE WHEN rn = FLOOR((
+      cnt - 1
+    ) * 0.333333333333) + 1 THEN v END) + (
+      (
+        MAX(cnt) - 1
+      ) * 0.333333333333 - FLOOR((
+        MAX(cnt) - 1
+      ) * 0.333333333333)
+    ) * (
+      COALESCE(
+        MAX(CASE WHEN rn = FLOOR((
+          cnt - 1
+        ) * 0.333333333333) + 2 THEN v END),
+        MAX(CASE WHEN rn = FLOOR((
+          cnt - 1
+        ) * 0.333333333333) + 1 THEN v END)
+      ) - MAX(CASE WHEN rn = FLOOR((
+        cnt - 1
+      ) * 0.333333333333) + 1 THEN v END)
+    ) AS c3_1,
+    MAX(CASE WHEN rn = FLOOR((
+      cnt - 1
+    ) * 0.666666666667) + 1 THEN v END) + (
+      (
+        MAX(cnt) - 1
+      ) * 0.666666666667 - FLOOR((
+        MAX(cnt) - 1
+      ) * 0.666666666667)
+    ) * (
+      COALESCE(
+        MAX(CASE WHEN rn = FLOOR((
+          cnt - 1
+        ) * 0.666666666667) + 2 THEN v END),
+        MAX(CASE WHEN rn = FLOOR((
+          cnt - 1
+        ) * 0.666666666667) + 1 THEN v END)
+      ) - MAX(CASE WHEN rn = FLOOR((
+        cnt - 1
+      ) * 0.666666666667) + 1 THEN v END)
+    ) AS c3_2
+  FROM ordered_3
+), bounds AS (
+  SELECT
+    *
+  FROM bounds_3
+), base AS (
+  SELECT
+    src.`y` AS y,
+    src.`word` AS a1,
+    src.`level` AS a2,
+    CASE
+      WHEN src.`score` IS NULL
+      THEN NULL
+      WHEN src.`score` < bounds.c3_1
+      THEN 0
+      WHEN src.`score` < bounds.c3_2
+      THEN 1
+      ELSE 2
+    END AS a3
+  FROM `bitsift_golden` AS src
+  CROSS JOIN bounds
+  WHERE
+    src.`level` <> 3 OR src.`word` IS NULL
+), counts AS (
+  SELECT
+    CASE
+      WHEN GROUPING(a1) = 0
+      THEN 1
+      WHEN GROUPING(a2) = 0
+      THEN 2
+      WHEN GROUPING(a3) = 0
+      THEN 3
+      ELSE 0
+    END AS attr,
+    a1,
+    a2,
+    a3,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    GROUPING SETS (
+      (
+        y
+      ),
+      (a1, y),
+      (a2, y),
+      (a3, y)
+    )
+), cells AS (
+  SELECT
+    attr,
+    n,
+    SUM(n) OVER (PARTITION BY attr, a1, a2, a3) AS n_x,
+    ROW_NUMBER() OVER (PARTITION BY attr, a1, a2, a3 ORDER BY y NULLS LAST) AS x_first,
+    SUM(n) OVER (PARTITION BY attr, y) AS n_y,
+    ROW_NUMBER() OVER (PARTITION BY attr, y ORDER BY n NULLS LAST) AS y_first
+  FROM counts
+  WHERE
+    NOT y IS NULL
+    AND (
+      attr = 0
+      OR (
+        attr = 1 AND NOT a1 IS NULL
+      )
+      OR (
+        attr = 2 AND NOT a2 IS NULL
+      )
+      OR (
+        attr = 3 AND NOT a3 IS NULL
+      )
+    )
+), per_attribute AS (
+  SELECT
+    attr,
+    CAST(SUM(n) AS BIGINT) AS n_total,
+    CAST(SUM(n) AS DOUBLE) AS n_total_f,
+    CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS BIGINT) AS n_values,
+    CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS BIGINT) AS n_classes,
+    SUM(CAST(n AS DOUBLE) * LN(CAST(n AS DOUBLE))) AS s_xy,
+    SUM(
+      CASE WHEN x_first = 1 THEN CAST(n_x AS DOUBLE) * LN(CAST(n_x AS DOUBLE)) ELSE 0 END
+    ) AS s_x,
+    SUM(
+      CASE WHEN y_first = 1 THEN CAST(n_y AS DOUBLE) * LN(CAST(n_y AS DOUBLE)) ELSE 0 END
+    ) AS s_y
+  FROM cells
+  GROUP BY
+    attr
+), entropies AS (
+  SELECT
+    attr,
+    n_total,
+    n_total_f,
+    n_values,
+    n_classes,
+    CASE
+      WHEN n_classes > 1
+      THEN (
+        LN(n_total_f) - s_y / n_total_f
+      ) / LN(2)
+      ELSE 0
+    END AS h_y,
+    CASE WHEN n_values > 1 THEN (
+      LN(n_total_f) - s_x / n_total_f
+    ) / LN(2) ELSE 0 END AS h_x,
+    (
+      s_x - s_xy
+    ) / n_total_f / LN(2) AS h_y_given_x
+  FROM per_attribute
+), gains AS (
+  SELECT
+    attr,
+    n_total,
+    n_total_f,
+    n_values,
+    n_classes,
+    h_y,
+    h_x,
+    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+  FROM entropies
+), excluded AS (
+  SELECT
+    COALESCE(SUM(n), 0) AS rows_excluded
+  FROM counts
+  WHERE
+    attr = 0 AND y IS NULL
+)
+SELECT
+  g.attr AS attribute_index,
+  CASE g.attr
+    WHEN 0
+    THEN 'y'
+    WHEN 1
+    THEN 'word'
+    WHEN 2
+    THEN 'level'
+    WHEN 3
+    THEN 'score'
+  END AS attribute,
+  CASE g.attr
+    WHEN 0
+    THEN 'target'
+    WHEN 1
+    THEN 'categorical'
+    WHEN 2
+    THEN 'categorical'
+    WHEN 3
+    THEN 'numeric'
+  END AS kind,
+  g.n_total AS rows_used,
+  e.rows_excluded AS rows_excluded,
+  g.n_values AS distinct_values,
+  g.n_classes AS classes,
+  g.h_y AS target_entropy,
+  g.h_x AS attribute_entropy,
+  g.h_y - g.ig AS conditional_entropy,
+  g.ig AS information_gain,
+  CASE WHEN g.n_values > 1 THEN g.ig / g.h_x ELSE 0 END AS gain_ratio,
+  CASE WHEN g.h_x + g.h_y > 0 THEN 2 * g.ig / (
+    g.h_x + g.h_y
+  ) ELSE 0 END AS symmetric_uncertainty,
+  2 * g.n_total_f * LN(2) * g.ig AS g_statistic,
+  (
+    g.n_values - 1
+  ) * (
+    g.n_classes - 1
+  ) AS dof
+FROM excluded AS e
+LEFT JOIN gains AS g
+  ON 1 = 1
+ORDER BY
+  CASE WHEN g.attr = 0 THEN 0 ELSE 1 END NULLS LAST,
+  information_gain DESC,
+  g.attr NULLS LAST;

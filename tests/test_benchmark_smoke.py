@@ -1,0 +1,83 @@
+"""A tiny run of the benchmark harness, so it never rots.
+
+Checks the report's structure and that the contenders compute the same numbers as bitsift
+(never timings: speed lives in benchmarks/RESULTS.md).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+from typing import Any
+
+import pytest
+import sqlalchemy as sa
+
+ROOT = Path(__file__).resolve().parents[1]
+RUN = ROOT / "benchmarks" / "run.py"
+#: Metrics agree to rounding: different summation orders, same counts.
+TOLERANCE = 1e-9
+
+
+def run_harness(tmp_path: Path, *options: str) -> tuple[str, dict[str, Any]]:
+    out = tmp_path / "result.json"
+    completed = subprocess.run(
+        [sys.executable, str(RUN), "--rows", "20000", "--repeats", "1", "--warmup", "0",
+         "--quiet", "--json", str(out), *options],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert completed.returncode == 0, completed.stderr
+    return completed.stdout, json.loads(out.read_text())
+
+
+def assert_agreement(result: dict[str, Any], expected: set[str]) -> None:
+    assert set(result["agreement"]) == expected
+    for label, differences in result["agreement"].items():
+        assert differences, f"{label}: nothing compared"
+        assert "missing attributes" not in differences, label
+        worst = max(differences.values())
+        assert worst < TOLERANCE, f"{label} differs from bitsift by {worst:g}: {differences}"
+
+
+def test_duckdb_side_by_side(tmp_path: Path) -> None:
+    stdout, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "4")
+    assert set(result["summaries"]) == {"a", "b", "b_arrow", "c", "d"}
+    for label in ("(a) bitsift.rank", "(c) K GROUP BY queries", "(d) scan floor", "ratios:"):
+        assert label in stdout
+    for ratio in ("a/d", "b/a", "c/a", "peak RSS b/a"):
+        assert any(r["name"].startswith(ratio) for r in result["ratios"]), ratio
+    for summary in result["summaries"].values():
+        assert summary["runs"] == 1
+        assert summary["median_seconds"] > 0
+        assert summary["median_peak_rss_mib"] > summary["median_rss_before_mib"] * 0.5
+    assert_agreement(result, {"b", "b_arrow", "c"})
+
+
+def test_duckdb_strategies_agree(tmp_path: Path) -> None:
+    _, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "5",
+                            "--mode", "strategies")
+    strategies = {"grouping_sets", "union_all", "cross_join", "per_attribute_sequential",
+                  "per_attribute_concurrent"}
+    assert strategies | {"a", "d"} == set(result["summaries"])
+    assert_agreement(result, strategies)
+
+
+@pytest.mark.postgres
+def test_postgres_side_by_side(tmp_path: Path, postgres_engine: sa.Engine) -> None:
+    url = postgres_engine.url.render_as_string(hide_password=False)
+    stdout, result = run_harness(tmp_path, "--engine", "postgres", "--attributes", "4",
+                                 "--postgres-url", url)
+    assert set(result["summaries"]) == {"a", "b", "c", "d"}
+    assert "postgres" in result["versions"]
+    assert_agreement(result, {"b", "c"})
+    schema = result["dataset_table"].split(".")[0]
+    with postgres_engine.connect() as connection:
+        left = connection.exec_driver_sql(
+            "SELECT count(*) FROM information_schema.schemata WHERE schema_name = %(s)s",
+            {"s": schema},
+        ).scalar()
+    assert left == 0, f"the benchmark left its schema {schema} behind"

@@ -1,0 +1,155 @@
+"""Drift between runs: the comparison rules, and a planted change found end to end (exit 3)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+import duckdb
+import pytest
+import sqlalchemy as sa
+from click.testing import CliRunner
+from test_jobs import (
+    POSTGRES_URL,
+    duckdb_source,
+    postgres_source,
+    random_rows,
+    two_rankings,
+    write_job,
+)
+
+from bitsift.cli import cli
+from bitsift.drift import DriftThresholds, compare, drift
+from bitsift.errors import SpecError
+from bitsift.jobs import load_job, run_job
+
+
+def row(attribute: str, position: int, ig: float, flags: str = "", ranking: str = "r",
+        options: str = "{}") -> dict[str, Any]:
+    return {"ranking": ranking, "segment": "", "attribute": attribute, "position": position,
+            "information_gain": ig, "flags": flags, "options": options}
+
+
+def test_compare_finds_every_kind_of_change() -> None:
+    old = [row("a", 1, 0.50), row("b", 2, 0.30), row("c", 3, 0.20, "near_perfect"),
+           row("d", 4, 0.10), row("e", 5, 0.05), row("gone", 6, 0.01),
+           row("x", 1, 0.1, ranking="dropped")]
+    new = [row("a", 1, 0.505), row("b", 2, 0.10), row("c", 3, 0.20, "id_like"),
+           row("e", 4, 0.05), row("new", 5, 0.04), row("d", 8, 0.09),
+           row("x", 1, 0.1, ranking="added")]
+    changes, notes = compare(old, new, DriftThresholds(ig_change=0.01, rank_change=3))
+    found = {(c.kind, c.ranking, c.attribute) for c in changes}
+    assert found == {
+        ("information_gain", "r", "b"),   # 0.30 -> 0.10; a moved 0.005 only
+        ("flag_gained", "r", "c"),
+        ("flag_lost", "r", "c"),
+        ("rank", "r", "d"),               # 4 -> 8; e moved one place only
+        ("disappeared", "r", "gone"),
+        ("appeared", "r", "new"),
+        ("ranking_disappeared", "dropped", None),
+        ("ranking_appeared", "added", None),
+    }
+    b = next(c for c in changes if c.attribute == "b")
+    assert (b.before, b.after) == (0.30, 0.10)
+    assert notes == []
+
+
+def test_compare_thresholds_are_strict_and_ignore_rounding() -> None:
+    old = [row("a", 1, 0.5), row("b", 2, 0.25)]
+    same = [row("a", 1, 0.5 + 1e-15), row("b", 2, 0.25)]
+    assert compare(old, same, DriftThresholds(ig_change=0, rank_change=0)) == ([], [])
+    moved = [row("b", 1, 0.26), row("a", 2, 0.5)]
+    changes, _ = compare(old, moved, DriftThresholds(ig_change=0.01, rank_change=1))
+    assert changes == []  # exactly at the thresholds is not beyond them
+    changes, _ = compare(old, moved, DriftThresholds(ig_change=0.009, rank_change=0))
+    assert [(c.kind, c.attribute) for c in changes] == [
+        ("rank", "a"), ("information_gain", "b"), ("rank", "b")]
+    _, notes = compare(old, [row("a", 1, 0.5, options='{"bins":4}'), row("b", 2, 0.25)])
+    assert notes and "settings of ranking 'r' changed" in notes[0]
+    with pytest.raises(SpecError, match="--ig-change must be at least 0"):
+        DriftThresholds(ig_change=-1)
+
+
+PLANTED = "UPDATE {table} SET b = 'x' WHERE y = 'yes' AND b = 'y'"
+
+
+def plant_change(path: Path) -> None:
+    """Recode b so that b = 'y' means y = 'no': b's information gain jumps, y and the other
+    attributes stay as they were."""
+    with duckdb.connect(str(path)) as con:
+        con.execute(PLANTED.format(table="t"))
+
+
+def test_planted_change_is_drift_and_exits_3(tmp_path: Path) -> None:
+    source = duckdb_source(tmp_path / "src.duckdb")
+    job_file = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))
+    job = load_job(job_file)
+    runner = CliRunner()
+    one = runner.invoke(cli, ["drift", str(job_file)])
+    assert one.exit_code == 0 and "has 0 runs" in one.output
+    run_job(job, "day1")
+    run_job(job, "day2")
+    quiet = runner.invoke(cli, ["drift", str(job_file)])
+    assert quiet.exit_code == 0, quiet.output
+    assert "run day2" in quiet.output and "against run day1" in quiet.output
+    assert "no drift beyond the thresholds" in quiet.output
+    plant_change(source)
+    run_job(job, "day3")
+    alert = runner.invoke(cli, ["drift", str(job_file)])
+    assert alert.exit_code == 3, alert.output
+    lines = [line.split() for line in alert.output.splitlines()]
+    assert ["all", "b", "information", "gain"] in [line[:4] for line in lines]
+    assert "DRIFT:" in alert.output and "(exit code 3)" in alert.output
+    as_json = runner.invoke(cli, ["drift", str(job_file), "--format", "json"])
+    assert as_json.exit_code == 3
+    report = json.loads(as_json.output)
+    assert (report["old_run"]["run_id"], report["new_run"]["run_id"]) == ("day2", "day3")
+    moved = {(c["ranking"], c["attribute"]) for c in report["changes"]
+             if c["kind"] == "information_gain"}
+    assert moved == {("all", "b"), ("positive", "b")}
+    # Explicit runs; --new alone compares with the run before it.
+    assert runner.invoke(cli, ["drift", str(job_file), "--old", "day1", "--new", "day2"]
+                         ).exit_code == 0
+    assert runner.invoke(cli, ["drift", str(job_file), "--new", "day2"]).exit_code == 0
+    assert runner.invoke(cli, ["drift", str(job_file), "--new", "day3"]).exit_code == 3
+    # Without the job file: destination, table and job name.
+    direct = runner.invoke(cli, ["drift", "--results", str(tmp_path / "hist.duckdb"),
+                                 "--results-table", "history", "--job", "nightly"])
+    assert direct.exit_code == 3
+    # A loose threshold hides the move.
+    loose = drift(job.destination, "nightly", thresholds=DriftThresholds(ig_change=1.0,
+                                                                         rank_change=10))
+    assert not loose.drifted
+
+
+def test_drift_errors(tmp_path: Path) -> None:
+    duckdb_source(tmp_path / "src.duckdb")
+    job_file = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))
+    run_job(load_job(job_file), "only")
+    runner = CliRunner()
+    unknown = runner.invoke(cli, ["drift", str(job_file), "--new", "nope"])
+    assert unknown.exit_code == 1
+    assert "job 'nightly' has no run 'nope' (newest runs: only)" in str(unknown.exception)
+    usage = runner.invoke(cli, ["drift"])
+    assert usage.exit_code == 2 and "give a JOB_FILE, or --results and --job" in usage.output
+    single = runner.invoke(cli, ["drift", str(job_file)])
+    assert single.exit_code == 0 and "has 1 run in history: nothing to compare" in single.output
+
+
+@pytest.mark.postgres
+def test_planted_change_on_postgres(tmp_path: Path, postgres_engine: sa.Engine,
+                                    pg_schema: str) -> None:
+    postgres_source(postgres_engine, pg_schema, random_rows())
+    job = load_job(write_job(tmp_path, two_rankings(
+        POSTGRES_URL, POSTGRES_URL, f"{pg_schema}.history", source_table=f"{pg_schema}.t")))
+    run_job(job, "day1")
+    run_job(job, "day2")
+    assert not drift(job.destination, "nightly").drifted
+    with postgres_engine.begin() as connection:
+        connection.exec_driver_sql(PLANTED.format(table=f'"{pg_schema}".t'))
+    run_job(job, "day3")
+    report = drift(job.destination, "nightly")
+    moved = {(c.ranking, c.attribute): c for c in report.changes if c.kind == "information_gain"}
+    assert set(moved) == {("all", "b"), ("positive", "b")}
+    assert moved["all", "b"].after > moved["all", "b"].before + 0.05
