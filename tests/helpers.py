@@ -41,10 +41,13 @@ ENGINES: tuple[str, ...] = ("duckdb", "sqlite", "postgres", "mariadb")
 #: the server's default case-insensitive, PAD SPACE collation on purpose: bitsift must still
 #: tell 'a' from 'A' and 'x' from 'x '.
 COLUMN_TYPES: dict[str, dict[str, str]] = {
-    "duckdb": {"text": "VARCHAR", "integer": "BIGINT", "float": "DOUBLE"},
-    "sqlite": {"text": "TEXT", "integer": "INTEGER", "float": "REAL"},
-    "postgres": {"text": "TEXT", "integer": "BIGINT", "float": "DOUBLE PRECISION"},
-    "mariadb": {"text": "VARCHAR(100)", "integer": "BIGINT", "float": "DOUBLE"},
+    "duckdb": {"text": "VARCHAR", "integer": "BIGINT", "float": "DOUBLE",
+               "decimal": "DECIMAL(10, 2)"},
+    "sqlite": {"text": "TEXT", "integer": "INTEGER", "float": "REAL", "decimal": "NUMERIC"},
+    "postgres": {"text": "TEXT", "integer": "BIGINT", "float": "DOUBLE PRECISION",
+                 "decimal": "NUMERIC(10, 2)"},
+    "mariadb": {"text": "VARCHAR(100)", "integer": "BIGINT", "float": "DOUBLE",
+                "decimal": "DECIMAL(10, 2)"},
 }
 
 #: sqlglot dialect used to quote the scratch tables' names.
@@ -70,7 +73,8 @@ COMPARED_METRICS: tuple[str, ...] = (
 
 @dataclass(frozen=True)
 class Dataset:
-    """Rows of one table and the logical type (``text``, ``integer``, ``float``) of each column."""
+    """Rows of one table and the logical type (``text``, ``integer``, ``float``, ``decimal``)
+    of each column."""
 
     columns: tuple[tuple[str, str], ...]
     rows: list[tuple[Any, ...]]
@@ -94,6 +98,8 @@ class Dataset:
 TRICKY_TEXT: tuple[str, ...] = ("a", "A", "b", "x", "x ", "é", "e", "É", "naïve", "日本", "")
 TARGET_CLASSES: tuple[str, ...] = ("yes", "no", "No", "no ", "maybe")
 TARGET_WEIGHTS: tuple[float, ...] = (0.55, 0.25, 0.1, 0.06, 0.04)
+#: Columns of :func:`random_dataset` that bitsift bins by default (floats and decimals).
+NUMERIC_COLUMNS: tuple[str, ...] = ("score", "ratio", "price")
 
 
 def random_dataset(seed: int, rows: int = 1500) -> Dataset:
@@ -101,7 +107,8 @@ def random_dataset(seed: int, rows: int = 1500) -> Dataset:
 
     ``y`` (text target) depends on ``word`` and ``score`` so the ranking is not all zeros;
     ``level`` is an integer attribute with ties (categorical unless forced numeric), ``score``
-    and ``ratio`` are floats (binned), ``noise`` is independent.
+    and ``ratio`` are floats and ``price`` a DECIMAL(10, 2) (all three binned, see
+    :data:`NUMERIC_COLUMNS`), ``noise`` is independent.
     """
     rng = random.Random(seed)
     data: list[tuple[Any, ...]] = []
@@ -111,6 +118,7 @@ def random_dataset(seed: int, rows: int = 1500) -> Dataset:
         score = rng.gauss(0.0, 1.0) if rng.random() > 0.1 else None
         ratio = round(rng.random() * 7, 2)  # many ties, duplicate quantile cuts
         noise = rng.choice(("p", "q", "r"))
+        price = round(rng.uniform(0, 50), 2) if rng.random() > 0.04 else None
         weights = list(TARGET_WEIGHTS)
         if word in ("a", "x"):
             weights[0] += 0.6
@@ -119,9 +127,9 @@ def random_dataset(seed: int, rows: int = 1500) -> Dataset:
         if score is not None and score > 0.8:
             weights[4] += 0.5
         y = rng.choices(TARGET_CLASSES, weights)[0] if rng.random() > 0.03 else None
-        data.append((y, word, level, score, ratio, noise))
+        data.append((y, word, level, score, ratio, noise, price))
     columns = (("y", "text"), ("word", "text"), ("level", "integer"), ("score", "float"),
-               ("ratio", "float"), ("noise", "text"))
+               ("ratio", "float"), ("noise", "text"), ("price", "decimal"))
     return Dataset(columns=columns, rows=data)
 
 
@@ -247,12 +255,14 @@ def run_sql(where: Loaded, sql: str) -> list[dict[str, Any]]:
 
 
 def rank_with(source: Any, table: str | None, target: str, *, strategy: str | None = None,
-              quantile: str | None = None, **options: Any) -> Ranking:
-    """``bitsift.rank`` with the dialect's count strategy / quantile method overridden."""
+              quantile: str | None = None, caps: Mapping[str, Any] | None = None,
+              **options: Any) -> Ranking:
+    """``bitsift.rank`` with the dialect's count strategy / quantile method (or any other
+    capability in ``caps``) overridden."""
     opened = open_source(source, table)
     with opened.engine as engine:
         overrides = {k: v for k, v in (("count_strategy", strategy), ("quantile", quantile)) if v}
-        engine.caps = dataclasses.replace(engine.caps, **overrides)
+        engine.caps = dataclasses.replace(engine.caps, **overrides, **(caps or {}))
         spec_options = make_options(target, **options)
         columns = engine.columns(opened.table, opened.display)
         spec = resolve(spec_options, columns, opened.table, opened.display,

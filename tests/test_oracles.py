@@ -201,3 +201,35 @@ def test_constant_and_single_value_attributes(con: duckdb.DuckDBPyConnection) ->
         assert got.distinct == expected["distinct"] == (2 if missing == "category" else 1)
         for metric in METRICS:
             assert close(getattr(got, metric), expected[metric]), (missing, metric)
+
+
+AWKWARD_NAMES = ['select', 'a"b', "x y", "Ünïcödé", "group", "it's", "1st"]
+
+
+@pytest.mark.parametrize("target_type", ["BIGINT", "BOOLEAN", "VARCHAR"])
+def test_awkward_names_and_target_types(con: duckdb.DuckDBPyConnection,
+                                        target_type: str) -> None:
+    # Reserved words, quotes and spaces in names; integer, boolean and text targets.
+    rng = np.random.default_rng(len(target_type))
+    n = 900
+    n_classes = 2 if target_type == "BOOLEAN" else 4
+    y_codes = rng.choice(n_classes, size=n, p=np.full(n_classes, 1 / n_classes))
+    convert = {"BIGINT": int, "BOOLEAN": bool, "VARCHAR": lambda c: f"v{c}"}[target_type]
+    y = [None if i % 17 == 0 else convert(int(c)) for i, c in enumerate(y_codes)]
+    columns: dict[str, tuple[str, list[Any]]] = {"the target": (target_type, y)}
+    for k, name in enumerate(AWKWARD_NAMES):
+        card = 2 + 3 * k
+        codes_k = np.where(rng.random(n) < 0.5, (y_codes + k) % card, rng.integers(0, card, n))
+        columns[name] = ("BIGINT", [None if (i + k) % 11 == 0 else int(c)
+                                    for i, c in enumerate(codes_k)])
+    load(con, "odd table", columns)
+    for missing in ("category", "drop"):
+        ranking = bitsift.rank(con, target="the target", table="odd table", missing=missing)
+        assert ranking.target == "the target" and ranking.table == "odd table"
+        assert {a.attribute for a in ranking.attributes} == set(AWKWARD_NAMES)
+        for scored in ranking.attributes:
+            expected = oracle(columns[scored.attribute][1], y, missing)
+            assert scored.distinct == expected["distinct"]
+            for metric in METRICS:
+                assert close(getattr(scored, metric), expected[metric]), (scored.attribute,
+                                                                          metric)

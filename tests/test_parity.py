@@ -4,14 +4,20 @@ reference's metrics (bitsift.reference) to 1e-9 on the same random table.
 The table (tests/helpers.py, random_dataset) has NULLs in the target and the attributes, skewed
 classes, text that differs only by case, a trailing space or an accent (MariaDB's default
 collation merges those unless bitsift groups them byte-exactly), unicode, the empty string,
-integers with ties (categorical, and binned when forced --numeric) and floats binned into
-quantiles (the cut points are checked against numpy.quantile too).
+integers with ties (categorical, and binned when forced --numeric), floats and a DECIMAL(10, 2)
+binned into quantiles (the cut points are checked against numpy.quantile too).
 """
 
 from __future__ import annotations
 
 import pytest
-from helpers import assert_matches_reference, loaded, random_dataset, rank_with
+from helpers import (
+    NUMERIC_COLUMNS,
+    assert_matches_reference,
+    loaded,
+    random_dataset,
+    rank_with,
+)
 
 #: Count strategies each executed engine can run (no GROUPING SETS on SQLite and MariaDB).
 STRATEGIES: dict[str, tuple[str, ...]] = {
@@ -28,7 +34,7 @@ QUANTILES: dict[str, tuple[str, ...]] = {
     "mariadb": ("window",),
 }
 CASES = [(e, s) for e, strategies in STRATEGIES.items() for s in strategies]
-NUMERIC = ("score", "ratio", "level")
+NUMERIC = (*NUMERIC_COLUMNS, "level")
 
 
 @pytest.mark.parametrize(("engine", "strategy"), CASES)
@@ -39,7 +45,7 @@ def test_every_strategy_matches_the_reference(engine: str, strategy: str,
         for missing in ("category", "drop"):
             ranking = rank_with(where.source, where.table, "y", strategy=strategy,
                                 missing=missing)
-            assert_matches_reference(ranking, dataset, "y", numeric=("score", "ratio"),
+            assert_matches_reference(ranking, dataset, "y", numeric=NUMERIC_COLUMNS,
                                      missing=missing, context=f"{engine}/{strategy}/{missing}")
 
 
@@ -51,7 +57,7 @@ def test_every_quantile_method_matches_numpy(engine: str, request: pytest.Fixtur
             for bins in (4, 7):
                 ranking = rank_with(where.source, where.table, "y", quantile=method,
                                     numeric="level", bins=bins,
-                                    attributes=["score", "ratio", "level"])
+                                    attributes=list(NUMERIC))
                 assert_matches_reference(ranking, dataset, "y", numeric=NUMERIC, bins=bins,
                                          context=f"{engine}/{method}/{bins} bins")
 

@@ -139,6 +139,7 @@ def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
         dialect=engine.caps.name,
         sort=spec.options.sort,
         statements=list(engine.statements),
+        notes=list(engine.notes),
     )
 
 

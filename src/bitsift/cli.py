@@ -93,6 +93,7 @@ def rank_command(source: str, fmt: str, **kwargs: Any) -> None:
     if _DEBUG["on"]:
         for statement in ranking.statements:
             click.echo(f"-- sent to {ranking.dialect}:\n{statement};", err=True)
+    _notes(ranking.notes)
     click.echo(render(ranking, fmt), nl=False)
 
 

@@ -13,6 +13,8 @@ from dataclasses import dataclass
 
 import sqlglot
 from sqlglot import exp
+from sqlglot.dialects.dialect import Dialect
+from sqlglot.tokens import TokenType
 
 from bitsift.errors import PredicateError, unknown_names_message
 from bitsift.schema import Column
@@ -59,11 +61,13 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     '"amount" > 10'
     """
     try:
+        tokens = Dialect.get_or_raise(dialect).tokenize(text)
         statements = sqlglot.parse(text, read=dialect)
     except sqlglot.errors.SqlglotError as error:
         raise PredicateError(f"--where does not parse: {_first_line(error)}") from None
     statements = [s for s in statements if s is not None]
-    if len(statements) != 1:
+    # Even a trailing ';' is refused: a separator has no place in one condition.
+    if len(statements) != 1 or any(t.token_type == TokenType.SEMICOLON for t in tokens):
         raise PredicateError("--where must be one expression (no ';' and no second statement)")
     tree = statements[0]
     for node in tree.walk():

@@ -63,6 +63,8 @@ class Ranking:
     dialect: str = "duckdb"
     sort: str = "information_gain"
     statements: list[str] = field(default_factory=list)
+    #: What the engine wants the user to know (e.g. "--timeout is not applied"), for stderr.
+    notes: list[str] = field(default_factory=list)
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON contract: target, table, rows, rows_excluded, target_entropy, classes,

@@ -31,7 +31,7 @@ EXACT_KEY = "bitsift_exact_key"
 COLLATED_FAMILIES: frozenset[str] = frozenset({"text", "other"})
 
 #: Statement node types that must never appear in SQL bitsift sends.
-_WRITES: tuple[type[exp.Expression], ...] = (exp.DDL, exp.DML, exp.Command, exp.Into)
+_WRITES: tuple[type, ...] = (exp.DDL, exp.DML, exp.Command, exp.Into)
 
 
 class BuildError(AssertionError):
@@ -144,10 +144,10 @@ def _finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
         raise BuildError(f"generated SQL does not parse: {error}\n{text}") from error
     if len(trees) != 1 or not isinstance(trees[0], exp.Select):
         raise BuildError(f"generated SQL is not exactly one SELECT:\n{text}")
-    tree = trees[0]
-    if any(isinstance(node, _WRITES) for node in tree.walk()):
+    parsed = trees[0]
+    if any(isinstance(node, _WRITES) for node in parsed.walk()):
         raise BuildError(f"generated SQL contains a write or command:\n{text}")
-    tree = _apply_hooks(tree, caps)
+    tree = _apply_hooks(parsed, caps)
     sql = tree.sql(dialect=caps.sqlglot_dialect, pretty=pretty, unsupported_level=
                    sqlglot.ErrorLevel.RAISE)
     return Statement(sql=sql, tree=tree, dialect=caps.name)

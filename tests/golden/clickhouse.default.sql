@@ -9,7 +9,7 @@
 WITH ordered_4 AS (
   SELECT
     CAST("score" AS Nullable(Float64)) AS v,
-    ROW_NUMBER() OVER (ORDER BY "score") AS rn,
+    ROW_NUMBER() OVER (ORDER BY CAST("score" AS Nullable(Float64))) AS rn,
     COUNT(*) OVER () AS cnt
   FROM "bitsift_golden"
   WHERE
@@ -84,7 +84,7 @@ WITH ordered_4 AS (
 ), ordered_5 AS (
   SELECT
     CAST("ratio" AS Nullable(Float64)) AS v,
-    ROW_NUMBER() OVER (ORDER BY "ratio") AS rn,
+    ROW_NUMBER() OVER (ORDER BY CAST("ratio" AS Nullable(Float64))) AS rn,
     COUNT(*) OVER () AS cnt
   FROM "bitsift_golden"
   WHERE
@@ -170,22 +170,22 @@ WITH ordered_4 AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c4_1
+      WHEN CAST(src."score" AS Nullable(Float64)) < bounds.c4_1
       THEN 0
-      WHEN src."score" < bounds.c4_2
+      WHEN CAST(src."score" AS Nullable(Float64)) < bounds.c4_2
       THEN 1
-      WHEN src."score" < bounds.c4_3
+      WHEN CAST(src."score" AS Nullable(Float64)) < bounds.c4_3
       THEN 2
       ELSE 3
     END AS a4,
     CASE
       WHEN src."ratio" IS NULL
       THEN NULL
-      WHEN src."ratio" < bounds.c5_1
+      WHEN CAST(src."ratio" AS Nullable(Float64)) < bounds.c5_1
       THEN 0
-      WHEN src."ratio" < bounds.c5_2
+      WHEN CAST(src."ratio" AS Nullable(Float64)) < bounds.c5_2
       THEN 1
-      WHEN src."ratio" < bounds.c5_3
+      WHEN CAST(src."ratio" AS Nullable(Float64)) < bounds.c5_3
       THEN 2
       ELSE 3
     END AS a5
@@ -293,7 +293,7 @@ WITH ordered_4 AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

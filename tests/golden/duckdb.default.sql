@@ -8,8 +8,8 @@
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
 WITH bound_lists AS (
   SELECT
-    QUANTILE_CONT("score", [0.25, 0.5, 0.75]) AS q4,
-    QUANTILE_CONT("ratio", [0.25, 0.5, 0.75]) AS q5
+    QUANTILE_CONT(CAST("score" AS DOUBLE), [0.25, 0.5, 0.75]) AS q4,
+    QUANTILE_CONT(CAST("ratio" AS DOUBLE), [0.25, 0.5, 0.75]) AS q5
   FROM "bitsift_golden"
   WHERE
     NOT "y" IS NULL
@@ -31,22 +31,22 @@ WITH bound_lists AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c4_1
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c4_1
       THEN 0
-      WHEN src."score" < bounds.c4_2
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c4_2
       THEN 1
-      WHEN src."score" < bounds.c4_3
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c4_3
       THEN 2
       ELSE 3
     END AS a4,
     CASE
       WHEN src."ratio" IS NULL
       THEN NULL
-      WHEN src."ratio" < bounds.c5_1
+      WHEN CAST(src."ratio" AS DOUBLE) < bounds.c5_1
       THEN 0
-      WHEN src."ratio" < bounds.c5_2
+      WHEN CAST(src."ratio" AS DOUBLE) < bounds.c5_2
       THEN 1
-      WHEN src."ratio" < bounds.c5_3
+      WHEN CAST(src."ratio" AS DOUBLE) < bounds.c5_3
       THEN 2
       ELSE 3
     END AS a5
@@ -144,7 +144,7 @@ WITH bound_lists AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

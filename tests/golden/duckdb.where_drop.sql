@@ -9,7 +9,7 @@
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
 WITH bound_lists AS (
   SELECT
-    QUANTILE_CONT("score", [0.333333333333, 0.666666666667]) AS q3
+    QUANTILE_CONT(CAST("score" AS DOUBLE), [0.333333333333, 0.666666666667]) AS q3
   FROM "bitsift_golden"
   WHERE
     NOT "y" IS NULL AND (
@@ -28,9 +28,9 @@ WITH bound_lists AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c3_1
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c3_1
       THEN 0
-      WHEN src."score" < bounds.c3_2
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c3_2
       THEN 1
       ELSE 2
     END AS a3
@@ -134,7 +134,7 @@ WITH bound_lists AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

@@ -10,7 +10,7 @@
 WITH ordered_3 AS (
   SELECT
     CAST("score" AS DOUBLE PRECISION) AS v,
-    ROW_NUMBER() OVER (ORDER BY "score") AS rn,
+    ROW_NUMBER() OVER (ORDER BY CAST("score" AS DOUBLE PRECISION)) AS rn,
     COUNT(*) OVER () AS cnt
   FROM "bitsift_golden"
   WHERE
@@ -72,9 +72,9 @@ WITH ordered_3 AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c3_1
+      WHEN CAST(src."score" AS DOUBLE PRECISION) < bounds.c3_1
       THEN 0
-      WHEN src."score" < bounds.c3_2
+      WHEN CAST(src."score" AS DOUBLE PRECISION) < bounds.c3_2
       THEN 1
       ELSE 2
     END AS a3
@@ -190,7 +190,7 @@ WITH ordered_3 AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

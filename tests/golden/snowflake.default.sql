@@ -9,17 +9,17 @@
 WITH bounds AS (
   SELECT
     PERCENTILE_CONT(0.25) WITHIN GROUP (ORDER BY
-      "score") AS c4_1,
+      CAST("score" AS DOUBLE)) AS c4_1,
     PERCENTILE_CONT(0.5) WITHIN GROUP (ORDER BY
-      "score") AS c4_2,
+      CAST("score" AS DOUBLE)) AS c4_2,
     PERCENTILE_CONT(0.75) WITHIN GROUP (ORDER BY
-      "score") AS c4_3,
+      CAST("score" AS DOUBLE)) AS c4_3,
     PERCENTILE_CONT(0.25) WITHIN GROUP (ORDER BY
-      "ratio") AS c5_1,
+      CAST("ratio" AS DOUBLE)) AS c5_1,
     PERCENTILE_CONT(0.5) WITHIN GROUP (ORDER BY
-      "ratio") AS c5_2,
+      CAST("ratio" AS DOUBLE)) AS c5_2,
     PERCENTILE_CONT(0.75) WITHIN GROUP (ORDER BY
-      "ratio") AS c5_3
+      CAST("ratio" AS DOUBLE)) AS c5_3
   FROM "bitsift_golden"
   WHERE
     NOT "y" IS NULL
@@ -32,22 +32,22 @@ WITH bounds AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c4_1
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c4_1
       THEN 0
-      WHEN src."score" < bounds.c4_2
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c4_2
       THEN 1
-      WHEN src."score" < bounds.c4_3
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c4_3
       THEN 2
       ELSE 3
     END AS a4,
     CASE
       WHEN src."ratio" IS NULL
       THEN NULL
-      WHEN src."ratio" < bounds.c5_1
+      WHEN CAST(src."ratio" AS DOUBLE) < bounds.c5_1
       THEN 0
-      WHEN src."ratio" < bounds.c5_2
+      WHEN CAST(src."ratio" AS DOUBLE) < bounds.c5_2
       THEN 1
-      WHEN src."ratio" < bounds.c5_3
+      WHEN CAST(src."ratio" AS DOUBLE) < bounds.c5_3
       THEN 2
       ELSE 3
     END AS a5
@@ -145,7 +145,7 @@ WITH bounds AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

@@ -10,9 +10,9 @@
 WITH bounds AS (
   SELECT
     PERCENTILE_CONT(0.333333333333) WITHIN GROUP (ORDER BY
-      "score") AS c3_1,
+      CAST("score" AS DOUBLE)) AS c3_1,
     PERCENTILE_CONT(0.666666666667) WITHIN GROUP (ORDER BY
-      "score") AS c3_2
+      CAST("score" AS DOUBLE)) AS c3_2
   FROM "bitsift_golden"
   WHERE
     NOT "y" IS NULL AND (
@@ -26,9 +26,9 @@ WITH bounds AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c3_1
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c3_1
       THEN 0
-      WHEN src."score" < bounds.c3_2
+      WHEN CAST(src."score" AS DOUBLE) < bounds.c3_2
       THEN 1
       ELSE 2
     END AS a3
@@ -132,7 +132,7 @@ WITH bounds AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

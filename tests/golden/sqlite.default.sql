@@ -9,7 +9,7 @@
 WITH ordered_4 AS (
   SELECT
     CAST("score" AS REAL) AS v,
-    ROW_NUMBER() OVER (ORDER BY "score" NULLS LAST) AS rn,
+    ROW_NUMBER() OVER (ORDER BY CAST("score" AS REAL) NULLS LAST) AS rn,
     COUNT(*) OVER () AS cnt
   FROM "bitsift_golden"
   WHERE
@@ -80,7 +80,7 @@ WITH ordered_4 AS (
 ), ordered_5 AS (
   SELECT
     CAST("ratio" AS REAL) AS v,
-    ROW_NUMBER() OVER (ORDER BY "ratio" NULLS LAST) AS rn,
+    ROW_NUMBER() OVER (ORDER BY CAST("ratio" AS REAL) NULLS LAST) AS rn,
     COUNT(*) OVER () AS cnt
   FROM "bitsift_golden"
   WHERE
@@ -162,22 +162,22 @@ WITH ordered_4 AS (
     CASE
       WHEN src."score" IS NULL
       THEN NULL
-      WHEN src."score" < bounds.c4_1
+      WHEN CAST(src."score" AS REAL) < bounds.c4_1
       THEN 0
-      WHEN src."score" < bounds.c4_2
+      WHEN CAST(src."score" AS REAL) < bounds.c4_2
       THEN 1
-      WHEN src."score" < bounds.c4_3
+      WHEN CAST(src."score" AS REAL) < bounds.c4_3
       THEN 2
       ELSE 3
     END AS a4,
     CASE
       WHEN src."ratio" IS NULL
       THEN NULL
-      WHEN src."ratio" < bounds.c5_1
+      WHEN CAST(src."ratio" AS REAL) < bounds.c5_1
       THEN 0
-      WHEN src."ratio" < bounds.c5_2
+      WHEN CAST(src."ratio" AS REAL) < bounds.c5_2
       THEN 1
-      WHEN src."ratio" < bounds.c5_3
+      WHEN CAST(src."ratio" AS REAL) < bounds.c5_3
       THEN 2
       ELSE 3
     END AS a5
@@ -337,7 +337,7 @@ WITH ordered_4 AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
   FROM entropies
 ), excluded AS (
   SELECT

@@ -1,0 +1,26 @@
+"""Apache Spark: capability entry and what its paste-ready SQL must (not) say.
+
+GROUPING SETS with one-column GROUPING(); sqlglot makes exact percentiles approximate, so the
+window method. Not executed here.
+"""
+
+from __future__ import annotations
+
+from helpers import invalid_constructs, paste_sql
+
+from bitsift.dialects import capabilities
+
+DIALECT = "spark"
+
+
+def test_capability_entry() -> None:
+    caps = capabilities(DIALECT)
+    assert caps.count_strategy == "grouping_sets"
+    assert caps.quantile == "window"
+
+
+def test_paste_sql() -> None:
+    sql = paste_sql(DIALECT, "default")
+    assert invalid_constructs(sql, DIALECT) == []
+    assert "PERCENTILE" not in sql.upper()
+    assert "GROUPING(a1) = 0" in sql
