@@ -39,13 +39,15 @@ METRIC_NAMES: tuple[str, ...] = (
 )
 BINS = 10
 PROBABILITIES: tuple[float, ...] = tuple(round(j / BINS, 12) for j in range(1, BINS))
-#: One statement per ranking, or per-attribute statements (sequential or over a pool).
+#: One statement per ranking; one statement per attribute, on one session or on a pool;
+#: or the attributes split into one statement per session of the pool.
 STRATEGIES: tuple[str, ...] = (
     "grouping_sets",
     "union_all",
     "cross_join",
     "per_attribute_sequential",
     "per_attribute_concurrent",
+    "split_concurrent",
 )
 
 
@@ -112,17 +114,7 @@ def run_bitsift(dataset: Dataset) -> Metrics:
     import bitsift
 
     ranking = bitsift.rank(_bitsift_source(dataset), target=TARGET, table=dataset.table)
-    return {
-        s.attribute: {
-            "information_gain": s.information_gain,
-            "gain_ratio": s.gain_ratio,
-            "symmetric_uncertainty": s.symmetric_uncertainty,
-            "g_statistic": s.g_statistic,
-            "dof": float(s.dof),
-            "distinct": float(s.distinct),
-        }
-        for s in ranking.attributes
-    }
+    return _scores(ranking.attributes)
 
 
 # (b) ------------------------------------------------------------------------------------------
@@ -162,7 +154,7 @@ def _codes(series: Any) -> tuple[np.ndarray, int]:
 
 
 def _binned(series: Any) -> Any:
-    """Quantile bins as bitsift cuts them: exact quantiles (linear), bin k is cut[k-1] <= x < cut[k]."""
+    """Quantile bins as bitsift cuts them: exact (linear) quantiles, cut[k-1] <= x < cut[k]."""
     import pandas as pd
 
     values = series.to_numpy(dtype=float, na_value=np.nan)
@@ -204,7 +196,8 @@ def _quantile_query(dataset: Dataset, numeric: Sequence[AttributeDef]) -> str:
         parts = [f"quantile_cont({_identifier(a.name, dataset)}, [{levels}])" for a in numeric]
     else:
         parts = [
-            f"percentile_cont(ARRAY[{levels}]) WITHIN GROUP (ORDER BY {_identifier(a.name, dataset)})"
+            f"percentile_cont(ARRAY[{levels}])"
+            f" WITHIN GROUP (ORDER BY {_identifier(a.name, dataset)})"
             for a in numeric
         ]
     return f"SELECT {', '.join(parts)} FROM {_table(dataset)} WHERE {target} IS NOT NULL"
@@ -272,28 +265,7 @@ def run_floor(dataset: Dataset) -> Metrics:
 # strategies -----------------------------------------------------------------------------------
 
 
-def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
-    """A ranking through bitsift's own builder, with the count strategy forced."""
-    from bitsift.api import fetch_cuts, make_options, run_ranking
-    from bitsift.sources import open_source
-    from bitsift.spec import resolve
-
-    opened = open_source(_bitsift_source(dataset), dataset.table)
-    with opened.engine as engine:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(make_options(TARGET), columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        if strategy in ("grouping_sets", "union_all", "cross_join"):
-            engine.caps = replace(engine.caps, count_strategy=strategy, **_single_statement())
-            ranking = run_ranking(engine, spec)
-        else:
-            import strategies
-
-            concurrent = strategy == "per_attribute_concurrent"
-            cuts = fetch_cuts(engine, spec)
-            ranking = strategies.rank_per_attribute(
-                engine, spec, cuts, workers=workers if concurrent else 1
-            )
+def _scores(attributes: Any) -> Metrics:
     return {
         s.attribute: {
             "information_gain": s.information_gain,
@@ -303,16 +275,54 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
             "dof": float(s.dof),
             "distinct": float(s.distinct),
         }
-        for s in ranking.attributes
+        for s in attributes
     }
 
 
-def _single_statement() -> dict[str, Any]:
-    """Capability overrides that force bitsift's one-statement run mode (if it has a pool field)."""
+def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
+    """A ranking through bitsift's own builder, with the run-mode strategy forced.
+
+    ``grouping_sets``, ``union_all``, ``cross_join``: one boundaries pre-pass, one statement
+    (:func:`bitsift.api.run_ranking`). ``per_attribute_*``: one job per attribute (its
+    boundaries, then its statement) on one session, or on ``workers`` sessions at once;
+    ``split_concurrent``: the attributes cut into ``workers`` jobs run at once
+    (:func:`bitsift.concurrent.run_parts`).
+    """
+    from bitsift import concurrent
+    from bitsift.api import make_options, run_ranking
+    from bitsift.metrics import score
+    from bitsift.sources import open_source
+    from bitsift.spec import resolve
+
+    opened = open_source(_bitsift_source(dataset), dataset.table)
+    with opened.engine as engine:
+        columns = engine.columns(opened.table, opened.display)
+        spec = resolve(make_options(TARGET), columns, opened.table, opened.display,
+                       engine.caps.sqlglot_dialect)
+        engine.caps = replace(engine.caps, **_one_statement())
+        if strategy in ("grouping_sets", "union_all", "cross_join"):
+            engine.caps = replace(engine.caps, count_strategy=strategy)
+            return _scores(run_ranking(engine, spec).attributes)
+        parts, sessions = {
+            "per_attribute_sequential": (len(spec.attributes), 1),
+            "per_attribute_concurrent": (len(spec.attributes), workers),
+            "split_concurrent": (workers, workers),
+        }[strategy]
+        cuts, records = concurrent.run_parts(engine, spec, parts, sessions)
+    by_index = {r["attribute_index"]: r for r in records}
+    return _scores(
+        score(by_index[i], a.name, a.kind, spec.options.thresholds, cuts.get(a.name))
+        for i, a in enumerate(spec.attributes, start=1)
+        if i in by_index
+    )
+
+
+def _one_statement() -> dict[str, Any]:
+    """The capability override that keeps bitsift's run mode to one statement."""
     from bitsift.dialects import Capabilities
 
     fields = Capabilities.__dataclass_fields__
-    return {"run_pool": 0} if "run_pool" in fields else {}
+    return {"run_sessions": 1} if "run_sessions" in fields else {}
 
 
 CONTENDERS: dict[str, Callable[..., Metrics]] = {

@@ -107,7 +107,8 @@ def _attribute_sql(engine: EngineName, seed: int, a: AttributeDef) -> str:
     h_value = _hash(engine, seed, a.index * 10 + 2)
     h_null = _hash(engine, seed, a.index * 10 + 3)
     if a.kind == "numeric":
-        value = f"({_mod(engine, h_value, 1_000_000)}) / 1000000.0 + {a.signal_percent / 100.0!r} * y"
+        uniform = f"({_mod(engine, h_value, 1_000_000)}) / 1000000.0"
+        value = f"{uniform} + {a.signal_percent / 100.0!r} * y"
         if engine == "postgres":
             value = f"CAST({value} AS DOUBLE PRECISION)"
         else:

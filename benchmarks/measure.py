@@ -66,7 +66,13 @@ def run_task(task: Task, round_number: int) -> Measurement:
             stderr=errors,
             text=True,
         )
-        stdout = process.stdout.read()  # type: ignore[union-attr]
+        try:
+            stdout = process.stdout.read()  # type: ignore[union-attr]
+        except BaseException:
+            # Ctrl-C: stop the worker first, so the caller can drop its tables at once.
+            process.kill()
+            process.wait()
+            raise
         process.stdout.close()  # type: ignore[union-attr]
         _, status, usage = os.wait4(process.pid, 0)
         process.returncode = os.waitstatus_to_exitcode(status)
@@ -88,7 +94,7 @@ def run_task(task: Task, round_number: int) -> Measurement:
 
 def interleaved(tasks: Sequence[Task], repeats: int, warmup: int = 1,
                 progress: Callable[[Measurement], None] | None = None) -> list[Measurement]:
-    """A B C D A B C D …: ``warmup`` rounds (round numbers < 0, discarded later), then ``repeats``."""
+    """A B C D A B C D …: ``warmup`` rounds (numbered < 0, left out later), then ``repeats``."""
     measurements = []
     for round_number in range(-warmup, repeats):
         for task in tasks:

@@ -59,6 +59,8 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     parser.add_argument("--export-rows", type=int, default=None,
                         help="measure the export path on this many rows and scale linearly")
     parser.add_argument("--no-export", action="store_true", help="leave the export path out")
+    parser.add_argument("--strategies", default=",".join(STRATEGIES),
+                        help="which strategies --mode strategies runs (comma-separated)")
     parser.add_argument("--workers", type=int, default=2,
                         help="connections for the concurrent per-attribute strategy")
     parser.add_argument("--seed", type=int, default=1)
@@ -70,13 +72,17 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
         parser.error("--rows, --attributes and --repeats must be positive, --warmup >= 0")
     if args.export_rows is not None and not 1 <= args.export_rows <= args.rows:
         parser.error("--export-rows must be between 1 and --rows")
+    args.strategies = [s.strip() for s in args.strategies.split(",") if s.strip()]
+    unknown = sorted(set(args.strategies) - set(STRATEGIES))
+    if unknown or not args.strategies:
+        parser.error(f"--strategies: unknown {', '.join(unknown)}; known: {', '.join(STRATEGIES)}")
     return args
 
 
 def side_by_side_tasks(dataset: Dataset, export_dataset: Dataset | None) -> list[Task]:
     """(a) (b) [(b')] (c) (d), in the interleaving order."""
     tasks = []
-    for key, (label, contender, params) in SIDE_BY_SIDE.items():
+    for key, (_, contender, params) in SIDE_BY_SIDE.items():
         on = dataset
         if contender == "export":
             if export_dataset is None or (key == "b_arrow" and dataset.engine != "duckdb"):
@@ -87,12 +93,12 @@ def side_by_side_tasks(dataset: Dataset, export_dataset: Dataset | None) -> list
     return tasks
 
 
-def strategy_tasks(dataset: Dataset, workers: int) -> list[Task]:
-    """bitsift as shipped, each forced count strategy, and the scan floor."""
+def strategy_tasks(dataset: Dataset, strategies: Sequence[str], workers: int) -> list[Task]:
+    """bitsift as shipped, each forced strategy, and the scan floor."""
     tasks = [Task(label="a", contender="bitsift", dataset=dataset)]
-    for strategy in STRATEGIES:
+    for strategy in strategies:
         params: dict[str, Any] = {"strategy": strategy}
-        if strategy == "per_attribute_concurrent":
+        if strategy.endswith("_concurrent"):
             params["workers"] = workers
         tasks.append(Task(label=strategy, contender="strategy", dataset=dataset, params=params))
     tasks.append(Task(label="d", contender="floor", dataset=dataset))
@@ -103,7 +109,9 @@ def label_of(key: str, workers: int = 2) -> str:
     if key in SIDE_BY_SIDE:
         return SIDE_BY_SIDE[key][0]
     if key == "per_attribute_concurrent":
-        return f"per-attribute statements, {workers} connections"
+        return f"per-attribute statements, {workers} sessions"
+    if key == "split_concurrent":
+        return f"attributes split in {workers} statements, {workers} sessions"
     return key.replace("_", " ")
 
 
@@ -130,12 +138,13 @@ def side_by_side_ratios(s: dict[str, Summary], engine: str) -> list[Ratio]:
     return ratios
 
 
-def strategy_ratios(s: dict[str, Summary]) -> list[Ratio]:
+def strategy_ratios(s: dict[str, Summary], workers: int) -> list[Ratio]:
     floor = s["d"].median_seconds
-    best = min(STRATEGIES, key=lambda k: s[k].median_seconds)
+    strategies = [k for k in s if k not in ("a", "d")]
+    best = min(strategies, key=lambda k: s[k].median_seconds)
     a = s["a"].median_seconds
-    return [Ratio(f"{label_of(k)} / scan floor", s[k].median_seconds / floor)
-            for k in ["a", *STRATEGIES]] + [
+    return [Ratio(f"{label_of(k, workers)} / scan floor", s[k].median_seconds / floor)
+            for k in ["a", *strategies]] + [
         Ratio(f"bitsift / fastest strategy ({best})", a / s[best].median_seconds),
     ]
 
@@ -270,13 +279,13 @@ def _measure(args: argparse.Namespace, dataset: Dataset, export_dataset: Dataset
     if args.mode == "side-by-side":
         tasks = side_by_side_tasks(dataset, export_dataset)
     else:
-        tasks = strategy_tasks(dataset, args.workers)
+        tasks = strategy_tasks(dataset, args.strategies, args.workers)
     load_before = os.getloadavg()
     measurements = interleaved(tasks, args.repeats, args.warmup, _progress(args.quiet))
     load_after = os.getloadavg()
     summaries = summarize(tasks, measurements)
     ratios = (side_by_side_ratios(summaries, args.engine) if args.mode == "side-by-side"
-              else strategy_ratios(summaries))
+              else strategy_ratios(summaries, args.workers))
     return {
         "mode": args.mode,
         "engine": args.engine,

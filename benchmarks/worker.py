@@ -24,7 +24,7 @@ PRELOAD: dict[str, tuple[str, ...]] = {
     "export": ("pandas", "sqlalchemy", "bitsift.reference"),
     "handwritten": ("bitsift.reference",),
     "floor": (),
-    "strategy": ("bitsift", "bitsift.api", "sqlalchemy", "strategies"),
+    "strategy": ("bitsift", "bitsift.api", "sqlalchemy", "bitsift.concurrent"),
 }
 DRIVERS: dict[str, tuple[str, ...]] = {"duckdb": ("duckdb",), "postgres": ("psycopg",)}
 

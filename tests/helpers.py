@@ -42,12 +42,13 @@ ENGINES: tuple[str, ...] = ("duckdb", "sqlite", "postgres", "mariadb")
 #: tell 'a' from 'A' and 'x' from 'x '.
 COLUMN_TYPES: dict[str, dict[str, str]] = {
     "duckdb": {"text": "VARCHAR", "integer": "BIGINT", "float": "DOUBLE",
-               "decimal": "DECIMAL(10, 2)"},
-    "sqlite": {"text": "TEXT", "integer": "INTEGER", "float": "REAL", "decimal": "NUMERIC"},
+               "decimal": "DECIMAL(10, 2)", "date": "DATE", "timestamp": "TIMESTAMP"},
+    "sqlite": {"text": "TEXT", "integer": "INTEGER", "float": "REAL", "decimal": "NUMERIC",
+               "date": "DATE", "timestamp": "TIMESTAMP"},
     "postgres": {"text": "TEXT", "integer": "BIGINT", "float": "DOUBLE PRECISION",
-                 "decimal": "NUMERIC(10, 2)"},
+                 "decimal": "NUMERIC(10, 2)", "date": "DATE", "timestamp": "TIMESTAMP"},
     "mariadb": {"text": "VARCHAR(100)", "integer": "BIGINT", "float": "DOUBLE",
-                "decimal": "DECIMAL(10, 2)"},
+                "decimal": "DECIMAL(10, 2)", "date": "DATE", "timestamp": "DATETIME"},
 }
 
 #: sqlglot dialect used to quote the scratch tables' names.
@@ -349,6 +350,10 @@ GOLDEN_VARIANTS: dict[str, dict[str, Any]] = {
     "default": {"attributes": "word,level,noise", "numeric": "score,ratio", "bins": 4},
     "where_drop": {"attributes": "word,level", "numeric": "score", "bins": 3,
                    "missing": "drop", "where": "level <> 3 OR word IS NULL"},
+    # Best split, equal width and quantile side by side, computed inside the statement.
+    "binning": {"attributes": "word,noise", "numeric": "score,ratio,price", "bins": 4,
+                "binning": "best-split", "binning_for": "ratio=equal-width,price=quantile:3",
+                "where": "word <> 'b' OR word IS NULL"},
 }
 GOLDEN_TABLE = "bitsift_golden"
 _STAMP = re.compile(r"^-- bitsift \S+ - (.*), \d{4}-\d{2}-\d{2} \d{2}:\d{2} UTC$", re.MULTILINE)

@@ -61,7 +61,7 @@ def test_duckdb_strategies_agree(tmp_path: Path) -> None:
     _, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "5",
                             "--mode", "strategies")
     strategies = {"grouping_sets", "union_all", "cross_join", "per_attribute_sequential",
-                  "per_attribute_concurrent"}
+                  "per_attribute_concurrent", "split_concurrent"}
     assert strategies | {"a", "d"} == set(result["summaries"])
     assert_agreement(result, strategies)
 

@@ -25,6 +25,9 @@ from bitsift.cli import cli
 from bitsift.result import ATTRIBUTE_KEYS
 
 TOP_KEYS = ["target", "table", "rows", "rows_excluded", "target_entropy", "classes", "attributes"]
+#: Keys the table and Markdown formats show as columns; the binning (method, bin count, cut
+#: points) of numeric attributes is listed below the table instead.
+TABLE_KEYS = tuple(k for k in ATTRIBUTE_KEYS if k not in ("binning", "bins", "cuts"))
 SCRIPT = Path(sys.executable).with_name("bitsift")
 
 # A generated table (values are functions of the row number): an id, a text channel, an
@@ -98,6 +101,11 @@ def test_json_contract_keys_order_and_types(visits_db: Path) -> None:
         assert all(isinstance(attribute[k], float) for k in ATTRIBUTE_KEYS[3:9])
         assert isinstance(attribute["p_value"], float)
         assert isinstance(attribute["flags"], list)
+        if attribute["kind"] == "numeric":
+            assert attribute["binning"] == "quantile"
+            assert attribute["bins"] == len(attribute["cuts"]) + 1
+        else:
+            assert attribute["binning"] is attribute["bins"] is attribute["cuts"] is None
         assert all(isinstance(f, str) for f in attribute["flags"])
     kinds = {a["attribute"]: a["kind"] for a in payload["attributes"]}
     assert kinds == {"visit_id": "categorical", "channel": "categorical",
@@ -193,7 +201,7 @@ def test_table_format_is_aligned(visits_db: Path) -> None:
         elif ch == " " and start is not None:
             spans.append((start, i))
             start = None
-    assert len(spans) == len(ATTRIBUTE_KEYS)
+    assert len(spans) == len(TABLE_KEYS)
     rows = lines[header_at + 2: header_at + 2 + len(ATTRIBUTES)]
     assert sorted(r.split()[0] for r in rows) == sorted(ATTRIBUTES)
     for row in [lines[header_at], *rows]:
@@ -225,7 +233,7 @@ def test_markdown_format(visits_db: Path) -> None:
     assert len(table) == 2 + len(ATTRIBUTES)
     # Cell separators only: an escaped pipe (the header's H(Y\|X)) is not one.
     widths = {line.replace("\\|", "").count("|") for line in table}
-    assert widths == {len(ATTRIBUTE_KEYS) + 1}
+    assert widths == {len(TABLE_KEYS) + 1}
     assert "H(Y\\|X)" in table[0]
     assert set(table[1]) <= {"|", "-", ":"}
     assert {line.split("|")[1].strip() for line in table[2:]} == ATTRIBUTES

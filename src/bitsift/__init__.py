@@ -8,7 +8,7 @@ computed inside the database.
 
 from bitsift.api import CheckReport, check, rank, statement
 from bitsift.errors import BitsiftError
-from bitsift.result import AttributeScore, Ranking
+from bitsift.result import AttributeScore, Ranking, SegmentedRanking
 from bitsift.spec import Thresholds
 from bitsift.version import __version__
 
@@ -17,6 +17,7 @@ __all__ = [
     "BitsiftError",
     "CheckReport",
     "Ranking",
+    "SegmentedRanking",
     "Thresholds",
     "__version__",
     "check",

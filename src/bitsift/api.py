@@ -12,16 +12,30 @@ from typing import Any
 
 from sqlglot import exp
 
-from bitsift import reference
+from bitsift import discretize, reference
 from bitsift.dialects import capabilities
 from bitsift.engines.base import Engine
-from bitsift.errors import DataError, SpecError
-from bitsift.metrics import score, sort_scores
-from bitsift.result import Ranking
+from bitsift.errors import SpecError
+from bitsift.readout import read_ranking, read_segments
+from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column
 from bitsift.sources import open_source, parse_table_name
-from bitsift.spec import RankOptions, RankSpec, Thresholds, resolve
-from bitsift.sqlbuild import bounds_statement, paste_statement, rank_statement
+from bitsift.spec import (
+    RankOptions,
+    RankSpec,
+    Thresholds,
+    parse_binning_for,
+    parse_date_parts,
+    resolve,
+)
+from bitsift.sqlbuild import (
+    bounds_statement,
+    cut_count,
+    histogram_statement,
+    paste_statement,
+    rank_statement,
+    value_expression,
+)
 
 
 def _names(value: str | Iterable[str] | None) -> tuple[str, ...]:
@@ -39,8 +53,10 @@ def make_options(target: str, **options: Any) -> RankOptions:
     unknown = sorted(set(options) - set(RankOptions.__dataclass_fields__))
     if unknown:
         raise SpecError("unknown option(s): " + ", ".join(unknown))
-    for key in ("exclude", "categorical", "numeric"):
+    for key in ("exclude", "categorical", "numeric", "by"):
         options[key] = _names(options.get(key))
+    options["binning_for"] = parse_binning_for(options.get("binning_for"))
+    options["date_part"] = parse_date_parts(options.get("date_part"))
     return RankOptions(
         target=target,
         attributes=_names(attributes) or None,
@@ -49,14 +65,18 @@ def make_options(target: str, **options: Any) -> RankOptions:
     )
 
 
-def rank(source: Any, target: str, table: str | None = None, **options: Any) -> Ranking:
+def rank(source: Any, target: str, table: str | None = None, **options: Any,
+         ) -> Ranking | SegmentedRanking:
     """Rank the attributes of a table by information gain about ``target``, in the database.
 
     ``source``: a DuckDB database file (with ``table``), a Parquet/CSV file, a SQLAlchemy URL
     (with ``table``), an open DuckDB connection, or a SQLAlchemy Engine or Connection.
     ``options``: ``attributes``, ``exclude``, ``categorical``, ``numeric`` (lists or
     comma-separated strings), ``missing`` ("category" or "drop"), ``bins``, ``where``, ``sort``,
-    ``limit``, ``timeout`` (seconds), ``thresholds`` (:class:`~bitsift.spec.Thresholds`).
+    ``limit``, ``timeout`` (seconds), ``thresholds`` (:class:`~bitsift.spec.Thresholds`),
+    ``by`` (segment columns: the result is then a :class:`~bitsift.result.SegmentedRanking`,
+    one ranking per segment) and ``weight`` (a column of non-negative weights summed instead
+    of counting rows).
 
     >>> import duckdb
     >>> con = duckdb.connect()
@@ -75,72 +95,79 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any) -> 
         spec = resolve(spec_options, columns, opened.table, opened.display,
                        engine.caps.sqlglot_dialect)
         engine.set_timeout(spec_options.timeout)
+        if spec.by:
+            return run_segmented(engine, spec)
         return run_ranking(engine, spec)
 
 
 def fetch_cuts(engine: Engine, spec: RankSpec) -> dict[str, list[float]]:
-    """Run the boundaries pre-pass; duplicate and non-finite boundaries are dropped."""
-    statement = bounds_statement(spec, engine.caps)
-    if statement is None:
-        return {}
-    record = engine.fetch(statement.sql).records()[0]
+    """The cut points of every numeric attribute: the bounds pre-pass (quantile, equal-width,
+    best-split, computed in SQL) and, for mdl, the histogram pre-pass whose cut points are
+    found in Python. Duplicate and non-finite cut points are dropped."""
     cuts: dict[str, list[float]] = {}
+    statement = bounds_statement(spec, engine.caps)
+    record = engine.fetch(statement.sql).records()[0] if statement is not None else {}
     for index, attribute in enumerate(spec.attributes, start=1):
-        if attribute.kind != "numeric":
+        if attribute.kind != "numeric" or attribute.binning == "mdl":
             continue
-        values = [record.get(f"c{index}_{j}") for j in range(1, spec.options.bins)]
+        values = [record.get(f"c{index}_{j}") for j in range(1, cut_count(attribute) + 1)]
         finite = {float(v) for v in values if v is not None and math.isfinite(float(v))}
         cuts[attribute.name] = sorted(finite)
+    cuts.update(fetch_mdl_cuts(engine, spec))
     return cuts
 
 
+def fetch_mdl_cuts(engine: Engine, spec: RankSpec,
+                   resolution: int = discretize.MDL_RESOLUTION) -> dict[str, list[float]]:
+    """MDL cut points of the attributes binned by mdl: the database counts the (fine bin x
+    class) histogram, :mod:`bitsift.discretize` splits it (Fayyad & Irani 1993)."""
+    statement = histogram_statement(spec, engine.caps, resolution)
+    if statement is None:
+        return {}
+    histograms = discretize.histograms_from_rows(engine.fetch(statement.sql).records())
+    cuts = {}
+    for index, attribute in enumerate(spec.attributes, start=1):
+        if attribute.kind == "numeric" and attribute.binning == "mdl":
+            histogram = histograms.get(index)
+            found = histogram.mdl_cuts() if histogram is not None else []
+            cuts[attribute.name] = sorted({c for c in found if math.isfinite(c)})
+    return cuts
+
+
+def _label_binning(ranking: Ranking, spec: RankSpec) -> None:
+    """Name each numeric attribute's binning method on its score."""
+    methods = {a.name: a.binning for a in spec.attributes}
+    for scored in ranking.attributes:
+        scored.binning = methods.get(scored.attribute)
+
+
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
-    """Compute a :class:`Ranking` for a resolved spec on an open engine."""
+    """Compute a :class:`Ranking` for a resolved, unsegmented spec on an open engine."""
+    if spec.by:
+        raise SpecError("a segmented spec (--by) gives one ranking per segment: "
+                        "use run_segmented()")
     cuts = fetch_cuts(engine, spec)
     statement = rank_statement(spec, engine.caps, cuts)
     records = engine.fetch(statement.sql).records()
-    by_index = {r["attribute_index"]: r for r in records if r["attribute_index"] is not None}
-    excluded = int(records[0]["rows_excluded"] or 0) if records else 0
-    target_row = by_index.get(0)
-    if target_row is None or int(target_row["rows_used"] or 0) == 0:
-        if excluded:
-            raise DataError(
-                f"every row of {spec.source_name} has a NULL {spec.target!r} ({excluded} rows)"
-            )
-        raise DataError(f"{spec.source_name} has no rows to rank"
-                        + (" matching --where" if spec.where else ""))
-    classes = int(target_row["classes"])
-    if classes < 2:
-        raise DataError(
-            f"target {spec.target!r} has a single class in {spec.source_name}: nothing to rank"
-        )
-    scores = []
-    for index, attribute in enumerate(spec.attributes, start=1):
-        row = by_index.get(index)
-        if row is None:
-            # --missing drop and the attribute is NULL on every row: nothing to measure.
-            row = {"distinct_values": 0, "rows_used": 0, "g_statistic": 0.0, "dof": 0,
-                   "information_gain": 0.0, "target_entropy": 0.0, "gain_ratio": 0.0,
-                   "symmetric_uncertainty": 0.0, "conditional_entropy": 0.0,
-                   "attribute_entropy": 0.0}
-        scores.append(score(row, attribute.name, attribute.kind, spec.options.thresholds,
-                            cuts.get(attribute.name)))
-    ordered = sort_scores(scores, spec.options.sort)
-    if spec.options.limit:
-        ordered = ordered[: spec.options.limit]
-    return Ranking(
-        target=spec.target,
-        table=spec.source_name,
-        rows=int(target_row["rows_used"]),
-        rows_excluded=excluded,
-        target_entropy=float(target_row["target_entropy"]),
-        classes=classes,
-        attributes=ordered,
-        dialect=engine.caps.name,
-        sort=spec.options.sort,
-        statements=list(engine.statements),
-        notes=list(engine.notes),
-    )
+    ranking = read_ranking(records, spec, cuts, dialect=engine.caps.name)
+    _label_binning(ranking, spec)
+    ranking.statements = list(engine.statements)
+    ranking.notes = list(engine.notes) + ranking.notes
+    return ranking
+
+
+def run_segmented(engine: Engine, spec: RankSpec) -> SegmentedRanking:
+    """Compute one ranking per segment of a spec with segment columns (``--by``), in one
+    statement. Numeric attributes are binned with cut points computed over the whole table."""
+    cuts = fetch_cuts(engine, spec)
+    statement = rank_statement(spec, engine.caps, cuts)
+    records = engine.fetch(statement.sql).records()
+    segmented = read_segments(records, spec, cuts, dialect=engine.caps.name)
+    for ranking in segmented.segments:
+        _label_binning(ranking, spec)
+    segmented.statements = list(engine.statements)
+    segmented.notes = list(engine.notes) + segmented.notes
+    return segmented
 
 
 def statement(
@@ -168,7 +195,8 @@ def statement(
             caps = capabilities(dialect) if dialect else engine.caps
             spec = resolve(spec_options, columns, opened.table, opened.display,
                            engine.caps.sqlglot_dialect)
-            return paste_statement(spec, caps)
+            # MDL's cut points need a Python step: computed here and inlined as literals.
+            return paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec))
     if not table:
         raise SpecError("--table is required without a SOURCE")
     if not spec_options.attributes and not spec_options.numeric:
@@ -190,7 +218,8 @@ def _options_dict(options: RankOptions) -> dict[str, Any]:
 
 
 def _declared_columns(options: RankOptions) -> list[Column]:
-    names = [options.target, *(options.attributes or ()), *options.numeric]
+    names = [options.target, *(options.attributes or ()), *options.numeric, *options.by,
+             *([options.weight] if options.weight else [])]
     return [
         Column(name=n, family="float" if n in options.numeric else "other")
         for n in dict.fromkeys(names)
@@ -240,6 +269,9 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
     if sample_rows < 1:
         raise SpecError(f"--sample-rows must be at least 1, not {sample_rows}")
     spec_options = make_options(target, **options)
+    if spec_options.by or spec_options.weight:
+        raise SpecError("check compares an unsegmented, unweighted ranking with the reference: "
+                        "check one segment with --where instead of by, and leave out weight")
     opened = open_source(source, table)
     with opened.engine as engine:
         columns = engine.columns(opened.table, opened.display)
@@ -255,9 +287,10 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
 
 def _pull_rows(engine: Engine, spec: RankSpec, limit: int | None) -> dict[str, list[Any]]:
     names = [spec.target, *(a.name for a in spec.attributes)]
-    query = exp.select(*(exp.column(exp.to_identifier(n, quoted=True)) for n in names)).from_(
-        spec.source.copy()
-    )
+    # Attributes as ranked: a date's epoch seconds or part rather than the date itself.
+    values = [exp.column(exp.to_identifier(spec.target, quoted=True)),
+              *(value_expression(a, engine.caps) for a in spec.attributes)]
+    query = exp.select(*values).from_(spec.source.copy())
     if spec.where is not None:
         query = query.where(spec.where.expression.copy())
     if limit is not None:

@@ -12,7 +12,8 @@ from bitsift import api
 from bitsift.dialects import CAPABILITIES
 from bitsift.errors import BitsiftError
 from bitsift.formatting import FORMATS, render
-from bitsift.spec import MISSING_MODES, SORT_METRICS, Thresholds
+from bitsift.sources import ENGINE_NAMES, EngineSource
+from bitsift.spec import BINNING_METHODS, MISSING_MODES, SORT_METRICS, Thresholds
 from bitsift.version import __version__
 
 _DEBUG = {"on": False}
@@ -44,7 +45,19 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
                      show_default=True,
                      help="NULL attribute values: their own category, or dropped per attribute."),
         click.option("--bins", type=int, default=10, show_default=True,
-                     help="Quantile bins for numeric attributes."),
+                     help="Bins for numeric attributes (quantile and equal-width)."),
+        click.option("--binning", type=click.Choice(BINNING_METHODS), default="quantile",
+                     show_default=True,
+                     help="How numeric attributes are cut: equal-frequency or equal-width bins, "
+                          "the best binary split, or Fayyad & Irani's MDL."),
+        click.option("--binning-for", "binning_for", multiple=True, callback=_comma_list,
+                     metavar="COL=METHOD[:BINS]",
+                     help="Another binning for some columns, e.g. price=mdl,age=quantile:5."),
+        click.option("--date-part", "date_part", multiple=True, callback=_comma_list,
+                     metavar="[COL=]PART",
+                     help="Rank dates as categories of a part (year, month, dow, hour): "
+                          "sown_on=month, or a bare PART for every date column. Dates named "
+                          "in --numeric are binned as epoch seconds instead."),
         click.option("--where", help="Only rows matching this condition (checked by sqlglot)."),
         click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
                      show_default=True, help="Metric to sort by (descending)."),
@@ -56,6 +69,36 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
     for option in reversed(options):
         command = option(command)
     return command
+
+
+#: --by: segments, for the commands that support them (rank, sql, report).
+by_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option(
+    "--by", multiple=True, callback=_comma_list,
+    help="Rank within each segment: each combination of values of these columns "
+         "(comma-separated; NULL is a segment of its own).")
+#: --weight, for the commands that support it (rank, sql).
+weight_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option(
+    "--weight", help="Sum this column of non-negative weights instead of counting rows "
+                     "(NULL or 0: the row is left out).")
+
+
+def segment_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """--by and --weight, for the commands that support both (rank, sql)."""
+    return by_option(weight_option(command))
+
+
+#: --engine, for the commands that read SOURCE with a chosen engine (rank, check).
+engine_option = click.option(
+    "--engine", type=click.Choice(ENGINE_NAMES),
+    help="Read SOURCE with this engine. spark: a Parquet file or directory on a local Spark "
+         "session, or with --table the master (local[2], spark://host:7077) and a catalog "
+         "table; clickhouse: a Parquet file read by embedded ClickHouse (chdb), or with "
+         "--table a chdb database directory.")
+
+
+def _engine_source(source: str, engine: str | None) -> Any:
+    """SOURCE as given, or wrapped for the --engine that reads it."""
+    return EngineSource(engine, source) if engine else source
 
 
 def _library_options(kwargs: dict[str, Any]) -> dict[str, Any]:
@@ -77,7 +120,8 @@ def cli(debug: bool) -> None:
     """Rank a table's columns by information gain about a categorical target, in the database.
 
     SOURCE is a DuckDB database file (with --table), a Parquet or CSV file read in place, or a
-    SQLAlchemy URL such as postgresql+psycopg://user@host/db (with --table).
+    SQLAlchemy URL such as postgresql+psycopg://user@host/db (with --table); rank and check
+    can also read it with Spark or embedded ClickHouse (--engine).
     """
     _DEBUG["on"] = debug
 
@@ -85,11 +129,13 @@ def cli(debug: bool) -> None:
 @cli.command("rank")
 @click.argument("source")
 @rank_options
+@segment_options
+@engine_option
 @click.option("--format", "-f", "fmt", type=click.Choice(FORMATS), default="table",
               show_default=True)
-def rank_command(source: str, fmt: str, **kwargs: Any) -> None:
+def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> None:
     """Rank the attributes of SOURCE by what they tell about --target."""
-    ranking = api.rank(source, **_library_options(kwargs))
+    ranking = api.rank(_engine_source(source, engine), **_library_options(kwargs))
     if _DEBUG["on"]:
         for statement in ranking.statements:
             click.echo(f"-- sent to {ranking.dialect}:\n{statement};", err=True)
@@ -100,6 +146,7 @@ def rank_command(source: str, fmt: str, **kwargs: Any) -> None:
 @cli.command("sql")
 @click.argument("source", required=False)
 @rank_options
+@segment_options
 @click.option("--dialect", "-d", type=click.Choice(sorted(CAPABILITIES), case_sensitive=False),
               help="SQL dialect to write (default: the SOURCE's, or duckdb).")
 def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
@@ -118,12 +165,14 @@ def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
 @rank_options
 @click.option("--sample-rows", type=int, default=100_000, show_default=True,
               help="Rows pulled into NumPy for the reference computation.")
-def check_command(source: str, sample_rows: int, **kwargs: Any) -> None:
+@engine_option
+def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: Any) -> None:
     """Compare the in-database metrics with the NumPy reference on pulled rows.
 
     Exits 1 when the whole table fit in the sample and a metric differs by more than 1e-9.
     """
-    report = api.check(source, sample_rows=sample_rows, **_library_options(kwargs))
+    report = api.check(_engine_source(source, engine), sample_rows=sample_rows,
+                       **_library_options(kwargs))
     scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
     click.echo(f"{report.ranking.table}: {len(report.ranking.attributes)} attributes, "
                f"database vs NumPy reference on the {scope}")
@@ -178,3 +227,9 @@ from bitsift.cli_report import profile_command, report_command  # noqa: E402
 
 cli.add_command(report_command)
 cli.add_command(profile_command)
+
+# Redundancy between attributes and mRMR selection (redundancy, select) live in their own module.
+from bitsift.cli_select import SELECT_COMMANDS  # noqa: E402
+
+for _command in SELECT_COMMANDS:
+    cli.add_command(_command)

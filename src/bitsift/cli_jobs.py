@@ -15,6 +15,7 @@ from bitsift.dialects import CAPABILITIES
 from bitsift.history import DEFAULT_TABLE, Destination
 from bitsift.jobs import load_job, preflight, run_job
 from bitsift.models import write_models
+from bitsift.result import SEGMENT_STATUS, Ranking, SegmentedRanking, segment_label
 
 
 @click.command("run")
@@ -39,10 +40,22 @@ def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
     stamp = result.run_at.strftime("%Y-%m-%d %H:%M:%S UTC")
     click.echo(f"job {job.name}, run {result.run_id} ({stamp})")
     for ranking, ranked in result.rankings:
-        top = ", ".join(f"{s.attribute} {s.information_gain:.4f}" for s in ranked.attributes[:3])
+        if isinstance(ranked, SegmentedRanking):
+            click.echo(f"  {ranking.name}: {ranked.table}, target {ranked.target}, by "
+                       f"{', '.join(ranked.by)}: {len(ranked.segments)} segments")
+            for part in ranked.segments:
+                click.echo(f"    {segment_label(part.segment)}: {_ranked_line(part)}")
+            continue
         click.echo(f"  {ranking.name}: {ranked.table}, target {ranked.target}, "
-                   f"{ranked.rows:,} rows, {len(ranked.attributes)} attributes; top IG: {top}")
+                   f"{_ranked_line(ranked)}")
     click.echo(f"wrote {result.rows_written} rows to {where}")
+
+
+def _ranked_line(ranked: Ranking) -> str:
+    if ranked.status != "ok":
+        return f"{ranked.rows:,} rows, {SEGMENT_STATUS[ranked.status]}"
+    top = ", ".join(f"{s.attribute} {s.information_gain:.4f}" for s in ranked.attributes[:3])
+    return f"{ranked.rows:,} rows, {len(ranked.attributes)} attributes; top IG: {top}"
 
 
 @click.command("drift")

@@ -12,9 +12,17 @@ from typing import IO, Any
 
 import click
 
-from bitsift.cli import _DEBUG, _comma_list, _library_options, rank_options
-from bitsift.profile import DEFAULT_MAX_VALUES, ProfiledRun, Progress, profile, rank_and_profile
+from bitsift.cli import _DEBUG, _comma_list, _library_options, by_option, rank_options
+from bitsift.profile import (
+    DEFAULT_MAX_VALUES,
+    ProfiledRun,
+    Progress,
+    profile,
+    rank_and_profile,
+    rank_and_profile_segments,
+)
 from bitsift.report import profile_dict, profile_text, render_report
+from bitsift.selection import CRITERIA, REPORT_CANDIDATES, select_for_runs
 
 
 def progress_printer(quiet: bool, stream: IO[str] | None = None) -> Progress | None:
@@ -54,6 +62,7 @@ _quiet_option = click.option("--quiet", "-q", is_flag=True, help="No progress or
 @click.command("report")
 @click.argument("source")
 @rank_options
+@by_option
 @click.option("--out", "-o", required=True, type=click.Path(dir_okay=False, allow_dash=True),
               help="The HTML file to write ('-' for standard output).")
 @click.option("--top", type=int, default=20, show_default=True,
@@ -62,27 +71,46 @@ _quiet_option = click.option("--quiet", "-q", is_flag=True, help="No progress or
 @_sensitive_option
 @click.option("--title", help="Heading of the report (default: names the target and table).")
 @_quiet_option
+@click.option("--select", "select_k", type=click.IntRange(min=0), default=0, show_default=True,
+              help="Add the K attributes chosen by greedy mRMR and a redundancy heatmap of the "
+                   f"top {REPORT_CANDIDATES} (0: neither; one more scan per 64 pairs).")
+@click.option("--criterion", type=click.Choice(CRITERIA), default="mid", show_default=True,
+              help="The mRMR criterion of --select: relevance − or / mean redundancy.")
 def report_command(source: str, out: str, top: int, max_values: int,
                    sensitive: tuple[str, ...], title: str | None, quiet: bool,
-                   **kwargs: Any) -> None:
-    """Write a self-contained HTML report: ranking chart, every metric, per-value drill-down."""
+                   select_k: int, criterion: str, **kwargs: Any) -> None:
+    """Write a self-contained HTML report: ranking chart, every metric, per-value drill-down.
+
+    With --by, one section per segment.
+    """
     if top < 0:
         raise click.BadParameter("must be 0 (all) or more", param_hint="--top")
     say = progress_printer(quiet)
-    run = rank_and_profile(source, top=top or None, max_values=max_values, sensitive=sensitive,
-                           progress=say, **_library_options(kwargs))
+    options = _library_options(kwargs)
+    by = options.pop("by", ())
+    if by:
+        runs = rank_and_profile_segments(source, by=by, top=top or None, max_values=max_values,
+                                         sensitive=sensitive, progress=say, **options)
+    else:
+        runs = [rank_and_profile(source, top=top or None, max_values=max_values,
+                                 sensitive=sensitive, progress=say, **options)]
+    if select_k:
+        select_for_runs(source, runs, k=select_k, criterion=criterion, by=by, progress=say,
+                        **options)
+    run = runs[0]  # the segments share one connection: same statements and notes
     _after_run(run, quiet)
     if say:
         say(f"writing {out}")
-    html = render_report([run], title=title)
+    html = render_report(runs, title=title)
     if out == "-":
         click.echo(html, nl=False)
         return
     with open(out, "w", encoding="utf-8") as handle:
         handle.write(html)
     if not quiet:
-        drilled = len(run.profiled())
-        click.echo(f"wrote {out} ({len(run.ranking.attributes)} attributes ranked, "
+        drilled = sum(len(r.profiled()) for r in runs)
+        segments = f" in {len(runs)} segments" if by else ""
+        click.echo(f"wrote {out} ({len(run.ranking.attributes)} attributes ranked{segments}, "
                    f"{drilled} drilled into)", err=True)
 
 

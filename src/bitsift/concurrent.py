@@ -68,78 +68,96 @@ def engine_pool(engine: Engine, size: int, timeout: float | None) -> Iterator[qu
 
 
 @dataclass(frozen=True)
-class AttributeResult:
-    """What one attribute's job returns: its boundaries (numeric only) and its result rows."""
+class PartResult:
+    """What one part's job returns: its boundaries and its result rows (indices local to it)."""
 
-    cuts: list[float] | None
+    cuts: dict[str, list[float]]
     records: list[Record]
 
 
-def _attribute_job(engine: Engine, spec: RankSpec) -> AttributeResult:
-    """Boundaries (if numeric) and the ranking statement of a spec holding one attribute."""
+def _part_job(engine: Engine, spec: RankSpec) -> PartResult:
+    """Boundaries of the part's numeric attributes, then its ranking statement."""
     from bitsift.api import fetch_cuts  # api imports this module: import at call time
 
     cuts = fetch_cuts(engine, spec)
     records = engine.fetch(rank_statement(spec, engine.caps, cuts).sql).records()
-    name = spec.attributes[0].name
-    return AttributeResult(cuts=cuts.get(name), records=records)
+    return PartResult(cuts=cuts, records=records)
 
 
-def _on_pool(pool: queue.Queue[Engine], spec: RankSpec) -> AttributeResult:
+def _on_pool(pool: queue.Queue[Engine], spec: RankSpec) -> PartResult:
     member = pool.get()
     try:
-        return _attribute_job(member, spec)
+        return _part_job(member, spec)
     finally:
         pool.put(member)
 
 
-def _longest_first(attributes: tuple[AttributeSpec, ...]) -> list[int]:
-    """Job order: numeric attributes (two statements each) first, so the tail stays short."""
-    return sorted(range(len(attributes)), key=lambda i: attributes[i].kind != "numeric")
+#: Relative cost of an attribute in a job: a numeric one adds a quantile pre-pass and binning.
+_WEIGHT = {"numeric": 4, "categorical": 1}
 
 
-def per_attribute(engine: Engine, spec: RankSpec, connections: int,
-                  ) -> tuple[dict[str, list[float]], list[Record]]:
-    """The boundaries and the result rows of the one-statement ranking, one attribute per job.
+def split(attributes: tuple[AttributeSpec, ...], parts: int) -> list[list[int]]:
+    """Attribute positions cut into at most ``parts`` groups of about equal cost.
 
-    Returns ``(cuts, records)`` as :func:`bitsift.api.fetch_cuts` and the ranking statement
-    would: the target row (``attribute_index`` 0) once, then one row per attribute with its
-    index in ``spec.attributes`` (1-based).
+    Heaviest first onto the lightest group (the LPT rule); each group keeps table order.
+
+    >>> from bitsift.spec import AttributeSpec
+    >>> a = tuple(AttributeSpec(n, k, "") for n, k in
+    ...           [("a", "numeric"), ("b", "categorical"), ("c", "categorical"),
+    ...            ("d", "numeric")])
+    >>> split(a, 2)
+    [[0, 1], [2, 3]]
     """
-    narrowed = [replace(spec, attributes=(a,)) for a in spec.attributes]
-    order = _longest_first(spec.attributes)
-    results: dict[int, AttributeResult] = {}
-    if connections <= 1:
-        for i in order:
-            results[i] = _attribute_job(engine, narrowed[i])
+    groups: list[list[int]] = [[] for _ in range(min(parts, len(attributes)))]
+    loads = [0] * len(groups)
+    order = sorted(range(len(attributes)), key=lambda i: -_WEIGHT[attributes[i].kind])
+    for i in order:
+        lightest = loads.index(min(loads))
+        groups[lightest].append(i)
+        loads[lightest] += _WEIGHT[attributes[i].kind]
+    return [sorted(g) for g in groups if g]
+
+
+def run_parts(engine: Engine, spec: RankSpec, parts: int, sessions: int,
+              ) -> tuple[dict[str, list[float]], list[Record]]:
+    """The boundaries and result rows of the one-statement ranking, computed in ``parts`` jobs.
+
+    Each job is the boundaries pre-pass and the ranking statement of a spec narrowed to a
+    group of attributes (:func:`split`); jobs run on ``sessions`` sessions at once. Returns
+    ``(cuts, records)`` as :func:`bitsift.api.fetch_cuts` and the one ranking statement
+    would: the target row (``attribute_index`` 0) once, then one row per attribute with its
+    position in ``spec.attributes`` (1-based).
+    """
+    groups = split(spec.attributes, parts)
+    narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
+    sessions = max(1, min(sessions, len(narrowed)))
+    if sessions == 1:
+        results = [_part_job(engine, part) for part in narrowed]
     else:
-        size = min(connections, len(narrowed))
-        with engine_pool(engine, size, spec.options.timeout) as pool, ThreadPoolExecutor(
-            max_workers=size, thread_name_prefix="bitsift"
+        with engine_pool(engine, sessions, spec.options.timeout) as pool, ThreadPoolExecutor(
+            max_workers=sessions, thread_name_prefix="bitsift"
         ) as executor:
-            futures = {i: executor.submit(_on_pool, pool, narrowed[i]) for i in order}
+            futures = [executor.submit(_on_pool, pool, part) for part in narrowed]
             try:
-                results = {i: future.result() for i, future in futures.items()}
+                results = [future.result() for future in futures]
             except BaseException:
-                for future in futures.values():
+                for future in futures:
                     future.cancel()
                 raise
-    return _merge(spec, results)
+    return _merge(groups, results)
 
 
-def _merge(spec: RankSpec, results: dict[int, AttributeResult],
+def _merge(groups: list[list[int]], results: list[PartResult],
            ) -> tuple[dict[str, list[float]], list[Record]]:
-    cuts = {
-        spec.attributes[i].name: result.cuts
-        for i, result in results.items()
-        if result.cuts is not None
-    }
-    # Every job computed the same target row; take the first attribute's.
+    cuts: dict[str, list[float]] = {}
+    for result in results:
+        cuts.update(result.cuts)
+    # Every job computed the same target row; take the first job's.
     records = [r for r in results[0].records if r["attribute_index"] == 0]
-    for i in range(len(spec.attributes)):
-        records += [
-            {**r, "attribute_index": i + 1}
-            for r in results[i].records
-            if r["attribute_index"] == 1
-        ]
+    for group, result in zip(groups, results, strict=True):
+        for r in result.records:
+            local = r["attribute_index"]
+            if local:
+                records.append({**r, "attribute_index": group[local - 1] + 1})
+    records[1:] = sorted(records[1:], key=lambda r: r["attribute_index"])
     return cuts, records

@@ -64,9 +64,30 @@ CountStrategy = Literal["grouping_sets", "union_all", "cross_join"]
 #: How quantile boundaries of numeric attributes are computed.
 #: ``quantile_cont``: DuckDB's ``quantile_cont(x, p)`` aggregate (exact).
 #: ``percentile_cont``: ``PERCENTILE_CONT(p) WITHIN GROUP (ORDER BY x)`` aggregate (exact).
+#: ``percentile``: Spark's exact ``percentile(x, array(p, ...))`` aggregate (one value-count
+#: map per attribute, merged across partitions; no global sort).
 #: ``window``: exact, from ``ROW_NUMBER()`` and ``COUNT(*) OVER ()`` with linear interpolation;
 #: portable to every engine with window functions (SQLite, MariaDB...).
-QuantileMethod = Literal["quantile_cont", "percentile_cont", "window"]
+QuantileMethod = Literal["quantile_cont", "percentile_cont", "percentile", "window"]
+
+
+@dataclass(frozen=True)
+class DateFunctions:
+    """A date or timestamp as a number or as one part, in the dialect's own SQL with ``x``
+    standing for the value. sqlglot parses each in the dialect and the value's node replaces
+    ``x`` (see :func:`bitsift.sqlbuild.temporal_value`): its own transpilation of EXTRACT and
+    epoch functions is invalid on several engines (EXTRACT(DAYOFWEEK ...) on PostgreSQL,
+    TIME_TO_UNIX on SQLite, MySQL, SQL Server...).
+
+    ``epoch``: seconds since 1970-01-01 00:00 of the value as written (dates at midnight, no
+    time-zone conversion of naive timestamps). ``dow``: day of the week, Sunday = 0.
+    """
+
+    epoch: str = "EXTRACT(EPOCH FROM x)"
+    year: str = "EXTRACT(YEAR FROM x)"
+    month: str = "EXTRACT(MONTH FROM x)"
+    dow: str = "EXTRACT(DOW FROM x)"
+    hour: str = "EXTRACT(HOUR FROM x)"
 
 
 @dataclass(frozen=True)
@@ -97,17 +118,25 @@ class Capabilities:
     #: The engine has no server-side timeout, and bitsift interrupts the query from the
     #: client instead (DuckDB ``interrupt()``, SQLite's progress handler).
     timeout_in_client: bool = False
+    #: Settings scoped to each statement by a trailing ``SETTINGS`` clause (ClickHouse): they
+    #: leave no state behind, so a caller's session is handed back unchanged.
+    statement_settings: tuple[str, ...] = ()
+    #: The timeout as one more such setting, with the placeholders of :attr:`timeout_statement`.
+    timeout_setting: str | None = None
     #: SQLite builds without math functions lack LN and FLOOR: bitsift registers Python's.
     register_math_functions: bool = False
     #: Does the engine have a chi-square survival function? (none listed has; p comes from Python)
     has_chi2: bool = False
     #: True when the entry was checked by executing SQL on a real engine in the test suite.
     executed_in_tests: bool = False
+    #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
+    dates: DateFunctions = DateFunctions()
 
     @property
     def has_timeout(self) -> bool:
         """True when ``--timeout`` is enforced on this dialect, by the server or by bitsift."""
-        return bool(self.timeout_statement or self.timeout_prefix or self.timeout_in_client)
+        return bool(self.timeout_statement or self.timeout_prefix or self.timeout_in_client
+                    or self.timeout_setting)
 
 
 _DEFAULT = Capabilities(name="generic", sqlglot_dialect="")
@@ -192,10 +221,76 @@ CAPABILITIES: dict[str, Capabilities] = {
         replace(_DEFAULT, name="oracle", sqlglot_dialect="oracle", quantile="percentile_cont"),
         # sqlglot rewrites exact percentiles to percentile_approx for Spark: window method.
         replace(_DEFAULT, name="databricks", sqlglot_dialect="databricks"),
-        replace(_DEFAULT, name="spark", sqlglot_dialect="spark"),
-        replace(_DEFAULT, name="clickhouse", sqlglot_dialect="clickhouse"),
+        # Executed on a local Spark 4.3 (tests/test_spark.py). Spark's exact percentile()
+        # aggregate; no statement timeout, so bitsift interrupts its own tagged operation.
+        replace(
+            _DEFAULT,
+            name="spark",
+            sqlglot_dialect="spark",
+            quantile="percentile",
+            timeout_in_client=True,
+            executed_in_tests=True,
+        ),
+        # Executed on embedded ClickHouse, chdb 4.4 (tests/test_clickhouse.py). Exact quantiles
+        # need parametric syntax (quantileExactInclusive(p)(x)) that sqlglot cannot produce
+        # from the canonical dialect: window method. readonly = 2 rejects writes yet lets the
+        # same SETTINGS clause set max_execution_time (readonly = 1 would refuse that, and
+        # also refuses the file() table function).
+        replace(
+            _DEFAULT,
+            name="clickhouse",
+            sqlglot_dialect="clickhouse",
+            statement_settings=("readonly = 2",),
+            timeout_setting="max_execution_time = {seconds}",
+            executed_in_tests=True,
+        ),
     ]
 }
+
+#: Each dialect's date functions where the standard EXTRACT forms do not serve. Executed in
+#: tests (tests/test_binning_parity.py) on DuckDB, SQLite, PostgreSQL and MariaDB; the others
+#: from the vendors' documentation. SQLite and MySQL/MariaDB epochs are whole seconds; MySQL's
+#: TIMESTAMPDIFF, unlike UNIX_TIMESTAMP, ignores the session time zone. Days of the week are
+#: shifted to Sunday = 0 where the engine counts from 1 (or from Monday).
+DATE_FUNCTIONS: dict[str, DateFunctions] = {
+    "duckdb": DateFunctions(epoch="EPOCH(x)"),
+    "sqlite": DateFunctions(
+        epoch="CAST(STRFTIME('%s', x) AS INTEGER)",
+        year="CAST(STRFTIME('%Y', x) AS INTEGER)",
+        month="CAST(STRFTIME('%m', x) AS INTEGER)",
+        dow="CAST(STRFTIME('%w', x) AS INTEGER)",
+        hour="CAST(STRFTIME('%H', x) AS INTEGER)",
+    ),
+    "mysql": DateFunctions(epoch="TIMESTAMPDIFF(SECOND, '1970-01-01 00:00:00', x)",
+                           dow="DAYOFWEEK(x) - 1"),
+    "mariadb": DateFunctions(epoch="TIMESTAMPDIFF(SECOND, '1970-01-01 00:00:00', x)",
+                             dow="DAYOFWEEK(x) - 1"),
+    "snowflake": DateFunctions(epoch="EXTRACT(EPOCH_SECOND FROM x)",
+                               dow="EXTRACT(DAYOFWEEK FROM x)"),
+    "bigquery": DateFunctions(epoch="UNIX_SECONDS(CAST(x AS TIMESTAMP))",
+                              dow="EXTRACT(DAYOFWEEK FROM x) - 1"),
+    "trino": DateFunctions(epoch="TO_UNIXTIME(CAST(x AS TIMESTAMP))",
+                           dow="MOD(DAY_OF_WEEK(x), 7)"),
+    "tsql": DateFunctions(
+        epoch="DATEDIFF_BIG(SECOND, '1970-01-01', x)",
+        year="DATEPART(YEAR, x)",
+        month="DATEPART(MONTH, x)",
+        dow="DATEPART(WEEKDAY, x) - 1",  # with the default DATEFIRST 7 (Sunday first)
+        hour="DATEPART(HOUR, x)",
+    ),
+    "oracle": DateFunctions(
+        epoch="(CAST(x AS DATE) - DATE '1970-01-01') * 86400",
+        dow="MOD(TRUNC(CAST(x AS DATE)) - DATE '1970-01-04', 7)",  # 1970-01-04: a Sunday
+        hour="EXTRACT(HOUR FROM CAST(x AS TIMESTAMP))",  # EXTRACT(HOUR) rejects a DATE
+    ),
+    "spark": DateFunctions(epoch="UNIX_TIMESTAMP(x)", dow="DAYOFWEEK(x) - 1"),
+    "databricks": DateFunctions(epoch="UNIX_TIMESTAMP(x)", dow="DAYOFWEEK(x) - 1"),
+    "clickhouse": DateFunctions(epoch="toUnixTimestamp(x)", year="toYear(x)",
+                                month="toMonth(x)", dow="toDayOfWeek(x) % 7",
+                                hour="toHour(x)"),
+}
+CAPABILITIES = {name: replace(c, dates=DATE_FUNCTIONS.get(name, c.dates))
+                for name, c in CAPABILITIES.items()}
 
 #: SQLAlchemy dialect names (``engine.dialect.name``) to bitsift dialect names.
 SQLALCHEMY_DIALECTS: dict[str, str] = {

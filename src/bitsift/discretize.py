@@ -16,8 +16,9 @@ with k, k1, k2 the numbers of classes present in S, S1, S2.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -106,6 +107,73 @@ def mdl_cuts(values: Sequence[float], histogram: ArrayLike) -> list[float]:
     """
     v = np.asarray(values, dtype=float)
     return [float((v[i] + v[i + 1]) / 2.0) for i in mdl_cut_indices(histogram)]
+
+
+def mdl_cuts_between(lows: Sequence[float], highs: Sequence[float],
+                     histogram: ArrayLike) -> list[float]:
+    """MDL cut points between fine bins that span value ranges: midway between the highest
+    value of the bin before each cut and the lowest value of the bin after it.
+
+    With one distinct value per bin (``lows == highs``) this is :func:`mdl_cuts`.
+
+    >>> mdl_cuts_between([0, 2, 5, 7], [1, 3, 6, 8], [[9, 0], [9, 0], [0, 9], [0, 9]])
+    [4.0]
+    """
+    low = np.asarray(lows, dtype=float)
+    high = np.asarray(highs, dtype=float)
+    return [float((high[i] + low[i + 1]) / 2.0) for i in mdl_cut_indices(histogram)]
+
+
+@dataclass(frozen=True)
+class Histogram:
+    """One attribute's (fine bin x class) counts as the database returned them."""
+
+    lows: list[float]
+    highs: list[float]
+    counts: NDArray[np.float64]
+
+    def mdl_cuts(self) -> list[float]:
+        """Fayyad & Irani's MDL cut points of this histogram."""
+        return mdl_cuts_between(self.lows, self.highs, self.counts)
+
+
+def histograms_from_rows(rows: Iterable[Mapping[str, Any]]) -> dict[int, Histogram]:
+    """Histograms per ``attribute_index`` from the rows of templates/histogram.sql.j2
+    (``attribute_index, fine, y, n, low, high``; one row per non-empty fine bin and class).
+
+    >>> rows = [{"attribute_index": 1, "fine": f, "y": y, "n": n, "low": lo, "high": hi}
+    ...         for f, y, n, lo, hi in [(0, "a", 3, 1.0, 2.0), (1, "b", 2, 5.0, 5.0),
+    ...                                 (0, "b", 1, 1.5, 1.5)]]
+    >>> h = histograms_from_rows(rows)[1]
+    >>> h.lows, h.highs, h.counts.tolist()
+    ([1.0, 5.0], [2.0, 5.0], [[3.0, 1.0], [0.0, 2.0]])
+    """
+    cells: dict[int, dict[tuple[int, Any], float]] = {}
+    ranges: dict[int, dict[int, tuple[float, float]]] = {}
+    for row in rows:
+        attribute, fine = int(row["attribute_index"]), int(row["fine"])
+        cells.setdefault(attribute, {})[(fine, row["y"])] = float(row["n"])
+        low, high = float(row["low"]), float(row["high"])
+        seen = ranges.setdefault(attribute, {}).get(fine)
+        if seen is not None:
+            low, high = min(low, seen[0]), max(high, seen[1])
+        ranges[attribute][fine] = (low, high)
+    result = {}
+    for attribute, counts in cells.items():
+        fines = sorted(ranges[attribute])
+        # Classes in a fixed order (by type, then value: bytes from MariaDB, text elsewhere).
+        classes = sorted({y for _, y in counts}, key=lambda y: (type(y).__name__, y))
+        row_of = {f: i for i, f in enumerate(fines)}
+        column_of = {y: j for j, y in enumerate(classes)}
+        matrix = np.zeros((len(fines), len(classes)))
+        for (fine, y), n in counts.items():
+            matrix[row_of[fine], column_of[y]] = n
+        result[attribute] = Histogram(
+            lows=[ranges[attribute][f][0] for f in fines],
+            highs=[ranges[attribute][f][1] for f in fines],
+            counts=matrix,
+        )
+    return result
 
 
 def best_split_cut(values: Sequence[float], histogram: ArrayLike) -> float | None:

@@ -50,15 +50,33 @@ class QueryTimeoutError(QueryError):
     """The statement timeout fired."""
 
 
+#: The shortest identifier limit among SQL engines (PostgreSQL's 63 bytes): a suggestion that is
+#: the start of a longer name, and at least this long, is that name cut by the database.
+CUT_NAME_BYTES = 63
+
+
 def suggest(name: str, candidates: Iterable[str]) -> str:
-    """Return ``" (did you mean 'x'?)"`` for the closest candidate, or ``""``."""
+    """Return ``" (did you mean 'x'?)"`` for the closest candidate, or ``""``.
+
+    >>> suggest("levle", ["level", "region"])
+    " (did you mean 'level'?)"
+    """
     pool = list(candidates)
     matches = difflib.get_close_matches(name, pool, n=1, cutoff=0.6)
     if not matches:
         lowered = {c.lower(): c for c in pool}
         if name.lower() in lowered:
             matches = [lowered[name.lower()]]
-    return f" (did you mean {matches[0]!r}?)" if matches else ""
+    if not matches:
+        matches = [c for c in pool if len(c.encode()) >= CUT_NAME_BYTES and name.startswith(c)]
+    if not matches:
+        return ""
+    kept = len(matches[0].encode())
+    if kept >= CUT_NAME_BYTES and name.startswith(matches[0]) and len(name) > len(matches[0]):
+        # PostgreSQL silently cuts longer names at creation: the table holds the cut name.
+        return (f" (did you mean {matches[0]!r}? the database cut that name to its first "
+                f"{kept} bytes)")
+    return f" (did you mean {matches[0]!r}?)"
 
 
 def unknown_names_message(what: str, names: Iterable[str], candidates: Iterable[str]) -> str:

@@ -8,7 +8,14 @@ import json
 from collections.abc import Callable
 
 from bitsift.metrics import FLAG_DESCRIPTIONS
-from bitsift.result import ATTRIBUTE_KEYS, Ranking
+from bitsift.result import (
+    ATTRIBUTE_KEYS,
+    SEGMENT_STATUS,
+    AttributeScore,
+    Ranking,
+    SegmentedRanking,
+    segment_label,
+)
 
 FORMATS: tuple[str, ...] = ("table", "json", "csv", "markdown")
 
@@ -29,6 +36,8 @@ _TABLE_COLUMNS: tuple[tuple[str, str], ...] = (
 
 
 def _cell(key: str, value: object) -> str:
+    if value is None:  # a p-value that is not reported (fractional weights)
+        return "-"
     if key == "flags":
         return ",".join(value) if isinstance(value, list) else str(value)
     if key == "p_value" and isinstance(value, float):
@@ -45,6 +54,14 @@ def _rows(ranking: Ranking) -> list[list[str]]:
 
 
 def _summary(ranking: Ranking) -> str:
+    if ranking.weight is not None:
+        return (
+            f"{ranking.table}: target {ranking.target!r}, weight {ranking.weight!r} (total"
+            f" {ranking.weight_total or 0:,.6g}), {ranking.rows:,} rows"
+            f" ({ranking.rows_excluded:,} excluded: NULL target;"
+            f" {ranking.rows_without_weight:,} without weight), {ranking.classes} classes,"
+            f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
+        )
     return (
         f"{ranking.table}: target {ranking.target!r}, {ranking.rows:,} rows"
         f" ({ranking.rows_excluded:,} excluded: NULL target), {ranking.classes} classes,"
@@ -73,10 +90,50 @@ def as_table(ranking: Ranking) -> str:
 
     out = [_summary(ranking), "", line(header), line(["-" * w for w in widths])]
     out += [line(r) for r in rows]
+    out += _cut_lines(ranking)
     legend = _legend(ranking)
     if legend:
         out += ["", "flags:", *legend]
     return "\n".join(out) + "\n"
+
+
+def format_cuts(cuts: list[float]) -> str:
+    """Cut points compactly: the fewest significant digits (4 to 12) that keep them apart.
+
+    >>> format_cuts([2.45, 4.75]), format_cuts([1.00001, 1.00002]), format_cuts([])
+    ('2.45 | 4.75', '1.00001 | 1.00002', '(none: one bin)')
+    """
+    if not cuts:
+        return "(none: one bin)"
+    # At least the integer digits: epoch seconds read 1741824000, not 1.742e+09.
+    whole = max(len(str(int(abs(c)))) if abs(c) < 1e15 else 0 for c in cuts)
+    for digits in range(min(max(4, whole), 12), 13):
+        labels = [f"{c:.{digits}g}" for c in cuts]
+        if len(set(labels)) == len(labels):
+            break
+    return " | ".join(labels)
+
+
+def _cut_lines(ranking: Ranking) -> list[str]:
+    """One line per numeric attribute: its binning, bin count and cut points."""
+    binned = [a for a in ranking.attributes if a.cuts is not None]
+    if not binned:
+        return []
+    width = max(len(a.attribute) for a in binned)
+    lines = ["", "cut points (bin k holds cut[k-1] <= x < cut[k]):"]
+    for a in binned:
+        bins = f"{a.bins} bin" + ("s" if a.bins != 1 else "")
+        lines.append(f"  {a.attribute.ljust(width)}  {a.binning or 'quantile'}, {bins}: "
+                     f"{format_cuts(list(a.cuts or []))}")
+    return lines
+
+
+def _csv_record(score: AttributeScore) -> dict[str, object]:
+    """An attribute's CSV cells: flags and cut points joined with ``;``."""
+    record = score.to_dict()
+    record["flags"] = ";".join(score.flags)
+    record["cuts"] = ";".join(repr(c) for c in score.cuts) if score.cuts is not None else None
+    return record
 
 
 def as_json(ranking: Ranking) -> str:
@@ -85,13 +142,12 @@ def as_json(ranking: Ranking) -> str:
 
 
 def as_csv(ranking: Ranking) -> str:
-    """One row per attribute; flags joined with ``;``."""
+    """One row per attribute; flags and cut points joined with ``;``."""
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(ATTRIBUTE_KEYS)
     for a in ranking.attributes:
-        record = a.to_dict()
-        record["flags"] = ";".join(a.flags)
+        record = _csv_record(a)
         writer.writerow([record[k] for k in ATTRIBUTE_KEYS])
     return buffer.getvalue()
 
@@ -121,5 +177,79 @@ FORMATTERS: dict[str, Callable[[Ranking], str]] = {
 }
 
 
-def render(ranking: Ranking, fmt: str) -> str:
+def render(ranking: Ranking | SegmentedRanking, fmt: str) -> str:
+    """``ranking`` in format ``fmt`` (one of :data:`FORMATS`)."""
+    if isinstance(ranking, SegmentedRanking):
+        return SEGMENTED_FORMATTERS[fmt](ranking)
     return FORMATTERS[fmt](ranking)
+
+
+# --- segmented rankings (--by): one section per segment -------------------------------------
+
+
+def _segment_heading(ranking: Ranking) -> str:
+    text = f"segment {segment_label(ranking.segment)}"
+    if ranking.status != "ok":
+        text += f": {SEGMENT_STATUS[ranking.status]}"
+    return text
+
+
+def _segments_summary(segmented: SegmentedRanking) -> str:
+    ranked = sum(1 for s in segmented.segments if s.status == "ok")
+    weight = f", weight {segmented.weight!r}" if segmented.weight else ""
+    return (f"{segmented.table}: target {segmented.target!r}{weight}, by"
+            f" {', '.join(segmented.by)}: {len(segmented.segments)} segments, {ranked} ranked")
+
+
+def _segment_sections(segmented: SegmentedRanking, one: Callable[[Ranking], str],
+                      heading: Callable[[str], str]) -> str:
+    out = [_segments_summary(segmented)]
+    for ranking in segmented.segments:
+        out += ["", heading(_segment_heading(ranking))]
+        if ranking.status == "no_rows":
+            out.append(f"{ranking.rows_excluded:,} rows excluded: NULL target"
+                       + (f"; {ranking.rows_without_weight:,} without weight"
+                          if ranking.weight else ""))
+        else:
+            out.append(one(ranking).rstrip("\n"))
+    return "\n".join(out) + "\n"
+
+
+def segmented_table(segmented: SegmentedRanking) -> str:
+    """One terminal table per segment, each under a line naming the segment."""
+    return _segment_sections(segmented, as_table, lambda text: f"== {text} ==")
+
+
+def segmented_markdown(segmented: SegmentedRanking) -> str:
+    """One Markdown section (### heading) and table per segment."""
+    return _segment_sections(segmented, as_markdown,
+                             lambda text: f"### {_markdown_escape(text)}")
+
+
+def segmented_json(segmented: SegmentedRanking) -> str:
+    """Exactly one JSON object: :meth:`SegmentedRanking.to_dict`."""
+    return json.dumps(segmented.to_dict(), indent=2) + "\n"
+
+
+def segmented_csv(segmented: SegmentedRanking) -> str:
+    """One row per segment and attribute: the segment columns (renamed ``segment_<name>``
+    where they clash with an attribute key), then the attribute keys."""
+    heads = [f"segment_{b}" if b in ATTRIBUTE_KEYS else b for b in segmented.by]
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow([*heads, *ATTRIBUTE_KEYS])
+    for ranking in segmented.segments:
+        values = [(ranking.segment or {}).get(b) for b in segmented.by]
+        for a in ranking.attributes:
+            record = _csv_record(a)
+            writer.writerow([*("" if v is None else v for v in values),
+                             *(record[k] for k in ATTRIBUTE_KEYS)])
+    return buffer.getvalue()
+
+
+SEGMENTED_FORMATTERS: dict[str, Callable[[SegmentedRanking], str]] = {
+    "table": segmented_table,
+    "json": segmented_json,
+    "csv": segmented_csv,
+    "markdown": segmented_markdown,
+}

@@ -81,7 +81,8 @@ COLUMNS: tuple[HistoryColumn, ...] = (
     HistoryColumn("attribute_entropy", "float", "H(X), bits"),
     HistoryColumn("g_statistic", "float", "G = 2 N ln2 IG"),
     HistoryColumn("dof", "integer", "degrees of freedom of the G-test"),
-    HistoryColumn("p_value", "float", "chi-square survival function of G"),
+    HistoryColumn("p_value", "float", "chi-square survival function of G; NULL when the "
+                  "weights are not whole numbers", nullable=True),
     HistoryColumn("flags", "text", "trust flags, comma-separated; empty (or NULL) when none",
                   nullable=True, length=255),
     HistoryColumn("options", "text", "the ranking's settings from the job file, as JSON"),
@@ -208,6 +209,18 @@ def ranking_rows(ranking: Ranking, *, run_id: str, run_at: _dt.datetime, job: st
             "bitsift_version": __version__,
         })
     return rows
+
+
+def segment_json(segment: Mapping[str, Any] | None) -> str:
+    """The history's ``segment`` value: the segment's values as a JSON object in ``--by``
+    order, ``""`` for an unsegmented ranking.
+
+    >>> segment_json({"region": "north", "tier": None}), segment_json(None)
+    ('{"region":"north","tier":null}', '')
+    """
+    if segment is None:
+        return ""
+    return json.dumps(dict(segment), separators=(",", ":"), ensure_ascii=False, default=str)
 
 
 def _utc_naive(moment: _dt.datetime) -> _dt.datetime:

@@ -43,9 +43,16 @@ from bitsift.errors import (
     suggest,
     unknown_names_message,
 )
-from bitsift.history import DEFAULT_TABLE, Destination, HistoryError, open_store, ranking_rows
+from bitsift.history import (
+    DEFAULT_TABLE,
+    Destination,
+    HistoryError,
+    open_store,
+    ranking_rows,
+    segment_json,
+)
 from bitsift.predicate import parse_predicate
-from bitsift.result import Ranking
+from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column
 from bitsift.sources import open_source, parse_table_name
 from bitsift.spec import RankOptions, Thresholds, resolve
@@ -55,11 +62,13 @@ RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
 #: A ranking's settings: the CLI's rank options, plus a name.
 RANKING_KEYS: tuple[str, ...] = (
     "name", "table", "target", "attributes", "exclude", "categorical", "numeric", "missing",
-    "bins", "where", "sort", "limit", "timeout", "high_cardinality",
+    "bins", "where", "sort", "limit", "timeout", "high_cardinality", "by", "weight",
+    "binning", "binning_for", "date_part",
 )
 DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
-NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric")
-_STRINGS = ("name", "table", "target", "where", "missing", "sort")
+NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric", "by")
+_STRINGS = ("name", "table", "target", "where", "missing", "sort", "weight", "binning",
+            "binning_for", "date_part")
 _INTEGERS = ("bins", "limit", "high_cardinality")
 _NUMBERS = ("timeout",)
 MAX_NAME = 200
@@ -521,8 +530,11 @@ def _ranking_problems(ranking: JobRanking, columns: Sequence[Column], table: Any
     options = api.make_options(ranking.target, **ranking.options)
     names = [c.name for c in columns]
     problems = []
-    for key in ("target", *NAME_LISTS):
-        wanted = (ranking.target,) if key == "target" else getattr(options, key) or ()
+    for key in ("target", "weight", *NAME_LISTS):
+        if key in ("target", "weight"):
+            wanted: tuple[str, ...] = tuple(n for n in [getattr(options, key)] if n)
+        else:
+            wanted = getattr(options, key) or ()
         unknown = [n for n in wanted if resolve_name(n, names) is None]
         if unknown:
             message = unknown_names_message("column", unknown, names)
@@ -550,7 +562,8 @@ class RunResult:
     job: Job
     run_id: str
     run_at: _dt.datetime
-    rankings: list[tuple[JobRanking, Ranking]]
+    #: Each ranking's result: one :class:`Ranking`, or one per segment when it has ``by``.
+    rankings: list[tuple[JobRanking, Ranking | SegmentedRanking]]
     rows_written: int
 
 
@@ -575,7 +588,7 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
     run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
     run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
     preflight(job)
-    done: list[tuple[JobRanking, Ranking]] = []
+    done: list[tuple[JobRanking, Ranking | SegmentedRanking]] = []
     for ranking in job.rankings:
         try:
             result = api.rank(job.source, ranking.target, ranking.table, **ranking.options)
@@ -585,11 +598,14 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
                 f"{ranking.line}) failed, so run {run_id} wrote nothing: {error}"
             ) from error
         done.append((ranking, result))
+    # One history row per attribute, and per segment for a ranking with `by`.
     rows = [
         row
         for ranking, result in done
-        for row in ranking_rows(result, run_id=run_id, run_at=run_at, job=job.name,
-                                ranking_name=ranking.name, options=ranking.settings)
+        for part in (result.segments if isinstance(result, SegmentedRanking) else [result])
+        for row in ranking_rows(part, run_id=run_id, run_at=run_at, job=job.name,
+                                ranking_name=ranking.name, options=ranking.settings,
+                                segment=segment_json(part.segment))
     ]
     with open_store(job.destination, write=True) as store:
         written = store.replace_run(job.name, run_id, rows)

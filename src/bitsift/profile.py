@@ -14,20 +14,25 @@ import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from decimal import Decimal
-from typing import Any, Literal
+from typing import Any, Literal, cast
 
-from bitsift.api import make_options, run_ranking
+from sqlglot import exp
+
+from bitsift.api import make_options, run_ranking, run_segmented
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
-from bitsift.result import AttributeScore, Ranking
+from bitsift.predicate import Predicate
+from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
 from bitsift.sqlbuild import (
     COLLATED_FAMILIES,
+    EXACT_KEY,
     Statement,
     _finish,
+    attribute_value,
     literal,
     quote,
     source_sql,
@@ -161,6 +166,9 @@ class ProfiledRun:
     notes: list[str] = field(default_factory=list)
     #: The segment's label, or None for a run over the whole table.
     segment: str | None = None
+    #: Greedy mRMR over the top attributes, with their pairwise redundancy
+    #: (:class:`bitsift.selection.Selection`), when the report asks for it (``--select``).
+    selection: Any = None
 
     def profiled(self) -> list[tuple[AttributeScore, AttributeProfile]]:
         """The ranked attributes that have a drill-down, in ranking order."""
@@ -217,9 +225,10 @@ def profile_statement(
         attributes.append(
             {
                 "index": index,
-                "column": quote(attribute.name),
+                # The value ranked: the column, or a date's epoch seconds or part.
+                "column": attribute_value(attribute),
                 "cuts": attribute_cuts,
-                "exact": exact(attribute.family),
+                "exact": exact(attribute.family) and not attribute.date_part,
                 "max_values": literal(limit),
             }
         )
@@ -437,6 +446,7 @@ def rank_and_profile(
     """
     if top is not None and top < 1:
         raise SpecError(f"--top must be at least 1, not {top}")
+    _no_weight(options)
     say = progress or (lambda _message: None)
     spec_options = make_options(target, **options)
     opened = open_source(source, table)
@@ -466,6 +476,8 @@ def rank_and_profile(
         "attributes": len(spec.attributes),
         "missing": spec.options.missing,
         "bins": spec.options.bins,
+        "binning": spec.options.binning,
+        "binning_for": spec.options.binning_for,
         "where": spec.where.text if spec.where else None,
         "sort": spec.options.sort,
         "limit": spec.options.limit,
@@ -503,3 +515,117 @@ def profile(
         raise SpecError("profile takes the attributes to drill into, not a separate list to rank")
     return rank_and_profile(source, target, table, max_values=max_values, sensitive=sensitive,
                             progress=progress, attributes=names, **options)
+
+
+# --- segments (--by): one profiled run per segment ----------------------------------------------
+
+
+def _no_weight(options: Mapping[str, Any]) -> None:
+    if options.get("weight"):
+        raise SpecError("the drill-down counts rows: --weight is not supported by report "
+                        "and profile (use `bitsift rank --weight`)")
+
+
+def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
+    """The user's ``--where`` (if any) and the conditions selecting one segment's rows.
+
+    Values are compared as the ranking grouped them: byte-exactly where the dialect's
+    collation could merge 'a' and 'A' (the template hook turns the placeholder into a cast).
+    """
+    conditions: list[exp.Expression] = []
+    for column in spec.by:
+        value = segment[column.name]
+        node: exp.Expression = exp.column(exp.to_identifier(column.name, quoted=True))
+        if value is None:
+            conditions.append(exp.Is(this=node, expression=exp.Null()))
+            continue
+        if column.family in COLLATED_FAMILIES:
+            node = exp.Anonymous(this=EXACT_KEY, expressions=[node])
+        if isinstance(value, bool):
+            literal_value: exp.Expression = exp.Boolean(this=value)
+        elif isinstance(value, int | float):
+            literal_value = exp.Literal.number(repr(value))
+        else:
+            literal_value = exp.Literal.string(str(value))
+        conditions.append(exp.EQ(this=node, expression=literal_value))
+    if spec.where is not None:
+        conditions.insert(0, exp.Paren(this=spec.where.expression.copy()))
+    text = " AND ".join(c.sql("duckdb") for c in conditions)
+    return Predicate(text=text, expression=cast(exp.Expression, exp.and_(*conditions)))
+
+
+def rank_and_profile_segments(
+    source: Any,
+    target: str,
+    table: str | None = None,
+    *,
+    by: str | Iterable[str],
+    top: int | None = None,
+    max_values: int = DEFAULT_MAX_VALUES,
+    sensitive: str | Iterable[str] | None = None,
+    progress: Progress | None = None,
+    **options: Any,
+) -> list[ProfiledRun]:
+    """Rank within each segment of ``by`` (one statement), then drill into each segment's
+    ``top`` attributes: one :class:`ProfiledRun` per segment, for a report with one section
+    per segment. Segments with nothing to rank keep an empty drill-down.
+
+    >>> import duckdb
+    >>> con = duckdb.connect()
+    >>> _ = con.execute("CREATE TABLE t AS SELECT i % 3 AS a, i % 2 AS s, i % 4 < 2 AS y "
+    ...                 "FROM range(40) r(i)")
+    >>> [(r.segment, r.ranking.rows) for r in rank_and_profile_segments(con, "y", "t", by="s")]
+    [('s = 0', 20), ('s = 1', 20)]
+    """
+    if top is not None and top < 1:
+        raise SpecError(f"--top must be at least 1, not {top}")
+    _no_weight(options)
+    say = progress or (lambda _message: None)
+    spec_options = make_options(target, by=by, **options)
+    if not spec_options.by:
+        raise SpecError("name the segment column(s) with by")
+    opened = open_source(source, table)
+    runs = []
+    with opened.engine as engine:
+        say(f"reading the columns of {opened.display}")
+        columns = engine.columns(opened.table, opened.display)
+        marked = resolve_sensitive(_names(sensitive), columns)
+        spec = resolve(spec_options, columns, opened.table, opened.display,
+                       engine.caps.sqlglot_dialect)
+        engine.set_timeout(spec_options.timeout)
+        say(f"ranking {len(spec.attributes)} attribute(s) in each segment of "
+            f"{', '.join(s.name for s in spec.by)}")
+        segmented = run_segmented(engine, spec)
+        by_name = {a.name: a for a in spec.attributes}
+        for ranking in segmented.segments:
+            chosen = [s.attribute for s in ranking.attributes][: top or None]
+            profiles = Profiles(classes=(), class_rows=(), attributes={})
+            if chosen and ranking.status == "ok":
+                label = segment_label(ranking.segment)
+                say(f"counting values x classes of {len(chosen)} attribute(s) in {label}")
+                cuts = {s.attribute: list(s.cuts) for s in ranking.attributes
+                        if s.cuts is not None}
+                subset = replace(spec, by=(), attributes=tuple(by_name[n] for n in chosen),
+                                 where=segment_predicate(spec, ranking.segment or {}))
+                profiles = fetch_profiles(engine, subset, cuts, max_values=max_values)
+            runs.append((ranking, profiles))
+        statements = list(engine.statements)
+        notes = list(engine.notes)
+    out = []
+    for ranking, profiles in runs:
+        ranking.statements = statements
+        label = segment_label(ranking.segment)
+        if ranking.status != "ok":
+            label += f" ({SEGMENT_STATUS[ranking.status]})"
+        parameters = {
+            "source": spec.source_name, "target": spec.target, "dialect": ranking.dialect,
+            "attributes": len(spec.attributes), "missing": spec.options.missing,
+            "bins": spec.options.bins, "binning": spec.options.binning,
+            "binning_for": spec.options.binning_for,
+            "where": spec.where.text if spec.where else None,
+            "sort": spec.options.sort, "limit": spec.options.limit, "top": top,
+            "max_values": max_values, "segment": segment_label(ranking.segment),
+        }
+        out.append(ProfiledRun(ranking=ranking, profiles=profiles, parameters=parameters,
+                               sensitive=marked, notes=notes, segment=label))
+    return out

@@ -16,6 +16,7 @@ from typing import Any
 
 from bitsift.metrics import FLAG_DESCRIPTIONS
 from bitsift.profile import AttributeProfile, ProfiledRun, ValueProfile
+from bitsift.report_redundancy import redundancy_context
 from bitsift.result import AttributeScore
 from bitsift.templates import render
 from bitsift.version import __version__
@@ -83,9 +84,19 @@ GLOSSARY: tuple[tuple[str, str], ...] = (
      "G = 2 · N · ln 2 · IG, compared with a chi-square distribution with dof = (values − 1) · "
      "(classes − 1) degrees of freedom: p is the chance of a gain this large if attribute and "
      "target were independent. On large tables tiny gains get tiny p-values."),
-    ("quantile bins",
-     "Numeric attributes are cut into bins of about equal row counts at the cut points shown; "
-     "a value equal to a cut point falls into the bin above it."),
+    ("redundancy, mutual information",
+     "I(X1; X2): the bits two attributes tell about each other, measured like information gain "
+     "on the same rows and bins. Near-copies (a city and its postcode) share almost all of "
+     "their entropy; the heatmap colours each pair by its symmetric uncertainty, 0 to 1."),
+    ("mRMR selection",
+     "Minimum redundancy, maximum relevance (Peng, Long & Ding, 2005): starting from the most "
+     "relevant attribute, each step adds the one whose information gain, less (MID) or divided "
+     "by (MIQ) its mean mutual information with those already chosen, is largest."),
+    ("bins of numeric attributes",
+     "Numeric attributes are cut at the cut points shown: into bins of about equal row counts "
+     "(quantile), of equal width (equal-width), at the one threshold with the highest gain "
+     "(best-split) or where Fayyad & Irani's MDL rule accepts a split (mdl); a value equal to "
+     "a cut point falls into the bin above it."),
 )
 
 # Bar chart geometry, in SVG user units (the chart scales with the page width).
@@ -298,6 +309,17 @@ def _drilldown(scored: AttributeScore, profile: AttributeProfile, anchor: str,
     }
 
 
+def _binning_label(p: dict[str, Any]) -> str:
+    """``quantile, 10 bins`` / ``best-split``, plus the per-column overrides."""
+    method = str(p.get("binning") or "quantile")
+    label = f"{method}, {p.get('bins')} bins" if method in ("quantile", "equal-width") else method
+    overrides = p.get("binning_for") or ()
+    if overrides:
+        label += "; " + ", ".join(f"{c}: {m}" + (f" {b} bins" if b else "")
+                                  for c, m, b in overrides)
+    return label
+
+
 def _parameters(run: ProfiledRun) -> list[tuple[str, str]]:
     p = run.parameters
     ranking = run.ranking
@@ -313,7 +335,7 @@ def _parameters(run: ProfiledRun) -> list[tuple[str, str]]:
         ("sorted by", METRIC_LABELS.get(ranking.sort, ranking.sort)),
         ("missing values", {"category": "their own value", "drop": "dropped per attribute"}.get(
             str(p.get("missing")), str(p.get("missing")))),
-        ("numeric bins", f"{p.get('bins')} (quantiles)"),
+        ("numeric binning", _binning_label(p)),
     ]
     if p.get("where"):
         items.append(("rows where", str(p["where"])))
@@ -359,6 +381,8 @@ def run_context(run: ProfiledRun, prefix: str) -> dict[str, Any]:
         ],
         "not_profiled": len(ranking.attributes) - len(profiled),
         "sensitive": list(run.sensitive),
+        # The heatmap and the mRMR selection (report --select), else None.
+        "redundancy": redundancy_context(run, prefix),
     }
 
 

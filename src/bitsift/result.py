@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -19,6 +20,9 @@ ATTRIBUTE_KEYS: tuple[str, ...] = (
     "dof",
     "p_value",
     "flags",
+    "binning",
+    "bins",
+    "cuts",
 )
 
 
@@ -36,14 +40,22 @@ class AttributeScore:
     attribute_entropy: float
     g_statistic: float
     dof: int
-    p_value: float
+    #: None when the weights are not whole numbers (the G-test needs frequency weights).
+    p_value: float | None
     flags: list[str] = field(default_factory=list)
     #: Rows that entered this attribute's counts (differs from the table's with --missing drop).
     rows: int = 0
     #: H(Y) over those rows (equals the target entropy unless --missing drop).
     target_entropy: float = 0.0
-    #: Boundaries of the quantile bins of a numeric attribute (value < cut[0] is bin 0...).
+    #: Cut points of a numeric attribute's bins, ascending (value < cut[0] is bin 0...).
     cuts: list[float] | None = None
+    #: How a numeric attribute was binned: quantile, equal-width, best-split or mdl.
+    binning: str | None = None
+
+    @property
+    def bins(self) -> int | None:
+        """The number of bins the cut points make (numeric attributes; some may be empty)."""
+        return len(self.cuts) + 1 if self.cuts is not None else None
 
     def to_dict(self) -> dict[str, Any]:
         return {key: getattr(self, key) for key in ATTRIBUTE_KEYS}
@@ -65,19 +77,36 @@ class Ranking:
     statements: list[str] = field(default_factory=list)
     #: What the engine wants the user to know (e.g. "--timeout is not applied"), for stderr.
     notes: list[str] = field(default_factory=list)
+    #: The segment this ranking covers (``--by``): column -> value (None for NULL). None when
+    #: the ranking covers the whole table.
+    segment: dict[str, Any] | None = None
+    #: ``ok``, or why a segment has nothing to rank (see :data:`SEGMENT_STATUS`).
+    status: str = "ok"
+    #: The weight column (``--weight``); None when rows are counted.
+    weight: str | None = None
+    #: Weighted: the sum of the weights of the rows used, N in every formula.
+    weight_total: float | None = None
+    #: Weighted: rows with a target whose weight is NULL or 0, left out.
+    rows_without_weight: int = 0
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON contract: target, table, rows, rows_excluded, target_entropy, classes,
-        attributes (each with the keys of :data:`ATTRIBUTE_KEYS`)."""
-        return {
-            "target": self.target,
-            "table": self.table,
-            "rows": self.rows,
-            "rows_excluded": self.rows_excluded,
-            "target_entropy": self.target_entropy,
-            "classes": self.classes,
-            "attributes": [a.to_dict() for a in self.attributes],
-        }
+        attributes (each with the keys of :data:`ATTRIBUTE_KEYS`).
+
+        Weighted rankings add ``weight`` (after table), ``rows_without_weight`` and
+        ``weight_total`` (after rows_excluded); unweighted ones have exactly the keys above."""
+        out: dict[str, Any] = {"target": self.target, "table": self.table}
+        if self.weight is not None:
+            out["weight"] = self.weight
+        out["rows"] = self.rows
+        out["rows_excluded"] = self.rows_excluded
+        if self.weight is not None:
+            out["rows_without_weight"] = self.rows_without_weight
+            out["weight_total"] = self.weight_total
+        out["target_entropy"] = self.target_entropy
+        out["classes"] = self.classes
+        out["attributes"] = [a.to_dict() for a in self.attributes]
+        return out
 
     def to_pandas(self) -> Any:
         """One DataFrame row per attribute (needs the ``pandas`` extra)."""
@@ -92,3 +121,86 @@ class Ranking:
             if a.attribute == name:
                 return a
         raise KeyError(name)
+
+
+#: Why a segment's ranking may be empty or trivial; ``ok`` otherwise.
+SEGMENT_STATUS: dict[str, str] = {
+    "ok": "ranked",
+    "single_class": "one target class only: every gain is 0, nothing to rank",
+    "no_rows": "no row with a target (and a weight): nothing to rank",
+}
+
+
+def segment_label(segment: dict[str, Any] | None) -> str:
+    """A segment's values as text: ``region = 'north', tier = NULL``.
+
+    >>> segment_label({"region": "north", "tier": None, "year": 2024})
+    "region = 'north', tier = NULL, year = 2024"
+    """
+    if not segment:
+        return "whole table"
+    return ", ".join(f"{k} = {'NULL' if v is None else repr(v)}" for k, v in segment.items())
+
+
+@dataclass
+class SegmentedRanking:
+    """One :class:`Ranking` per segment (``--by``), all computed by one statement.
+
+    Segments are ordered by their values, NULL last. Each ranking carries its
+    :attr:`Ranking.segment` and :attr:`Ranking.status`.
+    """
+
+    target: str
+    table: str
+    by: list[str]
+    segments: list[Ranking]
+    weight: str | None = None
+    dialect: str = "duckdb"
+    sort: str = "information_gain"
+    statements: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, Any]:
+        """``{"target", "table", "by", ["weight",] "segments": [...]}``; each segment holds
+        ``segment`` (column -> value), ``status``, then the keys of :meth:`Ranking.to_dict`
+        other than target, table and weight."""
+        out: dict[str, Any] = {"target": self.target, "table": self.table, "by": list(self.by)}
+        if self.weight is not None:
+            out["weight"] = self.weight
+        entries = []
+        for ranking in self.segments:
+            entry: dict[str, Any] = {"segment": dict(ranking.segment or {}),
+                                     "status": ranking.status}
+            entry.update({k: v for k, v in ranking.to_dict().items()
+                          if k not in ("target", "table", "weight")})
+            entries.append(entry)
+        out["segments"] = entries
+        return out
+
+    def to_pandas(self) -> Any:
+        """One DataFrame row per segment and attribute: the segment columns, then
+        :data:`ATTRIBUTE_KEYS` (needs the ``pandas`` extra)."""
+        try:
+            import pandas as pd
+        except ImportError as error:  # pragma: no cover - depends on the environment
+            raise ImportError("to_pandas() needs pandas: pip install 'bitsift[pandas]'") from error
+        rows = [{**{f"segment:{k}": v for k, v in (r.segment or {}).items()}, **a.to_dict()}
+                for r in self.segments for a in r.attributes]
+        columns = [f"segment:{b}" for b in self.by] + list(ATTRIBUTE_KEYS)
+        return pd.DataFrame(rows, columns=columns)
+
+    def segment(self, **values: Any) -> Ranking:
+        """The ranking of the segment with these values (``None`` for NULL).
+
+        Raises KeyError when no segment has them.
+        """
+        for ranking in self.segments:
+            if ranking.segment == values:
+                return ranking
+        raise KeyError(values)
+
+    def __iter__(self) -> Iterator[Ranking]:
+        return iter(self.segments)
+
+    def __len__(self) -> int:
+        return len(self.segments)

@@ -13,6 +13,24 @@ from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table
 from bitsift.errors import SourceError, SpecError
 
+#: Engines ``--engine`` can name; without it SOURCE decides (files: DuckDB, URLs: SQLAlchemy).
+ENGINE_NAMES: tuple[str, ...] = ("duckdb", "spark", "clickhouse")
+
+
+@dataclass(frozen=True)
+class EngineSource:
+    """SOURCE to be read by a named engine (the CLI's ``--engine``).
+
+    ``spark``: a Parquet file, directory or glob read on a new local Spark session (pyspark's
+    default master, ``local[*]`` unless configured), or with ``--table`` the master URL of the
+    session to start (``local[2]``, ``spark://host:7077``, ``yarn``) and a catalog table.
+    ``clickhouse``: a Parquet file or glob read in place by embedded ClickHouse (chdb), or with
+    ``--table`` a chdb database directory. ``duckdb``: as without ``--engine``.
+    """
+
+    engine: str
+    location: str
+
 
 @dataclass
 class OpenSource:
@@ -51,9 +69,25 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
     """Open ``source`` read-only.
 
     ``source`` may be a DuckDB database file, a Parquet/CSV/JSON file (read in place), a
-    SQLAlchemy URL, an open DuckDB connection, or a SQLAlchemy Engine or Connection.
+    SQLAlchemy URL, an open DuckDB connection, a SQLAlchemy Engine or Connection, a
+    ``pyspark.sql.SparkSession`` (with ``table``) or DataFrame, a ``chdb.session.Session``
+    (with ``table``), or an :class:`EngineSource`.
     """
     engine: Engine
+    if isinstance(source, EngineSource):
+        return _open_with_engine(source, table)
+    module = type(source).__module__
+    if module.startswith("pyspark."):
+        from bitsift.engines.spark_engine import open_spark_object
+
+        spark, view = open_spark_object(source, table)
+        if view is not None:
+            return OpenSource(engine=spark, table=view, display="the Spark DataFrame")
+        return _with_table(spark, table, "the Spark session")
+    if module.startswith("chdb."):
+        from bitsift.engines.chdb_engine import ChdbEngine
+
+        return _with_table(ChdbEngine.wrap(source), table, "the chdb session")
     try:
         import duckdb
 
@@ -87,6 +121,23 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         return OpenSource(engine=engine, table=file_table(text), display=text)
     engine = DuckDBEngine.open_file(text)
     return _with_table(engine, table, text)
+
+
+def _open_with_engine(source: EngineSource, table: str | None) -> OpenSource:
+    """``--engine NAME SOURCE``: start or open that engine on SOURCE."""
+    if source.engine == "duckdb":
+        return open_source(source.location, table)
+    if source.engine == "spark":
+        from bitsift.engines.spark_engine import open_spark_location as open_location
+    elif source.engine == "clickhouse":
+        from bitsift.engines.chdb_engine import open_chdb_location as open_location
+    else:
+        known = ", ".join(ENGINE_NAMES)
+        raise SpecError(f"unknown engine {source.engine!r}; known: {known}")
+    engine, reader = open_location(source.location, table)
+    if reader is not None:
+        return OpenSource(engine=engine, table=reader, display=source.location)
+    return _with_table(engine, table, source.location)
 
 
 def _with_table(engine: Engine, table: str | None, where: str) -> OpenSource:

@@ -15,6 +15,71 @@ from bitsift.schema import NUMERIC_FAMILIES, Column, Kind
 Missing = Literal["category", "drop"]
 SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty")
 MISSING_MODES: tuple[str, ...] = ("category", "drop")
+#: How numeric attributes are cut into bins (see DEVELOPERS.md, "Binning").
+BINNING_METHODS: tuple[str, ...] = ("quantile", "equal-width", "best-split", "mdl")
+#: Parts of a date or timestamp that ``--date-part`` turns into categories.
+DATE_PARTS: tuple[str, ...] = ("year", "month", "dow", "hour")
+#: Column type families holding dates and times (numeric as epoch seconds with --numeric).
+TEMPORAL_FAMILIES: frozenset[str] = frozenset({"date", "timestamp"})
+#: One column's binning override: (column, method, bins or None for the run's --bins).
+ColumnBinning = tuple[str, str, int | None]
+
+
+def _pairs(value: object, what: str) -> list[tuple[str, str]]:
+    """``"a=x,b=y"``, a mapping, or an iterable of ``"a=x"`` strings / ``(a, x)`` pairs."""
+    if value is None:
+        return []
+    if isinstance(value, str):
+        items: list[object] = [v for v in value.split(",") if v.strip()]
+    elif isinstance(value, dict):
+        items = list(value.items())
+    else:
+        items = list(value)  # type: ignore[call-overload]
+    pairs = []
+    for item in items:
+        if isinstance(item, str):
+            name, sep, setting = item.partition("=")
+            if not sep and what == "--date-part":
+                name, setting = "", name  # a bare part applies to every date column
+            elif not sep or not name.strip():
+                raise SpecError(f"{what} takes COLUMN=VALUE, not {item!r}")
+            pairs.append((name.strip(), setting.strip()))
+        else:
+            name, setting, *_ = item  # type: ignore[misc]
+            pairs.append((str(name), str(setting)))
+    return pairs
+
+
+def parse_binning_for(value: object) -> tuple[ColumnBinning, ...]:
+    """Per-column binning overrides: ``"price=mdl,score=quantile:4"`` (METHOD[:BINS]).
+
+    >>> parse_binning_for("price=mdl, score=equal-width:4")
+    (('price', 'mdl', None), ('score', 'equal-width', 4))
+    >>> parse_binning_for({"score": "best-split"})
+    (('score', 'best-split', None),)
+    """
+    if isinstance(value, tuple) and all(isinstance(v, tuple) and len(v) == 3 for v in value):
+        return value  # already parsed
+    parsed = []
+    for name, setting in _pairs(value, "--binning-for"):
+        method, sep, bins = setting.partition(":")
+        try:
+            count = int(bins) if sep else None
+        except ValueError:
+            raise SpecError(f"--binning-for {name}: bins must be a whole number, "
+                            f"not {bins!r}") from None
+        parsed.append((name, method.strip().lower(), count))
+    return tuple(parsed)
+
+
+def parse_date_parts(value: object) -> tuple[tuple[str, str], ...]:
+    """Date parts to rank as categories: ``"sown_on=month"``; a bare ``"month"`` applies to
+    every date/timestamp attribute not named otherwise (column ``""``).
+
+    >>> parse_date_parts("sown_on=month,dow")
+    (('sown_on', 'month'), ('', 'dow'))
+    """
+    return tuple((name, part.lower()) for name, part in _pairs(value, "--date-part"))
 
 
 @dataclass(frozen=True)
@@ -41,11 +106,21 @@ class RankOptions:
     numeric: tuple[str, ...] = ()
     missing: Missing = "category"
     bins: int = 10
+    #: Default binning method of numeric attributes, one of :data:`BINNING_METHODS`.
+    binning: str = "quantile"
+    #: Per-column overrides of the method and bin count (see :func:`parse_binning_for`).
+    binning_for: tuple[ColumnBinning, ...] = ()
+    #: Dates ranked as categories of one part (see :func:`parse_date_parts`).
+    date_part: tuple[tuple[str, str], ...] = ()
     where: str | None = None
     sort: str = "information_gain"
     limit: int | None = None
     timeout: float | None = None
     thresholds: Thresholds = field(default_factory=Thresholds)
+    #: Segment columns (``--by``): the ranking is computed within each combination of values.
+    by: tuple[str, ...] = ()
+    #: A non-negative weight column (``--weight``): sums of weights instead of row counts.
+    weight: str | None = None
 
     def __post_init__(self) -> None:
         problems = []
@@ -56,6 +131,24 @@ class RankOptions:
             problems.append(f"--sort must be one of {', '.join(SORT_METRICS)}, not {self.sort!r}")
         if not 2 <= self.bins <= 1000:
             problems.append(f"--bins must be between 2 and 1000, not {self.bins}")
+        methods = ", ".join(BINNING_METHODS)
+        if self.binning not in BINNING_METHODS:
+            problems.append(f"--binning must be one of {methods}, not {self.binning!r}")
+        for name, method, bins in self.binning_for:
+            if method not in BINNING_METHODS:
+                problems.append(f"--binning-for {name}: the method must be one of {methods}, "
+                                f"not {method!r}")
+            if bins is not None and not 2 <= bins <= 1000:
+                problems.append(f"--binning-for {name}: bins must be between 2 and 1000, "
+                                f"not {bins}")
+        for name, part in self.date_part:
+            if part not in DATE_PARTS:
+                problems.append(f"--date-part {name or '(all dates)'}: the part must be one of "
+                                f"{', '.join(DATE_PARTS)}, not {part!r}")
+        date_numeric = sorted({n for n, _ in self.date_part if n} & set(self.numeric))
+        if date_numeric:
+            problems.append("columns named both --date-part and --numeric: "
+                            + ", ".join(date_numeric))
         if self.limit is not None and self.limit < 1:
             problems.append(f"--limit must be at least 1, not {self.limit}")
         if self.timeout is not None and self.timeout <= 0:
@@ -63,6 +156,10 @@ class RankOptions:
         both = sorted(set(self.categorical) & set(self.numeric))
         if both:
             problems.append("columns named both --categorical and --numeric: " + ", ".join(both))
+        if len(set(self.by)) != len(self.by):
+            problems.append("--by names a column twice: " + ", ".join(self.by))
+        if self.weight is not None and not self.weight.strip():
+            problems.append("--weight needs a column name")
         if problems:
             raise SpecError("; ".join(problems))
 
@@ -74,6 +171,17 @@ class AttributeSpec:
     name: str
     kind: Kind
     family: str
+    #: Numeric attributes: the binning method (:data:`BINNING_METHODS`) and the bins asked
+    #: for (quantile, equal-width; best-split always cuts once, mdl decides).
+    binning: str | None = None
+    bins: int | None = None
+    #: Date/timestamp attributes ranked as categories of this part (:data:`DATE_PARTS`).
+    date_part: str | None = None
+
+    @property
+    def epoch(self) -> bool:
+        """A date or timestamp binned as a number: its epoch seconds."""
+        return self.kind == "numeric" and self.family in TEMPORAL_FAMILIES
 
 
 @dataclass(frozen=True)
@@ -88,6 +196,10 @@ class RankSpec:
     where: Predicate | None = None
     #: Type family of the target column (decides byte-exact grouping, see dialects.py).
     target_family: str = "other"
+    #: Segment columns (``--by``), catalog spelling; their kind is unused (values are grouped).
+    by: tuple[AttributeSpec, ...] = ()
+    #: The weight column (``--weight``), catalog spelling.
+    weight: str | None = None
 
     @property
     def numeric(self) -> tuple[AttributeSpec, ...]:
@@ -133,23 +245,49 @@ def resolve(
     unknown += bad
     forced_num, bad = _match(options.numeric, by_name)
     unknown += bad
+    segment_names, bad = _match(options.by, by_name)
+    unknown += bad
+    weight_found, bad = _match([options.weight] if options.weight else [], by_name)
+    unknown += bad
+    binned, bad = _match([name for name, _, _ in options.binning_for], by_name)
+    unknown += bad
+    dated, bad = _match([name for name, _ in options.date_part if name], by_name)
+    unknown += bad
     if unknown:
         raise ColumnError(
             unknown_names_message("column", unknown, by_name) + f" in {source_name}"
         )
     target = target_found[0]
+    weight = weight_found[0] if weight_found else None
+    _check_segments_and_weight(target, segment_names, weight, picked, by_name)
+    # Segment and weight columns are never ranked: within a segment, its columns are constant.
+    roles = {*segment_names, *([weight] if weight else [])}
     if options.attributes:
-        names = [n for n in dict.fromkeys(picked) if n != target and n not in excluded]
+        names = [n for n in dict.fromkeys(picked)
+                 if n != target and n not in excluded and n not in roles]
     else:
-        names = [c.name for c in columns if c.name != target and c.name not in excluded]
+        names = [c.name for c in columns
+                 if c.name != target and c.name not in excluded and c.name not in roles]
     if not names:
         raise SpecError(f"no attributes left to rank in {source_name} (only the target remains)")
-    not_numeric = [n for n in forced_num if by_name[n].family not in NUMERIC_FAMILIES]
+    binnable = NUMERIC_FAMILIES | TEMPORAL_FAMILIES
+    not_numeric = [n for n in forced_num if by_name[n].family not in binnable]
     if not_numeric:
         raise ColumnError(
-            "--numeric needs number columns; not numbers: "
+            "--numeric needs number, date or timestamp columns; not those: "
             + ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in not_numeric)
         )
+    # "other": a column described without a connection (`bitsift sql` with no SOURCE).
+    not_dates = [n for n in dated if by_name[n].family not in TEMPORAL_FAMILIES | {"other"}]
+    if not_dates:
+        raise ColumnError(
+            "--date-part needs date or timestamp columns; not those: "
+            + ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in not_dates)
+        )
+    part_of = dict(zip(dated, [p for n, p in options.date_part if n], strict=True))
+    every_date_part = next((p for n, p in options.date_part if not n), None)
+    binning_of = {found: (method, bins) for found, (_, method, bins)
+                  in zip(binned, options.binning_for, strict=True)}
     attributes = []
     for n in names:
         col = by_name[n]
@@ -160,7 +298,20 @@ def resolve(
             kind = "categorical"
         else:
             kind = col.default_kind
-        attributes.append(AttributeSpec(name=n, kind=kind, family=col.family))
+        if kind == "numeric":
+            method, bins = binning_of.get(n, (options.binning, None))
+            attributes.append(AttributeSpec(name=n, kind=kind, family=col.family,
+                                            binning=method, bins=bins or options.bins))
+            continue
+        part = part_of.get(n)
+        if part is None and n not in forced_cat and col.family in TEMPORAL_FAMILIES:
+            part = every_date_part  # a bare --date-part PART: every date column not named
+        attributes.append(AttributeSpec(name=n, kind=kind, family=col.family, date_part=part))
+    unbinned = [a.name for a in attributes if a.name in binning_of and a.kind != "numeric"]
+    if unbinned:
+        raise SpecError("--binning-for names columns that are not binned (integers, dates and "
+                        "--categorical columns are categories unless named in --numeric): "
+                        + ", ".join(unbinned))
     where = parse_predicate(options.where, by_name, dialect) if options.where else None
     return RankSpec(
         source=source,
@@ -170,4 +321,31 @@ def resolve(
         options=options,
         where=where,
         target_family=by_name[target].family,
+        by=tuple(AttributeSpec(name=n, kind="categorical", family=by_name[n].family)
+                 for n in dict.fromkeys(segment_names)),
+        weight=weight,
     )
+
+
+def _check_segments_and_weight(target: str, segments: Sequence[str], weight: str | None,
+                               picked: Sequence[str], by_name: dict[str, Column]) -> None:
+    """Every conflict between --by, --weight, the target and --attributes, reported at once."""
+    problems = []
+    if target in segments:
+        problems.append(f"the target {target!r} cannot also be a segment (--by)")
+    if weight is not None:
+        if weight == target:
+            problems.append(f"the target {target!r} cannot also be the weight")
+        if weight in segments:
+            problems.append(f"{weight!r} cannot be both a segment (--by) and the weight")
+        family = by_name[weight].family
+        # "other": paste mode without a connection does not know the type.
+        if family not in NUMERIC_FAMILIES and family != "other":
+            problems.append(f"--weight needs a number column; {weight!r} is "
+                            f"{by_name[weight].type_name or family}")
+    both = [n for n in dict.fromkeys(picked) if n in segments or n == weight]
+    if both:
+        problems.append("columns named both in --attributes and as a segment or weight: "
+                        + ", ".join(both))
+    if problems:
+        raise SpecError("; ".join(problems))

@@ -8,6 +8,7 @@ sqlglot and every literal as a sqlglot literal; the rendered text is parsed back
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -15,7 +16,8 @@ import sqlglot
 from sqlglot import exp
 
 from bitsift.dialects import Capabilities
-from bitsift.spec import RankSpec
+from bitsift.errors import SpecError
+from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.templates import render
 from bitsift.version import __version__
 
@@ -25,6 +27,11 @@ CANONICAL = "duckdb"
 #: byte-exactly; :func:`_apply_hooks` turns it into the dialect's cast (see
 #: :attr:`~bitsift.dialects.Capabilities.exact_key_type`).
 EXACT_KEY = "bitsift_exact_key"
+#: Placeholder functions for a date's epoch seconds and one of its parts (``--numeric``,
+#: ``--date-part``); :func:`_apply_hooks` writes them with the dialect's
+#: :class:`~bitsift.dialects.DateFunctions`.
+EPOCH = "bitsift_epoch"
+DATE_PART = "bitsift_date_part"
 
 #: Type families whose values are compared under a collation (so 'a' may equal 'A').
 #: "other" is here because paste mode without a connection does not know the types.
@@ -90,37 +97,127 @@ def _qualified(predicate: exp.Expression, alias: str) -> exp.Expression:
     return tree
 
 
+def cut_count(attribute: AttributeSpec) -> int:
+    """How many cut points the database computes for a numeric attribute (before duplicates
+    are merged): bins - 1 for quantile and equal-width, one for best-split."""
+    if attribute.binning == "best-split":
+        return 1
+    return (attribute.bins or 2) - 1
+
+
+def attribute_value(attribute: AttributeSpec, alias: str | None = None) -> str:
+    """The SQL (canonical dialect) of the value an attribute is ranked by: its column, a date's
+    epoch seconds (``--numeric``) or one of its parts (``--date-part``), the latter two as
+    placeholder functions that :func:`_apply_hooks` turns into the dialect's own SQL.
+
+    >>> from bitsift.spec import AttributeSpec
+    >>> print(attribute_value(AttributeSpec("sown on", "categorical", "date", date_part="month"),
+    ...                       "src"))
+    BITSIFT_DATE_PART(src."sown on", 'month')
+    """
+    table = exp.to_identifier(alias) if alias else None
+    node: exp.Expression = exp.column(exp.to_identifier(attribute.name, quoted=True), table=table)
+    if attribute.epoch:
+        node = exp.Anonymous(this=EPOCH, expressions=[node])
+    elif attribute.date_part:
+        node = exp.Anonymous(this=DATE_PART, expressions=[node,
+                                                          exp.Literal.string(attribute.date_part)])
+    return node.sql(CANONICAL)
+
+
+def value_expression(attribute: AttributeSpec, caps: Capabilities) -> exp.Expression:
+    """:func:`attribute_value` as a tree ready for ``caps``' dialect (placeholders replaced),
+    for statements built as trees (``bitsift check`` pulls the values it compares)."""
+    return _apply_hooks(_parsed(attribute_value(attribute), CANONICAL).copy(), caps)
+
+
+def temporal_value(value: exp.Expression, part: str, caps: Capabilities) -> exp.Expression:
+    """``value`` (a date or timestamp) as epoch seconds (``part="epoch"``) or one of its parts,
+    from the dialect's :class:`~bitsift.dialects.DateFunctions` (SQL with ``x`` for the value)."""
+    pattern = _parsed(getattr(caps.dates, part), caps.sqlglot_dialect)
+
+    def put_value(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.Column) and node.name == "x" and not node.table:
+            return value.copy()
+        return node
+
+    return pattern.transform(put_value)
+
+
+@functools.cache
+def _parsed(sql: str, dialect: str) -> exp.Expression:
+    # A statement may hold the same date function dozens of times: parse each pattern once
+    # (transform() copies the cached tree, which stays untouched).
+    tree = sqlglot.parse_one(sql, read=dialect or None)
+    assert isinstance(tree, exp.Expression), sql
+    return tree
+
+
+def _computed_cuts(index: int, attribute: AttributeSpec) -> dict[str, object]:
+    """Template fields of a numeric attribute whose cut points the statement computes."""
+    if attribute.binning == "mdl":
+        raise SpecError(
+            f"--binning mdl ({attribute.name!r}) needs the data: its cut points come from a "
+            "Python step (Fayyad & Irani's MDL on a histogram the database computes), so they "
+            "cannot be computed inside one pasted statement. Give `bitsift sql` a SOURCE to "
+            "compute them and inline them, or choose best-split, quantile or equal-width"
+        )
+    count = cut_count(attribute)
+    return {
+        "method": attribute.binning or "quantile",
+        "bins": attribute.bins,
+        "cut_count": count,
+        "probabilities": probabilities(attribute.bins or 2),
+        "cuts": [f"bounds.c{index}_{j}" for j in range(1, count + 1)],
+    }
+
+
+def _bounds(computed: Sequence[dict[str, object]], spec: RankSpec, caps: Capabilities,
+            ) -> dict[str, object] | None:
+    """The bounds CTEs' context: which attributes an aggregate, a window or a split serves."""
+    if not computed:
+        return None
+    aggregate = caps.quantile != "window"
+    return {
+        "quantile": caps.quantile,
+        "aggregated": [a for a in computed if a["method"] == "equal-width"
+                       or (a["method"] == "quantile" and aggregate)],
+        "windowed": [a for a in computed if a["method"] == "quantile" and not aggregate],
+        "splits": [a for a in computed if a["method"] == "best-split"],
+        "target_key": _grouping_key(spec.target, spec.target_family, caps),
+    }
+
+
+def _grouping_key(name: str, family: str, caps: Capabilities) -> str:
+    column = quote(name)
+    return f"{EXACT_KEY}({column})" if _exact(family, caps) else column
+
+
 def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[float]] | None,
              ) -> dict[str, object]:
+    """The ranking template's context. Numeric attributes named in ``cuts`` are binned at
+    those literal cut points; the others' cut points are computed by the statement itself."""
     attributes = []
+    computed = []
     for index, attribute in enumerate(spec.attributes, start=1):
-        column = quote(attribute.name)
-        attribute_cuts: list[str] | None = None
-        if attribute.kind == "numeric":
-            if cuts is None:
-                attribute_cuts = [
-                    f"bounds.c{index}_{j}" for j in range(1, spec.options.bins)
-                ]
-            else:
-                attribute_cuts = [literal(float(c)) for c in cuts.get(attribute.name, ())]
-        attributes.append(
-            {
-                "index": index,
-                "column": column,
-                "label": literal(attribute.name),
-                "kind": attribute.kind,
-                "cuts": attribute_cuts,
-                "exact": _exact(attribute.family, caps),
-            }
-        )
-    numeric = [a for a in attributes if a["cuts"] is not None]
-    bounds = None
-    if numeric and cuts is None:
-        bounds = {
-            "method": caps.quantile,
-            "attributes": numeric,
-            "probabilities": probabilities(spec.options.bins),
+        entry: dict[str, object] = {
+            "index": index,
+            "column": quote(attribute.name),
+            "value": attribute_value(attribute, "src"),
+            "raw": attribute_value(attribute),
+            "label": literal(attribute.name),
+            "kind": attribute.kind,
+            "cuts": None,
+            "exact": _exact(attribute.family, caps) and not attribute.date_part,
         }
+        if attribute.kind == "numeric":
+            if cuts is not None and attribute.name in cuts:
+                entry["cuts"] = [literal(float(c)) for c in cuts[attribute.name]]
+            else:
+                entry.update(_computed_cuts(index, attribute))
+                computed.append(entry)
+        attributes.append(entry)
+    bounds = _bounds(computed, spec, caps)
     return {
         "source": source_sql(spec.source),
         "target": quote(spec.target),
@@ -161,6 +258,11 @@ def _apply_hooks(tree: exp.Expression, caps: Capabilities) -> exp.Expression:
     """
 
     def hook(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.Anonymous) and node.name.lower() == EPOCH:
+            return temporal_value(node.expressions[0], "epoch", caps)
+        if isinstance(node, exp.Anonymous) and node.name.lower() == DATE_PART:
+            value, part = node.expressions
+            return temporal_value(value, part.name, caps)
         if isinstance(node, exp.Anonymous) and node.name.lower() == EXACT_KEY:
             (argument,) = node.expressions
             if caps.exact_key_type is None:
@@ -187,36 +289,110 @@ def rank_statement(
     (paste mode: self-contained).
     """
     context = _context(spec, caps, cuts)
+    context.update(_segments_and_weight(spec, caps))
     context["order_by_gain"] = order_by
     return _finish(render("rank.sql.j2", **context), caps, pretty)
 
 
+def _segments_and_weight(spec: RankSpec, caps: Capabilities) -> dict[str, object]:
+    """The ranking template's segment columns (``--by``) and weight column (``--weight``).
+
+    Segment values are grouped byte-exactly like attribute values (see :func:`_exact`).
+    """
+    return {
+        "segments": [
+            {"index": index, "column": quote(s.name), "exact": _exact(s.family, caps)}
+            for index, s in enumerate(spec.by, start=1)
+        ],
+        "weight": quote(spec.weight) if spec.weight else None,
+    }
+
+
 def bounds_statement(spec: RankSpec, caps: Capabilities) -> Statement | None:
-    """The pre-pass computing the quantile boundaries of the numeric attributes, if any."""
-    context = _context(spec, caps, None)
+    """The pre-pass computing the cut points of the numeric attributes binned in SQL
+    (quantile, equal-width, best-split; not mdl, see :func:`histogram_statement`), if any."""
+    mdl = {a.name: () for a in spec.numeric if a.binning == "mdl"}
+    context = _context(spec, caps, mdl)
     if context["bounds"] is None:
         return None
     return _finish(render("bounds_query.sql.j2", **context), caps, pretty=False)
+
+
+def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> Statement | None:
+    """The (fine bin x class) histogram of the attributes binned by MDL, if any (see
+    templates/histogram.sql.j2): at most ``resolution`` fine bins per attribute."""
+    attributes = [
+        {"index": index, "raw": attribute_value(attribute)}
+        for index, attribute in enumerate(spec.attributes, start=1)
+        if attribute.kind == "numeric" and attribute.binning == "mdl"
+    ]
+    if not attributes:
+        return None
+    context = {
+        "attributes": attributes,
+        "source": source_sql(spec.source),
+        "target": quote(spec.target),
+        "target_key": _grouping_key(spec.target, spec.target_family, caps),
+        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
+        "resolution": literal(int(resolution)),
+    }
+    return _finish(render("histogram.sql.j2", **context), caps, pretty=False)
+
+
+def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None = None) -> str:
+    """How each numeric attribute is binned, in words (the pasted statement's header)."""
+    parts = []
+    for attribute in spec.numeric:
+        what = f"{attribute.name} {attribute.binning}"
+        if attribute.binning in ("quantile", "equal-width"):
+            what += f" {attribute.bins} bins"
+        if attribute.epoch:
+            what += " of epoch seconds"
+        if cuts is not None and attribute.name in cuts:
+            inlined = ", ".join(f"{c:.12g}" for c in cuts[attribute.name]) or "none"
+            what += f" (cut points computed by bitsift from the table and inlined: {inlined})"
+        parts.append(what)
+    return "; ".join(parts) or "none"
 
 
 def _comment_safe(text: str) -> str:
     return " ".join(str(text).split()).replace("*/", "* /")
 
 
-def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | None = None) -> str:
-    """A formatted, self-contained statement with a header comment of its parameters."""
-    statement = rank_statement(spec, caps, None, pretty=True, order_by=spec.options.sort)
-    attrs = ", ".join(f"{a.name} ({a.kind})" for a in spec.attributes)
+def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | None = None,
+                    cuts: Mapping[str, Sequence[float]] | None = None) -> str:
+    """A formatted, self-contained statement with a header comment of its parameters.
+
+    ``cuts``: literal cut points of some numeric attributes (mdl's, computed beforehand from
+    the table); the statement computes the others' itself.
+    """
+    statement = rank_statement(spec, caps, cuts, pretty=True, order_by=spec.options.sort)
+    attrs = ", ".join(f"{a.name} ({a.kind}{', ' + a.date_part if a.date_part else ''})"
+                      for a in spec.attributes)
     stamp = (now or _dt.datetime.now(_dt.UTC)).strftime("%Y-%m-%d %H:%M UTC")
     header = [
         f"bitsift {__version__} - information-gain ranking, dialect {caps.name}, {stamp}",
         f"table: {spec.source_name}",
         f"target: {spec.target}",
         f"attributes: {attrs}",
-        f"missing values: {spec.options.missing}; numeric bins: {spec.options.bins} (quantile)",
+        f"missing values: {spec.options.missing}; numeric binning: {binning_summary(spec, cuts)}",
     ]
     if spec.where:
         header.append(f"where: {spec.where.text}")
+    if spec.by:
+        columns = ", ".join(f"segment_{i} = {s.name}" for i, s in enumerate(spec.by, start=1))
+        header += [
+            f"segments (--by): {columns}; one group of rows per segment, NULL values form a "
+            "segment of their own; numeric bins are cut over the whole table",
+        ]
+    if spec.weight:
+        header += [
+            f"weight: {spec.weight}; counts are sums of weights (weight_used = N), rows_used counts"
+            " rows with a positive weight; rows_without_weight: NULL or 0 weight, left out",
+            "rows_negative_weight must be 0, or the result is invalid (negative weights are left"
+            " out); p-values hold only for whole-number (frequency) weights:"
+            " rows_fractional_weight = 0",
+        ]
     header += [
         "one row per attribute (attribute_index 0 describes the target); entropies in bits.",
         "p-value: chi-square survival function of g_statistic with dof degrees of freedom,",

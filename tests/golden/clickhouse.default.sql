@@ -2,7 +2,7 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), noise (categorical), score (numeric), ratio (numeric)
--- missing values: category; numeric bins: 4 (quantile)
+-- missing values: category; numeric binning: score quantile 4 bins; ratio quantile 4 bins
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).

@@ -2,18 +2,18 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), noise (categorical), score (numeric), ratio (numeric)
--- missing values: category; numeric bins: 4 (quantile)
+-- missing values: category; numeric binning: score quantile 4 bins; ratio quantile 4 bins
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
-WITH bound_lists AS (
+WITH bound_aggregates AS (
   SELECT
     QUANTILE_CONT(CAST("score" AS DOUBLE), [0.25, 0.5, 0.75]) AS q4,
     QUANTILE_CONT(CAST("ratio" AS DOUBLE), [0.25, 0.5, 0.75]) AS q5
   FROM "bitsift_golden"
   WHERE
     NOT "y" IS NULL
-), bounds AS (
+), bounds_aggregated AS (
   SELECT
     q4[1] AS c4_1,
     q4[2] AS c4_2,
@@ -21,7 +21,11 @@ WITH bound_lists AS (
     q5[1] AS c5_1,
     q5[2] AS c5_2,
     q5[3] AS c5_3
-  FROM bound_lists
+  FROM bound_aggregates
+), bounds AS (
+  SELECT
+    *
+  FROM bounds_aggregated
 ), base AS (
   SELECT
     src."y" AS y,

@@ -2,12 +2,12 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), score (numeric)
--- missing values: drop; numeric bins: 3 (quantile)
+-- missing values: drop; numeric binning: score quantile 3 bins
 -- where: level <> 3 OR word IS NULL
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
-WITH bound_lists AS (
+WITH bound_aggregates AS (
   SELECT
     QUANTILE_CONT(CAST("score" AS DOUBLE), [0.333333333333, 0.666666666667]) AS q3
   FROM "bitsift_golden"
@@ -15,11 +15,15 @@ WITH bound_lists AS (
     NOT "y" IS NULL AND (
       "level" <> 3 OR "word" IS NULL
     )
-), bounds AS (
+), bounds_aggregated AS (
   SELECT
     q3[1] AS c3_1,
     q3[2] AS c3_2
-  FROM bound_lists
+  FROM bound_aggregates
+), bounds AS (
+  SELECT
+    *
+  FROM bounds_aggregated
 ), base AS (
   SELECT
     src."y" AS y,

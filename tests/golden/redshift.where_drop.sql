@@ -2,7 +2,7 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), score (numeric)
--- missing values: drop; numeric bins: 3 (quantile)
+-- missing values: drop; numeric binning: score quantile 3 bins
 -- where: level <> 3 OR word IS NULL
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,

@@ -2,11 +2,11 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), noise (categorical), score (numeric), ratio (numeric)
--- missing values: category; numeric bins: 4 (quantile)
+-- missing values: category; numeric binning: score quantile 4 bins; ratio quantile 4 bins
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
-WITH bounds AS (
+WITH bound_aggregates AS (
   SELECT
     PERCENTILE_CONT(0.25) WITHIN GROUP (ORDER BY
       CAST("score" AS DOUBLE)) AS c4_1,
@@ -23,6 +23,19 @@ WITH bounds AS (
   FROM "bitsift_golden"
   WHERE
     NOT "y" IS NULL
+), bounds_aggregated AS (
+  SELECT
+    c4_1,
+    c4_2,
+    c4_3,
+    c5_1,
+    c5_2,
+    c5_3
+  FROM bound_aggregates
+), bounds AS (
+  SELECT
+    *
+  FROM bounds_aggregated
 ), base AS (
   SELECT
     src."y" AS y,

@@ -2,12 +2,12 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), score (numeric)
--- missing values: drop; numeric bins: 3 (quantile)
+-- missing values: drop; numeric binning: score quantile 3 bins
 -- where: level <> 3 OR word IS NULL
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
-WITH bounds AS (
+WITH bound_aggregates AS (
   SELECT
     PERCENTILE_CONT(0.333333333333) WITHIN GROUP (ORDER BY
       CAST("score" AS DOUBLE)) AS c3_1,
@@ -18,6 +18,15 @@ WITH bounds AS (
     NOT "y" IS NULL AND (
       "level" <> 3 OR "word" IS NULL
     )
+), bounds_aggregated AS (
+  SELECT
+    c3_1,
+    c3_2
+  FROM bound_aggregates
+), bounds AS (
+  SELECT
+    *
+  FROM bounds_aggregated
 ), base AS (
   SELECT
     src."y" AS y,

@@ -2,157 +2,30 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), noise (categorical), score (numeric), ratio (numeric)
--- missing values: category; numeric bins: 4 (quantile)
+-- missing values: category; numeric binning: score quantile 4 bins; ratio quantile 4 bins
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
-WITH ordered_4 AS (
+WITH bound_aggregates AS (
   SELECT
-    CAST(`score` AS DOUBLE) AS v,
-    ROW_NUMBER() OVER (ORDER BY CAST(`score` AS DOUBLE) NULLS LAST) AS rn,
-    COUNT(*) OVER () AS cnt
+    PERCENTILE(CAST(`score` AS DOUBLE), ARRAY(0.25, 0.5, 0.75)) AS q4,
+    PERCENTILE(CAST(`ratio` AS DOUBLE), ARRAY(0.25, 0.5, 0.75)) AS q5
   FROM `bitsift_golden`
   WHERE
-    NOT `y` IS NULL AND NOT `score` IS NULL
-), bounds_4 AS (
+    NOT `y` IS NULL
+), bounds_aggregated AS (
   SELECT
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.25) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.25 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.25)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.25) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.25) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.25) + 1 THEN v END)
-    ) AS c4_1,
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.5) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.5 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.5)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.5) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.5) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.5) + 1 THEN v END)
-    ) AS c4_2,
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.75) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.75 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.75)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.75) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.75) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.75) + 1 THEN v END)
-    ) AS c4_3
-  FROM ordered_4
-), ordered_5 AS (
-  SELECT
-    CAST(`ratio` AS DOUBLE) AS v,
-    ROW_NUMBER() OVER (ORDER BY CAST(`ratio` AS DOUBLE) NULLS LAST) AS rn,
-    COUNT(*) OVER () AS cnt
-  FROM `bitsift_golden`
-  WHERE
-    NOT `y` IS NULL AND NOT `ratio` IS NULL
-), bounds_5 AS (
-  SELECT
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.25) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.25 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.25)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.25) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.25) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.25) + 1 THEN v END)
-    ) AS c5_1,
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.5) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.5 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.5)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.5) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.5) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.5) + 1 THEN v END)
-    ) AS c5_2,
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.75) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.75 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.75)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.75) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.75) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.75) + 1 THEN v END)
-    ) AS c5_3
-  FROM ordered_5
+    q4[0] AS c4_1,
+    q4[1] AS c4_2,
+    q4[2] AS c4_3,
+    q5[0] AS c5_1,
+    q5[1] AS c5_2,
+    q5[2] AS c5_3
+  FROM bound_aggregates
 ), bounds AS (
   SELECT
     *
-  FROM bounds_4
-  CROSS JOIN bounds_5
+  FROM bounds_aggregated
 ), base AS (
   SELECT
     src.`y` AS y,

@@ -2,68 +2,28 @@
 -- table: bitsift_golden
 -- target: y
 -- attributes: word (categorical), level (categorical), score (numeric)
--- missing values: drop; numeric bins: 3 (quantile)
+-- missing values: drop; numeric binning: score quantile 3 bins
 -- where: level <> 3 OR word IS NULL
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
-WITH ordered_3 AS (
+WITH bound_aggregates AS (
   SELECT
-    CAST(`score` AS DOUBLE) AS v,
-    ROW_NUMBER() OVER (ORDER BY CAST(`score` AS DOUBLE) NULLS LAST) AS rn,
-    COUNT(*) OVER () AS cnt
+    PERCENTILE(CAST(`score` AS DOUBLE), ARRAY(0.333333333333, 0.666666666667)) AS q3
   FROM `bitsift_golden`
   WHERE
-    NOT `y` IS NULL AND NOT `score` IS NULL AND (
+    NOT `y` IS NULL AND (
       `level` <> 3 OR `word` IS NULL
     )
-), bounds_3 AS (
+), bounds_aggregated AS (
   SELECT
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.333333333333) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.333333333333 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.333333333333)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.333333333333) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.333333333333) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.333333333333) + 1 THEN v END)
-    ) AS c3_1,
-    MAX(CASE WHEN rn = FLOOR((
-      cnt - 1
-    ) * 0.666666666667) + 1 THEN v END) + (
-      (
-        MAX(cnt) - 1
-      ) * 0.666666666667 - FLOOR((
-        MAX(cnt) - 1
-      ) * 0.666666666667)
-    ) * (
-      COALESCE(
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.666666666667) + 2 THEN v END),
-        MAX(CASE WHEN rn = FLOOR((
-          cnt - 1
-        ) * 0.666666666667) + 1 THEN v END)
-      ) - MAX(CASE WHEN rn = FLOOR((
-        cnt - 1
-      ) * 0.666666666667) + 1 THEN v END)
-    ) AS c3_2
-  FROM ordered_3
+    q3[0] AS c3_1,
+    q3[1] AS c3_2
+  FROM bound_aggregates
 ), bounds AS (
   SELECT
     *
-  FROM bounds_3
+  FROM bounds_aggregated
 ), base AS (
   SELECT
     src.`y` AS y,

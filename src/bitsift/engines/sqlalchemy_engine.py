@@ -192,6 +192,7 @@ class SqlAlchemyEngine(Engine):
     def _prepare(self) -> None:
         """Once per connection: math functions for SQLite, session-scoped read-only mode."""
         if self.caps.register_math_functions:
+            sqlite_support.restore_functions(self._driver_connection())
             added = sqlite_support.register_math_functions(self._driver_connection())
             if added:
                 self.notes.append("this SQLite build lacks " + ", ".join(added)
@@ -237,6 +238,7 @@ class SqlAlchemyEngine(Engine):
                 raise TableNotFoundError(f"unknown table: {display!r}{where}"
                                          f"{suggest(name, tables)}")
             columns = inspector.get_columns(real, schema=schema)
+            default_schema = None if schema else inspector.default_schema_name
         except sa.exc.DBAPIError as error:  # unknown schema and friends
             raise TableNotFoundError(
                 f"cannot list tables of schema {schema!r}: "
@@ -245,6 +247,11 @@ class SqlAlchemyEngine(Engine):
         finally:
             self._end()
         table.set("this", exp.to_identifier(real, quoted=True))
+        if default_schema:
+            # The schema the table was found in, written out: an unqualified name that is also
+            # the name of one of the statement's CTEs (a table called "counts") would be read
+            # as that CTE (SQLite: "circular reference: counts").
+            table.set("db", exp.to_identifier(default_schema, quoted=True))
         return [
             Column(name=c["name"], family=_family(c["type"]), type_name=str(c["type"]))
             for c in columns

@@ -16,11 +16,24 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from typing import Any
 
+def _floor(x: Any) -> Any:
+    """SQLite's own FLOOR: NULL stays NULL, infinities stay infinite, integers stay integers."""
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return x
+    return math.floor(x) if isinstance(x, int) else float(math.floor(x))
+
+
 #: Functions the generated SQL calls that a bare SQLite build may lack, and Python stand-ins.
 MATH_FUNCTIONS: dict[str, Callable[[Any], Any]] = {
     "ln": lambda x: math.log(x) if x is not None and x > 0 else None,
-    "floor": lambda x: math.floor(x) if x is not None else None,
+    "floor": _floor,
 }
+
+#: Functions that SQLAlchemy's pysqlite dialect replaces on every connection with Python's own
+#: (``floor`` becomes ``math.floor``, which raises on NULL and on infinities, so a quantile
+#: pre-pass over an all-NULL column failed with "user-defined function raised exception"):
+#: bitsift puts back stand-ins that behave like SQLite's.
+REPLACED_BY_SQLALCHEMY: tuple[str, ...] = ("floor",)
 
 #: How many SQLite virtual-machine steps run between two looks at the clock.
 PROGRESS_STEPS = 10_000
@@ -44,6 +57,12 @@ def register_math_functions(connection: sqlite3.Connection, names: list[str] | N
     for name in chosen:
         connection.create_function(name, 1, MATH_FUNCTIONS[name], deterministic=True)
     return chosen
+
+
+def restore_functions(connection: sqlite3.Connection) -> None:
+    """Register :data:`REPLACED_BY_SQLALCHEMY` again, with SQLite's NULL and infinity rules."""
+    for name in REPLACED_BY_SQLALCHEMY:
+        connection.create_function(name, 1, MATH_FUNCTIONS[name], deterministic=True)
 
 
 @contextmanager

@@ -1,0 +1,320 @@
+-- bitsift <version> - information-gain ranking, dialect oracle, <time>
+-- table: bitsift_golden
+-- target: y
+-- attributes: word (categorical), noise (categorical), score (numeric), ratio (numeric), price (numeric)
+-- missing values: category; numeric binning: score best-split; ratio equal-width 4 bins; price quantile 3 bins
+-- where: word <> 'b' OR word IS NULL
+-- one row per attribute (attribute_index 0 describes the target); entropies in bits.
+-- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
+-- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
+WITH bound_aggregates AS (
+  SELECT
+    MIN(CAST("ratio" AS DOUBLE PRECISION)) AS lo4,
+    MAX(CAST("ratio" AS DOUBLE PRECISION)) AS hi4,
+    PERCENTILE_CONT(0.333333333333) WITHIN GROUP (ORDER BY
+      CAST("price" AS DOUBLE PRECISION)) AS c5_1,
+    PERCENTILE_CONT(0.666666666667) WITHIN GROUP (ORDER BY
+      CAST("price" AS DOUBLE PRECISION)) AS c5_2
+  FROM "bitsift_golden"
+  WHERE
+    NOT "y" IS NULL AND (
+      "word" <> 'b' OR "word" IS NULL
+    )
+), bounds_aggregated AS (
+  SELECT
+    lo4 + (
+      hi4 - lo4
+    ) * 1 / 4 AS c4_1,
+    lo4 + (
+      hi4 - lo4
+    ) * 2 / 4 AS c4_2,
+    lo4 + (
+      hi4 - lo4
+    ) * 3 / 4 AS c4_3,
+    c5_1,
+    c5_2
+  FROM bound_aggregates
+), split_cells_3 AS (
+  SELECT
+    CAST("score" AS DOUBLE PRECISION) AS v,
+    "y" AS y,
+    COUNT(*) AS n
+  FROM "bitsift_golden"
+  WHERE
+    NOT "y" IS NULL AND NOT "score" IS NULL AND (
+      "word" <> 'b' OR "word" IS NULL
+    )
+  GROUP BY
+    CAST("score" AS DOUBLE PRECISION),
+    "y"
+), split_values_3 AS (
+  SELECT DISTINCT
+    v
+  FROM split_cells_3
+), split_classes_3 AS (
+  SELECT DISTINCT
+    y
+  FROM split_cells_3
+), split_running_3 AS (
+  SELECT
+    d.v AS v,
+    SUM(COALESCE(k.n, 0)) OVER (
+      PARTITION BY c.y
+      ORDER BY d.v NULLS FIRST
+      ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
+    ) AS left_n,
+    SUM(COALESCE(k.n, 0)) OVER (PARTITION BY c.y) AS class_n
+  FROM split_values_3 d
+  CROSS JOIN split_classes_3 c
+  LEFT JOIN split_cells_3 k
+    ON k.v = d.v AND k.y = c.y
+), split_sides_3 AS (
+  SELECT
+    v,
+    CAST(SUM(left_n) AS DOUBLE PRECISION) AS left_rows,
+    CAST(SUM(class_n - left_n) AS DOUBLE PRECISION) AS right_rows,
+    SUM(
+      CASE
+        WHEN left_n > 0
+        THEN CAST(left_n AS DOUBLE PRECISION) * LN(CAST(left_n AS DOUBLE PRECISION))
+        ELSE 0
+      END
+    ) AS left_terms,
+    SUM(
+      CASE
+        WHEN class_n - left_n > 0
+        THEN CAST(class_n - left_n AS DOUBLE PRECISION) * LN(CAST(class_n - left_n AS DOUBLE PRECISION))
+        ELSE 0
+      END
+    ) AS right_terms
+  FROM split_running_3
+  GROUP BY
+    v
+), split_scores_3 AS (
+  SELECT
+    v,
+    LEAD(v) OVER (ORDER BY v NULLS FIRST) AS next_v,
+    left_rows * LN(left_rows) - left_terms + CASE WHEN right_rows > 0 THEN right_rows * LN(right_rows) ELSE 0 END - right_terms AS nats
+  FROM split_sides_3
+), split_best_3 AS (
+  SELECT
+    MIN(nats) AS nats
+  FROM split_scores_3
+  WHERE
+    NOT next_v IS NULL
+), split_bound_3 AS (
+  SELECT
+    MIN((
+      s.v + s.next_v
+    ) / 2) AS c3_1
+  FROM split_scores_3 s
+  CROSS JOIN split_best_3 b
+  WHERE
+    NOT s.next_v IS NULL AND s.nats <= b.nats + 1e-9 * (
+      1 + ABS(b.nats)
+    )
+), bounds AS (
+  SELECT
+    *
+  FROM bounds_aggregated
+  CROSS JOIN split_bound_3
+), base AS (
+  SELECT
+    src."y" AS y,
+    src."word" AS a1,
+    src."noise" AS a2,
+    CASE
+      WHEN src."score" IS NULL
+      THEN NULL
+      WHEN CAST(src."score" AS DOUBLE PRECISION) < bounds.c3_1
+      THEN 0
+      ELSE 1
+    END AS a3,
+    CASE
+      WHEN src."ratio" IS NULL
+      THEN NULL
+      WHEN CAST(src."ratio" AS DOUBLE PRECISION) < bounds.c4_1
+      THEN 0
+      WHEN CAST(src."ratio" AS DOUBLE PRECISION) < bounds.c4_2
+      THEN 1
+      WHEN CAST(src."ratio" AS DOUBLE PRECISION) < bounds.c4_3
+      THEN 2
+      ELSE 3
+    END AS a4,
+    CASE
+      WHEN src."price" IS NULL
+      THEN NULL
+      WHEN CAST(src."price" AS DOUBLE PRECISION) < bounds.c5_1
+      THEN 0
+      WHEN CAST(src."price" AS DOUBLE PRECISION) < bounds.c5_2
+      THEN 1
+      ELSE 2
+    END AS a5
+  FROM "bitsift_golden" src
+  CROSS JOIN bounds
+  WHERE
+    src."word" <> 'b' OR src."word" IS NULL
+), counts AS (
+  SELECT
+    CASE
+      WHEN GROUPING(a1) = 0
+      THEN 1
+      WHEN GROUPING(a2) = 0
+      THEN 2
+      WHEN GROUPING(a3) = 0
+      THEN 3
+      WHEN GROUPING(a4) = 0
+      THEN 4
+      WHEN GROUPING(a5) = 0
+      THEN 5
+      ELSE 0
+    END AS attr,
+    a1,
+    a2,
+    a3,
+    a4,
+    a5,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    GROUPING SETS (
+      (
+        y
+      ),
+      (a1, y),
+      (a2, y),
+      (a3, y),
+      (a4, y),
+      (a5, y)
+    )
+), cells AS (
+  SELECT
+    attr,
+    n,
+    SUM(n) OVER (PARTITION BY attr, a1, a2, a3, a4, a5) AS n_x,
+    ROW_NUMBER() OVER (PARTITION BY attr, a1, a2, a3, a4, a5 ORDER BY y) AS x_first,
+    SUM(n) OVER (PARTITION BY attr, y) AS n_y,
+    ROW_NUMBER() OVER (PARTITION BY attr, y ORDER BY n) AS y_first
+  FROM counts
+  WHERE
+    NOT y IS NULL
+), per_attribute AS (
+  SELECT
+    attr,
+    CAST(SUM(n) AS INT) AS n_total,
+    CAST(SUM(n) AS DOUBLE PRECISION) AS n_total_f,
+    CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS INT) AS n_values,
+    CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS INT) AS n_classes,
+    SUM(CAST(n AS DOUBLE PRECISION) * LN(CAST(n AS DOUBLE PRECISION))) AS s_xy,
+    SUM(
+      CASE
+        WHEN x_first = 1
+        THEN CAST(n_x AS DOUBLE PRECISION) * LN(CAST(n_x AS DOUBLE PRECISION))
+        ELSE 0
+      END
+    ) AS s_x,
+    SUM(
+      CASE
+        WHEN y_first = 1
+        THEN CAST(n_y AS DOUBLE PRECISION) * LN(CAST(n_y AS DOUBLE PRECISION))
+        ELSE 0
+      END
+    ) AS s_y
+  FROM cells
+  GROUP BY
+    attr
+), entropies AS (
+  SELECT
+    attr,
+    n_total,
+    n_total_f,
+    n_values,
+    n_classes,
+    CASE
+      WHEN n_classes > 1
+      THEN (
+        LN(n_total_f) - s_y / n_total_f
+      ) / LN(2)
+      ELSE 0
+    END AS h_y,
+    CASE WHEN n_values > 1 THEN (
+      LN(n_total_f) - s_x / n_total_f
+    ) / LN(2) ELSE 0 END AS h_x,
+    (
+      s_x - s_xy
+    ) / n_total_f / LN(2) AS h_y_given_x
+  FROM per_attribute
+), gains AS (
+  SELECT
+    attr,
+    n_total,
+    n_total_f,
+    n_values,
+    n_classes,
+    h_y,
+    h_x,
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+  FROM entropies
+), excluded AS (
+  SELECT
+    COALESCE(SUM(n), 0) AS rows_excluded
+  FROM counts
+  WHERE
+    attr = 0 AND y IS NULL
+)
+SELECT
+  g.attr AS attribute_index,
+  CASE g.attr
+    WHEN 0
+    THEN 'y'
+    WHEN 1
+    THEN 'word'
+    WHEN 2
+    THEN 'noise'
+    WHEN 3
+    THEN 'score'
+    WHEN 4
+    THEN 'ratio'
+    WHEN 5
+    THEN 'price'
+  END AS attribute,
+  CASE g.attr
+    WHEN 0
+    THEN 'target'
+    WHEN 1
+    THEN 'categorical'
+    WHEN 2
+    THEN 'categorical'
+    WHEN 3
+    THEN 'numeric'
+    WHEN 4
+    THEN 'numeric'
+    WHEN 5
+    THEN 'numeric'
+  END AS kind,
+  g.n_total AS rows_used,
+  e.rows_excluded AS rows_excluded,
+  g.n_values AS distinct_values,
+  g.n_classes AS classes,
+  g.h_y AS target_entropy,
+  g.h_x AS attribute_entropy,
+  g.h_y - g.ig AS conditional_entropy,
+  g.ig AS information_gain,
+  CASE WHEN g.n_values > 1 THEN g.ig / g.h_x ELSE 0 END AS gain_ratio,
+  CASE WHEN g.h_x + g.h_y > 0 THEN 2 * g.ig / (
+    g.h_x + g.h_y
+  ) ELSE 0 END AS symmetric_uncertainty,
+  2 * g.n_total_f * LN(2) * g.ig AS g_statistic,
+  (
+    g.n_values - 1
+  ) * (
+    g.n_classes - 1
+  ) AS dof
+FROM excluded e
+LEFT JOIN gains g
+  ON 1 = 1
+ORDER BY
+  CASE WHEN g.attr = 0 THEN 0 ELSE 1 END,
+  information_gain DESC NULLS LAST,
+  g.attr;
