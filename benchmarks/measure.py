@@ -46,6 +46,8 @@ class Measurement:
     label: str
     round: int
     seconds: float
+    #: CPU time of the whole worker process (user + system), imports included.
+    cpu_seconds: float
     peak_rss_mib: float
     rss_before_mib: float
     metrics: dict[str, dict[str, float]]
@@ -86,6 +88,7 @@ def run_task(task: Task, round_number: int) -> Measurement:
         label=task.label,
         round=round_number,
         seconds=report["seconds"],
+        cpu_seconds=usage.ru_utime + usage.ru_stime,
         peak_rss_mib=usage.ru_maxrss / 1024,  # ru_maxrss is in KiB on Linux
         rss_before_mib=report["rss_before_kib"] / 1024,
         metrics=report["metrics"],

@@ -65,7 +65,8 @@ SESSION_STATEMENTS = re.compile(
 TIMEOUT_PREFIX = re.compile(r"^SET STATEMENT max_statement_time = \d+(\.\d+)? FOR ")
 #: SQLAlchemy's catalog introspection that is not a SELECT (MariaDB, SQLite).
 CATALOG_STATEMENTS = re.compile(
-    r"^(SHOW FULL TABLES FROM `[^;]*`|SHOW CREATE TABLE `[^;]*`|PRAGMA main\.table_x?info\([^;]*\))$"
+    r"^(SHOW FULL TABLES FROM `[^;]*`|SHOW CREATE TABLE `[^;]*`"
+    r"|PRAGMA main\.table_x?info\([^;]*\))$"
 )
 _WRITE_NODES: tuple[type[exp.Expression], ...] = (exp.DDL, exp.DML, exp.Command, exp.Into,
                                                   exp.Set)
@@ -167,6 +168,16 @@ def fit_name(engine: str, name: str) -> str:
     return name or "_"
 
 
+def fit_table_name(engine: str, name: str) -> str:
+    """``fit_name``, and on MariaDB short enough as a file name: it stores a table as files
+    named with every character but [A-Za-z0-9_] written as 5 bytes (@XXXX), 255 bytes at most."""
+    name = fit_name(engine, name)
+    if engine == "mariadb":
+        while sum(1 if c.isascii() and (c.isalnum() or c == "_") else 5 for c in name) > 200:
+            name = name[:-1].rstrip()
+    return name or "_"
+
+
 def collision_key(name: str) -> str:
     """Names engines may consider equal (case, accents, trailing spaces) share a key."""
     decomposed = unicodedata.normalize("NFKD", name)
@@ -216,7 +227,7 @@ def hostile_tables(draw: st.DrawFn, engine: str) -> tuple[str, Dataset]:
     """A table name and a dataset: target ``y``-like column first, then 1-4 attributes."""
     chosen = draw(st.lists(names.map(lambda n: fit_name(engine, n)), min_size=2, max_size=5,
                            unique_by=collision_key))
-    table = fit_name(engine, draw(names))
+    table = fit_table_name(engine, draw(names))
     rows = draw(st.integers(0, 40))
     # Target: text or integer, 1-6 classes with skewed weights, some NULLs.
     target_kind = draw(st.sampled_from(("text", "integer")))

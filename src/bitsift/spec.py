@@ -274,7 +274,8 @@ def resolve(
     not_numeric = [n for n in forced_num if by_name[n].family not in binnable]
     if not_numeric:
         raise ColumnError(
-            "--numeric needs number, date or timestamp columns; not those: "
+            "--numeric needs number columns (or dates and timestamps, binned as epoch "
+            "seconds); not those: "
             + ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in not_numeric)
         )
     # "other": a column described without a connection (`bitsift sql` with no SOURCE).

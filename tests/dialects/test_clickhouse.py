@@ -2,7 +2,7 @@
 
 GROUPING SETS; non-grouped columns read '' or 0 instead of NULL, which is harmless here because
 the rows of each grouping set are told apart by GROUPING(); sqlglot's quantile is approximate,
-so the window method. Not executed here.
+so the window method. Executed on embedded ClickHouse (chdb) in tests/test_clickhouse.py.
 """
 
 from __future__ import annotations

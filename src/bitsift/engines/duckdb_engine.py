@@ -91,10 +91,29 @@ class DuckDBEngine(Engine):
             raise SourceError(f"cannot read {display}: {_line(error)}") from None
         except duckdb.Error as error:
             raise SourceError(f"cannot read {display}: {_line(error)}") from None
+        self._qualify(table)
         return [
             Column(name=n, family=family_of(str(t), "duckdb"), type_name=str(t))
             for n, t in zip(names, types, strict=True)
         ]
+
+    def _qualify(self, table: exp.Expression) -> None:
+        """Write out the schema of an unqualified table that lives in the current schema, so
+        that a table named like one of the statement's CTEs ("bounds") is not read as that CTE.
+
+        Left as it is when the name resolves elsewhere (a temporary table, a DataFrame the
+        connection scans by name) or nowhere in the catalog.
+        """
+        if not isinstance(table, exp.Table) or table.db or not isinstance(table.this,
+                                                                          exp.Identifier):
+            return
+        places = self.con.execute(
+            "SELECT table_catalog = current_database() AND table_schema = current_schema(), "
+            "table_schema FROM information_schema.tables WHERE lower(table_name) = lower(?)",
+            [table.name],
+        ).fetchall()
+        if len(places) == 1 and places[0][0]:
+            table.set("db", exp.to_identifier(places[0][1], quoted=True))
 
     def _missing_table_message(self, table: exp.Expression, display: str) -> str:
         rows = self.con.execute(

@@ -5,10 +5,14 @@ it is and never stopped; ``bitsift rank --engine spark`` starts a session of its
 DataFrame or Parquet path is read through a uniquely named temporary view, dropped at close,
 so no path or user text is ever spliced into SQL.
 
-Spark has no statement timeout. bitsift tags its own operations (``SparkSession.addTag``)
-and a timer interrupts that tag (``interruptTag``) when ``--timeout`` expires, and again
-every half second until the statement returns (an interrupt that lands before Spark has
-started the operation is otherwise lost).
+Spark has no statement timeout. bitsift tags the jobs of its own statement
+(``SparkContext.addJobTag``, with interrupt-on-cancel) and a timer cancels that tag
+(``cancelJobsWithTag``) when ``--timeout`` expires, and again every half second until the
+statement returns: a cancel that lands while Spark is still planning finds no job yet. Job
+tags add to a caller's job group and tags instead of replacing them, and both thread-local
+properties are restored afterwards. (``SparkSession.interruptTag`` found no operation to
+interrupt on a classic Spark 4.3 session; a Spark Connect session, which has no
+SparkContext, uses it.)
 """
 
 from __future__ import annotations
@@ -18,7 +22,7 @@ import re
 import threading
 import uuid
 import warnings
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -53,6 +57,8 @@ LOCAL_SESSION_CONFIG: dict[str, str] = {
 _MASTER = re.compile(r"^(local(\[[0-9*]+(,\s*[0-9]+)?\])?|yarn|[a-z][a-z0-9+.-]*://\S+)$")
 #: The temporary views bitsift registers (left out of "did you mean" suggestions).
 _OWN_VIEW = re.compile(r"^bitsift_[0-9a-f]{32}$")
+#: The thread-local property behind SparkContext.setInterruptOnCancel.
+_INTERRUPT_PROPERTY = "spark.job.interruptOnCancel"
 #: Repeat the interrupt this often after the deadline until the statement returns.
 _INTERRUPT_RETRY_SECONDS = 0.5
 
@@ -203,7 +209,7 @@ class SparkEngine(Engine):
         if self.timeout:
             timer = threading.Thread(target=self._interrupt_after,
                                      args=(tag, self.timeout, fired, done), daemon=True)
-        self.spark.addTag(tag)
+        restore = self._tag_jobs(tag)
         try:
             if timer is not None:
                 timer.start()
@@ -216,7 +222,7 @@ class SparkEngine(Engine):
             raise QueryError(f"Spark error: {_line(error)}") from None
         finally:
             done.set()
-            self.spark.removeTag(tag)
+            restore()
             if timer is not None:
                 timer.join()
         if fired.is_set():
@@ -232,8 +238,28 @@ class SparkEngine(Engine):
         while not done.is_set():
             # The session may be going away; keep trying until the statement returns.
             with contextlib.suppress(Exception):
-                self.spark.interruptTag(tag)
+                context = _spark_context(self.spark)
+                if context is not None:
+                    context.cancelJobsWithTag(tag)
+                else:
+                    self.spark.interruptTag(tag)
             done.wait(_INTERRUPT_RETRY_SECONDS)
+
+    def _tag_jobs(self, tag: str) -> Callable[[], None]:
+        """Tag the jobs this thread starts (interrupting tasks on cancel); returns the undo."""
+        context = _spark_context(self.spark)
+        if context is None:  # Spark Connect: session-level operation tags
+            self.spark.addTag(tag)
+            return lambda: self.spark.removeTag(tag)
+        previous = context.getLocalProperty(_INTERRUPT_PROPERTY)
+        context.addJobTag(tag)
+        context.setInterruptOnCancel(True)
+
+        def undo() -> None:
+            context.removeJobTag(tag)
+            context.setLocalProperty(_INTERRUPT_PROPERTY, previous)
+
+        return undo
 
     def _timeout_error(self) -> QueryTimeoutError:
         return QueryTimeoutError(
@@ -281,6 +307,14 @@ def open_spark_location(location: str, table: str | None) -> tuple[SparkEngine, 
     except BaseException:
         engine.close()
         raise
+
+
+def _spark_context(session: SparkSession) -> Any:
+    """The session's SparkContext, or None for a Spark Connect session (which has none)."""
+    try:
+        return session.sparkContext
+    except Exception:  # noqa: BLE001 - PySparkNotImplementedError on Spark Connect
+        return None
 
 
 def _condition(error: BaseException) -> str | None:

@@ -271,16 +271,21 @@ class SqlAlchemyEngine(Engine):
         text = sql
         if self.timeout and self.caps.timeout_prefix and not self.borrowed_transaction:
             text = _timeout_text(self.caps.timeout_prefix, self.timeout) + sql
-        self.statements.append(text)
         client_timeout = (self.timeout if self.caps.timeout_in_client
                           and not self.borrowed_transaction else None)
         try:
             self._begin()
+            # Logged after the transaction's own settings, in the order they are sent.
+            self.statements.append(text)
+            cancel = self._server_cancel()
             with self._client_deadline(client_timeout) as fired:
                 try:
                     result = self._execute(text)
                     names = list(result.keys())
                     rows = [tuple(r) for r in result.fetchall()]
+                except KeyboardInterrupt:
+                    cancel()
+                    raise
                 except sa.exc.DBAPIError as error:
                     message = _scrub(_line(error.orig or error), self.secret)
                     if fired() or _TIMEOUT_PATTERNS.search(message):
@@ -292,6 +297,27 @@ class SqlAlchemyEngine(Engine):
         finally:
             self._end()
         return FetchResult(columns=names, rows=rows)
+
+    def _server_cancel(self) -> Callable[[], None]:
+        """What stops the running statement on the server when the user presses Ctrl-C.
+
+        psycopg cancels the query itself on KeyboardInterrupt, and DuckDB and SQLite run in
+        this process. A MySQL-protocol driver (PyMySQL, mysqlclient) only stops reading: the
+        server would run the statement to its end, so bitsift sends ``KILL QUERY <thread id>``
+        for its own session from a second connection. Taken before the statement starts,
+        because SQLAlchemy invalidates the interrupted connection.
+        """
+        thread_id = getattr(self._driver_connection(), "thread_id", None)
+        engine = self.con.engine
+        if not callable(thread_id):
+            return lambda: None
+        session = int(thread_id())
+
+        def kill() -> None:
+            with contextlib.suppress(Exception), engine.connect() as other:  # best effort
+                other.exec_driver_sql(f"KILL QUERY {session}")  # an int from the driver
+
+        return kill
 
     @contextmanager
     def _client_deadline(self, seconds: float | None) -> Iterator[Callable[[], bool]]:

@@ -3,7 +3,9 @@
 SQLite has no statement timeout, and its LN/FLOOR exist only in builds compiled with
 SQLITE_ENABLE_MATH_FUNCTIONS (Python's own sqlite3 3.40 has them, some distributions' builds
 do not). bitsift registers Python's ``math.log`` / ``math.floor`` under those names when the
-connection lacks them, and enforces ``--timeout`` with a progress handler that aborts the
+connection lacks them (and always puts back a FLOOR that keeps SQLite's NULL and infinity
+rules, because SQLAlchemy's pysqlite dialect replaces SQLite's own with ``math.floor``), and
+enforces ``--timeout`` with a progress handler that aborts the
 running statement once the deadline has passed (SQLite then raises "interrupted").
 """
 
@@ -15,6 +17,7 @@ import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from typing import Any
+
 
 def _floor(x: Any) -> Any:
     """SQLite's own FLOOR: NULL stays NULL, infinities stay infinite, integers stay integers."""
