@@ -289,8 +289,8 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
     (:func:`bitsift.concurrent.run_parts`).
     """
     from bitsift import concurrent
-    from bitsift.api import make_options, run_ranking
-    from bitsift.metrics import score
+    from bitsift.api import MAX_ATTRIBUTES_PER_STATEMENT, make_options, run_ranking
+    from bitsift.readout import read_ranking
     from bitsift.sources import open_source
     from bitsift.spec import resolve
 
@@ -303,18 +303,14 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
         if strategy in ("grouping_sets", "union_all", "cross_join"):
             engine.caps = replace(engine.caps, count_strategy=strategy)
             return _scores(run_ranking(engine, spec).attributes)
-        parts, sessions = {
-            "per_attribute_sequential": (len(spec.attributes), 1),
-            "per_attribute_concurrent": (len(spec.attributes), workers),
-            "split_concurrent": (workers, workers),
+        # max_size 1: one part per attribute; otherwise as many parts as sessions.
+        sessions, max_size = {
+            "per_attribute_sequential": (1, 1),
+            "per_attribute_concurrent": (workers, 1),
+            "split_concurrent": (workers, MAX_ATTRIBUTES_PER_STATEMENT),
         }[strategy]
-        cuts, records = concurrent.run_parts(engine, spec, parts, sessions)
-    by_index = {r["attribute_index"]: r for r in records}
-    return _scores(
-        score(by_index[i], a.name, a.kind, spec.options.thresholds, cuts.get(a.name))
-        for i, a in enumerate(spec.attributes, start=1)
-        if i in by_index
-    )
+        records, cuts = concurrent.fetch_records_in_parts(engine, spec, sessions, max_size)
+        return _scores(read_ranking(records, spec, cuts, dialect=engine.caps.name).attributes)
 
 
 def _one_statement() -> dict[str, Any]:

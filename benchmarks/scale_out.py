@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import statistics
 import sys
 import tempfile
@@ -47,7 +48,7 @@ def write_parquet(rows: int, k: int, seed: int, path: Path) -> float:
     return path.stat().st_size / 1e6
 
 
-def timed_ranking(source: Any, repeats_label: str) -> dict[str, Any]:
+def timed_ranking(source: Any, repeats_label: str, **options: Any) -> dict[str, Any]:
     """One ranking with the time of each statement (pre-pass, ranking) and the scan floor."""
     opened = open_source(source)
     times: list[float] = []
@@ -64,7 +65,7 @@ def timed_ranking(source: Any, repeats_label: str) -> dict[str, Any]:
         engine.fetch = timed_fetch  # type: ignore[method-assign]
         start = time.perf_counter()
         columns = engine.columns(opened.table, opened.display)
-        spec = resolve(make_options(TARGET), columns, opened.table, opened.display,
+        spec = resolve(make_options(TARGET, **options), columns, opened.table, opened.display,
                        engine.caps.sqlglot_dialect)
         ranking = run_ranking(engine, spec)
         total = time.perf_counter() - start
@@ -102,12 +103,14 @@ def main() -> None:
     parser.add_argument("--spark-master", default="local[2]")
     parser.add_argument("--spark-driver-memory", default="4g")
     parser.add_argument("--seed", type=int, default=42)
+    parser.add_argument("--binning", help="bitsift's --binning (default: quantile)")
     parser.add_argument("--json", type=Path)
     args = parser.parse_args()
 
     results: list[dict[str, Any]] = []
     meta: dict[str, Any] = {"date": time.strftime("%Y-%m-%d"), "duckdb": duckdb.__version__,
-                            "bitsift": bitsift.__version__}
+                            "bitsift": bitsift.__version__, "binning": args.binning or "quantile",
+                            "load_average_at_start": os.getloadavg()[0]}
     if "spark" in args.engines:
         from pyspark.sql import SparkSession
 
@@ -133,8 +136,10 @@ def main() -> None:
             reference: Ranking | None = None
             for engine in args.engines:
                 source = str(path) if engine == "duckdb" else EngineSource(engine, str(path))
-                timed_ranking(source, "warm-up")
-                runs = [timed_ranking(source, f"run {i}") for i in range(args.repeats)]
+                options = {"binning": args.binning} if args.binning else {}
+                timed_ranking(source, "warm-up", **options)
+                runs = [timed_ranking(source, f"run {i}", **options)
+                        for i in range(args.repeats)]
                 ranking = runs[-1]["ranking"]
                 reference = reference or ranking
                 row = {"engine": engine, "rows": rows, "attributes": args.attributes,

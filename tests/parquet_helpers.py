@@ -10,6 +10,10 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 from helpers import Dataset
 
+#: Column names that need quoting in every dialect (a reserved word, a backtick and a double quote
+#: inside a name), for :meth:`helpers.Dataset.renamed`.
+AWKWARD_NAMES: dict[str, str] = {"word": 'wo`rd"s', "level": "select"}
+
 #: Parquet types of the logical column types of a :class:`helpers.Dataset`.
 ARROW_TYPES: dict[str, pa.DataType] = {
     "text": pa.string(),

@@ -31,7 +31,7 @@ from helpers import (
     golden_path,
     random_dataset,
 )
-from parquet_helpers import write_parquet
+from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
@@ -62,8 +62,8 @@ def chdb_session() -> Any:
 
 @pytest.fixture(scope="module")
 def parquet(tmp_path_factory: pytest.TempPathFactory) -> tuple[Dataset, Path]:
-    """The random table (with NULL targets) as one Parquet file."""
-    dataset = random_dataset(seed=3, rows=1500)
+    """The random table (with NULL targets, awkward column names) as one Parquet file."""
+    dataset = random_dataset(seed=3, rows=1500).renamed(AWKWARD_NAMES)
     path = tmp_path_factory.mktemp("clickhouse-data") / "rows.parquet"
     return dataset, write_parquet(dataset, path)
 

@@ -39,7 +39,6 @@ from helpers import (
     COMPARED_METRICS,
     Dataset,
     fill_duckdb,
-    fill_sqlalchemy,
     numpy_cuts,
     quoted,
 )
@@ -51,7 +50,7 @@ from sqlglot import exp
 import bitsift
 from bitsift import reference
 from bitsift.engines.duckdb_engine import DuckDBEngine
-from bitsift.errors import BitsiftError, ColumnError, DataError, TableNotFoundError
+from bitsift.errors import BitsiftError, ColumnError, DataError, SpecError, TableNotFoundError
 
 # --- what may reach the database ----------------------------------------------------------------
 
@@ -64,9 +63,11 @@ SESSION_STATEMENTS = re.compile(
 #: MariaDB's per-statement timeout prefix, in front of a SELECT.
 TIMEOUT_PREFIX = re.compile(r"^SET STATEMENT max_statement_time = \d+(\.\d+)? FOR ")
 #: SQLAlchemy's catalog introspection that is not a SELECT (MariaDB, SQLite).
+_BACKTICKED = r"`(?:[^`]|``)*`"
+_DOUBLE_QUOTED = r'"(?:[^"]|"")*"'
 CATALOG_STATEMENTS = re.compile(
-    r"^(SHOW FULL TABLES FROM `[^;]*`|SHOW CREATE TABLE `[^;]*`"
-    r"|PRAGMA main\.table_x?info\([^;]*\))$"
+    rf"^(SHOW FULL TABLES FROM {_BACKTICKED}|SHOW CREATE TABLE {_BACKTICKED}(\.{_BACKTICKED})?"
+    rf"|PRAGMA (main|{_DOUBLE_QUOTED})\.table_x?info\({_DOUBLE_QUOTED}\))$"
 )
 _WRITE_NODES: tuple[type[exp.Expression], ...] = (exp.DDL, exp.DML, exp.Command, exp.Into,
                                                   exp.Set)
@@ -131,11 +132,13 @@ def test_statement_classifier_refuses_writes() -> None:
     assert unexpected_statements(["SELECT 1", "WITH a AS (SELECT 1 AS x) SELECT x FROM a",
                                   "SET TRANSACTION READ ONLY",
                                   "SET STATEMENT max_statement_time = 1.500000 FOR SELECT 1",
-                                  "PRAGMA main.table_xinfo(\"t\")"], "mysql") == []
+                                  "PRAGMA main.table_xinfo(\"t;\"\"\")",
+                                  "SHOW CREATE TABLE `d`.`;``DROP`"], "mysql") == []
     writes = ["DROP TABLE t", "INSERT INTO t VALUES (1)", "SELECT 1; DROP TABLE t",
               "CREATE TABLE x AS SELECT 1", "SELECT 1 INTO x", "SET GLOBAL read_only = 0",
               "SET STATEMENT max_statement_time = 1 FOR DELETE FROM t", "UPDATE t SET a = 1",
-              "PRAGMA query_only = OFF; DROP TABLE t", "GRANT ALL ON t TO u"]
+              "PRAGMA query_only = OFF; DROP TABLE t", "GRANT ALL ON t TO u",
+              "SHOW CREATE TABLE `d`.`t`; DROP TABLE t", "PRAGMA main.table_xinfo(\"t\"); DROP"]
     assert unexpected_statements(writes, "mysql") == writes
 
 
@@ -326,11 +329,17 @@ def stored(engine: str, table: str, dataset: Dataset, place: str | None
     writer = sa.create_engine(url, poolclass=sa.pool.NullPool)
     try:
         with writer.begin() as connection:
+            connection.exec_driver_sql(_create_empty(engine, parts, dataset),
+                                       execution_options={"no_parameters": True})
             if dataset.rows:
-                fill_sqlalchemy(engine, connection, parts, dataset)
-            else:
-                connection.exec_driver_sql(_create_empty(engine, parts, dataset),
-                                           execution_options={"no_parameters": True})
+                # A '%' in the table's name is not a placeholder: doubled for pyformat drivers.
+                name = quoted(engine, *parts)
+                if connection.dialect.paramstyle != "qmark":
+                    name = name.replace("%", "%%")
+                mark = "?" if connection.dialect.paramstyle == "qmark" else "%s"
+                marks = ", ".join([mark] * len(dataset.columns))
+                connection.exec_driver_sql(f"INSERT INTO {name} VALUES ({marks})",
+                                           list(dataset.rows))
             back = connection.exec_driver_sql(select + quoted(engine, *parts),
                                               execution_options={"no_parameters": True}).all()
         yield url, quoted(engine, *parts), _read_back(back, dataset)
@@ -547,3 +556,41 @@ def test_postgres_case_variant_names_stay_apart(pg_schema: str) -> None:
         assert ranking["Level"].information_gain == pytest.approx(1.0)
         picked = bitsift.rank(source, table=table_text, target="y", attributes=["level"])
         assert [a.attribute for a in picked.attributes] == ["level"]
+
+
+# --- what fuzzing found, kept as plain regression tests ----------------------------------------
+
+
+@pytest.mark.parametrize("engine", ["duckdb", "sqlite", "postgres", "mariadb"])
+def test_regressions_found_by_fuzzing(engine: str, request: pytest.FixtureRequest) -> None:
+    # A column name with a backtick (SQLAlchemy's MySQL reflection doubled it), a float column
+    # that is NULL on every row (SQLAlchemy's SQLite FLOOR raised on NULL in the quantile
+    # pre-pass), and a table named like one of the statement's CTEs (SQLite: "circular
+    # reference: counts"; DuckDB's paste-ready SQL read the "bounds" CTE instead of the table).
+    big = math.inf if NON_FINITE[engine] else 1e308
+    rows = [(i % 2, i % 3, None, float(i % 4) if i % 5 else big) for i in range(40)]
+    dataset = Dataset(columns=(("y", "integer"), ("a`b", "integer"), ("nothing", "float"),
+                               ("f", "float")), rows=rows)
+    place = _place(engine, request)
+    for table in ("counts", "bounds"):
+        with stored(engine, table, dataset, place) as (source, qualified, data):
+            # Unqualified where the engine allows it: that is where the names collided.
+            table_text = quoted(engine, table) if engine in ("duckdb", "sqlite") else qualified
+            ranking = bitsift.rank(source, table=table_text, target="y")
+            assert_ranked_like_reference(ranking, data)
+            assert ranking["nothing"].distinct == 1 and ranking["nothing"].cuts == []
+            if engine == "duckdb":
+                sql = bitsift.statement(source, table=table_text, target="y")
+                rows_back = source.execute(sql).fetchall()
+                assert len(rows_back) == 4  # the target and three attributes
+
+
+@pytest.mark.parametrize("name", ["counts", "Base", "cells"])
+def test_paste_mode_refuses_an_unqualified_table_named_like_a_step(name: str) -> None:
+    # Without a SOURCE bitsift cannot look up the table's schema: the pasted statement would
+    # read its own CTE instead of the table, so the user is asked to qualify the name.
+    with pytest.raises(SpecError, match=f"table '{name}' has the name of a step"):
+        bitsift.statement(table=name, target="y", attributes="a", dialect="postgres")
+    qualified = bitsift.statement(table=f"public.{name}", target="y", attributes="a",
+                                  dialect="postgres")
+    assert f'FROM "public"."{name}" AS src' in qualified

@@ -32,7 +32,7 @@ from helpers import (
     random_dataset,
     rank_with,
 )
-from parquet_helpers import write_parquet
+from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
@@ -93,8 +93,8 @@ def _java_home() -> bool:
 
 @pytest.fixture(scope="module")
 def parquet(tmp_path_factory: pytest.TempPathFactory) -> tuple[Any, Path]:
-    """The random table (with NULL targets) as one Parquet file."""
-    dataset = random_dataset(seed=3, rows=1500)
+    """The random table (with NULL targets, awkward column names) as one Parquet file."""
+    dataset = random_dataset(seed=3, rows=1500).renamed(AWKWARD_NAMES)
     path = tmp_path_factory.mktemp("spark-data") / "rows.parquet"
     return dataset, write_parquet(dataset, path)
 
@@ -121,14 +121,16 @@ def test_parquet_matches_reference_and_duckdb(spark: Any, parquet: tuple[Any, Pa
 
 def test_dataframe_with_where_and_forced_numeric(spark: Any, parquet: tuple[Any, Path]) -> None:
     dataset, path = parquet
-    options: dict[str, Any] = {"numeric": "level", "bins": 4, "where": "noise <> 'q'"}
+    options: dict[str, Any] = {"numeric": "select", "bins": 4,
+                               "where": "noise <> 'q' AND `select` <> 3"}
     ranking = bitsift.rank(spark.read.parquet(str(path)), target="y", **options)
     duck = bitsift.rank(str(path), target="y", **options)
     assert_same_ranking(ranking, duck, "spark DataFrame vs duckdb")
-    assert ranking["level"].kind == "numeric" and ranking["level"].cuts
-    noise = dataset.names.index("noise")
-    kept = dataclasses.replace(dataset, rows=[r for r in dataset.rows if r[noise] != "q"])
-    assert_matches_reference(ranking, kept, "y", numeric=(*NUMERIC_COLUMNS, "level"), bins=4,
+    assert ranking["select"].kind == "numeric" and ranking["select"].cuts
+    noise, level = dataset.names.index("noise"), dataset.names.index("select")
+    kept = dataclasses.replace(dataset, rows=[r for r in dataset.rows
+                                              if r[noise] != "q" and r[level] not in (3, None)])
+    assert_matches_reference(ranking, kept, "y", numeric=(*NUMERIC_COLUMNS, "select"), bins=4,
                              context="spark DataFrame, --where")
 
 
@@ -140,7 +142,7 @@ def test_catalog_table_and_window_quantiles(spark: Any, parquet: tuple[Any, Path
     spark.read.parquet(str(path)).createTempView(name)
     try:
         ranking = rank_with(spark, name, "y", quantile="window",
-                            attributes=["word", "score", "price"])
+                            attributes=[AWKWARD_NAMES["word"], "score", "price"])
     finally:
         spark.catalog.dropTempView(name)
     assert_matches_reference(ranking, dataset, "y", numeric=NUMERIC_COLUMNS,
@@ -170,7 +172,7 @@ def test_cli_rank_and_check_with_engine_spark(spark: Any, parquet: tuple[Any, Pa
     for scored in duck.attributes:
         assert abs(got[scored.attribute] - scored.information_gain) <= 1e-9
     checked = runner.invoke(cli, ["check", str(path), "--engine", "spark", "--target", "y",
-                                  "--attributes", "word,score"])
+                                  "--attributes", "select,score"])
     assert checked.exit_code == 0, checked.output
     assert "database and reference agree" in checked.output
 

@@ -10,10 +10,11 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+import sqlglot
 from sqlglot import exp
 
-from bitsift import discretize, reference
-from bitsift.dialects import capabilities
+from bitsift import concurrent, discretize, reference
+from bitsift.dialects import Capabilities, capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
 from bitsift.readout import read_ranking, read_segments
@@ -142,13 +143,15 @@ def _label_binning(ranking: Ranking, spec: RankSpec) -> None:
 
 
 #: Attributes per ranking statement in run mode; wider tables are ranked in batches, one
-#: statement (and one scan) each. The statement grows with the square of its attributes
-#: (every partition lists them all) and engines plan it superlinearly: measured 2026-12-02 on
-#: 2,000 rows of 50/100/200/500 integer attributes (2-core machine, shared): PostgreSQL
-#: 0.2/0.2/1.0/36 s, MariaDB 0.9/1.2/4.3 s (500 not tried), SQLite 0.5/1.1/3.7 s and
-#: "too many terms in compound SELECT" at 500, DuckDB 0.1/0.5/0.9 s (150) and 5.4 s at 500.
-#: Paste mode (`bitsift sql`) stays one statement whatever the width.
-MAX_ATTRIBUTES_PER_STATEMENT = 100
+#: statement (and one scan) each. Engines plan a statement superlinearly in its attributes,
+#: and the union_all strategy's text grows with their square (every branch lists them all).
+#: Measured 2026-12-02 (2-core machine, shared, so +-50 %), 2,000 rows of integer attributes
+#: in one statement: 50/100/200/500 attributes took PostgreSQL 0.2/0.2/1.0/36 s, MariaDB
+#: 0.9/1.2/4.3 s (500 not tried), SQLite 0.5/1.1/3.7 s and "too many terms in compound
+#: SELECT" at 500, DuckDB 0.1/0.5/0.9 s (150)/5.4 s (500); building the SQLite/MariaDB
+#: statement (sqlglot) costs 0.3/1.0 s of CPU at 50/100. 500 attributes in batches of
+#: 25/50/100 on DuckDB: 2.2/2.2/2.9 s of CPU. Paste mode (`bitsift sql`) stays one statement.
+MAX_ATTRIBUTES_PER_STATEMENT = 50
 
 
 def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
@@ -159,6 +162,11 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
     The target's rows (``attribute_index`` 0, and NULL for a segment without a target) are
     the same in every batch: the first batch's are kept.
     """
+    sessions = concurrent.sessions_for(engine, spec)
+    if sessions > 1:
+        # The dialect's run_sessions: parts of the attributes at once (benchmarks/RESULTS.md).
+        return concurrent.fetch_records_in_parts(engine, spec, sessions,
+                                                 MAX_ATTRIBUTES_PER_STATEMENT)
     records: list[dict[str, Any]] = []
     cuts: dict[str, list[float]] = {}
     for offset in range(0, len(spec.attributes), MAX_ATTRIBUTES_PER_STATEMENT):
@@ -228,7 +236,8 @@ def statement(
             spec = resolve(spec_options, columns, opened.table, opened.display,
                            engine.caps.sqlglot_dialect)
             # MDL's cut points need a Python step: computed here and inlined as literals.
-            return paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec))
+            return _unshadowed(paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec)),
+                               spec, caps)
     if not table:
         raise SpecError("--table is required without a SOURCE")
     if not spec_options.attributes and not spec_options.numeric:
@@ -242,7 +251,26 @@ def statement(
     )
     source_table = parse_table_name(table, caps.sqlglot_dialect)
     spec = resolve(spec_options, columns, source_table, table, caps.sqlglot_dialect)
-    return paste_statement(spec, caps)
+    return _unshadowed(paste_statement(spec, caps), spec, caps)
+
+
+def _unshadowed(text: str, spec: RankSpec, caps: Capabilities) -> str:
+    """``text``, unless its table is unqualified and named like one of its CTEs (``bounds``,
+    ``counts``...): the database would read that CTE instead of the table."""
+    table = spec.source
+    if not isinstance(table, exp.Table) or table.db or not isinstance(table.this,
+                                                                      exp.Identifier):
+        return text
+    try:
+        tree = sqlglot.parse_one(text, read=caps.sqlglot_dialect)
+    except sqlglot.errors.SqlglotError:  # pragma: no cover - bitsift's own SQL parses
+        return text
+    steps = {cte.alias.lower() for cte in tree.find_all(exp.CTE)}
+    if table.name.lower() in steps:
+        raise SpecError(f"table {table.name!r} has the name of a step of the ranking statement, "
+                        f"which would be read instead: write it with its schema, e.g. "
+                        f"--table public.{table.name}")
+    return text
 
 
 def _options_dict(options: RankOptions) -> dict[str, Any]:

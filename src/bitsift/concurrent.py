@@ -1,20 +1,25 @@
-"""Run mode over a small connection pool: one attribute per statement, statements in parallel.
+"""Run mode over a small pool of sessions: the attributes cut into parts, the parts in parallel.
 
-Each attribute is one job on one connection: its quantile boundaries (numeric attributes),
-then bitsift's own ranking statement for a spec narrowed to that attribute. The jobs run on
-``connections`` sessions at once, so the engine works on several statements together (on
-DuckDB they share its thread pool; on PostgreSQL each is a server process). The numbers are
-those of the one-statement ranking; only the cutting of the work differs. Paste mode
-(``bitsift sql``) stays one statement.
+Each part is a spec narrowed to some of the attributes; its job is bitsift's usual pair of
+statements for that spec (the quantile boundaries of its numeric attributes, then the ranking
+statement), run on one session of the pool. The parts run on ``sessions`` sessions at once, so
+the engine works on several statements together: on DuckDB they share its thread pool (and
+DuckDB's ungrouped quantile aggregates, finished one after the other on one thread inside a
+statement, then finish in parallel); on PostgreSQL each session is a server process. The
+numbers are those of the one-statement ranking; only the cutting of the work differs.
 
-Why and where it is the default: benchmarks/RESULTS.md (the ``run_connections`` field of the
-capability table).
+Only run mode uses this (``bitsift sql`` prints one statement), and only on sessions bitsift
+opened itself: a caller's connection may hold temporary tables, an open transaction or a
+DataFrame scanned by name, none of which a second session would see.
+
+The ``run_sessions`` field of the capability table turns it on per dialect; the measurements
+behind each choice are in benchmarks/RESULTS.md.
 """
 
 from __future__ import annotations
 
 import queue
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from concurrent.futures import ThreadPoolExecutor
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
@@ -28,22 +33,35 @@ from bitsift.sqlbuild import rank_statement
 
 Record = dict[str, Any]
 
+#: Relative cost of an attribute in a part: a numeric one adds a quantile pre-pass and binning.
+_WEIGHT = {"numeric": 4, "categorical": 1}
+
+
+def sessions_for(engine: Engine, spec: RankSpec) -> int:
+    """How many sessions the ranking of ``spec`` runs on (1: one statement, as usual)."""
+    if len(spec.attributes) < 2 or not getattr(engine, "owned", False):
+        return 1
+    if not isinstance(engine, DuckDBEngine | SqlAlchemyEngine):
+        return 1
+    return max(1, min(engine.caps.run_sessions, len(spec.attributes)))
+
 
 def open_sibling(engine: Engine, timeout: float | None) -> Engine:
-    """A second session on the same database, with the same capabilities and timeout.
+    """Another session on the same database, with the same capabilities and timeout.
 
-    Its session statements (read-only, timeout) and every statement it sends are logged in
-    ``engine.statements``, so ``--debug`` and :attr:`Ranking.statements` show them all.
+    Its session statements and every statement it sends are logged in ``engine.statements``,
+    so ``--debug`` and :attr:`~bitsift.result.Ranking.statements` show them all.
     """
     sibling: Engine
     if isinstance(engine, DuckDBEngine):
         # cursor(): a new connection to the same database instance, read-only if it is.
         sibling = DuckDBEngine(caps=engine.caps, connection=engine.con.cursor(), owned=True)
     elif isinstance(engine, SqlAlchemyEngine):
-        # A new connection from the same SQLAlchemy engine, made read-only like the first.
+        # A new connection from the same SQLAlchemy engine, prepared like the first one.
         sibling = SqlAlchemyEngine.wrap(engine.con.engine)
         sibling.caps = engine.caps
-    else:  # pragma: no cover - every engine bitsift has is listed above
+        sibling.secret = engine.secret
+    else:  # pragma: no cover - sessions_for() lets no other engine through
         raise TypeError(f"no second session for {type(engine).__name__}")
     engine.statements.extend(sibling.statements)
     sibling.statements = engine.statements
@@ -51,32 +69,72 @@ def open_sibling(engine: Engine, timeout: float | None) -> Engine:
     return sibling
 
 
+@dataclass(frozen=True)
+class SessionPool:
+    """The sessions of one ranking, and a queue of the idle ones."""
+
+    members: list[Engine]
+    idle: queue.Queue[Engine]
+
+    def interrupt(self) -> None:
+        """Ask DuckDB sessions to stop (``interrupt()`` is safe from another thread there);
+        a statement on a server runs on to its timeout, if one was set."""
+        for member in self.members:
+            if isinstance(member, DuckDBEngine) and member.connection is not None:
+                member.connection.interrupt()
+
+
 @contextmanager
-def engine_pool(engine: Engine, size: int, timeout: float | None) -> Iterator[queue.Queue[Engine]]:
-    """``engine`` and ``size - 1`` sibling sessions in a queue; the siblings close afterwards."""
+def session_pool(engine: Engine, size: int, timeout: float | None) -> Iterator[SessionPool]:
+    """``engine`` and ``size - 1`` sibling sessions; the siblings close afterwards."""
     siblings: list[Engine] = []
     try:
         for _ in range(size - 1):
             siblings.append(open_sibling(engine, timeout))
-        pool: queue.Queue[Engine] = queue.Queue()
+        idle: queue.Queue[Engine] = queue.Queue()
         for member in [engine, *siblings]:
-            pool.put(member)
-        yield pool
+            idle.put(member)
+        yield SessionPool(members=[engine, *siblings], idle=idle)
     finally:
         for sibling in siblings:
             sibling.close()
 
 
+def split(attributes: Sequence[AttributeSpec], parts: int,
+          max_size: int | None = None) -> list[list[int]]:
+    """Attribute positions cut into at most ``parts`` groups of about equal cost.
+
+    Heaviest first onto the lightest group that has room (the LPT rule); no group gets more
+    than ``max_size`` attributes (give enough ``parts`` for them all); each keeps table order.
+
+    >>> from bitsift.spec import AttributeSpec
+    >>> kinds = ["numeric", "categorical", "categorical", "numeric", "categorical"]
+    >>> split([AttributeSpec(f"a{i}", k, "") for i, k in enumerate(kinds)], 2)
+    [[0, 1, 4], [2, 3]]
+    """
+    count = max(1, min(parts, len(attributes)))
+    if max_size is not None and count * max_size < len(attributes):
+        raise ValueError(f"{len(attributes)} attributes do not fit in {count} x {max_size}")
+    groups: list[list[int]] = [[] for _ in range(count)]
+    loads = [0] * count
+    for i in sorted(range(len(attributes)), key=lambda i: -_WEIGHT[attributes[i].kind]):
+        room = [g for g in range(count) if max_size is None or len(groups[g]) < max_size]
+        lightest = min(room, key=lambda g: loads[g])
+        groups[lightest].append(i)
+        loads[lightest] += _WEIGHT[attributes[i].kind]
+    return [sorted(group) for group in groups if group]
+
+
 @dataclass(frozen=True)
 class PartResult:
-    """What one part's job returns: its boundaries and its result rows (indices local to it)."""
+    """One part's boundaries and result rows (``attribute_index`` local to the part)."""
 
     cuts: dict[str, list[float]]
     records: list[Record]
 
 
-def _part_job(engine: Engine, spec: RankSpec) -> PartResult:
-    """Boundaries of the part's numeric attributes, then its ranking statement."""
+def _run_part(engine: Engine, spec: RankSpec) -> PartResult:
+    """The boundaries pre-pass and the ranking statement of one part, on one session."""
     from bitsift.api import fetch_cuts  # api imports this module: import at call time
 
     cuts = fetch_cuts(engine, spec)
@@ -84,80 +142,59 @@ def _part_job(engine: Engine, spec: RankSpec) -> PartResult:
     return PartResult(cuts=cuts, records=records)
 
 
-def _on_pool(pool: queue.Queue[Engine], spec: RankSpec) -> PartResult:
-    member = pool.get()
+def _run_on_pool(pool: SessionPool, spec: RankSpec) -> PartResult:
+    member = pool.idle.get()
     try:
-        return _part_job(member, spec)
+        return _run_part(member, spec)
     finally:
-        pool.put(member)
+        pool.idle.put(member)
 
 
-#: Relative cost of an attribute in a job: a numeric one adds a quantile pre-pass and binning.
-_WEIGHT = {"numeric": 4, "categorical": 1}
+def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_size: int,
+                           ) -> tuple[list[Record], dict[str, list[float]]]:
+    """Result rows and cut points of the ranking, as :func:`bitsift.api.fetch_records` returns
+    them, computed in parts run at once on ``sessions`` sessions.
 
-
-def split(attributes: tuple[AttributeSpec, ...], parts: int) -> list[list[int]]:
-    """Attribute positions cut into at most ``parts`` groups of about equal cost.
-
-    Heaviest first onto the lightest group (the LPT rule); each group keeps table order.
-
-    >>> from bitsift.spec import AttributeSpec
-    >>> a = tuple(AttributeSpec(n, k, "") for n, k in
-    ...           [("a", "numeric"), ("b", "categorical"), ("c", "categorical"),
-    ...            ("d", "numeric")])
-    >>> split(a, 2)
-    [[0, 1], [2, 3]]
+    The attributes are cut into ``sessions`` parts of about equal cost (more if one part would
+    hold more than ``max_size`` attributes); each part is the boundaries pre-pass and the
+    ranking statement of the spec narrowed to it.
     """
-    groups: list[list[int]] = [[] for _ in range(min(parts, len(attributes)))]
-    loads = [0] * len(groups)
-    order = sorted(range(len(attributes)), key=lambda i: -_WEIGHT[attributes[i].kind])
-    for i in order:
-        lightest = loads.index(min(loads))
-        groups[lightest].append(i)
-        loads[lightest] += _WEIGHT[attributes[i].kind]
-    return [sorted(g) for g in groups if g]
-
-
-def run_parts(engine: Engine, spec: RankSpec, parts: int, sessions: int,
-              ) -> tuple[dict[str, list[float]], list[Record]]:
-    """The boundaries and result rows of the one-statement ranking, computed in ``parts`` jobs.
-
-    Each job is the boundaries pre-pass and the ranking statement of a spec narrowed to a
-    group of attributes (:func:`split`); jobs run on ``sessions`` sessions at once. Returns
-    ``(cuts, records)`` as :func:`bitsift.api.fetch_cuts` and the one ranking statement
-    would: the target row (``attribute_index`` 0) once, then one row per attribute with its
-    position in ``spec.attributes`` (1-based).
-    """
-    groups = split(spec.attributes, parts)
+    parts = max(sessions, -(-len(spec.attributes) // max_size))
+    groups = split(spec.attributes, parts, max_size)
     narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
-    sessions = max(1, min(sessions, len(narrowed)))
-    if sessions == 1:
-        results = [_part_job(engine, part) for part in narrowed]
-    else:
-        with engine_pool(engine, sessions, spec.options.timeout) as pool, ThreadPoolExecutor(
-            max_workers=sessions, thread_name_prefix="bitsift"
-        ) as executor:
-            futures = [executor.submit(_on_pool, pool, part) for part in narrowed]
-            try:
-                results = [future.result() for future in futures]
-            except BaseException:
-                for future in futures:
-                    future.cancel()
-                raise
+    size = max(1, min(sessions, len(narrowed)))
+    if size == 1:
+        return _merge(groups, [_run_part(engine, part) for part in narrowed])
+    with session_pool(engine, size, spec.options.timeout) as pool, ThreadPoolExecutor(
+        max_workers=size, thread_name_prefix="bitsift"
+    ) as executor:
+        futures = [executor.submit(_run_on_pool, pool, part) for part in narrowed]
+        try:
+            results = [future.result() for future in futures]
+        except BaseException:
+            # A failed part or Ctrl-C: drop the parts not started, stop the running ones.
+            for future in futures:
+                future.cancel()
+            pool.interrupt()
+            raise
     return _merge(groups, results)
 
 
 def _merge(groups: list[list[int]], results: list[PartResult],
-           ) -> tuple[dict[str, list[float]], list[Record]]:
+           ) -> tuple[list[Record], dict[str, list[float]]]:
+    """One statement's rows from the parts': attribute rows renumbered to the whole spec.
+
+    The target's rows (``attribute_index`` 0, and NULL for a segment without a target) are
+    the same in every part: the first part's are kept.
+    """
+    records: list[Record] = []
     cuts: dict[str, list[float]] = {}
-    for result in results:
+    for number, (group, result) in enumerate(zip(groups, results, strict=True)):
         cuts.update(result.cuts)
-    # Every job computed the same target row; take the first job's.
-    records = [r for r in results[0].records if r["attribute_index"] == 0]
-    for group, result in zip(groups, results, strict=True):
-        for r in result.records:
-            local = r["attribute_index"]
-            if local:
-                records.append({**r, "attribute_index": group[local - 1] + 1})
-    records[1:] = sorted(records[1:], key=lambda r: r["attribute_index"])
-    return cuts, records
+        for record in result.records:
+            index = record["attribute_index"]
+            if index is not None and int(index) > 0:
+                records.append({**record, "attribute_index": group[int(index) - 1] + 1})
+            elif number == 0:
+                records.append(record)
+    return records, cuts

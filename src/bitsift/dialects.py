@@ -5,12 +5,12 @@ The query builder never asks "is this PostgreSQL?"; it asks the dialect's
 one test file, ``tests/dialects/test_<name>.py``).
 
 Entries marked ``executed_in_tests`` were checked by executing the generated SQL on
-DuckDB 2.0, SQLite 3.40, PostgreSQL 15 and MariaDB 10.11 against the NumPy reference
-(tests/test_parity.py, tests/test_golden.py); the others come from sqlglot's output, the
-pitfalls in design.md and the vendors' documentation (tests/dialects/). Once, by hand
-(2026-12-01, not in the suite), the golden clickhouse statements ran on chdb 4.4 and the
-spark and databricks ones on a local Spark 4.3, on the golden test's random table: every
-attribute matched DuckDB's ranking.
+DuckDB 2.0, SQLite 3.40, PostgreSQL 15 and MariaDB 10.11 (tests/test_parity.py,
+tests/test_golden.py), Spark 4.3 local[2] (tests/test_spark.py) and ClickHouse 26.9 embedded as
+chdb 4.4 (tests/test_clickhouse.py) against the NumPy reference; the others come from sqlglot's
+output, the pitfalls in design.md and the vendors' documentation (tests/dialects/). Once, by
+hand (2026-12-01, not in the suite), the golden databricks statements ran on a local Spark 4.3
+too: every attribute matched DuckDB's ranking.
 
 Why each engine's count strategy
 --------------------------------
@@ -98,6 +98,10 @@ class Capabilities:
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
     quantile: QuantileMethod = "window"
+    #: Run mode only: cut the attributes into this many statements (each after its own
+    #: boundaries pre-pass) and run them at once, one per session (bitsift.concurrent), when
+    #: bitsift opened the source itself. 1: one statement. Measured in benchmarks/RESULTS.md.
+    run_sessions: int = 1
     #: Type (spelled in the dialect) that grouped text values are cast to so that they compare
     #: byte-exactly. ``None``: the engine's default comparison already tells 'a' from 'A'
     #: and 'x' from 'x '. MySQL/MariaDB's default collations are case-insensitive and
@@ -149,6 +153,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="duckdb",
             sqlglot_dialect="duckdb",
             quantile="quantile_cont",
+            run_sessions=2,
             timeout_in_client=True,
             executed_in_tests=True,
         ),
@@ -170,6 +175,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="postgres",
             sqlglot_dialect="postgres",
             quantile="percentile_cont",
+            run_sessions=2,
             timeout_statement="SET LOCAL statement_timeout = {ms}",
             read_only_statement="SET TRANSACTION READ ONLY",
             executed_in_tests=True,

@@ -132,7 +132,12 @@ class SparkEngine(Engine):
         sql = import_pyspark()
         active = sql.SparkSession.getActiveSession()
         if active is not None:
-            return cls(caps=capabilities("spark"), session=active, owned=False)
+            engine = cls(caps=capabilities("spark"), session=active, owned=False)
+            running = _master_of(active)
+            if master and running and running != master:
+                engine.notes.append(f"a Spark session is already active in this process "
+                                    f"(master {running}); it was used instead of {master}")
+            return engine
         builder = sql.SparkSession.builder
         for key, value in LOCAL_SESSION_CONFIG.items():
             builder = builder.config(key, value)
@@ -315,6 +320,11 @@ def _spark_context(session: SparkSession) -> Any:
         return session.sparkContext
     except Exception:  # noqa: BLE001 - PySparkNotImplementedError on Spark Connect
         return None
+
+
+def _master_of(session: SparkSession) -> str | None:
+    context = _spark_context(session)
+    return None if context is None else str(context.master)
 
 
 def _condition(error: BaseException) -> str | None:

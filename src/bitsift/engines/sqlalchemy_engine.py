@@ -253,9 +253,21 @@ class SqlAlchemyEngine(Engine):
             # as that CTE (SQLite: "circular reference: counts").
             table.set("db", exp.to_identifier(default_schema, quoted=True))
         return [
-            Column(name=c["name"], family=_family(c["type"]), type_name=str(c["type"]))
+            Column(name=self._reflected_name(c["name"]), family=_family(c["type"]),
+                   type_name=str(c["type"]))
             for c in columns
         ]
+
+    def _reflected_name(self, name: str) -> str:
+        """A column name as the catalog spells it.
+
+        SQLAlchemy's MySQL/MariaDB reflection reads names out of ``SHOW CREATE TABLE`` and
+        leaves a backtick inside a name doubled (column a`b comes back as a``b, seen with
+        SQLAlchemy 2.1.9), so the quoted name would not be found.
+        """
+        if self.con.dialect.name in ("mysql", "mariadb"):
+            return name.replace("``", "`")
+        return name
 
     def set_timeout(self, seconds: float | None) -> None:
         if not seconds:

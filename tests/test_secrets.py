@@ -1,0 +1,384 @@
+"""Secrets: a database password never appears in bitsift's output, logs, error messages, history
+rows, reports or ``--debug`` traces, and may come from an environment variable instead of the URL.
+
+A MariaDB user with a password full of URL-special characters reads a scratch database; a
+PostgreSQL role with a password owns the results destination (this server trusts local
+connections, so the role's password is not checked, but it travels in the URL all the same).
+Both spellings of each password, as typed and URL-encoded, are searched for everywhere.
+tests/test_safety.py covers URL masking and the plain wrong-password and environment cases;
+this file covers every other surface.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import subprocess
+import sys
+import textwrap
+import traceback
+import uuid
+from collections.abc import Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+from urllib.parse import quote
+
+import pytest
+import sqlalchemy as sa
+from conftest import MARIADB_URL, POSTGRES_URL, unique_name
+
+import bitsift
+from bitsift.cli import main
+from bitsift.errors import BitsiftError
+
+pytestmark = [pytest.mark.mariadb, pytest.mark.postgres]
+
+
+@dataclass(frozen=True)
+class Account:
+    """A database login whose password must stay hidden."""
+
+    user: str
+    password: str
+    #: The scratch database (MariaDB) or schema (PostgreSQL) it may use.
+    place: str
+
+    @property
+    def secrets(self) -> tuple[str, str]:
+        return self.password, quote(self.password, safe="")
+
+    def url(self, base: str, *, password: str | None = None, database: str | None = None
+            ) -> str:
+        """``base`` with this user (and ``password``, default its own), URL-encoded."""
+        url = sa.make_url(base)
+        secret = self.password if password is None else password
+        url = url.set(username=self.user, password=secret or None)
+        if database is not None:
+            url = url.set(database=database)
+        return url.render_as_string(hide_password=False)
+
+
+def _run(connection: sa.Connection, statement: str) -> None:
+    connection.exec_driver_sql(statement, execution_options={"no_parameters": True})
+
+
+def _password() -> str:
+    # URL-special characters: each must be URL-encoded, and is then hidden in both spellings.
+    return f"Pw{uuid.uuid4().hex[:12]}%@:/?#&=+"
+
+
+@pytest.fixture(scope="module")
+def reader(mariadb_engine: sa.Engine) -> Iterator[Account]:
+    """A MariaDB user with a password and its own database holding ``t`` (60 rows) and ``big``
+    (300,000 rows, for timeouts)."""
+    account = Account(f"bitsift_s_{uuid.uuid4().hex[:8]}", _password(), unique_name())
+    with mariadb_engine.begin() as connection:
+        _run(connection, f"CREATE DATABASE `{account.place}`")
+        _run(connection, f"CREATE TABLE `{account.place}`.t AS SELECT seq % 4 AS a, "
+                         "seq % 3 AS b, seq % 2 AS y FROM seq_1_to_60")
+        _run(connection, f"CREATE TABLE `{account.place}`.big AS SELECT seq % 7 AS a, "
+                         "(seq * 13) % 1000 AS b, seq % 3 AS y FROM seq_1_to_300000")
+        for host in ("%", "localhost"):
+            _run(connection, f"CREATE USER '{account.user}'@'{host}' "
+                             f"IDENTIFIED BY '{account.password}'")
+            _run(connection, f"GRANT ALL ON `{account.place}`.* TO '{account.user}'@'{host}'")
+    try:
+        yield account
+    finally:
+        with mariadb_engine.begin() as connection:
+            for host in ("%", "localhost"):
+                _run(connection, f"DROP USER '{account.user}'@'{host}'")
+            _run(connection, f"DROP DATABASE `{account.place}`")
+
+
+@pytest.fixture(scope="module")
+def writer(postgres_engine: sa.Engine) -> Iterator[Account]:
+    """A PostgreSQL role with a password that may create tables in its own schema."""
+    account = Account(f"bitsift_s_{uuid.uuid4().hex[:8]}", _password(), unique_name())
+    literal = account.password.replace("'", "''")
+    with postgres_engine.begin() as connection:
+        _run(connection, f"CREATE ROLE {account.user} LOGIN PASSWORD '{literal}'")
+        _run(connection, f'CREATE SCHEMA "{account.place}" AUTHORIZATION {account.user}')
+    try:
+        yield account
+    finally:
+        with postgres_engine.begin() as connection:
+            _run(connection, f'DROP SCHEMA "{account.place}" CASCADE')
+            _run(connection, f"DROP ROLE {account.user}")
+
+
+def assert_hidden(account: Account, *texts: str) -> None:
+    for text in texts:
+        for secret in account.secrets:
+            assert secret not in text, f"password found in: {text[:300]!r}"
+
+
+def cli(*args: str, debug_logging: bool = False, env: dict[str, str] | None = None
+        ) -> subprocess.CompletedProcess[str]:
+    """``bitsift ARGS`` in a fresh interpreter; with ``debug_logging``, every Python logger
+    (SQLAlchemy's engine and pool, the drivers) writes at DEBUG to stderr."""
+    setup = ("import logging; logging.basicConfig(level=logging.DEBUG); "
+             "logging.getLogger('sqlalchemy').setLevel(logging.DEBUG)\n") if debug_logging else ""
+    return subprocess.run(
+        [sys.executable, "-c", setup + "from bitsift.cli import main; main()", *args],
+        capture_output=True, text=True, timeout=180, check=False, env=env,
+    )
+
+
+@dataclass
+class Outcome:
+    code: int
+    out: str
+    err: str
+
+    @property
+    def texts(self) -> tuple[str, str]:
+        return self.out, self.err
+
+
+def run_main(capsys: pytest.CaptureFixture[str], *args: str) -> Outcome:
+    """``bitsift ARGS`` in this process (quicker than a subprocess). With --debug an error
+    escapes ``main`` as it would reach Python's top level: its traceback, formatted as Python
+    prints it, is added to stderr."""
+    trace = ""
+    try:
+        main(list(args))
+        code = 0
+    except SystemExit as exit_:
+        code = exit_.code if isinstance(exit_.code, int) else 1
+    except Exception as error:  # noqa: BLE001 - what --debug lets through
+        code = 1
+        trace = "".join(traceback.format_exception(error))
+    out, err = capsys.readouterr()
+    return Outcome(code, out, err + trace)
+
+
+# --- output and logs of a working ranking -------------------------------------------------------
+
+
+def test_ranking_output_and_debug_trace_in_a_real_process(reader: Account) -> None:
+    url = reader.url(MARIADB_URL, database=reader.place)
+    done = cli("--debug", "rank", url, "--table", "t", "--target", "y", debug_logging=True)
+    assert done.returncode == 0, done.stderr
+    assert "-- sent to mariadb:" in done.stderr  # --debug printed the statements
+    assert "sqlalchemy.engine" in done.stderr and "SELECT" in done.stderr  # logs on
+    assert_hidden(reader, done.stdout, done.stderr)
+
+
+@pytest.mark.parametrize("fmt", ["json", "csv", "markdown"])
+def test_ranking_output_formats(reader: Account, fmt: str, capsys: pytest.CaptureFixture[str],
+                                caplog: pytest.LogCaptureFixture) -> None:
+    caplog.set_level(logging.DEBUG, logger="sqlalchemy")
+    url = reader.url(MARIADB_URL, database=reader.place)
+    done = run_main(capsys, "--debug", "rank", url, "--table", "t", "--target", "y",
+                    "--format", fmt)
+    assert done.code == 0, done.err
+    assert "SELECT" in caplog.text
+    assert_hidden(reader, *done.texts, caplog.text)
+
+
+def test_library_results_and_debug_logs(reader: Account, caplog: pytest.LogCaptureFixture,
+                                        capsys: pytest.CaptureFixture[str]) -> None:
+    caplog.set_level(logging.DEBUG)
+    caplog.set_level(logging.DEBUG, logger="sqlalchemy")  # SQLAlchemy's loggers start at WARN
+    url = reader.url(MARIADB_URL, database=reader.place)
+    ranking = bitsift.rank(url, table="t", target="y")
+    assert ranking.rows == 60
+    sql = bitsift.statement(url, table="t", target="y", dialect="postgres")
+    check = bitsift.check(url, table="t", target="y")
+    assert check.ok
+    # A caller's Engine with SQLAlchemy's own echo, at its most verbose.
+    engine = sa.create_engine(url, echo="debug", echo_pool="debug", poolclass=sa.pool.NullPool)
+    try:
+        echoed = bitsift.rank(engine, table="t", target="y")
+    finally:
+        engine.dispose()
+        # echo added stdout handlers to SQLAlchemy's loggers: take them away again.
+        for name in ("sqlalchemy.engine.Engine", "sqlalchemy.pool.impl.NullPool"):
+            for handler in list(logging.getLogger(name).handlers):
+                logging.getLogger(name).removeHandler(handler)
+    out, err = capsys.readouterr()
+    assert "SELECT" in caplog.text + out + err  # the logs did record the statements
+    assert_hidden(reader, caplog.text, out, err, sql, repr(ranking), str(ranking.to_dict()),
+                  repr(echoed), repr(check))
+
+
+# --- error messages -----------------------------------------------------------------------------
+
+
+def _failures(account: Account) -> dict[str, tuple[str, dict[str, Any]]]:
+    """A failing request per surface: URL and options, and a word the error must contain."""
+    good = account.url(MARIADB_URL, database=account.place)
+    return {
+        "wrong password": (account.url(MARIADB_URL, password=account.password + "x",
+                                       database=account.place),
+                           {"table": "t", "target": "y"}),
+        "no such database": (account.url(MARIADB_URL, database=account.place + "_none"),
+                             {"table": "t", "target": "y"}),
+        "refused connection": (account.url("mysql+pymysql://h@127.0.0.1:1/x",
+                                           database=account.place),
+                               {"table": "t", "target": "y"}),
+        "unknown table": (good, {"table": "nosuch", "target": "y"}),
+        "unknown column": (good, {"table": "t", "target": "nosuch"}),
+        "bad predicate": (good, {"table": "t", "target": "y", "where": "sleep(1) = 0"}),
+        "timeout": (good, {"table": "big", "target": "y", "timeout": 0.001}),
+        "no table": (good, {"target": "y"}),
+    }
+
+
+EXPECTED_WORDS = {
+    "wrong password": "Access denied", "no such database": "Access denied",
+    "refused connection": "cannot connect", "unknown table": "unknown table",
+    "unknown column": "unknown column", "bad predicate": "sleep",
+    "timeout": "--timeout", "no table": "--table is required",
+}
+
+
+def test_error_messages_of_the_library(reader: Account, caplog: pytest.LogCaptureFixture
+                                       ) -> None:
+    caplog.set_level(logging.DEBUG)
+    caplog.set_level(logging.DEBUG, logger="sqlalchemy")
+    for case, (url, options) in _failures(reader).items():
+        with pytest.raises(BitsiftError) as caught:
+            bitsift.rank(url, **options)
+        message = str(caught.value)
+        assert EXPECTED_WORDS[case] in message, (case, message)
+        assert_hidden(reader, message, repr(caught.value))
+    assert_hidden(reader, caplog.text)
+
+
+@pytest.mark.parametrize("case", sorted(EXPECTED_WORDS))
+def test_error_messages_and_tracebacks_of_the_cli(reader: Account, case: str,
+                                                  capsys: pytest.CaptureFixture[str],
+                                                  caplog: pytest.LogCaptureFixture) -> None:
+    caplog.set_level(logging.DEBUG)
+    caplog.set_level(logging.DEBUG, logger="sqlalchemy")
+    url, options = _failures(reader)[case]
+    args = ["rank", url]
+    for key, value in options.items():
+        args += [f"--{key}", str(value)]
+    plain = run_main(capsys, *args)
+    assert plain.code == 1
+    assert plain.err.startswith("Error: ") and EXPECTED_WORDS[case] in plain.err
+    traced = run_main(capsys, "--debug", *args)
+    assert traced.code == 1
+    assert "Traceback" in traced.err and EXPECTED_WORDS[case] in traced.err
+    assert_hidden(reader, *plain.texts, *traced.texts, caplog.text)
+
+
+def test_unparsable_url_with_debug(reader: Account, capsys: pytest.CaptureFixture[str]) -> None:
+    url = f"mysql+pymysql://{reader.user}:{quote(reader.password, safe='')}@127.0.0.1:port/x"
+    done = run_main(capsys, "--debug", "rank", url, "--table", "t", "--target", "y")
+    assert done.code == 1 and "not a valid database URL" in done.err
+    assert_hidden(reader, *done.texts)
+
+
+# --- history rows, reports, job output ----------------------------------------------------------
+
+
+def _job(tmp_path: Path, source: str, destination: str, table: str) -> Path:
+    path = tmp_path / "secret_job.toml"
+    path.write_text(textwrap.dedent(f"""\
+        job = "secrets"
+        source = "{source}"
+
+        [results]
+        destination = "{destination}"
+        table = "{table}"
+
+        [[ranking]]
+        name = "t"
+        table = "t"
+        target = "y"
+        """), encoding="utf-8")
+    return path
+
+
+def test_history_rows_reports_and_job_output(reader: Account, writer: Account, tmp_path: Path,
+                                             capsys: pytest.CaptureFixture[str],
+                                             caplog: pytest.LogCaptureFixture) -> None:
+    caplog.set_level(logging.DEBUG)
+    caplog.set_level(logging.DEBUG, logger="sqlalchemy")
+    source = reader.url(MARIADB_URL, database=reader.place)
+    destination = writer.url(POSTGRES_URL)
+    job = _job(tmp_path, source, destination, f"{writer.place}.history")
+    texts = []
+    report = tmp_path / "report.html"
+    for args in (["run", str(job), "--dry-run"], ["run", str(job), "--run-id", "one"],
+                 ["run", str(job), "--run-id", "two"], ["drift", str(job)],
+                 ["models", str(job), "--out", str(tmp_path / "models")],
+                 ["report", source, "--table", "t", "--target", "y", "--out", str(report)],
+                 ["profile", source, "--table", "t", "--target", "y", "--attribute", "a"]):
+        done = run_main(capsys, "--debug", *args)
+        assert done.code == 0, (args, done.err)
+        texts += done.texts
+    engine = sa.create_engine(POSTGRES_URL, poolclass=sa.pool.NullPool)
+    try:
+        with engine.connect() as connection:
+            rows = connection.exec_driver_sql(
+                f'SELECT * FROM "{writer.place}".history').all()
+    finally:
+        engine.dispose()
+    assert len(rows) == 2 * 2  # two runs, two attributes
+    texts += [repr(row) for row in rows]
+    texts += [p.read_text(encoding="utf-8") for p in (tmp_path / "models").iterdir()]
+    texts += [report.read_text(encoding="utf-8"), caplog.text]
+    for account in (reader, writer):
+        assert_hidden(account, *texts)
+
+
+def test_history_write_failure_hides_the_destination_password(
+        reader: Account, writer: Account, tmp_path: Path,
+        capsys: pytest.CaptureFixture[str]) -> None:
+    source = reader.url(MARIADB_URL, database=reader.place)
+    # A port nobody listens on: the results destination cannot be reached.
+    destination = writer.url("postgresql+psycopg://h@127.0.0.1:1/test")
+    job = _job(tmp_path, source, destination, "history")
+    for args in (["run", str(job)], ["--debug", "run", str(job)]):
+        done = run_main(capsys, *args)
+        assert done.code == 1
+        assert "127.0.0.1" in done.err
+        assert_hidden(writer, *done.texts)
+
+
+# --- passwords from the environment -------------------------------------------------------------
+
+
+def test_password_from_the_environment_end_to_end(reader: Account, writer: Account,
+                                                  tmp_path: Path,
+                                                  monkeypatch: pytest.MonkeyPatch,
+                                                  capsys: pytest.CaptureFixture[str]) -> None:
+    monkeypatch.delenv("BITSIFT_PASSWORD", raising=False)
+    monkeypatch.delenv("BITSIFT_RESULTS_PASSWORD", raising=False)
+    bare = reader.url(MARIADB_URL, password="", database=reader.place)
+    assert f"{reader.user}@" in bare
+    # Without the variable the server refuses the user...
+    refused = run_main(capsys, "rank", bare, "--table", "t", "--target", "y")
+    assert refused.code == 1 and "Access denied" in refused.err
+    # ...with it, the same URL works, and the password shows nowhere.
+    monkeypatch.setenv("BITSIFT_PASSWORD", reader.password)
+    done = run_main(capsys, "--debug", "rank", bare, "--table", "t", "--target", "y",
+                    "--format", "json")
+    assert done.code == 0, done.err
+    assert '"rows": 60' in done.out
+    assert_hidden(reader, *done.texts)
+    # The results destination's password has its own variable.
+    monkeypatch.setenv("BITSIFT_RESULTS_PASSWORD", writer.password)
+    job = _job(tmp_path, bare, writer.url(POSTGRES_URL, password=""), f"{writer.place}.h2")
+    ran = run_main(capsys, "run", str(job))
+    assert ran.code == 0, ran.err
+    assert "wrote 2 rows" in ran.out
+    assert_hidden(reader, *ran.texts)
+    assert_hidden(writer, *ran.texts)
+    # A wrong password from the variable is refused, and not shown either.
+    wrong = reader.password + "x"
+    monkeypatch.setenv("BITSIFT_PASSWORD", wrong)
+    failed = run_main(capsys, "rank", bare, "--table", "t", "--target", "y")
+    assert failed.code == 1 and "Access denied" in failed.err
+    assert wrong not in failed.err and quote(wrong, safe="") not in failed.err
+    # And in a real process, where the variable comes from the environment it started with.
+    env = {**os.environ, "BITSIFT_PASSWORD": reader.password}
+    real = cli("rank", bare, "--table", "t", "--target", "y", env=env)
+    assert real.returncode == 0, real.stderr
+    assert_hidden(reader, real.stdout, real.stderr)
