@@ -35,7 +35,13 @@ from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
-from bitsift.errors import QueryError, QueryTimeoutError, SourceError, TableNotFoundError
+from bitsift.errors import (
+    QueryError,
+    QueryTimeoutError,
+    SourceError,
+    SpecError,
+    TableNotFoundError,
+)
 from bitsift.sources import EngineSource
 
 pytestmark = pytest.mark.clickhouse
@@ -188,6 +194,8 @@ def test_unknown_table_and_missing_file(chdb_session: Any,
         bitsift.rank(EngineSource("clickhouse", str(directory)), table=table + "x", target="y")
     with pytest.raises(SourceError, match="no such file"):
         bitsift.rank(EngineSource("clickhouse", str(directory / "nope.parquet")), target="y")
+    with pytest.raises(SpecError, match="is a directory: name a table in it with --table"):
+        bitsift.rank(EngineSource("clickhouse", str(directory)), target="y")
 
 
 def test_timeout_is_max_execution_time(chdb_session: Any) -> None:

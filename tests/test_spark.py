@@ -36,7 +36,7 @@ from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
-from bitsift.errors import QueryTimeoutError, TableNotFoundError
+from bitsift.errors import QueryTimeoutError, SpecError, TableNotFoundError
 from bitsift.sources import EngineSource
 
 pytestmark = pytest.mark.spark
@@ -222,3 +222,13 @@ def test_golden_spark_sql_runs_on_spark(spark: Any, tmp_path: Path) -> None:
     finally:
         spark.catalog.dropTempView(table)
         connection.close()
+
+
+def test_engine_spark_with_table_wants_a_master() -> None:
+    # Checked before any JVM starts: with --table, SOURCE names the Spark master.
+    result = CliRunner().invoke(cli, ["rank", "orders.parquet", "--engine", "spark",
+                                      "--table", "sales.orders", "--target", "y"])
+    assert isinstance(result.exception, SpecError)
+    assert "SOURCE is the Spark master" in str(result.exception)
+    with pytest.raises(SpecError, match="unknown engine 'sparkle'"):
+        bitsift.rank(EngineSource("sparkle", "x.parquet"), target="y")

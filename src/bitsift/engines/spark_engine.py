@@ -166,11 +166,12 @@ class SparkEngine(Engine):
         return exp.Table(this=exp.to_identifier(name, quoted=True))
 
     def read_parquet(self, path: str) -> exp.Table:
-        """A Parquet file, directory or glob, read by Spark into a temporary view.
+        """A Parquet file, directory or glob (local or any URL Spark reads), as a temporary view.
 
         The path goes to ``spark.read.parquet`` as a Python string, never into SQL text.
         """
-        if not any(ch in path for ch in "*?[") and not Path(path).exists():
+        local = "://" not in path  # s3a://, hdfs://... are Spark's to find
+        if local and not any(ch in path for ch in "*?[") and not Path(path).exists():
             raise SourceError(f"no such file or directory: {path}")
         try:
             frame = self.spark.read.parquet(path)

@@ -1,0 +1,1 @@
+"""One test file per dialect (a package, so names like test_spark.py may also exist one level up)."""
