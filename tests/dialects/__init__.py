@@ -1,1 +1,4 @@
-"""One test file per dialect (a package, so names like test_spark.py may also exist one level up)."""
+"""One test file per dialect.
+
+A package, so that names like test_spark.py may also exist one level up.
+"""
