@@ -25,6 +25,7 @@ from sqlalchemy.dialects import mysql
 from sqlglot import exp
 
 from bitsift.dialects import SQLALCHEMY_DIALECTS
+from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
 from bitsift.errors import BitsiftError, SpecError
 from bitsift.result import Ranking
 from bitsift.schema import family_of
@@ -499,7 +500,7 @@ class SqlAlchemyStore(HistoryStore):
         inspector = sa.inspect(connection)
         if not inspector.has_table(self.table.name, schema=self.schema):
             return None
-        return {c["name"]: _sa_family(c["type"])
+        return {c["name"]: sqlalchemy_family(c["type"])
                 for c in inspector.get_columns(self.table.name, schema=self.schema)}
 
     def existing_columns(self) -> dict[str, str] | None:
@@ -552,20 +553,6 @@ class SqlAlchemyStore(HistoryStore):
 
     def close(self) -> None:
         self.engine.dispose()
-
-
-def _sa_family(sa_type: Any) -> str:
-    if isinstance(sa_type, sa.Integer):
-        return "integer"
-    if isinstance(sa_type, sa.Float):
-        return "float"
-    if isinstance(sa_type, sa.Numeric):
-        return "decimal"
-    if isinstance(sa_type, sa.DateTime):
-        return "timestamp"
-    if isinstance(sa_type, sa.String):
-        return "text"
-    return "other"
 
 
 def _newest_first(runs: Iterable[RunInfo]) -> list[RunInfo]:

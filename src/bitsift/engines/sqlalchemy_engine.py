@@ -55,7 +55,8 @@ def missing_driver_message(drivername: str, backend: str, error: BaseException) 
     return line
 
 
-def _family(sa_type: Any) -> Family:
+def sqlalchemy_family(sa_type: Any) -> Family:
+    """The bitsift type family of a SQLAlchemy column type."""
     if isinstance(sa_type, sa.Boolean):
         return "boolean"
     if isinstance(sa_type, sa.Integer):
@@ -253,7 +254,7 @@ class SqlAlchemyEngine(Engine):
             # as that CTE (SQLite: "circular reference: counts").
             table.set("db", exp.to_identifier(default_schema, quoted=True))
         return [
-            Column(name=self._reflected_name(c["name"]), family=_family(c["type"]),
+            Column(name=self._reflected_name(c["name"]), family=sqlalchemy_family(c["type"]),
                    type_name=str(c["type"]))
             for c in columns
         ]
