@@ -12,9 +12,12 @@ has 1 % NULLs. The target has 3 classes in proportions 50/30/20.
 
 from __future__ import annotations
 
+import argparse
 import contextlib
 import shutil
 import signal
+import subprocess
+import sys
 import tempfile
 import uuid
 from collections.abc import Iterator
@@ -145,17 +148,31 @@ def create_table_sql(engine: EngineName, table: str, rows: int, k: int, seed: in
     )
 
 
-@contextlib.contextmanager
-def duckdb_table(rows: int, k: int, seed: int, directory: str | None = None) -> Iterator[Dataset]:
-    """A DuckDB database file holding the table; the file is removed afterwards."""
+def write_duckdb_file(path: str, rows: int, k: int, seed: int) -> None:
+    """Create the table in a new DuckDB database file."""
     import duckdb
 
+    with duckdb.connect(path) as connection:
+        connection.execute(create_table_sql("duckdb", TABLE, rows, k, seed))
+        connection.execute("CHECKPOINT")
+
+
+@contextlib.contextmanager
+def duckdb_table(rows: int, k: int, seed: int, directory: str | None = None) -> Iterator[Dataset]:
+    """A DuckDB database file holding the table; the file is removed afterwards.
+
+    The file is written by a child process. On Linux a process's peak RSS (``ru_maxrss``)
+    carries over from its parent through fork and exec, so the harness that starts the
+    workers must never grow: generating 10M rows in it would lift every worker's figure.
+    """
     workdir = Path(tempfile.mkdtemp(prefix="bitsift-bench-", dir=directory))
     path = workdir / "bench.duckdb"
     try:
-        with duckdb.connect(str(path)) as connection:
-            connection.execute(create_table_sql("duckdb", TABLE, rows, k, seed))
-            connection.execute("CHECKPOINT")
+        subprocess.run(
+            [sys.executable, __file__, str(path), "--rows", str(rows), "--attributes", str(k),
+             "--seed", str(seed)],
+            check=True,
+        )
         yield Dataset("duckdb", rows, k, str(path), TABLE)
     finally:
         shutil.rmtree(workdir, ignore_errors=True)
@@ -209,3 +226,18 @@ def generated_table(engine: EngineName, rows: int, k: int, seed: int,
     if engine == "duckdb":
         return duckdb_table(rows, k, seed)
     return postgres_table(rows, k, seed, postgres_url)
+
+
+def main(argv: list[str] | None = None) -> None:
+    """``python datagen.py PATH --rows N --attributes K --seed S``: write a DuckDB file."""
+    parser = argparse.ArgumentParser(description="Write the benchmark table to a DuckDB file.")
+    parser.add_argument("path")
+    parser.add_argument("--rows", type=int, required=True)
+    parser.add_argument("--attributes", type=int, required=True)
+    parser.add_argument("--seed", type=int, default=1)
+    args = parser.parse_args(argv)
+    write_duckdb_file(args.path, args.rows, args.attributes, args.seed)
+
+
+if __name__ == "__main__":
+    main()
