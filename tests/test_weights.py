@@ -138,7 +138,7 @@ def test_a_negative_weight_is_an_error(engine: str, request: pytest.FixtureReque
     rows[17] = (*rows[17][:-1], -2)
     rows[40] = (*rows[40][:-1], -1)
     with loaded(engine, Dataset(columns=dataset.columns, rows=rows), request) as where:
-        with pytest.raises(DataError, match=r"'weight' has 2 negative value\(s\)"):
+        with pytest.raises(DataError, match=r"'weight' has 2 negative or non-finite value\(s\)"):
             bitsift.rank(where.source, target="y", table=where.table, weight="weight")
         with pytest.raises(DataError, match="negative"):
             bitsift.rank(where.source, target="y", table=where.table, weight="weight",
@@ -147,6 +147,23 @@ def test_a_negative_weight_is_an_error(engine: str, request: pytest.FixtureReque
         fine = bitsift.rank(where.source, target="y", table=where.table, weight="weight",
                             where="weight >= 0 OR weight IS NULL")
         assert isinstance(fine, Ranking) and fine.rows > 0
+
+
+@pytest.mark.parametrize("engine", ["duckdb", "postgres"])
+@pytest.mark.parametrize("bad", ["nan", "inf", "-inf"])
+def test_a_non_finite_weight_is_an_error(engine: str, bad: str,
+                                         request: pytest.FixtureRequest) -> None:
+    # NaN sorts above every number on DuckDB and PostgreSQL, so `w > 0` alone let it through
+    # and every metric came out NaN; infinity made the sums infinite.
+    dataset = segmented_dataset(seed=3, rows=120)
+    rows = list(dataset.rows)
+    rows[5] = (*rows[5][:-1], float(bad))
+    columns = tuple((name, "float" if name == "weight" else kind)
+                    for name, kind in dataset.columns)
+    refused = r"'weight' has 1 negative or non-finite value\(s\)"
+    with (loaded(engine, Dataset(columns=columns, rows=rows), request) as where,
+          pytest.raises(DataError, match=refused)):
+        bitsift.rank(where.source, target="y", table=where.table, weight="weight")
 
 
 def error_line(capsys: pytest.CaptureFixture[str], *args: str) -> str:
@@ -165,7 +182,8 @@ def test_weight_errors_in_the_cli(tmp_path: Path, capsys: pytest.CaptureFixture[
         connection.execute("CREATE TABLE t AS SELECT i % 3 AS a, 'k' || (i % 2) AS label, "
                            "i % 4 - 1 AS w, 0 AS zero, i % 2 = 0 AS y FROM range(40) r(i)")
     base = ["rank", str(path), "--table", "t", "--target", "y"]
-    assert "'w' has 10 negative value(s)" in error_line(capsys, *base, "--weight", "w")
+    refused = "'w' has 10 negative or non-finite value(s)"
+    assert refused in error_line(capsys, *base, "--weight", "w")
     assert "--weight needs a number column" in error_line(capsys, *base, "--weight", "label")
     assert "cannot also be the weight" in error_line(capsys, *base, "--weight", "y")
     assert "positive 'zero'" in error_line(capsys, *base, "--weight", "zero")

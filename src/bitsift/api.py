@@ -13,7 +13,7 @@ from typing import Any
 import sqlglot
 from sqlglot import exp
 
-from bitsift import concurrent, discretize, reference
+from bitsift import concurrent, discretize, quantiles, reference
 from bitsift.dialects import Capabilities, capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
@@ -104,18 +104,27 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
 def fetch_cuts(engine: Engine, spec: RankSpec) -> dict[str, list[float]]:
     """The cut points of every numeric attribute: the bounds pre-pass (quantile, equal-width,
     best-split, computed in SQL) and, for mdl, the histogram pre-pass whose cut points are
-    found in Python. Duplicate and non-finite cut points are dropped."""
+    found in Python. Where the dialect's ``run_quantile`` is "buckets", quantile cut points
+    come from :mod:`bitsift.quantiles` instead (same values, no whole-column sort).
+    Duplicate and non-finite cut points are dropped."""
     cuts: dict[str, list[float]] = {}
-    statement = bounds_statement(spec, engine.caps)
+    if engine.caps.run_quantile == "buckets":
+        cuts = {name: _clean(found) for name, found in
+                quantiles.bucketed_cuts(engine, spec).items()}
+    statement = bounds_statement(spec, engine.caps, skip=cuts)
     record = engine.fetch(statement.sql).records()[0] if statement is not None else {}
     for index, attribute in enumerate(spec.attributes, start=1):
-        if attribute.kind != "numeric" or attribute.binning == "mdl":
+        if attribute.kind != "numeric" or attribute.binning == "mdl" or attribute.name in cuts:
             continue
         values = [record.get(f"c{index}_{j}") for j in range(1, cut_count(attribute) + 1)]
-        finite = {float(v) for v in values if v is not None and math.isfinite(float(v))}
-        cuts[attribute.name] = sorted(finite)
+        cuts[attribute.name] = _clean(values)
     cuts.update(fetch_mdl_cuts(engine, spec))
     return cuts
+
+
+def _clean(values: Iterable[Any]) -> list[float]:
+    """Cut points sorted, without duplicates, NULLs and non-finite values."""
+    return sorted({float(v) for v in values if v is not None and math.isfinite(float(v))})
 
 
 def fetch_mdl_cuts(engine: Engine, spec: RankSpec,

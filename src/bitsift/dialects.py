@@ -98,6 +98,11 @@ class Capabilities:
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
     quantile: QuantileMethod = "window"
+    #: Run mode only: how quantile cut points are found before the ranking statement.
+    #: ``statement``: the bounds pre-pass with :attr:`quantile`. ``buckets``: the same exact
+    #: values from three aggregate statements that never sort a whole column
+    #: (:mod:`bitsift.quantiles`). Measured in benchmarks/RESULTS.md.
+    run_quantile: Literal["statement", "buckets"] = "statement"
     #: Run mode only: cut the attributes into this many statements (each after its own
     #: boundaries pre-pass) and run them at once, one per session (bitsift.concurrent), when
     #: bitsift opened the source itself. 1: one statement. Measured in benchmarks/RESULTS.md.
@@ -153,6 +158,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="duckdb",
             sqlglot_dialect="duckdb",
             quantile="quantile_cont",
+            run_quantile="buckets",
             run_sessions=2,
             timeout_in_client=True,
             executed_in_tests=True,
@@ -175,6 +181,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="postgres",
             sqlglot_dialect="postgres",
             quantile="percentile_cont",
+            run_quantile="buckets",
             run_sessions=2,
             timeout_statement="SET LOCAL statement_timeout = {ms}",
             read_only_statement="SET TRANSACTION READ ONLY",

@@ -59,8 +59,8 @@ def _negative_weights(records: Sequence[Record], spec: RankSpec) -> None:
     if negative:
         scope = " matching --where" if spec.where else ""
         raise DataError(
-            f"the weight column {spec.weight!r} has {negative:,} negative value(s) in "
-            f"{spec.source_name}{scope}: weights must be 0 or more"
+            f"the weight column {spec.weight!r} has {negative:,} negative or non-finite "
+            f"value(s) in {spec.source_name}{scope}: weights must be finite numbers, 0 or more"
         )
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import functools
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 
 import sqlglot
@@ -308,11 +308,13 @@ def _segments_and_weight(spec: RankSpec, caps: Capabilities) -> dict[str, object
     }
 
 
-def bounds_statement(spec: RankSpec, caps: Capabilities) -> Statement | None:
+def bounds_statement(spec: RankSpec, caps: Capabilities, skip: Collection[str] = (),
+                     ) -> Statement | None:
     """The pre-pass computing the cut points of the numeric attributes binned in SQL
-    (quantile, equal-width, best-split; not mdl, see :func:`histogram_statement`), if any."""
-    mdl = {a.name: () for a in spec.numeric if a.binning == "mdl"}
-    context = _context(spec, caps, mdl)
+    (quantile, equal-width, best-split; not mdl, see :func:`histogram_statement`), if any.
+    ``skip``: attributes whose cut points are found otherwise (:mod:`bitsift.quantiles`)."""
+    known = {a.name: () for a in spec.numeric if a.binning == "mdl" or a.name in skip}
+    context = _context(spec, caps, known)
     if context["bounds"] is None:
         return None
     return _finish(render("bounds_query.sql.j2", **context), caps, pretty=False)
@@ -337,6 +339,64 @@ def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> 
         "resolution": literal(int(resolution)),
     }
     return _finish(render("histogram.sql.j2", **context), caps, pretty=False)
+
+
+def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
+                      ) -> dict[str, object]:
+    return {
+        "attributes": attributes,
+        "source": source_sql(spec.source),
+        "target": quote(spec.target),
+        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
+    }
+
+
+def quantile_ranges_statement(spec: RankSpec, caps: Capabilities,
+                              indexes: Sequence[int]) -> Statement:
+    """Lowest value, highest value and count of values of the attributes numbered ``indexes``
+    (1-based, in ``spec.attributes``): step 1 of :mod:`bitsift.quantiles`."""
+    attributes = [{"index": i, "raw": attribute_value(spec.attributes[i - 1])} for i in indexes]
+    return _finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes)),
+                   caps, pretty=False)
+
+
+def bucket_expression(attribute: AttributeSpec, low: float, scale: float) -> str:
+    """``FLOOR((value - low) * scale)``: the equal-width bucket of a value (canonical SQL)."""
+    value = f"CAST({attribute_value(attribute)} AS DOUBLE)"
+    return f"FLOOR(({value} - ({literal(float(low))})) * {literal(float(scale))})"
+
+
+def quantile_buckets_statement(spec: RankSpec, caps: Capabilities,
+                               buckets: Mapping[int, tuple[float, float]]) -> Statement:
+    """Value counts per equal-width bucket: ``buckets`` maps an attribute's index to the
+    (low, scale) of its buckets. Step 2 of :mod:`bitsift.quantiles`."""
+    attributes = [
+        {"index": i, "raw": attribute_value(spec.attributes[i - 1]),
+         "bucket": bucket_expression(spec.attributes[i - 1], low, scale)}
+        for i, (low, scale) in buckets.items()
+    ]
+    return _finish(render("quantile_buckets.sql.j2", **_quantile_context(spec, attributes)),
+                   caps, pretty=False)
+
+
+def quantile_picks_statement(spec: RankSpec, caps: Capabilities,
+                             buckets: Mapping[int, tuple[float, float]],
+                             picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
+    """The values at (bucket, position) ``picks`` of each attribute, positions counted from 1
+    in value order within the bucket. Step 3 of :mod:`bitsift.quantiles`."""
+    attributes = []
+    for i, wanted in picks.items():
+        low, scale = buckets[i]
+        ordered = sorted(set(wanted))
+        attributes.append({
+            "index": i,
+            "raw": attribute_value(spec.attributes[i - 1]),
+            "bucket": bucket_expression(spec.attributes[i - 1], low, scale),
+            "buckets": [literal(b) for b in sorted({b for b, _ in ordered})],
+            "picks": [(literal(b), literal(p)) for b, p in ordered],
+        })
+    return _finish(render("quantile_picks.sql.j2", **_quantile_context(spec, attributes)),
+                   caps, pretty=False)
 
 
 def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None = None) -> str:
