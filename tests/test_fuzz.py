@@ -58,7 +58,7 @@ from bitsift.errors import BitsiftError, ColumnError, DataError, SpecError, Tabl
 #: SQLite's query_only pragma and its reset.
 SESSION_STATEMENTS = re.compile(
     r"^(SET TRANSACTION READ ONLY|SET LOCAL statement_timeout = \d+"
-    r"|PRAGMA query_only = (ON|OFF))$"
+    r"|SET LOCAL work_mem = '256MB'|PRAGMA query_only = (ON|OFF))$"
 )
 #: MariaDB's per-statement timeout prefix, in front of a SELECT.
 TIMEOUT_PREFIX = re.compile(r"^SET STATEMENT max_statement_time = \d+(\.\d+)? FOR ")

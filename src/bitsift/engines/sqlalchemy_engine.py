@@ -218,6 +218,8 @@ class SqlAlchemyEngine(Engine):
             return
         if self.caps.read_only_statement and not self.caps.read_only_reset:
             self._session(self.caps.read_only_statement)
+        for setting in self.caps.transaction_settings:
+            self._session(setting)
         if self.timeout and self.caps.timeout_statement:
             self._session(_timeout_text(self.caps.timeout_statement, self.timeout))
 
