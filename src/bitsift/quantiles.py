@@ -10,17 +10,17 @@ cut points come from three small aggregate statements, and only aggregates leave
 2. ``quantile_buckets.sql.j2``: the values counted in :data:`BUCKETS` equal-width buckets
    ``FLOOR((value - lo) * scale)``, a non-decreasing function of the value, so each bucket
    holds a run of consecutive values in sorted order and the running counts say which bucket
-   holds the value of a given rank;
-   and, summed, the count ``n`` of values in the rows the ranking reads (target present,
-   ``--where`` true);
+   holds the value of a given rank; summed, they give the count ``n`` of values in the rows
+   the ranking reads (target present, ``--where`` true);
 3. ``quantile_picks.sql.j2``: within those few buckets only, the values numbered in order,
    and the wanted ranks' values returned, with their bucket's row count.
 
 The cut point at level p is then that of numpy's default ("linear") method and of
 ``quantile_cont``: with ``h = (n - 1) p`` and ``k = floor(h)``,
 ``v[k] + (h - k) (v[k + 1] - v[k])`` over the sorted values ``v`` (0-based), rounded as numpy
-rounds it (:func:`interpolate`; DuckDB's own aggregate can differ in the last bit, which
-changes no bin: no value lies strictly between two consecutive order statistics).
+rounds it (:func:`interpolate`). DuckDB's own aggregate can differ in the last bit; since no
+value lies strictly between two consecutive order statistics, that changes a bin only if the
+last bit moves a cut point onto one of them.
 
 Nothing is approximated: a bucket that holds most of the rows (a very skewed column) only
 makes step 3 read more of them. Where the method does not apply (an infinite or NaN value,
