@@ -23,6 +23,7 @@ from bitsift import quantiles
 from bitsift.api import fetch_cuts, make_options
 from bitsift.sources import open_source
 from bitsift.spec import resolve
+from bitsift.sqlbuild import quantile_levels
 
 SHAPES = ("normal", "heavy_tail", "point_mass", "ties", "narrow", "negative", "mostly_null",
           "constant", "empty")
@@ -125,7 +126,7 @@ def test_the_interpolation_is_numpys() -> None:
     rng = np.random.default_rng(3)
     for _ in range(300):
         values = np.sort(rng.random(int(rng.integers(2, 60))) * 10.0 ** int(rng.integers(-3, 4)))
-        for level in quantiles.levels(10) + quantiles.levels(7):
+        for level in quantile_levels(10) + quantile_levels(7):
             h = (len(values) - 1) * level
             k = math.floor(h)
             upper = float(values[min(k + 1, len(values) - 1)])

@@ -71,9 +71,14 @@ def source_sql(source: exp.Expression) -> str:
     return source.sql(CANONICAL)
 
 
+def quantile_levels(bins: int) -> list[float]:
+    """The interior quantile levels for ``bins`` equal-frequency bins."""
+    return [round(j / bins, 12) for j in range(1, bins)]
+
+
 def probabilities(bins: int) -> list[str]:
-    """The interior quantile levels for ``bins`` equal-frequency bins, as SQL literals."""
-    return [literal(round(j / bins, 12)) for j in range(1, bins)]
+    """:func:`quantile_levels` as SQL literals."""
+    return [literal(level) for level in quantile_levels(bins)]
 
 
 @dataclass(frozen=True)
@@ -353,8 +358,8 @@ def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
 
 def quantile_ranges_statement(spec: RankSpec, caps: Capabilities,
                               indexes: Sequence[int]) -> Statement:
-    """Lowest value, highest value and count of values of the attributes numbered ``indexes``
-    (1-based, in ``spec.attributes``): step 1 of :mod:`bitsift.quantiles`."""
+    """Lowest and highest value of the attributes numbered ``indexes`` (1-based, in
+    ``spec.attributes``) over the whole source: step 1 of :mod:`bitsift.quantiles`."""
     attributes = [{"index": i, "raw": attribute_value(spec.attributes[i - 1])} for i in indexes]
     return _finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes)),
                    caps, pretty=False)
