@@ -34,7 +34,6 @@ from bitsift.sqlbuild import (
     cut_count,
     histogram_statement,
     paste_statement,
-    rank_statement,
     value_expression,
 )
 
@@ -108,7 +107,7 @@ def fetch_cuts(engine: Engine, spec: RankSpec) -> dict[str, list[float]]:
     come from :mod:`bitsift.quantiles` instead (same values, no whole-column sort).
     Duplicate and non-finite cut points are dropped."""
     cuts: dict[str, list[float]] = {}
-    if engine.caps.run_quantile == "buckets":
+    if engine.caps.run_quantile in ("buckets", "counted"):
         cuts = {name: _clean(found) for name, found in
                 quantiles.bucketed_cuts(engine, spec).items()}
     statement = bounds_statement(spec, engine.caps, skip=cuts)
@@ -181,10 +180,9 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
     for offset in range(0, len(spec.attributes), MAX_ATTRIBUTES_PER_STATEMENT):
         batch = replace(
             spec, attributes=spec.attributes[offset:offset + MAX_ATTRIBUTES_PER_STATEMENT])
-        batch_cuts = fetch_cuts(engine, batch)
-        cuts.update(batch_cuts)
-        statement = rank_statement(batch, engine.caps, batch_cuts)
-        for record in engine.fetch(statement.sql).records():
+        part = concurrent.rank_part(engine, batch)
+        cuts.update(part.cuts)
+        for record in part.records:
             index = record["attribute_index"]
             if index is not None and int(index) > 0:
                 record["attribute_index"] = int(index) + offset

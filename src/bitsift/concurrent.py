@@ -25,6 +25,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from typing import Any
 
+from bitsift import quantile_counts
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine
 from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
@@ -133,10 +134,15 @@ class PartResult:
     records: list[Record]
 
 
-def _run_part(engine: Engine, spec: RankSpec) -> PartResult:
-    """The boundaries pre-pass and the ranking statement of one part, on one session."""
+def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
+    """The statements of one part on one session: the boundaries pre-pass and the ranking
+    statement, or, where the dialect's ``run_quantile`` is "counted", the attributes binned
+    by quantile ranked from bucket counts (:mod:`bitsift.quantile_counts`)."""
     from bitsift.api import fetch_cuts  # api imports this module: import at call time
 
+    if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
+        records, cuts = quantile_counts.rank_counted(engine, spec)
+        return PartResult(cuts=cuts, records=records)
     cuts = fetch_cuts(engine, spec)
     records = engine.fetch(rank_statement(spec, engine.caps, cuts).sql).records()
     return PartResult(cuts=cuts, records=records)
@@ -145,9 +151,26 @@ def _run_part(engine: Engine, spec: RankSpec) -> PartResult:
 def _run_on_pool(pool: SessionPool, spec: RankSpec) -> PartResult:
     member = pool.idle.get()
     try:
-        return _run_part(member, spec)
+        return rank_part(member, spec)
     finally:
         pool.idle.put(member)
+
+
+def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> list[list[int]]:
+    """The parts' attribute positions. Where attributes binned by quantile are ranked from
+    bucket counts, they make parts of their own (their statements read only their columns),
+    the other attributes share the other sessions."""
+    counted: list[int] = []
+    if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
+        counted = [i - 1 for i in quantile_counts.counted_indexes(spec)]
+    others = [i for i in range(len(spec.attributes)) if i not in counted]
+    if not counted or not others:
+        parts = max(sessions, -(-len(spec.attributes) // max_size))
+        return split(spec.attributes, parts, max_size)
+    parts = max(sessions - 1, -(-len(others) // max_size))
+    shared = split([spec.attributes[i] for i in others], parts, max_size)
+    own = [counted[at:at + max_size] for at in range(0, len(counted), max_size)]
+    return [[others[i] for i in group] for group in shared] + own
 
 
 def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_size: int,
@@ -159,12 +182,11 @@ def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_si
     hold more than ``max_size`` attributes); each part is the boundaries pre-pass and the
     ranking statement of the spec narrowed to it.
     """
-    parts = max(sessions, -(-len(spec.attributes) // max_size))
-    groups = split(spec.attributes, parts, max_size)
+    groups = _groups(engine, spec, sessions, max_size)
     narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
     size = max(1, min(sessions, len(narrowed)))
     if size == 1:
-        return _merge(groups, [_run_part(engine, part) for part in narrowed])
+        return _merge(groups, [rank_part(engine, part) for part in narrowed])
     with session_pool(engine, size, spec.options.timeout) as pool, ThreadPoolExecutor(
         max_workers=size, thread_name_prefix="bitsift"
     ) as executor:

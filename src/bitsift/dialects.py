@@ -101,8 +101,13 @@ class Capabilities:
     #: Run mode only: how quantile cut points are found before the ranking statement.
     #: ``statement``: the bounds pre-pass with :attr:`quantile`. ``buckets``: the same exact
     #: values from three aggregate statements that never sort a whole column
-    #: (:mod:`bitsift.quantiles`). Measured in benchmarks/RESULTS.md.
-    run_quantile: Literal["statement", "buckets"] = "statement"
+    #: (:mod:`bitsift.quantiles`). ``counted``: where there are no segments and no weight,
+    #: one scan counts (bucket, class) cells that give both the cut points and the bins'
+    #: counts, and no row is binned one by one (:mod:`bitsift.quantile_counts`); otherwise as
+    #: ``buckets``. Not for MySQL/MariaDB: the counts arrive as VALUES, which sqlglot writes
+    #: there as SELECTs whose columns are named after their literals (two NULLs clash).
+    #: Measured in benchmarks/RESULTS.md.
+    run_quantile: Literal["statement", "buckets", "counted"] = "statement"
     #: Run mode only: cut the attributes into this many statements (each after its own
     #: boundaries pre-pass) and run them at once, one per session (bitsift.concurrent), when
     #: bitsift opened the source itself. 1: one statement. Measured in benchmarks/RESULTS.md.
@@ -161,7 +166,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="duckdb",
             sqlglot_dialect="duckdb",
             quantile="quantile_cont",
-            run_quantile="buckets",
+            run_quantile="counted",
             run_sessions=2,
             timeout_in_client=True,
             executed_in_tests=True,

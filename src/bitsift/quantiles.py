@@ -107,7 +107,7 @@ def _finite(*values: object) -> bool:
     return all(isinstance(v, int | float) and math.isfinite(v) for v in values)
 
 
-def _plans(ranges: Mapping[str, object], indexes: list[int], buckets: int) -> dict[int, Plan]:
+def plans_for(ranges: Mapping[str, object], indexes: list[int], buckets: int) -> dict[int, Plan]:
     """Step 1's row read: a plan for each attribute with a finite range."""
     plans = {}
     for i in indexes:
@@ -134,7 +134,7 @@ def bucketed_cuts(engine: Engine, spec: RankSpec,
     if not indexes:
         return {}
     ranges = engine.fetch(quantile_ranges_statement(spec, engine.caps, indexes).sql).records()[0]
-    plans = _plans(ranges, indexes, buckets)
+    plans = plans_for(ranges, indexes, buckets)
     if not plans:
         return {}
     shapes = {i: (p.low, p.scale) for i, p in plans.items()}

@@ -62,6 +62,8 @@ def literal(value: str | float | int) -> str:
     """
     if isinstance(value, str):
         return exp.Literal.string(value).sql(CANONICAL)
+    if isinstance(value, int) and not isinstance(value, bool):
+        return str(value)  # digits, with a sign: what sqlglot writes, without its cost
     return exp.Literal.number(repr(float(value)) if isinstance(value, float) else value).sql(
         CANONICAL
     )
@@ -236,6 +238,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
+        "given": None,
     }
 
 
@@ -347,11 +350,12 @@ def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> 
 
 
 def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
-                      ) -> dict[str, object]:
+                      caps: Capabilities | None = None) -> dict[str, object]:
     return {
         "attributes": attributes,
         "source": source_sql(spec.source),
         "target": quote(spec.target),
+        "target_key": _grouping_key(spec.target, spec.target_family, caps) if caps else None,
         "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
     }
 
@@ -402,6 +406,60 @@ def quantile_picks_statement(spec: RankSpec, caps: Capabilities,
         })
     return _finish(render("quantile_picks.sql.j2", **_quantile_context(spec, attributes)),
                    caps, pretty=False)
+
+
+def _bucketed(spec: RankSpec, buckets: Mapping[int, tuple[float, float]],
+              ) -> list[dict[str, object]]:
+    return [
+        {"index": i, "raw": attribute_value(spec.attributes[i - 1]),
+         "bucket": bucket_expression(spec.attributes[i - 1], low, scale)}
+        for i, (low, scale) in buckets.items()
+    ]
+
+
+def quantile_cells_statement(spec: RankSpec, caps: Capabilities,
+                             buckets: Mapping[int, tuple[float, float]]) -> Statement:
+    """Rows counted per (equal-width bucket, class) of each attribute in ``buckets`` (index ->
+    (low, scale)), NULL values and NULL targets included: step 2 of
+    :mod:`bitsift.quantile_counts`."""
+    context = _quantile_context(spec, _bucketed(spec, buckets), caps)
+    return _finish(render("quantile_cells.sql.j2", **context), caps, pretty=False)
+
+
+def quantile_splits_statement(spec: RankSpec, caps: Capabilities,
+                              buckets: Mapping[int, tuple[float, float]],
+                              picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
+    """For each (bucket, position) of ``picks``, the value there and the rows of its bucket
+    below and equal to it, per class: step 3 of :mod:`bitsift.quantile_counts`."""
+    attributes = []
+    wanted = []
+    for entry in _bucketed(spec, {i: buckets[i] for i in picks}):
+        index = int(entry["index"])  # type: ignore[call-overload]
+        by_bucket: dict[int, list[int]] = {}
+        for bucket, position in sorted(set(picks[index])):
+            by_bucket.setdefault(bucket, []).append(position)
+        entry["buckets"] = [literal(b) for b in by_bucket]
+        wanted += [(literal(index), literal(b), [literal(p) for p in ps])
+                   for b, ps in by_bucket.items()]
+        attributes.append(entry)
+    context = _quantile_context(spec, attributes, caps)
+    context["picks"] = wanted
+    context["positions"] = [literal(p) for p in sorted({p for ps in picks.values() for _, p in ps})]
+    return _finish(render("quantile_splits.sql.j2", **context), caps, pretty=False)
+
+
+def counted_rank_statement(spec: RankSpec, caps: Capabilities,
+                           rows: Sequence[Sequence[int | None]]) -> Statement:
+    """The ranking statement's formulas over cells counted beforehand: ``rows`` are
+    (attr, a1 .. aK, class, n) with attr 0 for the target's own rows, classes numbered and
+    at most one of a1 .. aK set (run mode, :mod:`bitsift.quantile_counts`)."""
+    if spec.by or spec.weight:
+        raise ValueError("counted cells carry no segments or weights")
+    context = _context(spec, caps, {a.name: () for a in spec.numeric})
+    context.update(_segments_and_weight(spec, caps))
+    context["order_by_gain"] = None
+    context["given"] = [["NULL" if v is None else literal(int(v)) for v in row] for row in rows]
+    return _finish(render("rank.sql.j2", **context), caps, pretty=False)
 
 
 def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None = None) -> str:

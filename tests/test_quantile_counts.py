@@ -1,0 +1,209 @@
+"""Quantile bins counted from (bucket, class) cells (bitsift.quantile_counts) in run mode.
+
+Two independent checks: the NumPy reference (numpy.quantile's cut points, rows binned one by
+one in Python, metrics by the p log p formulas), and bitsift's own row-by-row binning (the
+ranking statement's CASE over the cut points, run_quantile "buckets"). The columns are the
+awkward ones of test_quantiles (heavy tail, point mass, ties, narrow range, mostly NULL,
+constant, empty), with NULL targets and a text target. Data: seeded random, invented here.
+"""
+
+from __future__ import annotations
+
+import math
+import random
+from typing import Any
+
+import duckdb
+import numpy as np
+import pytest
+from helpers import Dataset, assert_matches_reference, assert_same_ranking, loaded, rank_with
+from test_quantiles import SHAPES, shaped_dataset
+
+import bitsift
+from bitsift import quantile_counts
+from bitsift.dialects import capabilities
+from bitsift.result import Ranking
+
+COUNTED = {"run_quantile": "counted"}
+ROW_BY_ROW = {"run_quantile": "buckets"}
+
+
+#: What a statement binning rows one by one contains: CASE WHEN CAST(x AS DOUBLE) < cut ...
+ROW_BINNING = "as double) < "
+
+
+def _sent(ranking: Ranking) -> str:
+    return "\n".join(ranking.statements).lower()
+
+
+def _assert_counted(ranking: Ranking) -> None:
+    """The ranking went the counted way: cells given as rows, no row binned by a CASE."""
+    sent = _sent(ranking)
+    assert "given_counts" in sent and "bucket_rows" in sent
+    assert "quantile_cont" not in sent and ROW_BINNING not in sent
+
+
+@pytest.mark.parametrize("missing", ["category", "drop"])
+@pytest.mark.parametrize("bins", [10, 3, 7])
+def test_counted_bins_equal_the_numpy_reference(missing: str, bins: int,
+                                                request: pytest.FixtureRequest) -> None:
+    dataset = shaped_dataset(rows=3000, seed=23)
+    # Dropping NULLs leaves the all-NULL column no row: the reference has no table for it
+    # (the next test compares it with the row-by-row binning instead).
+    shapes = [s for s in SHAPES if not (missing == "drop" and s == "empty")]
+    with loaded("duckdb", dataset, request) as where:
+        ranking = rank_with(where.source, where.table, "y", caps=COUNTED, missing=missing,
+                            bins=bins, attributes=",".join(shapes))
+    _assert_counted(ranking)
+    assert_matches_reference(ranking, dataset, "y", numeric=shapes, missing=missing, bins=bins,
+                             context=f"missing={missing} bins={bins}")
+
+
+@pytest.mark.parametrize("missing", ["category", "drop"])
+def test_counted_shapes_equal_the_row_by_row_bins(missing: str,
+                                                  request: pytest.FixtureRequest) -> None:
+    dataset = shaped_dataset(rows=2000, seed=31)
+    with loaded("duckdb", dataset, request) as where:
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED, missing=missing)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW,
+                               missing=missing)
+    _assert_counted(counted)
+    assert_same_ranking(counted, row_by_row, missing)
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts, a.attribute
+
+
+def _tied_dataset(rows: int, seed: int) -> Dataset:
+    """Few distinct values (many rows on each cut point), a boolean-ish and a text target
+    with NULLs, and a column whose values cluster in one bucket with a far outlier."""
+    rng = random.Random(seed)
+    data = []
+    for _ in range(rows):
+        y = rng.choice(("late", "on time", "early")) if rng.random() < 0.95 else None
+        few = float(rng.choice((1, 2, 2, 3, 3, 3, 10)))
+        cluster = 5.0 + rng.random() * 1e-3 if rng.random() < 0.999 else 1e9
+        halves = rng.choice((0.5, 1.5, None))
+        data.append((y, rng.randint(0, 3), few, cluster, halves))
+    return Dataset(columns=(("y", "text"), ("grp", "integer"), ("few", "float"),
+                            ("cluster", "float"), ("halves", "float")), rows=data)
+
+
+@pytest.mark.parametrize("options", [{}, {"where": "grp <> 2"}, {"missing": "drop", "bins": 4},
+                                     {"bins": 2}, {"bins": 50}])
+def test_counted_bins_equal_the_row_by_row_bins(options: dict[str, Any],
+                                                request: pytest.FixtureRequest) -> None:
+    # Ties on the cut points are where counting "below v" and "equal to v" must be exact.
+    dataset = _tied_dataset(rows=4000, seed=5)
+    with loaded("duckdb", dataset, request) as where:
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED, **options)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, **options)
+    _assert_counted(counted)
+    assert "given_counts" not in _sent(row_by_row)
+    assert_same_ranking(counted, row_by_row, str(options))
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts, a.attribute  # the same floats, bit for bit
+
+
+@pytest.mark.parametrize("engine", ["postgres", "sqlite"])
+def test_the_counted_statements_run_on_other_engines(engine: str,
+                                                     request: pytest.FixtureRequest) -> None:
+    # Only DuckDB counts this way by default (measured); the statements are plain SQL and
+    # give the same ranking elsewhere. Not on MySQL/MariaDB: sqlglot writes VALUES there as
+    # SELECTs whose columns are named after their literals, and two NULLs clash.
+    dataset = _tied_dataset(rows=1500, seed=8)
+    with loaded(engine, dataset, request) as where:
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED, bins=5)
+    _assert_counted(counted)
+    assert_matches_reference(counted, dataset, "y", numeric=("few", "cluster", "halves"),
+                             bins=5, context=engine)
+
+
+def test_only_dialects_that_can_run_it_count() -> None:
+    assert capabilities("duckdb").run_quantile == "counted"
+    assert all(capabilities(d).run_quantile != "counted" for d in ("mysql", "mariadb"))
+
+
+def test_infinite_and_nan_values_are_ranked_the_usual_way(
+        request: pytest.FixtureRequest) -> None:
+    rng = random.Random(4)
+    rows = [(rng.choice("ab"), rng.gauss(0, 1), rng.gauss(0, 1), rng.gauss(0, 1))
+            for _ in range(500)]
+    rows[3] = (rows[3][0], math.inf, rows[3][2], rows[3][3])
+    rows[9] = (rows[9][0], rows[9][1], math.nan, rows[9][3])
+    dataset = Dataset(columns=(("y", "text"), ("with_inf", "float"), ("with_nan", "float"),
+                               ("plain", "float")), rows=rows)
+    with loaded("duckdb", dataset, request) as where:
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW)
+    sent = _sent(counted)
+    assert "given_counts" in sent  # plain was counted ...
+    assert ROW_BINNING in sent.split("given_counts")[-1]  # ... the other two binned by rows
+    assert_same_ranking(counted, row_by_row)
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts, a.attribute
+
+
+def test_a_table_changing_between_the_steps_is_ranked_the_usual_way(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    # Rows arrive after step 2 counted the buckets, on every cut point: step 3's bucket sizes
+    # disagree, and the attribute is ranked again from the table as it now is, never from
+    # mixed counts. (Rows landing only in buckets without a cut point change no bin; the
+    # ranking is then that of the table as step 2 read it.)
+    connection = duckdb.connect()
+    connection.execute("CREATE TABLE t AS SELECT i % 3 AS y, (i * 7919) % 1000 / 10.0 AS v "
+                       "FROM range(3000) r(i)")
+    values = [v for (v,) in connection.execute("SELECT v FROM t").fetchall()]
+    cuts = [float(c) for c in np.quantile(values, [j / 10 for j in range(1, 10)])]
+    splits = quantile_counts._splits
+
+    def changed_then_split(*args: Any, **kwargs: Any) -> Any:
+        for cut in cuts:
+            connection.execute(f"INSERT INTO t SELECT 1, {cut!r} FROM range(40)")
+        return splits(*args, **kwargs)
+
+    monkeypatch.setattr(quantile_counts, "_splits", changed_then_split)
+    try:
+        ranking = rank_with(connection, "t", "y", caps=COUNTED)
+        monkeypatch.setattr(quantile_counts, "_splits", splits)
+        fresh = rank_with(connection, "t", "y", caps=ROW_BY_ROW)
+    finally:
+        connection.close()
+    assert "given_counts" not in _sent(ranking) and ranking.rows == 3360
+    assert_same_ranking(ranking, fresh)
+
+
+def test_too_many_given_rows_are_binned_by_the_ranking_statement(
+        monkeypatch: pytest.MonkeyPatch, request: pytest.FixtureRequest) -> None:
+    dataset = shaped_dataset(rows=1000, seed=2)
+    monkeypatch.setattr(quantile_counts, "MAX_GIVEN_ROWS", 10)
+    with loaded("duckdb", dataset, request) as where:
+        ranking = rank_with(where.source, where.table, "y", caps=COUNTED)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW)
+    assert "given_counts" not in _sent(ranking) and "bucket_rows" in _sent(ranking)
+    assert_same_ranking(ranking, row_by_row)
+    for a, b in zip(ranking.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts, a.attribute
+
+
+def test_a_file_source_counts_on_its_own_session(request: pytest.FixtureRequest) -> None:
+    # A DuckDB file bitsift opens itself: categorical attributes on one session, the counted
+    # numeric ones on another, at once; the merged rows equal one session's.
+    dataset = shaped_dataset(rows=2000, seed=9)
+    with loaded("duckdb", dataset, request, duckdb_file=True) as where:
+        two = bitsift.rank(where.source, target="y", table=where.table)
+        one = rank_with(where.source, where.table, "y", caps={"run_sessions": 1})
+    _assert_counted(two)
+    assert_same_ranking(two, one)
+    assert_matches_reference(two, dataset, "y", numeric=SHAPES)
+
+
+def test_segments_and_weights_keep_the_row_by_row_binning(
+        request: pytest.FixtureRequest) -> None:
+    dataset = shaped_dataset(rows=600, seed=3)
+    with loaded("duckdb", dataset, request) as where:
+        segmented = bitsift.rank(where.source, target="y", table=where.table, by="grp",
+                                 attributes="normal,ties")
+        weighted = bitsift.rank(where.source, target="y", table=where.table, weight="grp",
+                                attributes="normal,ties")
+    for result in (segmented, weighted):
+        assert "given_counts" not in "\n".join(result.statements).lower()
