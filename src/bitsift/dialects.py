@@ -189,7 +189,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="postgres",
             sqlglot_dialect="postgres",
             quantile="percentile_cont",
-            run_quantile="buckets",
+            run_quantile="counted",
             run_sessions=2,
             # The planner estimates a binned column's groups from the raw column's distinct
             # values (millions) and, at the default 4MB, sorts and spills instead of hashing
