@@ -48,6 +48,7 @@ STRATEGIES: tuple[str, ...] = (
     "per_attribute_sequential",
     "per_attribute_concurrent",
     "split_concurrent",
+    "counted_concurrent",
 )
 
 
@@ -282,11 +283,14 @@ def _scores(attributes: Any) -> Metrics:
 def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
     """A ranking through bitsift's own builder, with the run-mode strategy forced.
 
-    ``grouping_sets``, ``union_all``, ``cross_join``: one boundaries pre-pass, one statement
-    (:func:`bitsift.api.run_ranking`). ``per_attribute_*``: one job per attribute (its
-    boundaries, then its statement) on one session, or on ``workers`` sessions at once;
-    ``split_concurrent``: the attributes cut into ``workers`` jobs run at once
-    (:func:`bitsift.concurrent.run_parts`).
+    Every strategy but the last finds the quantile cut points first and bins the rows in the
+    ranking statement (``run_quantile`` "buckets"): ``grouping_sets``, ``union_all``,
+    ``cross_join``: one boundaries pre-pass, one statement (:func:`bitsift.api.run_ranking`).
+    ``per_attribute_*``: one job per attribute (its boundaries, then its statement) on one
+    session, or on ``workers`` sessions at once; ``split_concurrent``: the attributes cut into
+    ``workers`` jobs run at once (:func:`bitsift.concurrent.fetch_records_in_parts`).
+    ``counted_concurrent``: the quantile-binned attributes counted from (bucket, class) cells
+    on one session, the others ranked on the other (:mod:`bitsift.quantile_counts`).
     """
     from bitsift import concurrent
     from bitsift.api import MAX_ATTRIBUTES_PER_STATEMENT, make_options, run_ranking
@@ -299,7 +303,9 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
         columns = engine.columns(opened.table, opened.display)
         spec = resolve(make_options(TARGET), columns, opened.table, opened.display,
                        engine.caps.sqlglot_dialect)
-        engine.caps = replace(engine.caps, **_one_statement())
+        counted = strategy == "counted_concurrent"
+        engine.caps = replace(engine.caps, **_one_statement(),
+                              run_quantile="counted" if counted else "buckets")
         if strategy in ("grouping_sets", "union_all", "cross_join"):
             engine.caps = replace(engine.caps, count_strategy=strategy)
             return _scores(run_ranking(engine, spec).attributes)
@@ -308,6 +314,7 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
             "per_attribute_sequential": (1, 1),
             "per_attribute_concurrent": (workers, 1),
             "split_concurrent": (workers, MAX_ATTRIBUTES_PER_STATEMENT),
+            "counted_concurrent": (workers, MAX_ATTRIBUTES_PER_STATEMENT),
         }[strategy]
         records, cuts = concurrent.fetch_records_in_parts(engine, spec, sessions, max_size)
         return _scores(read_ranking(records, spec, cuts, dialect=engine.caps.name).attributes)

@@ -113,6 +113,8 @@ def label_of(key: str, workers: int = 2) -> str:
         return f"per-attribute statements, {workers} sessions"
     if key == "split_concurrent":
         return f"attributes split in {workers} statements, {workers} sessions"
+    if key == "counted_concurrent":
+        return f"quantile bins counted from cells, {workers} sessions"
     return key.replace("_", " ")
 
 

@@ -458,7 +458,12 @@ def counted_rank_statement(spec: RankSpec, caps: Capabilities,
     context = _context(spec, caps, {a.name: () for a in spec.numeric})
     context.update(_segments_and_weight(spec, caps))
     context["order_by_gain"] = None
-    context["given"] = [["NULL" if v is None else literal(int(v)) for v in row] for row in rows]
+    # The first row's NULLs are typed: PostgreSQL types a VALUES column of NULLs only as text.
+    context["given"] = [
+        [("CAST(NULL AS BIGINT)" if first else "NULL") if v is None else literal(int(v))
+         for v in row]
+        for first, row in ((n == 0, row) for n, row in enumerate(rows))
+    ]
     return _finish(render("rank.sql.j2", **context), caps, pretty=False)
 
 
