@@ -212,3 +212,23 @@ def test_segments_and_weights_keep_the_row_by_row_binning(
                                 attributes="normal,ties")
     for result in (segmented, weighted):
         assert "given_counts" not in "\n".join(result.statements).lower()
+
+
+def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Step 3 numbers the rows of a few buckets in memory: their size stays near
+    # ROWS_PER_BUCKET as the table grows (here 1 row per bucket, capped at MAX_BUCKETS).
+    from bitsift import quantiles
+
+    monkeypatch.setattr(quantiles, "ROWS_PER_BUCKET", 1)
+    monkeypatch.setattr(quantiles, "MAX_BUCKETS", 2000)
+    connection = duckdb.connect()
+    connection.execute("CREATE TABLE t AS SELECT i % 3 AS y, sqrt(i) AS v FROM range(3000) r(i)")
+    try:
+        counted = rank_with(connection, "t", "y", caps=COUNTED)
+        row_by_row = rank_with(connection, "t", "y", caps=ROW_BY_ROW)
+    finally:
+        connection.close()
+    scale = 2000 / math.sqrt(2999)  # buckets / (highest - lowest value)
+    assert f"* {scale!r})" in _sent(counted).split("given_counts")[0]
+    assert_same_ranking(counted, row_by_row)
+    assert counted.attributes[0].cuts == row_by_row.attributes[0].cuts

@@ -35,13 +35,25 @@ _TABLE_COLUMNS: tuple[tuple[str, str], ...] = (
 )
 
 
+def format_p_value(p: float) -> str:
+    """A p-value as the tables show it: three decimals, small ones in scientific notation, and
+    one below the smallest double (the chi-square tail underflows to 0) as an upper bound.
+
+    >>> format_p_value(0.04321), format_p_value(2.5e-9), format_p_value(0.0)
+    ('0.043', '2.50e-09', '<1e-300')
+    """
+    if p == 0:
+        return "<1e-300"
+    return f"{p:.2e}" if p < 1e-3 else f"{p:.3f}"
+
+
 def _cell(key: str, value: object) -> str:
     if value is None:  # a p-value that is not reported (fractional weights)
         return "-"
     if key == "flags":
         return ",".join(value) if isinstance(value, list) else str(value)
     if key == "p_value" and isinstance(value, float):
-        return f"{value:.2e}" if 0 < value < 1e-3 else f"{value:.3f}"
+        return format_p_value(value)
     if key == "g_statistic" and isinstance(value, float):
         return f"{value:.1f}"
     if isinstance(value, float):

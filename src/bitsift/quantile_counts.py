@@ -37,7 +37,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from bitsift.engines.base import Engine
-from bitsift.quantiles import BUCKETS, Plan, interpolate, plans_for
+from bitsift.quantiles import Plan, bucket_count, interpolate, plans_for
 from bitsift.spec import RankSpec
 from bitsift.sqlbuild import (
     counted_rank_statement,
@@ -248,10 +248,11 @@ def _renumbered(records: Sequence[Record], positions: Sequence[int],
 
 
 def rank_counted(engine: Engine, spec: RankSpec,
-                 buckets: int = BUCKETS) -> tuple[list[Record], dict[str, list[float]]]:
+                 buckets: int | None = None) -> tuple[list[Record], dict[str, list[float]]]:
     """Result rows (as the ranking statement returns them, ``attribute_index`` numbering
     ``spec.attributes``, the target's row included) and cut points of every attribute of
-    ``spec``: those binned by quantile from counts, any other the usual way."""
+    ``spec``: those binned by quantile from counts, any other the usual way. ``buckets``: as
+    many as :func:`bitsift.quantiles.bucket_count` gives for the source's rows, unless given."""
     from bitsift.api import fetch_cuts  # api imports this module: import at call time
 
     indexes = counted_indexes(spec) if counts_apply(spec) else []
@@ -259,7 +260,8 @@ def rank_counted(engine: Engine, spec: RankSpec,
     if indexes:
         ranges = engine.fetch(
             quantile_ranges_statement(spec, engine.caps, indexes).sql).records()[0]
-        plans = plans_for(ranges, indexes, buckets)
+        rows = int(ranges["row_count"] or 0)
+        plans = plans_for(ranges, indexes, buckets or bucket_count(rows))
     cells = _cells(engine, spec, plans) if plans else {}
     searched = {i: c.plan for i, c in cells.items()
                 if c.plan.usable and c.plan.count > 0 and c.plan.low != c.plan.high}

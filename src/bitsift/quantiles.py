@@ -45,10 +45,26 @@ from bitsift.sqlbuild import (
     quantile_ranges_statement,
 )
 
-#: Equal-width buckets per attribute in step 2. Measured on DuckDB, 10M rows x 4 numeric
-#: columns: 256/1,024/4,096 buckets took 0.29/0.35/0.37 s for step 2 and 0.33/0.30/0.27 s for
-#: step 3; more buckets make step 2's hash table larger, fewer make step 3 number more rows.
+#: Equal-width buckets per attribute in step 2, at least. Measured on DuckDB, 10M rows x 4
+#: numeric columns: 256/1,024/4,096 buckets took 0.29/0.35/0.37 s for step 2 and
+#: 0.33/0.30/0.27 s for step 3; more buckets make step 2's hash table larger, fewer make step 3
+#: number more rows (bitsift.quantile_counts, 10M rows: 1,024-8,192 within noise).
 BUCKETS = 1024
+#: Beyond BUCKETS x ROWS_PER_BUCKET rows, more buckets: step 3 numbers the rows of a few
+#: buckets in memory, so their size stays bounded as the table grows ...
+ROWS_PER_BUCKET = 8192
+#: ... up to this many, since step 2 returns a row per bucket (and class) to the client.
+MAX_BUCKETS = 16384
+
+
+def bucket_count(rows: int) -> int:
+    """Buckets for a source of ``rows`` rows: about ``ROWS_PER_BUCKET`` rows each, within
+    [BUCKETS, MAX_BUCKETS].
+
+    >>> bucket_count(10_000), bucket_count(30_000_000), bucket_count(10**12)
+    (1024, 3662, 16384)
+    """
+    return min(MAX_BUCKETS, max(BUCKETS, rows // ROWS_PER_BUCKET))
 
 
 def interpolate(low: float, high: float, fraction: float) -> float:
@@ -125,16 +141,17 @@ def plans_for(ranges: Mapping[str, object], indexes: list[int], buckets: int) ->
 
 
 def bucketed_cuts(engine: Engine, spec: RankSpec,
-                  buckets: int = BUCKETS) -> dict[str, list[float]]:
+                  buckets: int | None = None) -> dict[str, list[float]]:
     """Cut points of the attributes binned by quantile, by name, for those the method serves
     (the others are left to the bounds pre-pass). Duplicates are kept, as the bounds
-    pre-pass keeps them: the caller merges them."""
+    pre-pass keeps them: the caller merges them. ``buckets``: as many as
+    :func:`bucket_count` gives for the source's rows, unless given."""
     indexes = [i for i, a in enumerate(spec.attributes, start=1)
                if a.kind == "numeric" and (a.binning or "quantile") == "quantile"]
     if not indexes:
         return {}
     ranges = engine.fetch(quantile_ranges_statement(spec, engine.caps, indexes).sql).records()[0]
-    plans = plans_for(ranges, indexes, buckets)
+    plans = plans_for(ranges, indexes, buckets or bucket_count(int(ranges["row_count"] or 0)))
     if not plans:
         return {}
     shapes = {i: (p.low, p.scale) for i, p in plans.items()}

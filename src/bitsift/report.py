@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from bitsift.formatting import format_p_value
 from bitsift.metrics import FLAG_DESCRIPTIONS
 from bitsift.profile import AttributeProfile, ProfiledRun, ValueProfile
 from bitsift.report_redundancy import redundancy_context
@@ -117,6 +118,8 @@ def format_metric(key: str, value: Any) -> str:
 
     >>> format_metric("information_gain", 0.123456), format_metric("p_value", 2.5e-9)
     ('0.1235', '2.50e-09')
+    >>> format_metric("p_value", 0.0)  # below the smallest double
+    '<1e-300'
     >>> format_metric("distinct", 19816)
     '19,816'
     """
@@ -127,7 +130,7 @@ def format_metric(key: str, value: Any) -> str:
     if not isinstance(value, float):
         return str(value)
     if key == "p_value":
-        return f"{value:.2e}" if 0 < value < 1e-3 else f"{value:.3f}"
+        return format_p_value(value)
     if key == "g_statistic":
         return f"{value:,.1f}"
     return f"{value:.4f}"
