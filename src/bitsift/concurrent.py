@@ -1,12 +1,13 @@
 """Run mode over a small pool of sessions: the attributes cut into parts, the parts in parallel.
 
-Each part is a spec narrowed to some of the attributes; its job is bitsift's usual pair of
-statements for that spec (the quantile boundaries of its numeric attributes, then the ranking
-statement), run on one session of the pool. The parts run on ``sessions`` sessions at once, so
-the engine works on several statements together: on DuckDB they share its thread pool (and
-DuckDB's ungrouped quantile aggregates, finished one after the other on one thread inside a
-statement, then finish in parallel); on PostgreSQL each session is a server process. The
-numbers are those of the one-statement ranking; only the cutting of the work differs.
+Each part is a spec narrowed to some of the attributes; its job is bitsift's usual statements
+for that spec (the quantile boundaries of its numeric attributes, then the ranking statement;
+where the dialect counts quantile bins from cells, those attributes make a part of their own,
+:mod:`bitsift.quantile_counts`), run on one session of the pool. The parts run on
+``sessions`` sessions at once, so the engine works on several statements together: on DuckDB
+they share its thread pool (and one part's round trips overlap another's statements); on
+PostgreSQL each session is a server process. The numbers are those of the one-statement
+ranking; only the cutting of the work differs.
 
 Only run mode uses this (``bitsift sql`` prints one statement), and only on sessions bitsift
 opened itself: a caller's connection may hold temporary tables, an open transaction or a
@@ -179,8 +180,8 @@ def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_si
     them, computed in parts run at once on ``sessions`` sessions.
 
     The attributes are cut into ``sessions`` parts of about equal cost (more if one part would
-    hold more than ``max_size`` attributes); each part is the boundaries pre-pass and the
-    ranking statement of the spec narrowed to it.
+    hold more than ``max_size`` attributes; see :func:`_groups`); each part is ranked by
+    :func:`rank_part` on the spec narrowed to it.
     """
     groups = _groups(engine, spec, sessions, max_size)
     narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
