@@ -80,10 +80,18 @@ def wait_for(condition: Callable[[], Any], seconds: float, what: str) -> Any:
     pytest.fail(f"gave up after {seconds:g} s waiting for {what}")
 
 
+def _default_sigint() -> None:
+    # A shell without job control starts background commands with SIGINT ignored, and Python
+    # keeps it ignored: the Ctrl-C tests would then test nothing (and fail). The child gets
+    # the default, as a terminal's foreground process has it.
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def start_cli(*args: str) -> subprocess.Popen[str]:
     return subprocess.Popen(
         [sys.executable, "-c", "from bitsift.cli import main; main()", *args],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        preexec_fn=_default_sigint if os.name == "posix" else None,  # noqa: PLW1509
     )
 
 
