@@ -83,3 +83,24 @@ def test_postgres_side_by_side(tmp_path: Path, postgres_engine: sa.Engine) -> No
             {"s": schema},
         ).scalar()
     assert left == 0, f"the benchmark left its schema {schema} behind"
+
+
+@pytest.mark.parametrize("engine", ["sqlite", "mariadb"])
+def test_quantile_methods_agree(engine: str, request: pytest.FixtureRequest) -> None:
+    # benchmarks/quantile_methods.py: every way of finding quantile bins, same gains.
+    options = []
+    if engine == "mariadb":
+        url = request.getfixturevalue("mariadb_engine").url
+        options = ["--mariadb-url", url.render_as_string(hide_password=False)]
+    completed = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "quantile_methods.py"), "--engine", engine,
+         "--rows", "3000", "--repeats", "1", *options],
+        capture_output=True, text=True, timeout=120,
+    )
+    assert completed.returncode == 0, completed.stderr
+    lines = completed.stdout.splitlines()
+    methods = {line.split()[0] for line in lines if "median" in line}
+    assert methods == ({"statement", "buckets", "counted"} if engine == "sqlite"
+                       else {"statement", "buckets"})
+    difference = float(lines[-1].rsplit(" ", 1)[-1])
+    assert difference <= TOLERANCE

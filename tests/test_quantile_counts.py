@@ -110,8 +110,8 @@ def test_counted_bins_equal_the_row_by_row_bins(options: dict[str, Any],
 @pytest.mark.parametrize("engine", ["postgres", "sqlite"])
 def test_the_counted_statements_run_on_other_engines(engine: str,
                                                      request: pytest.FixtureRequest) -> None:
-    # DuckDB and PostgreSQL count this way by default (measured); the statements are plain
-    # SQL and give the same ranking elsewhere. Not on MySQL/MariaDB: sqlglot writes VALUES there as
+    # DuckDB, PostgreSQL and SQLite count this way by default (measured); the statements are
+    # plain SQL. Not on MySQL/MariaDB: sqlglot writes VALUES there as
     # SELECTs whose columns are named after their literals, and two NULLs clash.
     dataset = _tied_dataset(rows=1500, seed=8)
     with loaded(engine, dataset, request) as where:
@@ -123,8 +123,7 @@ def test_the_counted_statements_run_on_other_engines(engine: str,
 
 
 def test_only_dialects_that_can_run_it_count() -> None:
-    assert capabilities("duckdb").run_quantile == capabilities("postgres").run_quantile == \
-        "counted"
+    assert {capabilities(d).run_quantile for d in ("duckdb", "postgres", "sqlite")} == {"counted"}
     assert all(capabilities(d).run_quantile != "counted" for d in ("mysql", "mariadb"))
 
 
