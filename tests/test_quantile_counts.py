@@ -231,3 +231,29 @@ def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None
     assert f"* {scale!r})" in _sent(counted).split("given_counts")[0]
     assert_same_ranking(counted, row_by_row)
     assert counted.attributes[0].cuts == row_by_row.attributes[0].cuts
+
+
+@pytest.mark.parametrize("options", [{}, {"missing": "drop", "bins": 7}])
+def test_decimal_date_integer_and_timestamp_columns_count_like_floats(
+        options: dict[str, Any]) -> None:
+    # Every numeric kind is bucketed as the DOUBLE it is binned as (a date as epoch seconds).
+    connection = duckdb.connect()
+    connection.execute(
+        "CREATE TABLE t AS SELECT (i * 7) % 3 AS y, "
+        "CAST((i * 37) % 1000 / 7.0 AS DECIMAL(10, 2)) AS price, "
+        "DATE '2020-01-01' + CAST((i * 13) % 900 AS INTEGER) AS sown, "
+        "CAST((i * 11) % 97 AS BIGINT) AS count_, "
+        "TIMESTAMP '2021-01-01' + INTERVAL (i % 5000) SECOND AS seen "
+        "FROM range(20000) r(i)")
+    try:
+        numeric = "sown,count_,seen"
+        counted = rank_with(connection, "t", "y", caps=COUNTED, numeric=numeric, **options)
+        row_by_row = rank_with(connection, "t", "y", caps=ROW_BY_ROW, numeric=numeric,
+                               **options)
+    finally:
+        connection.close()
+    _assert_counted(counted)
+    assert {a.kind for a in counted.attributes} == {"numeric"}
+    assert_same_ranking(counted, row_by_row)
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts and len(a.cuts or []) > 1, a.attribute
