@@ -17,7 +17,7 @@ import duckdb
 import numpy as np
 import pytest
 from helpers import Dataset, assert_matches_reference, assert_same_ranking, loaded, rank_with
-from test_quantiles import SHAPES, shaped_dataset
+from test_quantiles import SHAPES, non_finite_dataset, shaped_dataset
 
 import bitsift
 from bitsift import quantile_counts
@@ -129,13 +129,7 @@ def test_only_dialects_that_can_run_it_count() -> None:
 
 def test_infinite_and_nan_values_are_ranked_the_usual_way(
         request: pytest.FixtureRequest) -> None:
-    rng = random.Random(4)
-    rows = [(rng.choice("ab"), rng.gauss(0, 1), rng.gauss(0, 1), rng.gauss(0, 1))
-            for _ in range(500)]
-    rows[3] = (rows[3][0], math.inf, rows[3][2], rows[3][3])
-    rows[9] = (rows[9][0], rows[9][1], math.nan, rows[9][3])
-    dataset = Dataset(columns=(("y", "text"), ("with_inf", "float"), ("with_nan", "float"),
-                               ("plain", "float")), rows=rows)
+    dataset = non_finite_dataset(rows=500, seed=4)
     with loaded("duckdb", dataset, request) as where:
         counted = rank_with(where.source, where.table, "y", caps=COUNTED)
         row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW)

@@ -90,16 +90,21 @@ def test_cut_points_equal_numpy_bit_for_bit(engine: str, request: pytest.Fixture
                 dataset, shape, 4, keep=lambda row: row[1] < 4), shape
 
 
+def non_finite_dataset(rows: int, seed: int) -> Dataset:
+    """Gaussian columns "with_inf" (one +inf), "with_nan" (one NaN) and "plain"."""
+    rng = random.Random(seed)
+    data = [(rng.choice("xy"), rng.gauss(0, 1), rng.gauss(0, 1), rng.gauss(0, 1))
+            for _ in range(rows)]
+    data[3] = (data[3][0], math.inf, data[3][2], data[3][3])
+    data[9] = (data[9][0], data[9][1], math.nan, data[9][3])
+    return Dataset(columns=(("y", "text"), ("with_inf", "float"), ("with_nan", "float"),
+                            ("plain", "float")), rows=data)
+
+
 @pytest.mark.parametrize("engine", ["duckdb", "postgres"])
 def test_infinite_and_nan_values_fall_back_to_the_engines_quantile(
         engine: str, request: pytest.FixtureRequest) -> None:
-    rng = random.Random(5)
-    rows = [(rng.choice("xy"), rng.gauss(0, 1), rng.gauss(0, 1), rng.gauss(0, 1))
-            for _ in range(400)]
-    rows[3] = (rows[3][0], math.inf, rows[3][2], rows[3][3])
-    rows[9] = (rows[9][0], rows[9][1], math.nan, rows[9][3])
-    dataset = Dataset(columns=(("y", "text"), ("with_inf", "float"), ("with_nan", "float"),
-                               ("plain", "float")), rows=rows)
+    dataset = non_finite_dataset(rows=400, seed=5)
     with loaded(engine, dataset, request) as where:
         found = bucketed(where.source, where.table, 1024)
         assert set(found) == {"plain"}  # the other two are left to the bounds pre-pass

@@ -350,12 +350,12 @@ def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> 
 
 
 def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
-                      caps: Capabilities | None = None) -> dict[str, object]:
+                      caps: Capabilities) -> dict[str, object]:
     return {
         "attributes": attributes,
         "source": source_sql(spec.source),
         "target": quote(spec.target),
-        "target_key": _grouping_key(spec.target, spec.target_family, caps) if caps else None,
+        "target_key": _grouping_key(spec.target, spec.target_family, caps),
         "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
     }
 
@@ -363,9 +363,10 @@ def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
 def quantile_ranges_statement(spec: RankSpec, caps: Capabilities,
                               indexes: Sequence[int]) -> Statement:
     """Lowest and highest value of the attributes numbered ``indexes`` (1-based, in
-    ``spec.attributes``) over the whole source: step 1 of :mod:`bitsift.quantiles`."""
+    ``spec.attributes``) over the whole source, and its row count: step 1 of
+    :mod:`bitsift.quantiles` and :mod:`bitsift.quantile_counts`."""
     attributes = [{"index": i, "raw": attribute_value(spec.attributes[i - 1])} for i in indexes]
-    return _finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes)),
+    return _finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes, caps)),
                    caps, pretty=False)
 
 
@@ -375,17 +376,23 @@ def bucket_expression(attribute: AttributeSpec, low: float, scale: float) -> str
     return f"FLOOR(({value} - ({literal(float(low))})) * {literal(float(scale))})"
 
 
-def quantile_buckets_statement(spec: RankSpec, caps: Capabilities,
-                               buckets: Mapping[int, tuple[float, float]]) -> Statement:
-    """Value counts per equal-width bucket: ``buckets`` maps an attribute's index to the
-    (low, scale) of its buckets. Step 2 of :mod:`bitsift.quantiles`."""
-    attributes = [
+def _bucketed(spec: RankSpec, buckets: Mapping[int, tuple[float, float]],
+              ) -> list[dict[str, object]]:
+    """Template entries (index, raw value, bucket expression) of the attributes in
+    ``buckets`` (index -> (low, scale))."""
+    return [
         {"index": i, "raw": attribute_value(spec.attributes[i - 1]),
          "bucket": bucket_expression(spec.attributes[i - 1], low, scale)}
         for i, (low, scale) in buckets.items()
     ]
-    return _finish(render("quantile_buckets.sql.j2", **_quantile_context(spec, attributes)),
-                   caps, pretty=False)
+
+
+def quantile_buckets_statement(spec: RankSpec, caps: Capabilities,
+                               buckets: Mapping[int, tuple[float, float]]) -> Statement:
+    """Value counts per equal-width bucket: ``buckets`` maps an attribute's index to the
+    (low, scale) of its buckets. Step 2 of :mod:`bitsift.quantiles`."""
+    context = _quantile_context(spec, _bucketed(spec, buckets), caps)
+    return _finish(render("quantile_buckets.sql.j2", **context), caps, pretty=False)
 
 
 def quantile_picks_statement(spec: RankSpec, caps: Capabilities,
@@ -393,28 +400,13 @@ def quantile_picks_statement(spec: RankSpec, caps: Capabilities,
                              picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
     """The values at (bucket, position) ``picks`` of each attribute, positions counted from 1
     in value order within the bucket. Step 3 of :mod:`bitsift.quantiles`."""
-    attributes = []
-    for i, wanted in picks.items():
-        low, scale = buckets[i]
-        ordered = sorted(set(wanted))
-        attributes.append({
-            "index": i,
-            "raw": attribute_value(spec.attributes[i - 1]),
-            "bucket": bucket_expression(spec.attributes[i - 1], low, scale),
-            "buckets": [literal(b) for b in sorted({b for b, _ in ordered})],
-            "picks": [(literal(b), literal(p)) for b, p in ordered],
-        })
-    return _finish(render("quantile_picks.sql.j2", **_quantile_context(spec, attributes)),
-                   caps, pretty=False)
-
-
-def _bucketed(spec: RankSpec, buckets: Mapping[int, tuple[float, float]],
-              ) -> list[dict[str, object]]:
-    return [
-        {"index": i, "raw": attribute_value(spec.attributes[i - 1]),
-         "bucket": bucket_expression(spec.attributes[i - 1], low, scale)}
-        for i, (low, scale) in buckets.items()
-    ]
+    attributes = _bucketed(spec, {i: buckets[i] for i in picks})
+    for entry in attributes:
+        ordered = sorted(set(picks[entry["index"]]))  # type: ignore[index]
+        entry["buckets"] = [literal(b) for b in sorted({b for b, _ in ordered})]
+        entry["picks"] = [(literal(b), literal(p)) for b, p in ordered]
+    context = _quantile_context(spec, attributes, caps)
+    return _finish(render("quantile_picks.sql.j2", **context), caps, pretty=False)
 
 
 def quantile_cells_statement(spec: RankSpec, caps: Capabilities,
@@ -459,11 +451,9 @@ def counted_rank_statement(spec: RankSpec, caps: Capabilities,
     context.update(_segments_and_weight(spec, caps))
     context["order_by_gain"] = None
     # The first row's NULLs are typed: PostgreSQL types a VALUES column of NULLs only as text.
-    context["given"] = [
-        [("CAST(NULL AS BIGINT)" if first else "NULL") if v is None else literal(int(v))
-         for v in row]
-        for first, row in ((n == 0, row) for n, row in enumerate(rows))
-    ]
+    null = ["CAST(NULL AS BIGINT)"] + ["NULL"] * (len(rows) - 1)
+    context["given"] = [[null[n] if v is None else literal(int(v)) for v in row]
+                        for n, row in enumerate(rows)]
     return _finish(render("rank.sql.j2", **context), caps, pretty=False)
 
 
