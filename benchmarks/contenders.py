@@ -8,6 +8,8 @@
 (c) ``handwritten``    the quantile query for the numeric columns, then K ``GROUP BY attribute,
                        target`` queries run one after the other, metrics from the counts in NumPy.
 (d) ``floor``          one query reading every referenced column once: ``SELECT MIN(a1), …``.
+(e) ``bound``          the counting bound: one bare ``GROUP BY column, y`` per attribute over the
+    session pool, numeric columns by a fixed bucket expression (no cut point searched).
     ``strategy``       bitsift's own builder with one count strategy forced (strategy comparison).
 
 Every contender opens its own connection inside the timed region, like a fresh ``bitsift rank``.
@@ -263,6 +265,78 @@ def run_floor(dataset: Dataset) -> Metrics:
     return {}
 
 
+# (e) ------------------------------------------------------------------------------------------
+
+#: (e) groups a numeric column by this fixed bucket of its value: no quantile is searched.
+BOUND_BUCKETS_PER_UNIT = 16
+
+
+def _bound_query(dataset: Dataset, attribute: AttributeDef) -> str:
+    column = _identifier(attribute.name, dataset)
+    if attribute.kind == "numeric":
+        column = f"FLOOR({column} * {BOUND_BUCKETS_PER_UNIT})"
+    target = _identifier(TARGET, dataset)
+    return (f"SELECT {column} AS v, {target} AS y, COUNT(*) AS n FROM {_table(dataset)}"
+            " GROUP BY 1, 2")
+
+
+def run_counting_bound(dataset: Dataset, workers: int = 2) -> Metrics:
+    """The least counting work we found any exact in-SQL ranking to need: one bare GROUP BY per
+    attribute (none cheaper per attribute on DuckDB, not even the GROUPING SETS statement; see
+    RESULTS.md), on ``workers`` sessions at once like bitsift, and nothing else: no quantile
+    cut points searched (numeric columns fall into fixed buckets), no metrics computed in SQL.
+
+    Metrics (NumPy) come back for the categorical attributes only, to check the counts.
+    """
+    import queue
+    from concurrent.futures import ThreadPoolExecutor
+
+    attributes = layout(dataset.attributes)
+    with _session_pool(dataset, workers) as sessions:
+        idle: queue.Queue[Any] = queue.Queue()
+        for cursor in sessions:
+            idle.put(cursor)
+
+        def count(attribute: AttributeDef) -> list[tuple[Any, Any, int]]:
+            cursor = idle.get()
+            try:
+                cursor.execute(_bound_query(dataset, attribute))
+                return cursor.fetchall()
+            finally:
+                idle.put(cursor)
+
+        with ThreadPoolExecutor(max_workers=len(sessions)) as pool:
+            counted = list(pool.map(count, attributes))
+    return {
+        a.name: _metrics_from_table(_table_from_counts([r for r in rows if r[1] is not None]))
+        for a, rows in zip(attributes, counted, strict=True)
+        if a.kind == "categorical"
+    }
+
+
+@contextmanager
+def _session_pool(dataset: Dataset, workers: int) -> Iterator[list[Any]]:
+    """``workers`` cursors on separate sessions (DuckDB: cursors of one read-only database)."""
+    if dataset.engine == "duckdb":
+        import duckdb
+
+        connection = duckdb.connect(dataset.location, read_only=True)
+        try:
+            yield [connection.cursor() for _ in range(workers)]
+        finally:
+            connection.close()
+        return
+    import psycopg
+
+    url = dataset.location.replace("postgresql+psycopg://", "postgresql://", 1)
+    connections = [psycopg.connect(url) for _ in range(workers)]
+    try:
+        yield [c.cursor() for c in connections]
+    finally:
+        for c in connections:
+            c.close()
+
+
 # strategies -----------------------------------------------------------------------------------
 
 
@@ -333,5 +407,6 @@ CONTENDERS: dict[str, Callable[..., Metrics]] = {
     "export": run_export,
     "handwritten": run_handwritten,
     "floor": run_floor,
+    "bound": run_counting_bound,
     "strategy": run_strategy,
 }

@@ -24,6 +24,7 @@ PRELOAD: dict[str, tuple[str, ...]] = {
     "export": ("pandas", "sqlalchemy", "bitsift.reference"),
     "handwritten": ("bitsift.reference",),
     "floor": (),
+    "bound": ("bitsift.reference",),
     "strategy": ("bitsift", "bitsift.api", "sqlalchemy", "bitsift.concurrent"),
 }
 #: Per engine: its driver, and the sqlglot dialect module bitsift writes for (sqlglot imports

@@ -45,16 +45,19 @@ def assert_agreement(result: dict[str, Any], expected: set[str]) -> None:
 
 def test_duckdb_side_by_side(tmp_path: Path) -> None:
     stdout, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "4")
-    assert set(result["summaries"]) == {"a", "b", "b_arrow", "c", "d"}
-    for label in ("(a) bitsift.rank", "(c) K GROUP BY queries", "(d) scan floor", "ratios:"):
+    assert set(result["summaries"]) == {"a", "b", "b_arrow", "c", "d", "e"}
+    for label in ("(a) bitsift.rank", "(c) K GROUP BY queries", "(d) scan floor",
+                  "(e) counting bound", "ratios:"):
         assert label in stdout
-    for ratio in ("a/d", "b/a", "c/a", "peak RSS b/a"):
+    for ratio in ("a/d", "b/a", "c/a", "peak RSS b/a", "e/d", "a/e"):
         assert any(r["name"].startswith(ratio) for r in result["ratios"]), ratio
     for summary in result["summaries"].values():
         assert summary["runs"] == 1
         assert summary["median_seconds"] > 0
         assert summary["median_peak_rss_mib"] > summary["median_rss_before_mib"] * 0.5
-    assert_agreement(result, {"b", "b_arrow", "c"})
+    assert_agreement(result, {"b", "b_arrow", "c", "e"})
+    # (e) counts the categorical attributes only (numeric ones fall into fixed buckets).
+    assert set(result["agreement"]["e"]) == set(result["agreement"]["c"])
 
 
 def test_duckdb_concurrent_strategies_agree(tmp_path: Path) -> None:
@@ -73,9 +76,9 @@ def test_postgres_side_by_side(tmp_path: Path, postgres_engine: sa.Engine) -> No
     url = postgres_engine.url.render_as_string(hide_password=False)
     stdout, result = run_harness(tmp_path, "--engine", "postgres", "--attributes", "4",
                                  "--postgres-url", url)
-    assert set(result["summaries"]) == {"a", "b", "c", "d"}
+    assert set(result["summaries"]) == {"a", "b", "c", "d", "e"}
     assert "postgres" in result["versions"]
-    assert_agreement(result, {"b", "c"})
+    assert_agreement(result, {"b", "c", "e"})
     schema = result["dataset_table"].split(".")[0]
     with postgres_engine.connect() as connection:
         left = connection.exec_driver_sql(
