@@ -73,20 +73,8 @@ def _bitsift_source(dataset: Dataset) -> str:
 @contextmanager
 def _dbapi_cursor(dataset: Dataset) -> Iterator[Any]:
     """A plain DB-API cursor, read-only for DuckDB files."""
-    if dataset.engine == "duckdb":
-        import duckdb
-
-        connection = duckdb.connect(dataset.location, read_only=True)
-        try:
-            yield connection.cursor()
-        finally:
-            connection.close()
-    else:
-        import psycopg
-
-        url = dataset.location.replace("postgresql+psycopg://", "postgresql://", 1)
-        with psycopg.connect(url) as connection, connection.cursor() as cursor:
-            yield cursor
+    with _session_pool(dataset, 1) as (cursor,):
+        yield cursor
 
 
 def _metrics_from_table(table: np.ndarray) -> dict[str, float]:

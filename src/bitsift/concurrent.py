@@ -26,7 +26,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from typing import Any
 
-from bitsift import quantile_counts
+from bitsift import quantile_counts, quantiles
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine
 from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
@@ -163,7 +163,7 @@ def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> lis
     the other attributes share the other sessions."""
     counted: list[int] = []
     if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
-        counted = [i - 1 for i in quantile_counts.counted_indexes(spec)]
+        counted = [i - 1 for i in quantiles.quantile_indexes(spec)]
     others = [i for i in range(len(spec.attributes)) if i not in counted]
     if not counted or not others:
         parts = max(sessions, -(-len(spec.attributes) // max_size))

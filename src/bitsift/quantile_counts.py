@@ -37,12 +37,11 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from bitsift.engines.base import Engine
-from bitsift.quantiles import Plan, bucket_count, interpolate, plans_for
+from bitsift.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
 from bitsift.spec import RankSpec
 from bitsift.sqlbuild import (
     counted_rank_statement,
     quantile_cells_statement,
-    quantile_ranges_statement,
     quantile_splits_statement,
     rank_statement,
 )
@@ -73,13 +72,7 @@ def class_key(value: Any) -> ClassKey:
 
 def counts_apply(spec: RankSpec) -> bool:
     """Whether the attributes binned by quantile can be ranked from bucket counts."""
-    return not spec.by and not spec.weight and bool(counted_indexes(spec))
-
-
-def counted_indexes(spec: RankSpec) -> list[int]:
-    """Positions (from 1) of the attributes this module ranks: numeric, binned by quantile."""
-    return [i for i, a in enumerate(spec.attributes, start=1)
-            if a.kind == "numeric" and (a.binning or "quantile") == "quantile"]
+    return not spec.by and not spec.weight and bool(quantile_indexes(spec))
 
 
 @dataclass
@@ -255,13 +248,8 @@ def rank_counted(engine: Engine, spec: RankSpec,
     many as :func:`bitsift.quantiles.bucket_count` gives for the source's rows, unless given."""
     from bitsift.api import fetch_cuts  # api imports this module: import at call time
 
-    indexes = counted_indexes(spec) if counts_apply(spec) else []
-    plans: dict[int, Plan] = {}
-    if indexes:
-        ranges = engine.fetch(
-            quantile_ranges_statement(spec, engine.caps, indexes).sql).records()[0]
-        rows = int(ranges["row_count"] or 0)
-        plans = plans_for(ranges, indexes, buckets or bucket_count(rows))
+    indexes = quantile_indexes(spec) if counts_apply(spec) else []
+    plans = fetch_plans(engine, spec, indexes, buckets) if indexes else {}
     cells = _cells(engine, spec, plans) if plans else {}
     searched = {i: c.plan for i, c in cells.items()
                 if c.plan.usable and c.plan.count > 0 and c.plan.low != c.plan.high}

@@ -140,18 +140,30 @@ def plans_for(ranges: Mapping[str, object], indexes: list[int], buckets: int) ->
     return plans
 
 
+def quantile_indexes(spec: RankSpec) -> list[int]:
+    """Positions (from 1) of the attributes binned by quantile: numeric, no other binning."""
+    return [i for i, a in enumerate(spec.attributes, start=1)
+            if a.kind == "numeric" and (a.binning or "quantile") == "quantile"]
+
+
+def fetch_plans(engine: Engine, spec: RankSpec, indexes: list[int],
+                buckets: int | None = None) -> dict[int, Plan]:
+    """Step 1, run and read: the plans of the attributes numbered ``indexes``, with as many
+    buckets as :func:`bucket_count` gives for the source's rows, unless ``buckets`` says."""
+    ranges = engine.fetch(quantile_ranges_statement(spec, engine.caps, indexes).sql).records()[0]
+    return plans_for(ranges, indexes, buckets or bucket_count(int(ranges["row_count"] or 0)))
+
+
 def bucketed_cuts(engine: Engine, spec: RankSpec,
                   buckets: int | None = None) -> dict[str, list[float]]:
     """Cut points of the attributes binned by quantile, by name, for those the method serves
     (the others are left to the bounds pre-pass). Duplicates are kept, as the bounds
     pre-pass keeps them: the caller merges them. ``buckets``: as many as
     :func:`bucket_count` gives for the source's rows, unless given."""
-    indexes = [i for i, a in enumerate(spec.attributes, start=1)
-               if a.kind == "numeric" and (a.binning or "quantile") == "quantile"]
+    indexes = quantile_indexes(spec)
     if not indexes:
         return {}
-    ranges = engine.fetch(quantile_ranges_statement(spec, engine.caps, indexes).sql).records()[0]
-    plans = plans_for(ranges, indexes, buckets or bucket_count(int(ranges["row_count"] or 0)))
+    plans = fetch_plans(engine, spec, indexes, buckets)
     if not plans:
         return {}
     shapes = {i: (p.low, p.scale) for i, p in plans.items()}
