@@ -9,6 +9,8 @@ from __future__ import annotations
 import difflib
 from collections.abc import Iterable
 
+from bitsift.names import ambiguity_note
+
 
 class BitsiftError(Exception):
     """Base class of every error bitsift reports to its user."""
@@ -82,6 +84,6 @@ def suggest(name: str, candidates: Iterable[str]) -> str:
 def unknown_names_message(what: str, names: Iterable[str], candidates: Iterable[str]) -> str:
     """Build one line naming every unknown name with a suggestion for each."""
     pool = list(candidates)
-    parts = [f"{n!r}{suggest(n, pool)}" for n in names]
+    parts = [f"{n!r}{ambiguity_note(n, pool) or suggest(n, pool)}" for n in names]
     plural = "s" if len(parts) > 1 else ""
     return f"unknown {what}{plural}: " + ", ".join(parts)

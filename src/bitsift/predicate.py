@@ -17,6 +17,7 @@ from sqlglot.dialects.dialect import Dialect
 from sqlglot.tokens import TokenType
 
 from bitsift.errors import PredicateError, unknown_names_message
+from bitsift.names import resolve_name
 from bitsift.schema import Column
 
 _FORBIDDEN: tuple[type[exp.Expression], ...] = (
@@ -76,20 +77,15 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
             raise PredicateError(f"--where may not contain {what}: only conditions on columns")
     if not isinstance(_root(tree), _BOOLEAN_ROOTS):
         raise PredicateError("--where must be a condition (true or false per row), e.g. x > 3")
-    lowered: dict[str, list[str]] = {}
-    for name in columns:
-        lowered.setdefault(name.lower(), []).append(name)
+    catalog = list(columns)
     unknown: list[str] = []
     for column in list(tree.find_all(exp.Column)):
         if column.table:
             raise PredicateError(f"--where must use bare column names, not {column.sql(dialect)}")
-        name = column.name
-        if name not in columns:
-            candidates = lowered.get(name.lower(), [])
-            if len(candidates) != 1:
-                unknown.append(name)
-                continue
-            name = candidates[0]
+        name = resolve_name(column.name, catalog)
+        if name is None:
+            unknown.append(column.name)
+            continue
         column.replace(exp.column(exp.to_identifier(name, quoted=True)))
     if unknown:
         raise PredicateError("--where uses " + unknown_names_message("column", unknown, columns))

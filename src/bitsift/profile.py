@@ -22,6 +22,7 @@ from bitsift.api import make_options, run_ranking, run_segmented
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.names import resolve_name
 from bitsift.predicate import Predicate
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column
@@ -400,14 +401,11 @@ def resolve_sensitive(names: Iterable[str], columns: Sequence[Column]) -> tuple[
     found: list[str] = []
     unknown: list[str] = []
     for name in names:
-        if name in catalog:
-            found.append(name)
-            continue
-        folded = [c for c in catalog if c.lower() == name.lower()]
-        if len(folded) == 1:
-            found.append(folded[0])
-        else:
+        spelled = resolve_name(name, catalog)
+        if spelled is None:
             unknown.append(name)
+        else:
+            found.append(spelled)
     if unknown:
         raise ColumnError(unknown_names_message("column", unknown, catalog) + " (--sensitive)")
     return tuple(dict.fromkeys(found))

@@ -2,16 +2,19 @@
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import duckdb
 import sqlglot
 from sqlglot import exp
 
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table
 from bitsift.errors import SourceError, SpecError
+from bitsift.names import quoted
 
 #: Engines ``--engine`` can name; without it SOURCE decides (files: DuckDB, URLs: SQLAlchemy).
 ENGINE_NAMES: tuple[str, ...] = ("duckdb", "spark", "clickhouse")
@@ -118,6 +121,11 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         if table:
             raise SpecError(f"--table is not used with a data file ({Path(text).name})")
         engine = DuckDBEngine.open_file(text)
+        try:
+            refuse_renamed_columns(engine, text)
+        except SourceError:
+            engine.close()
+            raise
         return OpenSource(engine=engine, table=file_table(text), display=text)
     engine = DuckDBEngine.open_file(text)
     return _with_table(engine, table, text)
@@ -150,3 +158,102 @@ def _with_table(engine: Engine, table: str | None, where: str) -> OpenSource:
         engine.close()
         raise
     return OpenSource(engine=engine, table=expression, display=table)
+
+
+# --- columns a file reader renamed --------------------------------------------------------------
+
+#: How DuckDB's readers rename a column whose name is already taken apart from (ASCII) case:
+#: ``Y, y`` is read as ``Y, y_1``; ``y_1`` would then silently stand for the file's ``y``.
+_RENAMED = re.compile(r"^(?P<base>.+)_[0-9]+$", re.DOTALL)
+#: Objects of a JSON file whose keys are read for the file's column names (DuckDB samples the
+#: same number by default to decide the columns).
+_JSON_SAMPLE = 20_480
+
+
+def refuse_renamed_columns(engine: DuckDBEngine, path: str) -> None:
+    """Refuse a data file with column names that differ only in case (``Y`` and ``y``).
+
+    DuckDB matches names ignoring case and so renames one of the twins on read; ranking against
+    either would mean guessing which one the user meant. Raises :class:`SourceError` naming
+    the columns; a file whose names cannot be read here is left to the reader's own errors.
+    """
+    try:
+        names = engine.con.sql(exp.select(exp.Star()).from_(file_table(path)).limit(0)
+                               .sql("duckdb")).columns
+    except duckdb.Error:
+        return  # the reader's own error, reported when the columns are described
+    folded = {n.lower() for n in names}
+    suspects = [n for n in names
+                if (m := _RENAMED.match(n)) and m["base"].lower() in folded]
+    if not suspects:
+        return
+    try:
+        raw = _names_in_file(engine, path)
+    except duckdb.Error:
+        raw = None
+    twins = _case_twins(raw) if raw is not None else suspects
+    if not twins:
+        return
+    read_as = (f"; DuckDB reads them as {', '.join(quoted(names[raw.index(t)]) for t in twins)}"
+               if raw is not None and len(raw) == len(names) else "")
+    raise SourceError(f"{path}: columns {', '.join(quoted(t) for t in twins)} differ only in "
+                      f"case{read_as}; rename them in the file (bitsift will not guess which "
+                      "one a name means)")
+
+
+def _case_twins(names: list[str]) -> list[str]:
+    """Names that equal another one apart from ASCII case (DuckDB's folding), in file order."""
+    counts: dict[str, int] = {}
+    for n in names:
+        counts[n.lower()] = counts.get(n.lower(), 0) + 1
+    return [n for n in names if counts[n.lower()] > 1]
+
+
+def _table_function(name: str, path: str, **settings: bool) -> exp.Table:
+    arguments: list[exp.Expression] = [exp.Literal.string(path)]
+    arguments += [exp.EQ(this=exp.column(k), expression=exp.Boolean(this=v))
+                  for k, v in settings.items()]
+    return exp.Table(this=exp.Anonymous(this=name, expressions=arguments))
+
+
+def _names_in_file(engine: DuckDBEngine, path: str) -> list[str] | None:
+    """The column names as the file spells them, before the reader renames any."""
+    reader = file_reader(path)
+    if reader == "read_parquet":
+        query = (exp.select("file_name", "name", "num_children")
+                 .from_(_table_function("parquet_schema", path)))
+        return _parquet_top_level(engine.con.execute(query.sql("duckdb")).fetchall())
+    if reader == "read_csv_auto":
+        header = (exp.select(exp.Star())
+                  .from_(_table_function("read_csv", path, header=False, all_varchar=True))
+                  .limit(1))
+        rows = engine.con.execute(header.sql("duckdb")).fetchall()
+        return [str(v) for v in rows[0]] if rows else None
+    if reader == "read_json_auto":
+        objects = (exp.select(exp.func("json_keys", exp.column("json")))
+                   .from_(_table_function("read_json_objects", path)).limit(_JSON_SAMPLE))
+        keys = engine.con.execute(objects.sql("duckdb")).fetchall()
+        return list(dict.fromkeys(k for (row,) in keys for k in row or []))
+    return None
+
+
+def _parquet_top_level(rows: list[tuple[str, str, int | None]]) -> list[str]:
+    """The top-level column names of the first file in ``parquet_schema`` rows (each file's
+    schema tree, depth first: the root, then every field with its number of children)."""
+    names: list[str] = []
+    first = rows[0][0] if rows else None
+    open_groups: list[int] = []  # children still to come, per open group (root first)
+    for file_name, name, children in rows:
+        if file_name != first:
+            continue
+        if not open_groups:
+            open_groups.append(children or 0)
+            continue
+        if len(open_groups) == 1:
+            names.append(name)
+        open_groups[-1] -= 1
+        if children:
+            open_groups.append(children)
+        while len(open_groups) > 1 and open_groups[-1] == 0:
+            open_groups.pop()
+    return names

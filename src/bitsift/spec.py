@@ -9,6 +9,7 @@ from typing import Literal
 from sqlglot import exp
 
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.names import resolve_name
 from bitsift.predicate import Predicate, parse_predicate
 from bitsift.schema import NUMERIC_FAMILIES, Column, Kind
 
@@ -207,18 +208,15 @@ class RankSpec:
 
 
 def _match(names: Sequence[str], columns: dict[str, Column]) -> tuple[list[str], list[str]]:
-    """Resolve user spellings to catalog spellings (exact, else a unique case-insensitive match)."""
-    lowered: dict[str, list[str]] = {}
-    for c in columns:
-        lowered.setdefault(c.lower(), []).append(c)
+    """Resolve user spellings to catalog spellings (see :func:`bitsift.names.resolve_name`)."""
+    catalog = list(columns)
     found, unknown = [], []
     for n in names:
-        if n in columns:
-            found.append(n)
-        elif len(lowered.get(n.lower(), [])) == 1:
-            found.append(lowered[n.lower()][0])
-        else:
+        spelled = resolve_name(n, catalog)
+        if spelled is None:
             unknown.append(n)
+        else:
+            found.append(spelled)
     return found, unknown
 
 

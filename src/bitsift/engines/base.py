@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
 from sqlglot import exp
 
 from bitsift.dialects import Capabilities
+from bitsift.names import resolve_name  # noqa: F401 - engines and jobs import it from here
 from bitsift.schema import Column
 
 
@@ -54,11 +54,3 @@ class Engine(ABC):
 
     def __exit__(self, *exc: object) -> None:
         self.close()
-
-
-def resolve_name(name: str, names: Sequence[str]) -> str | None:
-    """Catalog spelling of ``name``: exact match, else a unique case-insensitive match."""
-    if name in names:
-        return name
-    folded = [n for n in names if n.lower() == name.lower()]
-    return folded[0] if len(folded) == 1 else None
