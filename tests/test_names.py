@@ -8,6 +8,8 @@ errors. Item 14: ``--where`` oddities, SQLite URLs and ``=`` in names. All data 
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import sqlite3
 import unicodedata
@@ -170,3 +172,93 @@ def test_sqlite_non_ascii_case_twins(tmp_path: Path) -> None:
     assert gains(bitsift.rank(url, "\u00e9", table="t")) == {"\u00c9": 0.0, "k": 0.0}
     with pytest.raises(ColumnError, match="spell it exactly"):
         bitsift.rank(url, "k", table="t", attributes=["E\u0301"])
+
+
+# --- item 13: names holding control characters ------------------------------------------------
+
+#: Retitles an xterm (OSC 0), rings the bell, starts a forged row, and reverses what follows.
+EVIL = "evil\x1b]0;owned\x07\nforged | row\u202e"
+EVIL_SHOWN = "evil\\x1b]0;owned\\x07\\x0aforged | row\\u202e"
+#: Switches the terminal's colour to red (SGR 31).
+RED = "seg\x1b[31m"
+
+
+def unsafe(text: str) -> list[str]:
+    """Characters in ``text`` that act on a terminal (line breaks between lines excepted)."""
+    return sorted({ch for line in text.split("\n") for ch in line if not ch.isprintable()})
+
+
+@pytest.fixture
+def evil_file(tmp_path: Path) -> Path:
+    path = tmp_path / "evil.parquet"
+    pq.write_table(pa.table({EVIL: ["a", "a", "b", "b"], f"{EVIL}price": [1.0, 2.0, 3.0, 4.0],
+                             RED: ["s", "s", "s", "t"], "t": ["x", "x", "y", "y"]}), path)
+    return path
+
+
+@pytest.mark.parametrize("fmt", ["table", "markdown"])
+@pytest.mark.parametrize("by", [[], ["--by", RED]])
+def test_text_formats_escape_control_characters(evil_file: Path, fmt: str, by: list[str],
+                                                capsys: pytest.CaptureFixture[str]) -> None:
+    code, out, err = run_main(capsys, "rank", evil_file, "--target", "t", "--format", fmt, *by)
+    assert code == 0, err
+    assert unsafe(out) == []
+    shown = EVIL_SHOWN if fmt == "table" else EVIL_SHOWN.replace("|", "\\|")
+    rows = [line for line in out.splitlines() if shown in line]
+    # The ranking row, plus the cut-point line of the numeric one in the table format.
+    per_ranking = 3 if fmt == "table" else 2
+    assert len(rows) == per_ranking * (2 if by else 1)
+    assert not any(line.startswith("forged") for line in out.splitlines())
+    if by:
+        assert "seg\\x1b[31m" in out
+
+
+def test_json_and_csv_keep_names_exact(evil_file: Path,
+                                       capsys: pytest.CaptureFixture[str]) -> None:
+    code, out, _ = run_main(capsys, "rank", evil_file, "--target", "t", "--format", "json")
+    assert code == 0
+    names = {a["attribute"] for a in json.loads(out)["attributes"]}
+    assert names == {EVIL, f"{EVIL}price", RED}
+    code, out, _ = run_main(capsys, "rank", evil_file, "--target", "t", "--format", "csv")
+    assert code == 0
+    assert {r["attribute"] for r in csv.DictReader(io.StringIO(out))} == names
+
+
+def test_html_report_shows_escapes(evil_file: Path, tmp_path: Path,
+                                   capsys: pytest.CaptureFixture[str]) -> None:
+    page = tmp_path / "report.html"
+    code, _, err = run_main(capsys, "report", evil_file, "--target", "t", "--out", page, "-q")
+    assert code == 0, err
+    html = page.read_text(encoding="utf-8")
+    assert unsafe(html) == []
+    assert EVIL_SHOWN in html
+
+
+@pytest.mark.parametrize("command", [
+    ["profile", "--attribute", EVIL, "--by", RED],
+    ["redundancy"],
+    ["select", "--k", "2"],
+])
+def test_other_text_outputs_escape_control_characters(evil_file: Path, command: list[str],
+                                                      capsys: pytest.CaptureFixture[str]
+                                                      ) -> None:
+    name, *options = command
+    if name == "profile":
+        options = options[:2]
+    code, out, err = run_main(capsys, name, evil_file, "--target", "t", *options)
+    assert code == 0, err
+    assert unsafe(out) == [] and unsafe(err) == []
+    assert EVIL_SHOWN in out
+
+
+@pytest.mark.parametrize("options", [
+    ["--target", "t\x1b[2J\nError: forged"],
+    ["--target", "t", "--binning-for", "price\n\x1b[2J=nope"],
+    ["--target", "t", "--date-part", "x\x1b[2J\n=year"],
+    ["--target", "t", "--where", "\"x\x1b[2J\nforged\" = 1"],
+])
+def test_error_lines_escape_control_characters(evil_file: Path, options: list[str],
+                                               capsys: pytest.CaptureFixture[str]) -> None:
+    line = error_line(capsys, "rank", evil_file, *options)
+    assert unsafe(line) == [], line
+    assert "\\x1b[2J" in line

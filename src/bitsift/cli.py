@@ -12,6 +12,8 @@ from bitsift import api
 from bitsift.dialects import CAPABILITIES
 from bitsift.errors import BitsiftError
 from bitsift.formatting import FORMATS, render
+from bitsift.jobs import JobError
+from bitsift.names import one_line
 from bitsift.sources import ENGINE_NAMES, EngineSource
 from bitsift.spec import BINNING_METHODS, MISSING_MODES, SORT_METRICS, Thresholds
 from bitsift.version import __version__
@@ -110,7 +112,7 @@ def _library_options(kwargs: dict[str, Any]) -> dict[str, Any]:
 
 def _notes(notes: Sequence[str]) -> None:
     for note in notes:
-        click.echo(f"note: {note}", err=True)
+        click.echo(f"note: {one_line(note)}", err=True)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -140,7 +142,9 @@ def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> No
         for statement in ranking.statements:
             click.echo(f"-- sent to {ranking.dialect}:\n{statement};", err=True)
     _notes(ranking.notes)
-    click.echo(render(ranking, fmt), nl=False)
+    # color=True: written as is. Click would otherwise strip what looks like a colour code from
+    # output that is not a terminal, changing names in CSV; text formats escape them anyway.
+    click.echo(render(ranking, fmt), nl=False, color=True)
 
 
 @cli.command("sql")
@@ -174,8 +178,8 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
     report = api.check(_engine_source(source, engine), sample_rows=sample_rows,
                        **_library_options(kwargs))
     scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
-    click.echo(f"{report.ranking.table}: {len(report.ranking.attributes)} attributes, "
-               f"database vs NumPy reference on the {scope}")
+    click.echo(f"{one_line(report.ranking.table)}: {len(report.ranking.attributes)} attributes,"
+               f" database vs NumPy reference on the {scope}")
     width = max(len(k) for k in report.differences)
     for metric, difference in report.differences.items():
         click.echo(f"  {metric.ljust(width)}  max |difference| = {difference:.3e}")
@@ -186,6 +190,14 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
         click.echo("result: sample only, differences are informative (no exact comparison)")
     if not report.ok:
         sys.exit(1)
+
+
+def error_text(error: BitsiftError) -> str:
+    """The message of ``error`` as one line with control characters escaped, so that a column
+    name cannot forge lines or act on the terminal; a job file's problems keep one line each."""
+    if isinstance(error, JobError):
+        return "\n".join(one_line(line) for line in str(error).split("\n"))
+    return one_line(str(error))
 
 
 def main(argv: Sequence[str] | None = None) -> None:
@@ -205,12 +217,12 @@ def main(argv: Sequence[str] | None = None) -> None:
     except BitsiftError as error:
         if _DEBUG["on"] or "--debug" in args:
             raise
-        click.echo(f"Error: {error}", err=True)
+        click.echo(f"Error: {error_text(error)}", err=True)
         sys.exit(1)
     except Exception as error:  # noqa: BLE001 - no tracebacks for users unless --debug
         if _DEBUG["on"] or "--debug" in args:
             raise
-        first = (str(error).strip().splitlines() or [""])[0]
+        first = one_line((str(error).strip().splitlines() or [""])[0])
         click.echo(f"Error: unexpected {type(error).__name__}: {first} "
                    "(run with --debug for details)", err=True)
         sys.exit(1)

@@ -15,6 +15,7 @@ from bitsift.dialects import CAPABILITIES
 from bitsift.history import DEFAULT_TABLE, Destination
 from bitsift.jobs import load_job, preflight, run_job
 from bitsift.models import write_models
+from bitsift.names import one_line
 from bitsift.result import SEGMENT_STATUS, Ranking, SegmentedRanking, segment_label
 
 
@@ -41,13 +42,14 @@ def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
     click.echo(f"job {job.name}, run {result.run_id} ({stamp})")
     for ranking, ranked in result.rankings:
         if isinstance(ranked, SegmentedRanking):
-            click.echo(f"  {ranking.name}: {ranked.table}, target {ranked.target}, by "
-                       f"{', '.join(ranked.by)}: {len(ranked.segments)} segments")
+            # Table and column names may hold control characters: one line each, escaped.
+            click.echo(one_line(f"  {ranking.name}: {ranked.table}, target {ranked.target}, by "
+                                f"{', '.join(ranked.by)}: {len(ranked.segments)} segments"))
             for part in ranked.segments:
-                click.echo(f"    {segment_label(part.segment)}: {_ranked_line(part)}")
+                click.echo(one_line(f"    {segment_label(part.segment)}: {_ranked_line(part)}"))
             continue
-        click.echo(f"  {ranking.name}: {ranked.table}, target {ranked.target}, "
-                   f"{_ranked_line(ranked)}")
+        click.echo(one_line(f"  {ranking.name}: {ranked.table}, target {ranked.target}, "
+                            f"{_ranked_line(ranked)}"))
     click.echo(f"wrote {result.rows_written} rows to {where}")
 
 

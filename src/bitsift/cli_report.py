@@ -13,6 +13,7 @@ from typing import IO, Any
 import click
 
 from bitsift.cli import _DEBUG, _comma_list, _library_options, by_option, rank_options
+from bitsift.names import one_line
 from bitsift.profile import (
     DEFAULT_MAX_VALUES,
     ProfiledRun,
@@ -45,7 +46,7 @@ def _after_run(run: ProfiledRun, quiet: bool) -> None:
             click.echo(f"-- sent to {run.ranking.dialect}:\n{statement};", err=True)
     if not quiet:
         for note in run.notes:
-            click.echo(f"note: {note}", err=True)
+            click.echo(f"note: {one_line(note)}", err=True)
 
 
 _sensitive_option = click.option(

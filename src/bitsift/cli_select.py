@@ -14,6 +14,7 @@ from typing import Any
 import click
 
 from bitsift.cli import _DEBUG, _library_options, _notes, rank_options
+from bitsift.names import escape_text
 from bitsift.redundancy import (
     DEFAULT_BATCH_PAIRS,
     PAIR_KEYS,
@@ -41,6 +42,7 @@ _format_option = click.option(
 def _aligned(rows: Sequence[Sequence[str]], left: set[int]) -> list[str]:
     """Rows as aligned text: the ``left`` columns (names) left-aligned, numbers right-aligned;
     a rule under the first row."""
+    rows = [[escape_text(c) for c in row] for row in rows]  # names may hold control characters
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
     lines = [
         "  ".join(c.ljust(w) if i in left else c.rjust(w)
@@ -90,7 +92,7 @@ def redundancy_table(result: Redundancy, top: int, by: str) -> str:
         out.append("(a single attribute: no pairs)")
     out += ["", "I: mutual information between the two attributes; sym unc: 2·I / (H(first) +"
             " H(second)), 0 (independent) to 1 (each determines the other)."]
-    return "\n".join(out) + "\n"
+    return "\n".join(map(escape_text, out)) + "\n"
 
 
 def selection_table(selection: Selection) -> str:
@@ -115,7 +117,7 @@ def selection_table(selection: Selection) -> str:
                else "relevance / redundancy")
     out += ["", "relevance: I(attribute; target) = information gain, bits; redundancy: mean I with"
             f" the attributes chosen before it; {name.lower()} = {formula}."]
-    return "\n".join(out) + "\n"
+    return "\n".join(map(escape_text, out)) + "\n"
 
 
 @click.command("redundancy")
@@ -140,7 +142,9 @@ def redundancy_command(source: str, fmt: str, top: int, by: str, batch_pairs: in
     if fmt == "json":
         click.echo(json.dumps(result.to_dict(by), indent=2))
     elif fmt == "csv":
-        click.echo(_csv(PAIR_KEYS, [p.to_dict() for p in result.matrix.ordered(by)]), nl=False)
+        # color=True: exact names (see cli.rank_command).
+        click.echo(_csv(PAIR_KEYS, [p.to_dict() for p in result.matrix.ordered(by)]), nl=False,
+                   color=True)
     else:
         click.echo(redundancy_table(result, top, by), nl=False)
 
@@ -168,7 +172,8 @@ def select_command(source: str, k: int, criterion: str, fmt: str, batch_pairs: i
     if fmt == "json":
         click.echo(json.dumps(selection.to_dict(), indent=2))
     elif fmt == "csv":
-        click.echo(_csv(STEP_KEYS, [s.to_dict() for s in selection.steps]), nl=False)
+        click.echo(_csv(STEP_KEYS, [s.to_dict() for s in selection.steps]), nl=False,
+                   color=True)  # exact names (see cli.rank_command)
     else:
         click.echo(selection_table(selection), nl=False)
 

@@ -8,6 +8,7 @@ import json
 from collections.abc import Callable
 
 from bitsift.metrics import FLAG_DESCRIPTIONS
+from bitsift.names import escape_text
 from bitsift.result import (
     ATTRIBUTE_KEYS,
     SEGMENT_STATUS,
@@ -48,6 +49,8 @@ def format_p_value(p: float) -> str:
 
 
 def _cell(key: str, value: object) -> str:
+    """One table cell as text; names are escaped (a column name may hold control characters:
+    raw, they could retitle the terminal or start a forged row)."""
     if value is None:  # a p-value that is not reported (fractional weights)
         return "-"
     if key == "flags":
@@ -58,7 +61,7 @@ def _cell(key: str, value: object) -> str:
         return f"{value:.1f}"
     if isinstance(value, float):
         return f"{value:.4f}"
-    return str(value)
+    return escape_text(str(value))
 
 
 def _rows(ranking: Ranking) -> list[list[str]]:
@@ -68,14 +71,14 @@ def _rows(ranking: Ranking) -> list[list[str]]:
 def _summary(ranking: Ranking) -> str:
     if ranking.weight is not None:
         return (
-            f"{ranking.table}: target {ranking.target!r}, weight {ranking.weight!r} (total"
-            f" {ranking.weight_total or 0:,.6g}), {ranking.rows:,} rows"
+            f"{escape_text(ranking.table)}: target {ranking.target!r}, weight"
+            f" {ranking.weight!r} (total {ranking.weight_total or 0:,.6g}), {ranking.rows:,} rows"
             f" ({ranking.rows_excluded:,} excluded: NULL target;"
             f" {ranking.rows_without_weight:,} without weight), {ranking.classes} classes,"
             f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
         )
     return (
-        f"{ranking.table}: target {ranking.target!r}, {ranking.rows:,} rows"
+        f"{escape_text(ranking.table)}: target {ranking.target!r}, {ranking.rows:,} rows"
         f" ({ranking.rows_excluded:,} excluded: NULL target), {ranking.classes} classes,"
         f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
     )
@@ -131,11 +134,12 @@ def _cut_lines(ranking: Ranking) -> list[str]:
     binned = [a for a in ranking.attributes if a.cuts is not None]
     if not binned:
         return []
-    width = max(len(a.attribute) for a in binned)
+    names = {a.attribute: escape_text(a.attribute) for a in binned}
+    width = max(len(n) for n in names.values())
     lines = ["", "cut points (bin k holds cut[k-1] <= x < cut[k]):"]
     for a in binned:
         bins = f"{a.bins} bin" + ("s" if a.bins != 1 else "")
-        lines.append(f"  {a.attribute.ljust(width)}  {a.binning or 'quantile'}, {bins}: "
+        lines.append(f"  {names[a.attribute].ljust(width)}  {a.binning or 'quantile'}, {bins}: "
                      f"{format_cuts(list(a.cuts or []))}")
     return lines
 
@@ -200,7 +204,7 @@ def render(ranking: Ranking | SegmentedRanking, fmt: str) -> str:
 
 
 def _segment_heading(ranking: Ranking) -> str:
-    text = f"segment {segment_label(ranking.segment)}"
+    text = f"segment {escape_text(segment_label(ranking.segment))}"
     if ranking.status != "ok":
         text += f": {SEGMENT_STATUS[ranking.status]}"
     return text
@@ -209,8 +213,9 @@ def _segment_heading(ranking: Ranking) -> str:
 def _segments_summary(segmented: SegmentedRanking) -> str:
     ranked = sum(1 for s in segmented.segments if s.status == "ok")
     weight = f", weight {segmented.weight!r}" if segmented.weight else ""
-    return (f"{segmented.table}: target {segmented.target!r}{weight}, by"
-            f" {', '.join(segmented.by)}: {len(segmented.segments)} segments, {ranked} ranked")
+    return (f"{escape_text(segmented.table)}: target {segmented.target!r}{weight}, by"
+            f" {escape_text(', '.join(segmented.by))}: {len(segmented.segments)} segments,"
+            f" {ranked} ranked")
 
 
 def _segment_sections(segmented: SegmentedRanking, one: Callable[[Ranking], str],

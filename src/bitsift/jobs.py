@@ -51,6 +51,7 @@ from bitsift.history import (
     ranking_rows,
     segment_json,
 )
+from bitsift.names import one_line
 from bitsift.predicate import parse_predicate
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column
@@ -93,7 +94,8 @@ class JobError(SpecError):
         self.path = path
         self.problems = sorted(problems, key=lambda p: (p.line or 0))
         count = len(self.problems)
-        lines = [f"{path}:{p.line}: {p.message}" if p.line else f"{path}: {p.message}"
+        # One line per problem, whatever a name in it holds (see names.one_line).
+        lines = [one_line(f"{path}:{p.line}: {p.message}" if p.line else f"{path}: {p.message}")
                  for p in self.problems]
         super().__init__(f"{count} problem{'s' if count > 1 else ''} in job file {path}:\n  "
                          + "\n  ".join(lines))

@@ -53,12 +53,12 @@ def ambiguity_note(name: str, names: Iterable[str]) -> str:
 _UNSAFE_CATEGORIES = frozenset({"Cc", "Cf", "Zl", "Zp", "Cs", "Co", "Cn"})
 
 
-def _escape_char(ch: str) -> str:
-    code = ord(ch)
-    if ch in "\\":
-        return "\\\\"
+def _escape_char(ch: str, backslash: str) -> str:
+    if ch == "\\":
+        return backslash
     if unicodedata.category(ch) not in _UNSAFE_CATEGORIES:
         return ch
+    code = ord(ch)
     if code <= 0xFF:
         return f"\\x{code:02x}"
     return f"\\u{code:04x}" if code <= 0xFFFF else f"\\U{code:08x}"
@@ -74,7 +74,19 @@ def escape_text(text: str) -> str:
     """
     if text.isprintable():
         return text  # the common case, backslashes included, stays as it was
-    return "".join(_escape_char(ch) for ch in text)
+    return "".join(_escape_char(ch, "\\\\") for ch in text)
+
+
+def one_line(text: str) -> str:
+    """A message as one terminal line: control characters escaped, backslashes kept (messages
+    quote names with ``repr``, whose escapes must not be doubled).
+
+    >>> one_line("unknown column 'a\\\\x1b' in t\\x1b[2J\\nforged")
+    "unknown column 'a\\\\x1b' in t\\\\x1b[2J\\\\x0aforged"
+    """
+    if text.isprintable():
+        return text
+    return "".join(_escape_char(ch, "\\") for ch in text)
 
 
 def quoted(name: str) -> str:

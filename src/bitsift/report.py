@@ -16,6 +16,7 @@ from typing import Any
 
 from bitsift.formatting import format_p_value
 from bitsift.metrics import FLAG_DESCRIPTIONS
+from bitsift.names import escape_text
 from bitsift.profile import AttributeProfile, ProfiledRun, ValueProfile
 from bitsift.report_redundancy import redundancy_context
 from bitsift.result import AttributeScore
@@ -433,6 +434,7 @@ def _clip(text: str, limit: int) -> str:
 
 
 def _aligned(rows: Sequence[Sequence[str]], left: int = 1) -> list[str]:
+    rows = [[escape_text(c) for c in row] for row in rows]  # values may hold control characters
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
     return [
         "  ".join(c.ljust(w) if i < left else c.rjust(w)
@@ -499,7 +501,8 @@ def profile_text(run: ProfiledRun) -> str:
             "Caution: " + CAUTIONS[0].split(". ")[0] + "."]
     if run.sensitive:
         out.append("Caution: " + CAUTIONS[1])
-    return "\n".join(out) + "\n"
+    # Names and class labels in the headings: one line each, nothing acting on the terminal.
+    return "\n".join(map(escape_text, out)) + "\n"
 
 
 def profile_dict(run: ProfiledRun) -> dict[str, Any]:
