@@ -243,3 +243,27 @@ def test_golden_clickhouse_sql_runs_on_chdb(chdb_session: Any, tmp_path: Path) -
     finally:
         session.close()
         connection.close()
+
+
+def test_reading_a_database_directory_leaves_it_as_it_was(
+        chdb_session: Any, database_dir: tuple[Dataset, Path, str]) -> None:
+    # Issue 16: opening the directory used to leave a new tmp/ folder in it.
+    _, directory, table = database_dir
+    made = directory / "tmp"
+    if made.is_dir() and not any(made.iterdir()):
+        made.rmdir()  # made when the fixture created the database
+    before = sorted(p.name for p in directory.iterdir())
+    result = CliRunner().invoke(cli, ["rank", str(directory), "--engine", "clickhouse",
+                                      "--table", table, "--target", "y"])
+    assert result.exit_code == 0, result.output
+    assert sorted(p.name for p in directory.iterdir()) == before
+
+
+def test_a_folder_that_is_no_chdb_database_is_refused_untouched(chdb_session: Any,
+                                                                tmp_path: Path) -> None:
+    folder = tmp_path / "plain"
+    folder.mkdir()
+    (folder / "notes.txt").write_text("mine")
+    with pytest.raises(SourceError, match="not a chdb database directory"):
+        bitsift.rank(EngineSource("clickhouse", str(folder)), target="y", table="t")
+    assert sorted(p.name for p in folder.iterdir()) == ["notes.txt"]

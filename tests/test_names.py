@@ -22,7 +22,9 @@ import sqlalchemy as sa
 
 import bitsift
 from bitsift.cli import main
-from bitsift.errors import ColumnError, SourceError
+from bitsift.errors import ColumnError, PredicateError, SourceError
+from bitsift.predicate import MAX_NESTING, parse_predicate
+from bitsift.schema import Column
 
 NFC_E = "\u00e9"  # é as one code point
 NFD_E = unicodedata.normalize("NFD", NFC_E)  # e + combining acute accent
@@ -262,3 +264,127 @@ def test_error_lines_escape_control_characters(evil_file: Path, options: list[st
     line = error_line(capsys, "rank", evil_file, *options)
     assert unsafe(line) == [], line
     assert "\\x1b[2J" in line
+
+
+# --- item 14: --where oddities ----------------------------------------------------------------
+
+WHERE_COLUMNS = {n: Column(n, "integer") for n in ("a", "version", "session")}
+
+
+@pytest.mark.parametrize(("dialect", "text", "message"), [
+    ("duckdb", "@@version = 1", "variable or parameter"),  # was abs(abs("version")) = 1
+    ("duckdb", "a = @version", "variable or parameter"),
+    ("mysql", "@@version = 1", "session variable"),  # was the server's version, not a column
+    ("mysql", "a = @@session.version", "session variable"),
+    ("mysql", "a = @x", "variable or parameter"),
+    ("mysql", "a = _utf8'1'", "character set introducer"),
+    ("mysql", "a = _latin1 X'31'", "character set introducer"),
+    ("postgres", "a = @x", "variable or parameter"),
+])
+def test_where_refuses_variables_and_introducers(dialect: str, text: str, message: str) -> None:
+    with pytest.raises(PredicateError, match=message):
+        parse_predicate(text, WHERE_COLUMNS, dialect)
+
+
+@pytest.mark.parametrize("text", [
+    "(" * 3000 + "a = 1" + ")" * 3000,
+    "NOT " * 3000 + "a = 1",
+    "a = " + "abs(" * 3000 + "1" + ")" * 3000,
+    "(" * (MAX_NESTING + 1) + "a = 1" + ")" * (MAX_NESTING + 1),
+])
+def test_where_nested_too_deeply_is_one_clear_line(text: str, tmp_path: Path,
+                                                   capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "t.parquet"
+    pq.write_table(pa.table({"a": [1, 2, 1, 2], "y": ["p", "p", "q", "q"]}), path)
+    line = error_line(capsys, "rank", path, "--target", "y", "--where", text)
+    assert f"nests more than {MAX_NESTING} levels" in line
+
+
+@pytest.mark.parametrize("by", [None, "a"])
+def test_where_at_the_nesting_limit_runs_end_to_end(tmp_path: Path, by: str | None) -> None:
+    path = tmp_path / "t.parquet"
+    pq.write_table(pa.table({"a": [1, 2, 1, 2], "b": [1.0, 2.0, 3.0, 4.0],
+                             "y": ["p", "p", "q", "q"]}), path)
+    calls = MAX_NESTING - 2  # '=' and the literal 1 are the two levels around the calls
+    text = "a = " + "abs(" * calls + "1" + ")" * calls
+    assert _nesting_of(text) == MAX_NESTING
+    ranking = bitsift.rank(path, "y", where=text, by=by, binning="mdl")
+    assert ranking is not None
+
+
+def _nesting_of(text: str) -> int:
+    from bitsift.predicate import _nesting
+
+    return _nesting(parse_predicate(text, {"a": Column("a", "integer")}, "duckdb").expression)
+
+
+def test_mariadb_where_session_variable_and_introducer(mariadb_engine: sa.Engine,
+                                                       mariadb_database: str) -> None:
+    with mariadb_engine.begin() as connection:
+        connection.exec_driver_sql(f"CREATE TABLE `{mariadb_database}`.t AS SELECT "
+                                   "MOD(seq, 3) AS a, MOD(seq, 2) AS y, seq AS version "
+                                   "FROM seq_0_to_19")
+    url = mariadb_engine.url.set(database=mariadb_database).render_as_string(
+        hide_password=False)
+    for text, message in [("@@version > 1", "session variable"),
+                          ("a = _utf8'1'", "character set introducer")]:
+        with pytest.raises(PredicateError, match=message):
+            bitsift.rank(url, "y", table="t", where=text)
+
+
+# --- item 14: SQLite URLs never create a database ---------------------------------------------
+
+
+@pytest.mark.parametrize("form", [
+    "sqlite:///file:{path}?mode=rwc&uri=true",
+    "sqlite:///file:{path}?uri=true",
+    "sqlite:///file://{path}?uri=true&mode=rwc",
+    "sqlite:///file:{path}",
+    "sqlite:///{path}",
+])
+def test_a_sqlite_url_never_creates_the_database(tmp_path: Path, form: str) -> None:
+    path = tmp_path / "missing.db"
+    with pytest.raises(SourceError, match="no such SQLite database"):
+        bitsift.rank(form.format(path=path), "y", table="t")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_an_existing_sqlite_database_opens_through_a_file_uri(tmp_path: Path) -> None:
+    path = tmp_path / "shop.db"
+    with sqlite3.connect(path) as connection:
+        connection.execute("CREATE TABLE t (a TEXT, y TEXT)")
+        connection.executemany("INSERT INTO t VALUES (?, ?)",
+                               [("u", "p"), ("u", "p"), ("v", "q"), ("v", "q")])
+    ranking = bitsift.rank(f"sqlite:///file:{path}?mode=ro&uri=true", "y", table="t")
+    assert gains(ranking) == {"a": 1.0}
+
+
+# --- item 14: names holding '=' in --binning-for and --date-part -----------------------------
+
+
+def test_binning_for_and_date_part_take_quoted_names(tmp_path: Path,
+                                                     capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "eq.parquet"
+    pq.write_table(pa.table({
+        "p=q": [1.0, 2.0, 3.0, 4.0, 5.0, 6.0],
+        "d=1,x": pa.array([0, 0, 40, 40, 80, 80], pa.int32()).cast(pa.date32()),
+        'say "hi"': [1.5, 1.5, 1.5, 2.5, 2.5, 2.5],
+        "y": ["a", "a", "a", "b", "b", "b"],
+    }), path)
+    code, out, err = run_main(capsys, "rank", path, "--target", "y", "--format", "json",
+                              "--binning-for", '"p=q"=best-split,"say ""hi"""=equal-width:2',
+                              "--date-part", '"d=1,x"=month')
+    assert code == 0, err
+    attributes = {a["attribute"]: a for a in json.loads(out)["attributes"]}
+    assert attributes["p=q"]["binning"] == "best-split"
+    assert attributes['say "hi"']["binning"] == "equal-width"
+    assert attributes["d=1,x"]["kind"] == "categorical"
+    assert attributes["d=1,x"]["distinct"] == 3  # January, February, March
+
+
+def test_an_unquoted_name_holding_equals_gets_a_hint(capsys: pytest.CaptureFixture[str],
+                                                     tmp_path: Path) -> None:
+    path = tmp_path / "eq.parquet"
+    pq.write_table(pa.table({"p=q": [1.0, 2.0], "y": ["a", "b"]}), path)
+    line = error_line(capsys, "rank", path, "--target", "y", "--binning-for", "p=q=mdl")
+    assert 'double quotes, e.g. "p=q"=mdl' in line

@@ -15,7 +15,13 @@ from bitsift.formatting import FORMATS, render
 from bitsift.jobs import JobError
 from bitsift.names import one_line
 from bitsift.sources import ENGINE_NAMES, EngineSource
-from bitsift.spec import BINNING_METHODS, MISSING_MODES, SORT_METRICS, Thresholds
+from bitsift.spec import (
+    BINNING_METHODS,
+    MISSING_MODES,
+    SORT_METRICS,
+    Thresholds,
+    split_outside_quotes,
+)
 from bitsift.version import __version__
 
 _DEBUG = {"on": False}
@@ -28,6 +34,16 @@ def _comma_list(
     for item in value:
         names += [v.strip() for v in item.split(",") if v.strip()]
     return tuple(names)
+
+
+def _pair_list(
+    _ctx: click.Context, _param: click.Parameter, value: Sequence[str]
+) -> tuple[str, ...]:
+    """COL=VALUE items split at commas outside double quotes ("a,b"=mdl names one column)."""
+    items: list[str] = []
+    for item in value:
+        items += [v.strip() for v in split_outside_quotes(item) if v.strip()]
+    return tuple(items)
 
 
 def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
@@ -52,14 +68,16 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
                      show_default=True,
                      help="How numeric attributes are cut: equal-frequency or equal-width bins, "
                           "the best binary split, or Fayyad & Irani's MDL."),
-        click.option("--binning-for", "binning_for", multiple=True, callback=_comma_list,
+        click.option("--binning-for", "binning_for", multiple=True, callback=_pair_list,
                      metavar="COL=METHOD[:BINS]",
-                     help="Another binning for some columns, e.g. price=mdl,age=quantile:5."),
-        click.option("--date-part", "date_part", multiple=True, callback=_comma_list,
+                     help="Another binning for some columns, e.g. price=mdl,age=quantile:5; "
+                          'a name holding = or , in double quotes: "p=q"=mdl.'),
+        click.option("--date-part", "date_part", multiple=True, callback=_pair_list,
                      metavar="[COL=]PART",
                      help="Rank dates as categories of a part (year, month, dow, hour): "
                           "sown_on=month, or a bare PART for every date column. Dates named "
-                          "in --numeric are binned as epoch seconds instead."),
+                          'in --numeric are binned as epoch seconds instead. A name holding '
+                          '= or , in double quotes: "d=1"=month.'),
         click.option("--where", help="Only rows matching this condition (checked by sqlglot)."),
         click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
                      show_default=True, help="Metric to sort by (descending)."),

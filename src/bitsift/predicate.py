@@ -14,7 +14,7 @@ from dataclasses import dataclass
 import sqlglot
 from sqlglot import exp
 from sqlglot.dialects.dialect import Dialect
-from sqlglot.tokens import TokenType
+from sqlglot.tokens import Token, TokenType
 
 from bitsift.errors import PredicateError, unknown_names_message
 from bitsift.names import resolve_name
@@ -31,7 +31,26 @@ _FORBIDDEN: tuple[type[exp.Expression], ...] = (
     exp.Star,
     exp.Anonymous,
     exp.Into,
+    exp.SessionParameter,
+    exp.Introducer,
 )
+#: What the messages call the forbidden things whose sqlglot key says little to a user.
+_DESCRIPTIONS: dict[str, str] = {
+    "sessionparameter": "a session variable (@@name)",
+    "parameter": "a variable or parameter (@name)",
+    "introducer": "a character set introducer (_utf8'...'; write the string alone)",
+}
+#: Tokens that are never part of a condition on columns, whatever a dialect's parser makes of
+#: them: DuckDB reads ``@@version`` as abs(abs("version")), a column that may well exist.
+_FORBIDDEN_TOKENS: dict[TokenType, str] = {
+    TokenType.PARAMETER: "a variable or parameter (@name; for an absolute value write abs(x))",
+    TokenType.SESSION_PARAMETER: _DESCRIPTIONS["sessionparameter"],
+    TokenType.INTRODUCER: _DESCRIPTIONS["introducer"],
+}
+#: Deepest nesting of a predicate (parentheses, NOT, function calls): the ranking statement
+#: embeds it a few levels further down, and sqlglot's recursive parser and generator hit
+#: Python's recursion limit near 40 levels in all. A chain of AND/OR counts once.
+MAX_NESTING = 32
 _BOOLEAN_ROOTS: tuple[type[exp.Expression], ...] = (
     exp.Predicate,
     exp.Connector,
@@ -63,9 +82,15 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     """
     try:
         tokens = Dialect.get_or_raise(dialect).tokenize(text)
+    except sqlglot.errors.SqlglotError as error:
+        raise PredicateError(f"--where does not parse: {_first_line(error)}") from None
+    _check_tokens(tokens)
+    try:
         statements = sqlglot.parse(text, read=dialect)
     except sqlglot.errors.SqlglotError as error:
         raise PredicateError(f"--where does not parse: {_first_line(error)}") from None
+    except RecursionError:
+        raise PredicateError(_too_deep()) from None
     statements = [s for s in statements if s is not None]
     # Even a trailing ';' is refused: a separator has no place in one condition.
     if len(statements) != 1 or any(t.token_type == TokenType.SEMICOLON for t in tokens):
@@ -73,8 +98,11 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     tree = statements[0]
     for node in tree.walk():
         if isinstance(node, _FORBIDDEN):
-            what = node.key if not isinstance(node, exp.Anonymous) else f"function {node.name}()"
+            what = (f"function {node.name}()" if isinstance(node, exp.Anonymous)
+                    else _DESCRIPTIONS.get(node.key, node.key))
             raise PredicateError(f"--where may not contain {what}: only conditions on columns")
+    if _nesting(tree) > MAX_NESTING:
+        raise PredicateError(_too_deep())
     if not isinstance(_root(tree), _BOOLEAN_ROOTS):
         raise PredicateError("--where must be a condition (true or false per row), e.g. x > 3")
     catalog = list(columns)
@@ -90,6 +118,40 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     if unknown:
         raise PredicateError("--where uses " + unknown_names_message("column", unknown, columns))
     return Predicate(text=text, expression=tree)
+
+
+def _check_tokens(tokens: list[Token]) -> None:
+    """Refuse what no condition on columns holds, and nesting too deep to parse, by tokens:
+    before the recursive parser sees thousands of parentheses."""
+    depth = 0
+    for token in tokens:
+        if token.token_type in _FORBIDDEN_TOKENS:
+            raise PredicateError(f"--where may not contain {_FORBIDDEN_TOKENS[token.token_type]}:"
+                                 " only conditions on columns")
+        if token.token_type == TokenType.L_PAREN:
+            depth += 1
+            if depth > MAX_NESTING:
+                raise PredicateError(_too_deep())
+        elif token.token_type == TokenType.R_PAREN:
+            depth -= 1
+
+
+def _nesting(tree: exp.Expression) -> int:
+    """How deep ``tree`` nests, counted without recursion; AND/OR chains count once."""
+    deepest = 0
+    pending = [(tree, 1)]
+    while pending:
+        node, depth = pending.pop()
+        deepest = max(deepest, depth)
+        for child in node.iter_expressions():
+            chained = isinstance(child, exp.Connector) and type(child) is type(node)
+            pending.append((child, depth if chained else depth + 1))
+    return deepest
+
+
+def _too_deep() -> str:
+    return (f"--where nests more than {MAX_NESTING} levels (parentheses, NOT, function calls):"
+            " write it flatter, e.g. with IN (...) or AND/OR chains")
 
 
 def _first_line(error: Exception) -> str:

@@ -26,12 +26,55 @@ TEMPORAL_FAMILIES: frozenset[str] = frozenset({"date", "timestamp"})
 ColumnBinning = tuple[str, str, int | None]
 
 
+def split_outside_quotes(text: str, separator: str = ",") -> list[str]:
+    """``text`` cut at every ``separator`` that is not inside double quotes (quotes kept).
+
+    >>> split_outside_quotes('"a,b"=mdl, c=quantile:4')
+    ['"a,b"=mdl', ' c=quantile:4']
+    """
+    parts, current, quoted = [], [], False
+    for ch in text:
+        if ch == '"':
+            quoted = not quoted  # a doubled quote toggles twice: still inside
+        if ch == separator and not quoted:
+            parts.append("".join(current))
+            current = []
+        else:
+            current.append(ch)
+    parts.append("".join(current))
+    return parts
+
+
+def _name_and_setting(item: str, what: str) -> tuple[str, str, bool]:
+    """``COLUMN=VALUE`` -> (column, value, had '='). A column holding ``=`` (or ``,``) is written
+    in double quotes, a quote in it doubled: ``"p=q"=mdl``."""
+    text = item.strip()
+    if not text.startswith('"'):
+        name, sep, setting = text.partition("=")
+        return name.strip(), setting.strip(), bool(sep)
+    name, position = [], 1
+    while True:
+        end = text.find('"', position)
+        if end < 0:
+            raise SpecError(f"{what}: a closing double quote is missing in {item!r}")
+        name.append(text[position:end])
+        if text[end + 1:end + 2] != '"':
+            break
+        name.append('"')  # "" inside quotes is one quote
+        position = end + 2
+    rest = text[end + 1:].strip()
+    if rest and not rest.startswith("="):
+        raise SpecError(f"{what} takes COLUMN=VALUE or \"COLUMN\"=VALUE, not {item!r}")
+    return "".join(name), rest[1:].strip(), bool(rest)
+
+
 def _pairs(value: object, what: str) -> list[tuple[str, str]]:
-    """``"a=x,b=y"``, a mapping, or an iterable of ``"a=x"`` strings / ``(a, x)`` pairs."""
+    """``"a=x,b=y"``, a mapping, or an iterable of ``"a=x"`` strings / ``(a, x)`` pairs.
+    Names holding ``=`` or ``,`` are double-quoted (see :func:`_name_and_setting`)."""
     if value is None:
         return []
     if isinstance(value, str):
-        items: list[object] = [v for v in value.split(",") if v.strip()]
+        items: list[object] = [v for v in split_outside_quotes(value) if v.strip()]
     elif isinstance(value, dict):
         items = list(value.items())
     else:
@@ -39,12 +82,16 @@ def _pairs(value: object, what: str) -> list[tuple[str, str]]:
     pairs = []
     for item in items:
         if isinstance(item, str):
-            name, sep, setting = item.partition("=")
-            if not sep and what == "--date-part":
+            name, setting, had_sep = _name_and_setting(item, what)
+            if not had_sep and what == "--date-part":
                 name, setting = "", name  # a bare part applies to every date column
-            elif not sep or not name.strip():
+            elif not had_sep or not name.strip():
                 raise SpecError(f"{what} takes COLUMN=VALUE, not {item!r}")
-            pairs.append((name.strip(), setting.strip()))
+            elif "=" in setting:
+                raise SpecError(f"{what} {name}={setting}: a column name holding '=' is written "
+                                f"in double quotes, e.g. \"{name}={setting.split('=')[0]}\"="
+                                f"{setting.split('=', 1)[1]}")
+            pairs.append((name, setting))
         else:
             name, setting, *_ = item  # type: ignore[misc]
             pairs.append((str(name), str(setting)))

@@ -89,6 +89,9 @@ class ChdbEngine(Engine):
     session: Any = None
     owned: bool = True
     timeout: float | None = None
+    #: The ``tmp/`` folder chdb made in a database directory on opening it, removed on close:
+    #: bitsift leaves the directory as it found it.
+    made_tmp: Path | None = None
 
     @classmethod
     def wrap(cls, session: Any) -> ChdbEngine:
@@ -106,17 +109,23 @@ class ChdbEngine(Engine):
         directory = Path(path)
         if not directory.is_dir():
             raise SourceError(f"no such chdb database directory: {path}")
+        if not (directory / "metadata").is_dir():
+            # chdb would turn any folder into a database (tmp/, data/, ...): never create one.
+            raise SourceError(f"{path} is not a chdb database directory (it has no metadata/)")
         text = str(directory.resolve())
         if "?" in text:
             # chdb reads '?key=value' after a path as engine start-up arguments.
             raise SourceError(f"a chdb database path may not contain '?': {path}")
+        tmp = directory / "tmp"
+        made_tmp = None if tmp.exists() else tmp
         try:
             session = import_chdb().Session(text)
         except MissingDriverError:
             raise
         except Exception as error:  # noqa: BLE001 - chdb raises RuntimeError subclasses
+            _remove_empty(made_tmp)
             raise SourceError(f"cannot open {path} as a chdb database: {_line(error)}") from None
-        return cls(caps=capabilities("clickhouse"), session=session)
+        return cls(caps=capabilities("clickhouse"), session=session, made_tmp=made_tmp)
 
     def read_parquet(self, path: str) -> exp.Table:
         """A Parquet file (or glob) as a uniquely named view over ``file(path, 'Parquet')``.
@@ -203,6 +212,7 @@ class ChdbEngine(Engine):
     def close(self) -> None:
         if self.session is not None and self.owned:
             self.session.close()
+            _remove_empty(self.made_tmp)  # chdb makes it again when the folder is reopened
         self.session = None
 
 
@@ -222,6 +232,13 @@ def open_chdb_location(location: str, table: str | None) -> tuple[ChdbEngine, ex
     except BaseException:
         engine.close()
         raise
+
+
+def _remove_empty(folder: Path | None) -> None:
+    """Remove ``folder`` if it exists and is empty; anything in it is left alone."""
+    if folder is not None:
+        with contextlib.suppress(OSError):
+            folder.rmdir()
 
 
 def _code(error: BaseException) -> int | None:

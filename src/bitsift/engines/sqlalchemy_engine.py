@@ -8,7 +8,6 @@ import re
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 import sqlalchemy as sa
@@ -123,10 +122,11 @@ class SqlAlchemyEngine(Engine):
         secret = parsed.password if isinstance(parsed.password, str) else None
         backend = parsed.get_backend_name()
         database = parsed.database or ""
-        if (backend == "sqlite" and database not in ("", ":memory:")
-                and not database.startswith("file:") and not Path(database).exists()):
+        missing = (sqlite_support.missing_database(database, parsed.query)
+                   if backend == "sqlite" else None)
+        if missing is not None:
             # SQLite would create an empty database file: bitsift never writes.
-            raise SourceError(f"no such SQLite database: {database}")
+            raise SourceError(f"no such SQLite database: {missing}")
         try:
             engine = sa.create_engine(parsed, poolclass=sa.pool.NullPool)
         except (ModuleNotFoundError, ImportError) as error:

@@ -14,9 +14,11 @@ from __future__ import annotations
 import math
 import sqlite3
 import time
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
+from urllib.parse import parse_qs, unquote, urlsplit
 
 
 def _floor(x: Any) -> Any:
@@ -88,3 +90,35 @@ def deadline(connection: sqlite3.Connection, seconds: float | None) -> Iterator[
         yield lambda: fired["yes"]
     finally:
         connection.set_progress_handler(None, 0)
+
+
+def missing_database(database: str, query: Mapping[str, Any]) -> str | None:
+    """The file a SQLite URL names when it does not exist (SQLite would create it empty, and
+    bitsift never creates a source), else None. ``database`` and ``query`` as SQLAlchemy parsed
+    them: with ``uri=true`` the database is a ``file:`` URI whose path is checked, so that
+    ``file:x.db?mode=rwc`` creates nothing either; in-memory databases are never missing.
+
+    >>> missing_database("file:/no/such.db", {"uri": "true", "mode": "rwc"})
+    '/no/such.db'
+    >>> missing_database("file:shared?mode=memory", {"uri": "true"}) is None
+    True
+    """
+    if database in ("", ":memory:"):
+        return None
+    path = database
+    if str(query.get("uri", "")).lower() in ("true", "1") and database.startswith("file:"):
+        location = urlsplit(database)
+        modes = [*parse_qs(location.query).get("mode", []), *_listed(query.get("mode"))]
+        if "memory" in modes:
+            return None
+        # file:x, file:/x and file:///x (or file://localhost/x) name a path; %-escapes decoded.
+        path = unquote(location.path)
+        if not path or path == ":memory:":
+            return None
+    return None if Path(path).exists() else path
+
+
+def _listed(value: Any) -> list[str]:
+    if value is None:
+        return []
+    return [value] if isinstance(value, str) else [str(v) for v in value]
