@@ -22,7 +22,8 @@ import sqlalchemy as sa
 
 import bitsift
 from bitsift.cli import main
-from bitsift.errors import ColumnError, PredicateError, SourceError
+from bitsift.errors import BitsiftError, ColumnError, PredicateError, SourceError
+from bitsift.jobs import JobError, load_job, run_job
 from bitsift.predicate import MAX_NESTING, parse_predicate
 from bitsift.schema import Column
 
@@ -388,3 +389,44 @@ def test_an_unquoted_name_holding_equals_gets_a_hint(capsys: pytest.CaptureFixtu
     pq.write_table(pa.table({"p=q": [1.0, 2.0], "y": ["a", "b"]}), path)
     line = error_line(capsys, "rank", path, "--target", "y", "--binning-for", "p=q=mdl")
     assert 'double quotes, e.g. "p=q"=mdl' in line
+
+
+# --- item 1: job files follow the same rules -----------------------------------------------------
+
+
+def test_a_job_on_a_file_with_case_twins_is_refused_and_writes_nothing(
+        twin_files: dict[str, Path]) -> None:
+    folder = twin_files["parquet"].parent
+    job_file = folder / "job.toml"
+    job_file.write_text(f"""source = "{twin_files['parquet']}"
+[results]
+destination = "h.duckdb"
+[[ranking]]
+name = "r1"
+target = "y"
+""", encoding="utf-8")
+    with pytest.raises(BitsiftError, match="differ only in case"):
+        run_job(load_job(job_file))
+    assert not (folder / "h.duckdb").exists()
+
+
+def test_a_job_names_unicode_twins_exactly(unicode_file: Path) -> None:
+    folder = unicode_file.parent
+    job_file = folder / "job.toml"
+    job_file.write_text(f"""source = "{unicode_file}"
+[results]
+destination = "h.duckdb"
+[[ranking]]
+name = "decomposed"
+target = "target"
+attributes = ["{NFD_E}", "CAF\u00c9"]
+[[ranking]]
+name = "ambiguous"
+target = "target"
+attributes = ["\u00c9X"]
+""", encoding="utf-8")
+    with pytest.raises(JobError) as caught:
+        run_job(load_job(job_file))
+    # Only the ambiguous name is a problem; the exact and the unique loose one resolve.
+    assert [p.line for p in caught.value.problems] == [11]
+    assert "spell it exactly" in caught.value.problems[0].message
