@@ -95,6 +95,14 @@ def test_case_twins_error_is_one_line_in_the_cli(twin_files: dict[str, Path],
     assert "differ only in case" in line
 
 
+def test_a_csv_header_repeating_a_name_is_refused(tmp_path: Path) -> None:
+    path = tmp_path / "repeated.csv"
+    path.write_text("x,x,y\n1,2,a\n2,1,b\n")
+    with pytest.raises(SourceError, match=r"columns 'x', 'x' repeat a name; DuckDB reads them "
+                                          r"as 'x', 'x_1'"):
+        bitsift.rank(path, "y")
+
+
 def test_a_real_column_named_like_a_renamed_twin_is_read(tmp_path: Path) -> None:
     # "y_1" that is in the file is not a renamed twin: no false refusal.
     path = tmp_path / "suffix.parquet"

@@ -191,22 +191,26 @@ def refuse_renamed_columns(engine: DuckDBEngine, path: str) -> None:
         raw = _names_in_file(engine, path)
     except duckdb.Error:
         raw = None
-    twins = _case_twins(raw) if raw is not None else suspects
+    if raw is None or len(raw) != len(names):
+        raise SourceError(f"{path}: DuckDB renamed columns whose names collide apart from case"
+                          f" (read as {', '.join(quoted(n) for n in suspects)}); rename them in"
+                          " the file (bitsift will not guess which one a name means)")
+    twins = _case_twins(raw)
     if not twins:
         return
-    read_as = (f"; DuckDB reads them as {', '.join(quoted(names[raw.index(t)]) for t in twins)}"
-               if raw is not None and len(raw) == len(names) else "")
-    raise SourceError(f"{path}: columns {', '.join(quoted(t) for t in twins)} differ only in "
-                      f"case{read_as}; rename them in the file (bitsift will not guess which "
-                      "one a name means)")
+    spelled = [raw[i] for i in twins]
+    relation = "differ only in case" if len(set(spelled)) == len(spelled) else "repeat a name"
+    raise SourceError(f"{path}: columns {', '.join(quoted(n) for n in spelled)} {relation}; "
+                      f"DuckDB reads them as {', '.join(quoted(names[i]) for i in twins)}; rename"
+                      " them in the file (bitsift will not guess which one a name means)")
 
 
-def _case_twins(names: list[str]) -> list[str]:
-    """Names that equal another one apart from ASCII case (DuckDB's folding), in file order."""
+def _case_twins(names: list[str]) -> list[int]:
+    """Positions of the names that equal another one apart from ASCII case (DuckDB's folding)."""
     counts: dict[str, int] = {}
     for n in names:
         counts[n.lower()] = counts.get(n.lower(), 0) + 1
-    return [n for n in names if counts[n.lower()] > 1]
+    return [i for i, n in enumerate(names) if counts[n.lower()] > 1]
 
 
 def _table_function(name: str, path: str, **settings: bool) -> exp.Table:
