@@ -246,7 +246,7 @@ def test_html_report_shows_escapes(evil_file: Path, tmp_path: Path,
 
 
 @pytest.mark.parametrize("command", [
-    ["profile", "--attribute", EVIL, "--by", RED],
+    ["profile", "--attribute", EVIL],
     ["redundancy"],
     ["select", "--k", "2"],
 ])
@@ -254,8 +254,6 @@ def test_other_text_outputs_escape_control_characters(evil_file: Path, command: 
                                                       capsys: pytest.CaptureFixture[str]
                                                       ) -> None:
     name, *options = command
-    if name == "profile":
-        options = options[:2]
     code, out, err = run_main(capsys, name, evil_file, "--target", "t", *options)
     assert code == 0, err
     assert unsafe(out) == [] and unsafe(err) == []
@@ -438,3 +436,20 @@ attributes = ["\u00c9X"]
     # Only the ambiguous name is a problem; the exact and the unique loose one resolve.
     assert [p.line for p in caught.value.problems] == [11]
     assert "spell it exactly" in caught.value.problems[0].message
+
+
+class _Terminal(io.StringIO):
+    def isatty(self) -> bool:
+        return True
+
+
+def test_progress_lines_escape_control_characters() -> None:
+    from bitsift.cli_report import progress_printer
+
+    stream = _Terminal()
+    say = progress_printer(False, stream)
+    assert say is not None
+    say(f"reading the columns of {RED}.parquet\nforged")
+    written = stream.getvalue()
+    assert written.count("\n") == 1 and unsafe(written) == []
+    assert "seg\\x1b[31m.parquet\\x0aforged" in written

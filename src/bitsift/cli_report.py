@@ -35,7 +35,7 @@ def progress_printer(quiet: bool, stream: IO[str] | None = None) -> Progress | N
     started = time.monotonic()
 
     def say(message: str) -> None:
-        click.echo(f"bitsift [{time.monotonic() - started:5.1f} s] {message}", file=out)
+        click.echo(f"bitsift [{time.monotonic() - started:5.1f} s] {one_line(message)}", file=out)
 
     return say
 
