@@ -8,11 +8,11 @@ gains or loses a trust flag. Rankings that appear or disappear between runs are 
 from __future__ import annotations
 
 import datetime as _dt
-import json
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
+from bitsift import jsonout
 from bitsift.errors import BitsiftError, SpecError
 from bitsift.history import Destination, RunInfo, open_store
 
@@ -267,4 +267,4 @@ def render_text(report: DriftReport) -> str:
 
 def render_json(report: DriftReport) -> str:
     """The report as JSON (see :meth:`DriftReport.to_dict`)."""
-    return json.dumps(report.to_dict(), indent=2) + "\n"
+    return jsonout.dumps(report.to_dict(), indent=2) + "\n"

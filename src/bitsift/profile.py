@@ -36,6 +36,7 @@ from bitsift.sqlbuild import (
     literal,
     quote,
     source_sql,
+    value_literal,
 )
 from bitsift.templates import render
 
@@ -541,13 +542,7 @@ def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
             continue
         if column.family in COLLATED_FAMILIES:
             node = exp.Anonymous(this=EXACT_KEY, expressions=[node])
-        if isinstance(value, bool):
-            literal_value: exp.Expression = exp.Boolean(this=value)
-        elif isinstance(value, int | float):
-            literal_value = exp.Literal.number(repr(value))
-        else:
-            literal_value = exp.Literal.string(str(value))
-        conditions.append(exp.EQ(this=node, expression=literal_value))
+        conditions.append(exp.EQ(this=node, expression=value_literal(value)))
     if spec.where is not None:
         conditions.insert(0, exp.Paren(this=spec.where.expression.copy()))
     text = " AND ".join(c.sql("duckdb") for c in conditions)

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import decimal
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import Any
@@ -68,8 +69,19 @@ def _fractional_weights(records: Sequence[Record], spec: RankSpec) -> bool:
     return any(_count(r, "rows_fractional_weight") for r in _one_per_segment(records, spec))
 
 
+#: The one NaN every segment key holds: NaN != NaN, so rows of the NaN segment carrying
+#: different NaN objects would each make a segment of their own (dicts and tuples compare
+#: by identity first, so one shared object groups them).
+SEGMENT_NAN = float("nan")
+
+
+def _key_value(value: Any) -> Any:
+    plain = plain_value(value)
+    return SEGMENT_NAN if isinstance(plain, float) and math.isnan(plain) else plain
+
+
 def _segment_key(record: Record, spec: RankSpec) -> tuple[Any, ...]:
-    return tuple(plain_value(record[f"segment_{i}"]) for i in range(1, len(spec.by) + 1))
+    return tuple(_key_value(record[f"segment_{i}"]) for i in range(1, len(spec.by) + 1))
 
 
 def _one_per_segment(records: Sequence[Record], spec: RankSpec) -> list[Record]:
@@ -81,8 +93,10 @@ def _one_per_segment(records: Sequence[Record], spec: RankSpec) -> list[Record]:
 
 
 def _sort_key(values: tuple[Any, ...]) -> tuple[Any, ...]:
-    # NULL segments last; values of one column share a type, so the rest compare.
-    return tuple((True, 0) if v is None else (False, v) for v in values)
+    # NULL segments last, NaN just before them (as DuckDB and PostgreSQL order NaN: above
+    # +inf); values of one column share a type, so the rest compare.
+    return tuple((2, 0) if v is None else (1, 0) if v is SEGMENT_NAN else (0, v)
+                 for v in values)
 
 
 def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Sequence[float]],
