@@ -6,6 +6,7 @@ holding the same 12-row pattern, so every segment must rank exactly alike.
 
 from __future__ import annotations
 
+import decimal
 import json
 import math
 from typing import Any
@@ -19,6 +20,7 @@ import bitsift
 from bitsift import jsonout
 from bitsift.cli import cli
 from bitsift.profile import rank_and_profile_segments
+from bitsift.readout import plain_value
 from bitsift.sqlbuild import literal, value_literal
 
 SEGMENT_VALUES = (math.nan, math.inf, -math.inf, 1.5)
@@ -108,3 +110,11 @@ def test_no_float_literal_is_written_as_a_name() -> None:
 def test_json_writer_refuses_nothing_and_writes_strings_for_non_finite() -> None:
     text = jsonout.dumps({"a": [math.nan, math.inf, -math.inf, 0.5], "b": (1, None)})
     assert strict_loads(text) == {"a": ["NaN", "Infinity", "-Infinity", 0.5], "b": [1, None]}
+
+
+def test_non_finite_decimal_segment_values_are_floats() -> None:
+    # PostgreSQL NUMERIC columns hold 'NaN' and (since 14) '±Infinity'; int() of them failed.
+    values = [plain_value(decimal.Decimal(text)) for text in ("Infinity", "-Infinity", "NaN")]
+    assert values[:2] == [math.inf, -math.inf] and math.isnan(values[2])
+    assert plain_value(decimal.Decimal("2.00")) == 2
+

@@ -22,6 +22,7 @@ from bitsift.api import make_options, run_ranking, run_segmented
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.metrics import snap_total
 from bitsift.predicate import Predicate
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column
@@ -336,7 +337,8 @@ def read_profiles(
         )
         per_class[y] = per_class.get(y, 0) + n
         if is_rest:
-            rest[attr] = (_number(record["rest_values"]), float(record["rest_nats"] or 0.0))
+            # Summed by the engine in any order: snapped so the same counts give the same floats.
+            rest[attr] = (_number(record["rest_values"]), snap_total(record["rest_nats"] or 0.0))
     ordered = sorted(class_totals, key=lambda c: (-class_totals[c], class_label(c)))
     classes = tuple(class_label(c) for c in ordered)
     profiles: dict[str, AttributeProfile] = {}

@@ -17,7 +17,7 @@ from dataclasses import replace
 from typing import Any
 
 from bitsift.errors import DataError
-from bitsift.metrics import score, sort_scores
+from bitsift.metrics import score, snap, snap_total, sort_scores
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.spec import RankSpec
 
@@ -45,7 +45,10 @@ def plain_value(value: Any) -> Any:
     if isinstance(value, bytes | bytearray | memoryview):
         return bytes(value).decode("utf-8", errors="replace")
     if isinstance(value, decimal.Decimal):
-        return int(value) if value == value.to_integral_value() else float(value)
+        # PostgreSQL's NUMERIC holds NaN and ±Infinity: floats, as int() cannot take them.
+        if value.is_finite() and value == value.to_integral_value():
+            return int(value)
+        return float(value)
     if isinstance(value, _dt.date | _dt.time):
         return value.isoformat()
     return str(value)
@@ -132,11 +135,11 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
     return replace(
         base,
         rows=_count(target_row, "rows_used"),
-        target_entropy=float(target_row["target_entropy"]),
+        target_entropy=snap(target_row["target_entropy"]),
         classes=classes,
         attributes=ordered,
         status="ok" if classes >= 2 else "single_class",
-        weight_total=float(target_row["weight_used"]) if weighted else None,
+        weight_total=snap_total(target_row["weight_used"]) if weighted else None,
     )
 
 
