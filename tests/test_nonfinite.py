@@ -58,6 +58,7 @@ def test_nan_and_infinite_values_are_real_segments(engine: str,
         result = bitsift.rank(where.source, table=where.table, target="y", by="s",
                               attributes="a")
     assert [repr(r.segment["s"]) for r in result.segments] == list(EXPECTED_ORDER)
+    assert result.segment(s=float("nan")) is result.segments[-1]
     for ranking in result.segments:
         assert (ranking.status, ranking.rows, ranking.classes) == ("ok", 12, 2), ranking.segment
         scored = ranking["a"]
