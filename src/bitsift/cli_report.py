@@ -5,13 +5,13 @@ Registered on the ``bitsift`` group at the bottom of :mod:`bitsift.cli`.
 
 from __future__ import annotations
 
-import json
 import sys
 import time
 from typing import IO, Any
 
 import click
 
+from bitsift import jsonout
 from bitsift.cli import _DEBUG, _comma_list, _library_options, by_option, rank_options
 from bitsift.names import one_line
 from bitsift.profile import (
@@ -135,6 +135,6 @@ def profile_command(source: str, profile_attributes: tuple[str, ...], fmt: str, 
                   sensitive=sensitive, progress=progress_printer(quiet), **options)
     _after_run(run, quiet)
     if fmt == "json":
-        click.echo(json.dumps(profile_dict(run), indent=2))
+        click.echo(jsonout.dumps(profile_dict(run), indent=2))
     else:
         click.echo(profile_text(run), nl=False)

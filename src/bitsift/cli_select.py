@@ -7,12 +7,12 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 from collections.abc import Sequence
 from typing import Any
 
 import click
 
+from bitsift import jsonout
 from bitsift.cli import _DEBUG, _library_options, _notes, rank_options
 from bitsift.names import escape_text
 from bitsift.redundancy import (
@@ -140,7 +140,7 @@ def redundancy_command(source: str, fmt: str, top: int, by: str, batch_pairs: in
     _debug(result.ranking, result.statements)
     _notes(result.notes)
     if fmt == "json":
-        click.echo(json.dumps(result.to_dict(by), indent=2))
+        click.echo(jsonout.dumps(result.to_dict(by), indent=2))
     elif fmt == "csv":
         # color=True: exact names (see cli.rank_command).
         click.echo(_csv(PAIR_KEYS, [p.to_dict() for p in result.matrix.ordered(by)]), nl=False,
@@ -170,7 +170,7 @@ def select_command(source: str, k: int, criterion: str, fmt: str, batch_pairs: i
     _debug(selection.ranking, selection.statements)
     _notes(selection.notes)
     if fmt == "json":
-        click.echo(json.dumps(selection.to_dict(), indent=2))
+        click.echo(jsonout.dumps(selection.to_dict(), indent=2))
     elif fmt == "csv":
         click.echo(_csv(STEP_KEYS, [s.to_dict() for s in selection.steps]), nl=False,
                    color=True)  # exact names (see cli.rank_command)

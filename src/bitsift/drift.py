@@ -13,12 +13,16 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
+from bitsift import jsonout
 from bitsift.errors import BitsiftError, SpecError
 from bitsift.history import Destination, RunInfo, open_store
 
 #: Exit code of ``bitsift drift`` when something drifted, so schedulers can alert.
 DRIFT_EXIT_CODE = 3
-#: Information gain differences below this are rounding, never drift.
+#: Metric differences below this are rounding, never drift: well above the resolution that
+#: rankings are snapped to (:data:`bitsift.metrics.RESOLUTION_DIGITS`), so history written
+#: before snapping compares quietly too. Attributes whose sort metric differs by no more
+#: than this are ties: their order among themselves is never a rank change.
 FLOAT_NOISE = 1e-9
 
 
@@ -97,6 +101,41 @@ def _key(row: Mapping[str, Any]) -> tuple[str, str, str]:
     return (row["ranking"], row["segment"] or "", row["attribute"])
 
 
+def _sort_metric(row: Mapping[str, Any]) -> str:
+    """The metric the ranking was sorted by (its options' ``sort``; IG when absent)."""
+    try:
+        sort = json.loads(row.get("options") or "{}").get("sort")
+    except (ValueError, AttributeError):
+        sort = None
+    return sort if isinstance(sort, str) and row.get(sort) is not None else "information_gain"
+
+
+def _tie_spans(rows: Mapping[tuple[str, str, str], Mapping[str, Any]]
+               ) -> dict[tuple[str, str, str], tuple[int, int]]:
+    """Per attribute, the lowest and highest position held by its ties (itself and the
+    attributes of its ranking whose sort metric is within :data:`FLOAT_NOISE`, chained)."""
+    rankings: dict[tuple[str, str], list[tuple[float, tuple[str, str, str]]]] = {}
+    for key, row in rows.items():
+        value = float(row.get(_sort_metric(row)) or 0.0)
+        rankings.setdefault(key[:2], []).append((value, key))
+    spans: dict[tuple[str, str, str], tuple[int, int]] = {}
+    for members in rankings.values():
+        members.sort()
+        cluster: list[tuple[str, str, str]] = []
+        for i, (value, key) in enumerate(members):
+            cluster.append(key)
+            if i + 1 == len(members) or members[i + 1][0] - value > FLOAT_NOISE:
+                positions = [int(rows[k]["position"]) for k in cluster]
+                spans.update(dict.fromkeys(cluster, (min(positions), max(positions))))
+                cluster = []
+    return spans
+
+
+def _span_gap(before: tuple[int, int], after: tuple[int, int]) -> int:
+    """How many places apart two position spans are (0 when they overlap)."""
+    return max(0, after[0] - before[1], before[0] - after[1])
+
+
 def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[str, Any]],
             thresholds: DriftThresholds | None = None) -> tuple[list[Change], list[str]]:
     """Changes and notes between two runs' history rows (as dicts with the table's columns)."""
@@ -117,6 +156,7 @@ def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[st
         if before_options != after_options:
             notes.append(f"the settings of ranking {ranking!r} changed between the runs; "
                          "moves may come from that rather than from the data")
+    spans = (_tie_spans(old), _tie_spans(new))
     for key in sorted(old.keys() | new.keys()):
         ranking, segment, attribute = key
         if (ranking, segment) not in old_rankings or (ranking, segment) not in new_rankings:
@@ -130,7 +170,8 @@ def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[st
         if after is None:
             changes.append(Change("disappeared", ranking, segment, attribute, _summary(before)))
             continue
-        changes += _attribute_changes(key, before, after, limits)
+        changes += _attribute_changes(key, before, after, limits,
+                                      _span_gap(spans[0][key], spans[1][key]))
     return changes, notes
 
 
@@ -139,7 +180,8 @@ def _summary(row: Mapping[str, Any]) -> dict[str, Any]:
 
 
 def _attribute_changes(key: tuple[str, str, str], before: Mapping[str, Any],
-                       after: Mapping[str, Any], limits: DriftThresholds) -> list[Change]:
+                       after: Mapping[str, Any], limits: DriftThresholds,
+                       places_moved: int) -> list[Change]:
     ranking, segment, attribute = key
     changes = []
     ig_before, ig_after = float(before["information_gain"]), float(after["information_gain"])
@@ -147,7 +189,8 @@ def _attribute_changes(key: tuple[str, str, str], before: Mapping[str, Any],
     if abs(ig_after - ig_before) > limits.ig_change + FLOAT_NOISE:
         changes.append(Change("information_gain", ranking, segment, attribute, ig_before,
                               ig_after))
-    if abs(int(after["position"]) - int(before["position"])) > limits.rank_change:
+    # Places moved beyond its ties: tied attributes may come in any order on old history.
+    if places_moved > limits.rank_change:
         changes.append(Change("rank", ranking, segment, attribute, int(before["position"]),
                               int(after["position"])))
     flags_before, flags_after = _flags(before["flags"]), _flags(after["flags"])
@@ -267,4 +310,4 @@ def render_text(report: DriftReport) -> str:
 
 def render_json(report: DriftReport) -> str:
     """The report as JSON (see :meth:`DriftReport.to_dict`)."""
-    return json.dumps(report.to_dict(), indent=2) + "\n"
+    return jsonout.dumps(report.to_dict(), indent=2) + "\n"

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import csv
 import io
-import json
 from collections.abc import Callable
 
+from bitsift import jsonout
 from bitsift.metrics import FLAG_DESCRIPTIONS
 from bitsift.names import escape_text
 from bitsift.result import (
@@ -154,7 +154,7 @@ def _csv_record(score: AttributeScore) -> dict[str, object]:
 
 def as_json(ranking: Ranking) -> str:
     """Exactly one JSON object: the contract of :meth:`Ranking.to_dict`."""
-    return json.dumps(ranking.to_dict(), indent=2) + "\n"
+    return jsonout.dumps(ranking.to_dict(), indent=2) + "\n"
 
 
 def as_csv(ranking: Ranking) -> str:
@@ -245,7 +245,7 @@ def segmented_markdown(segmented: SegmentedRanking) -> str:
 
 def segmented_json(segmented: SegmentedRanking) -> str:
     """Exactly one JSON object: :meth:`SegmentedRanking.to_dict`."""
-    return json.dumps(segmented.to_dict(), indent=2) + "\n"
+    return jsonout.dumps(segmented.to_dict(), indent=2) + "\n"
 
 
 def segmented_csv(segmented: SegmentedRanking) -> str:

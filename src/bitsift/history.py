@@ -10,7 +10,6 @@ DuckDB, SQL built by sqlglot) or a SQLAlchemy URL (written through SQLAlchemy Co
 from __future__ import annotations
 
 import datetime as _dt
-import json
 import os
 from abc import ABC, abstractmethod
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
@@ -24,6 +23,7 @@ import sqlalchemy as sa
 from sqlalchemy.dialects import mysql
 from sqlglot import exp
 
+from bitsift import jsonout
 from bitsift.dialects import SQLALCHEMY_DIALECTS
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
 from bitsift.errors import BitsiftError, SpecError
@@ -177,7 +177,7 @@ def ranking_rows(ranking: Ranking, *, run_id: str, run_at: _dt.datetime, job: st
                  ) -> list[dict[str, Any]]:
     """The history rows of one ranking, one per attribute, in the ranking's order."""
     stamp = _utc_naive(run_at)
-    settings = json.dumps(dict(options), sort_keys=True, separators=(",", ":"), default=str)
+    settings = jsonout.dumps(dict(options), sort_keys=True, separators=(",", ":"), default=str)
     rows = []
     for position, scored in enumerate(ranking.attributes, start=1):
         rows.append({
@@ -221,7 +221,7 @@ def segment_json(segment: Mapping[str, Any] | None) -> str:
     """
     if segment is None:
         return ""
-    return json.dumps(dict(segment), separators=(",", ":"), ensure_ascii=False, default=str)
+    return jsonout.dumps(dict(segment), separators=(",", ":"), ensure_ascii=False, default=str)
 
 
 def _utc_naive(moment: _dt.datetime) -> _dt.datetime:

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 from scipy import stats
@@ -17,6 +17,34 @@ FLAG_DESCRIPTIONS: dict[str, str] = {
     "near_perfect": "IG >= 95% of H(Y): possible target leakage, check how it is recorded",
     "high_cardinality": "more values than the cap: IG is inflated, read the gain ratio",
 }
+
+
+#: Every metric in bits, and every ratio of them, is rounded to this many decimal places
+#: (1e-12). The ranking statement sums exactly (templates/sums.sql.j2), so one engine gives
+#: the same floats for the same counts on every run; rounding also removes what is left of
+#: floating-point residue (an IG of 4e-15 for a column that tells nothing is 0) and of
+#: engines' LN differing in the last bit, and it makes ties exact ties (ordered by name).
+RESOLUTION_DIGITS = 12
+#: Unbounded values (the G statistic, weight totals) keep this many significant digits.
+SIGNIFICANT_DIGITS = 13
+
+
+def snap(value: float) -> float:
+    """``value`` rounded to :data:`RESOLUTION_DIGITS` decimal places, -0.0 as 0.0.
+
+    >>> snap(3.99e-15), snap(0.19292975178524840), snap(0.19292975178525296), snap(-1e-16)
+    (0.0, 0.192929751785, 0.192929751785, 0.0)
+    """
+    return round(float(value), RESOLUTION_DIGITS) + 0.0
+
+
+def snap_total(value: float) -> float:
+    """An unbounded value rounded to :data:`SIGNIFICANT_DIGITS` significant digits.
+
+    >>> snap_total(1234.5678901234567), snap_total(-0.0)
+    (1234.567890123, 0.0)
+    """
+    return float(f"{float(value):.{SIGNIFICANT_DIGITS}g}") + 0.0
 
 
 def p_value(g_statistic: float, dof: int) -> float:
@@ -47,22 +75,32 @@ def flags_for(distinct: int, rows: int, information_gain: float, target_entropy:
 
 def score(row: Mapping[str, Any], name: str, kind: str, thresholds: Thresholds,
           cuts: Sequence[float] | None = None) -> AttributeScore:
-    """Build one :class:`AttributeScore` from a result row of the ranking statement."""
+    """Build one :class:`AttributeScore` from a result row of the ranking statement.
+
+    Every metric is snapped (:func:`snap`; G by :func:`snap_total`) before anything sorts,
+    flags or stores it, and the p-value is computed from the snapped G. An IG that snaps to 0
+    zeroes the gain ratio, SU and G with it, so no field keeps the residue the others lost.
+    """
     distinct = int(row["distinct_values"])
     rows = int(row["rows_used"])
-    g = float(row["g_statistic"])
     dof = int(row["dof"])
-    ig = float(row["information_gain"])
-    h_y = float(row["target_entropy"])
+    ig = snap(row["information_gain"])
+    h_y = snap(row["target_entropy"])
+    informative = ig > 0
+
+    def derived(key: str, rounding: Callable[[float], float] = snap) -> float:
+        return rounding(row[key]) if informative else 0.0
+
+    g = derived("g_statistic", snap_total)
     return AttributeScore(
         attribute=name,
         kind=kind,
         distinct=distinct,
         information_gain=ig,
-        gain_ratio=float(row["gain_ratio"]),
-        symmetric_uncertainty=float(row["symmetric_uncertainty"]),
-        conditional_entropy=float(row["conditional_entropy"]),
-        attribute_entropy=float(row["attribute_entropy"]),
+        gain_ratio=derived("gain_ratio"),
+        symmetric_uncertainty=derived("symmetric_uncertainty"),
+        conditional_entropy=snap(row["conditional_entropy"]) if informative else h_y,
+        attribute_entropy=snap(row["attribute_entropy"]),
         g_statistic=g,
         dof=dof,
         p_value=p_value(g, dof),

@@ -22,6 +22,7 @@ from bitsift.api import make_options, run_ranking, run_segmented
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
 from bitsift.predicate import Predicate
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
@@ -37,6 +38,7 @@ from bitsift.sqlbuild import (
     literal,
     quote,
     source_sql,
+    value_literal,
 )
 from bitsift.templates import render
 
@@ -336,7 +338,8 @@ def read_profiles(
         )
         per_class[y] = per_class.get(y, 0) + n
         if is_rest:
-            rest[attr] = (_number(record["rest_values"]), float(record["rest_nats"] or 0.0))
+            # Summed by the engine in any order: snapped so the same counts give the same floats.
+            rest[attr] = (_number(record["rest_values"]), snap_total(record["rest_nats"] or 0.0))
     ordered = sorted(class_totals, key=lambda c: (-class_totals[c], class_label(c)))
     classes = tuple(class_label(c) for c in ordered)
     profiles: dict[str, AttributeProfile] = {}
@@ -539,13 +542,7 @@ def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
             continue
         if column.family in COLLATED_FAMILIES:
             node = exp.Anonymous(this=EXACT_KEY, expressions=[node])
-        if isinstance(value, bool):
-            literal_value: exp.Expression = exp.Boolean(this=value)
-        elif isinstance(value, int | float):
-            literal_value = exp.Literal.number(repr(value))
-        else:
-            literal_value = exp.Literal.string(str(value))
-        conditions.append(exp.EQ(this=node, expression=literal_value))
+        conditions.append(exp.EQ(this=node, expression=value_literal(value)))
     if spec.where is not None:
         conditions.insert(0, exp.Paren(this=spec.where.expression.copy()))
     text = " AND ".join(c.sql("duckdb") for c in conditions)

@@ -11,12 +11,13 @@ from __future__ import annotations
 
 import datetime as _dt
 import decimal
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import Any
 
 from bitsift.errors import DataError
-from bitsift.metrics import score, sort_scores
+from bitsift.metrics import score, snap, snap_total, sort_scores
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.spec import RankSpec
 
@@ -44,7 +45,10 @@ def plain_value(value: Any) -> Any:
     if isinstance(value, bytes | bytearray | memoryview):
         return bytes(value).decode("utf-8", errors="replace")
     if isinstance(value, decimal.Decimal):
-        return int(value) if value == value.to_integral_value() else float(value)
+        # PostgreSQL's NUMERIC holds NaN and ±Infinity: floats, as int() cannot take them.
+        if value.is_finite() and value == value.to_integral_value():
+            return int(value)
+        return float(value)
     if isinstance(value, _dt.date | _dt.time):
         return value.isoformat()
     return str(value)
@@ -68,8 +72,19 @@ def _fractional_weights(records: Sequence[Record], spec: RankSpec) -> bool:
     return any(_count(r, "rows_fractional_weight") for r in _one_per_segment(records, spec))
 
 
+#: The one NaN every segment key holds: NaN != NaN, so rows of the NaN segment carrying
+#: different NaN objects would each make a segment of their own (dicts and tuples compare
+#: by identity first, so one shared object groups them).
+SEGMENT_NAN = float("nan")
+
+
+def _key_value(value: Any) -> Any:
+    plain = plain_value(value)
+    return SEGMENT_NAN if isinstance(plain, float) and math.isnan(plain) else plain
+
+
 def _segment_key(record: Record, spec: RankSpec) -> tuple[Any, ...]:
-    return tuple(plain_value(record[f"segment_{i}"]) for i in range(1, len(spec.by) + 1))
+    return tuple(_key_value(record[f"segment_{i}"]) for i in range(1, len(spec.by) + 1))
 
 
 def _one_per_segment(records: Sequence[Record], spec: RankSpec) -> list[Record]:
@@ -81,8 +96,10 @@ def _one_per_segment(records: Sequence[Record], spec: RankSpec) -> list[Record]:
 
 
 def _sort_key(values: tuple[Any, ...]) -> tuple[Any, ...]:
-    # NULL segments last; values of one column share a type, so the rest compare.
-    return tuple((True, 0) if v is None else (False, v) for v in values)
+    # NULL segments last, NaN just before them (as DuckDB and PostgreSQL order NaN: above
+    # +inf); values of one column share a type, so the rest compare.
+    return tuple((2, 0) if v is None else (1, 0) if v is SEGMENT_NAN else (0, v)
+                 for v in values)
 
 
 def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Sequence[float]],
@@ -118,11 +135,11 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
     return replace(
         base,
         rows=_count(target_row, "rows_used"),
-        target_entropy=float(target_row["target_entropy"]),
+        target_entropy=snap(target_row["target_entropy"]),
         classes=classes,
         attributes=ordered,
         status="ok" if classes >= 2 else "single_class",
-        weight_total=float(target_row["weight_used"]) if weighted else None,
+        weight_total=snap_total(target_row["weight_used"]) if weighted else None,
     )
 
 

@@ -26,6 +26,7 @@ from bitsift.api import make_options, run_ranking
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
+from bitsift.metrics import snap
 from bitsift.result import Ranking
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
@@ -244,13 +245,16 @@ def read_pairs(records: Sequence[Mapping[str, Any]],
         if row is None:
             scores.append(PairScore(first, second, 0.0, 0.0, 0.0, 0.0, 0))
             continue
+        # Snapped as the ranking's metrics are (metrics.snap): residue of a pair sharing
+        # nothing is 0 in both fields, and ties between pairs are exact.
+        mutual = snap(_float(row["mutual_information"]))
         scores.append(PairScore(
             first=first,
             second=second,
-            mutual_information=_float(row["mutual_information"]),
-            symmetric_uncertainty=_float(row["symmetric_uncertainty"]),
-            first_entropy=_float(row["left_entropy"]),
-            second_entropy=_float(row["right_entropy"]),
+            mutual_information=mutual,
+            symmetric_uncertainty=snap(_float(row["symmetric_uncertainty"])) if mutual else 0.0,
+            first_entropy=snap(_float(row["left_entropy"])),
+            second_entropy=snap(_float(row["right_entropy"])),
             rows=int(row["rows_used"] or 0),
         ))
     return scores

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
@@ -142,6 +143,16 @@ def segment_label(segment: dict[str, Any] | None) -> str:
     return ", ".join(f"{k} = {'NULL' if v is None else repr(v)}" for k, v in segment.items())
 
 
+def _is_nan(value: Any) -> bool:
+    return isinstance(value, float) and math.isnan(value)
+
+
+def _same_segment(segment: dict[str, Any], values: dict[str, Any]) -> bool:
+    """Equal segment values, NaN matching NaN (a float column's NaN segment)."""
+    return segment.keys() == values.keys() and all(
+        segment[k] == values[k] or (_is_nan(segment[k]) and _is_nan(values[k])) for k in values)
+
+
 @dataclass
 class SegmentedRanking:
     """One :class:`Ranking` per segment (``--by``), all computed by one statement.
@@ -195,7 +206,7 @@ class SegmentedRanking:
         Raises KeyError when no segment has them.
         """
         for ranking in self.segments:
-            if ranking.segment == values:
+            if _same_segment(ranking.segment or {}, values):
                 return ranking
         raise KeyError(values)
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import functools
+import math
 from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 
@@ -17,6 +18,7 @@ from sqlglot import exp
 
 from bitsift.dialects import Capabilities
 from bitsift.errors import SpecError
+from bitsift.jsonout import NON_FINITE
 from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.templates import render
 from bitsift.version import __version__
@@ -54,19 +56,38 @@ def quote(name: str) -> str:
     return exp.to_identifier(name, quoted=True).sql(CANONICAL)
 
 
+def value_literal(value: str | float | int | bool | None) -> exp.Expression:
+    """A data value (segment value, category, cut point) as a typed sqlglot literal.
+
+    NaN and the infinities have no numeric literal: ``repr`` gives ``nan``/``inf``, which SQL
+    reads as column names. They become ``CAST('NaN' AS DOUBLE)`` and the like.
+
+    >>> [value_literal(v).sql("postgres") for v in (float("inf"), -1.5, True, "it's", None)]
+    ["CAST('Infinity' AS DOUBLE PRECISION)", '-1.5', 'TRUE', "'it''s'", 'NULL']
+    """
+    if value is None:
+        return exp.Null()
+    if isinstance(value, bool):
+        return exp.Boolean(this=value)
+    if isinstance(value, int):
+        return exp.Literal.number(str(value))
+    if isinstance(value, float):
+        if not math.isfinite(value):
+            text = NON_FINITE[repr(value)]  # the spellings every IEEE engine reads
+            return exp.cast(exp.Literal.string(text), exp.DataType.build("DOUBLE"))
+        return exp.Literal.number(repr(value))
+    return exp.Literal.string(str(value))
+
+
 def literal(value: str | float | int) -> str:
     """A string or number literal rendered by sqlglot in the canonical dialect.
 
-    >>> literal("it's")
-    "'it''s'"
+    >>> literal("it's"), literal(float("-inf"))
+    ("'it''s'", "CAST('-Infinity' AS DOUBLE)")
     """
-    if isinstance(value, str):
-        return exp.Literal.string(value).sql(CANONICAL)
     if isinstance(value, int) and not isinstance(value, bool):
         return str(value)  # digits, with a sign: what sqlglot writes, without its cost
-    return exp.Literal.number(repr(float(value)) if isinstance(value, float) else value).sql(
-        CANONICAL
-    )
+    return value_literal(value).sql(CANONICAL)
 
 
 def source_sql(source: exp.Expression) -> str:

@@ -138,21 +138,21 @@ WITH ordered_3 AS (
     CAST(SUM(n) AS FLOAT64) AS n_total_f,
     CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS INT64) AS n_values,
     CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS INT64) AS n_classes,
-    SUM(CAST(n AS FLOAT64) * LN(CAST(n AS FLOAT64))) AS s_xy,
-    SUM(
-      CASE
+    CAST(SUM(CAST(CAST(n AS FLOAT64) * LN(CAST(n AS FLOAT64)) AS BIGNUMERIC)) AS FLOAT64) AS s_xy,
+    CAST(SUM(
+      CAST(CASE
         WHEN x_first = 1
         THEN CAST(n_x AS FLOAT64) * LN(CAST(n_x AS FLOAT64))
         ELSE 0
-      END
-    ) AS s_x,
-    SUM(
-      CASE
+      END AS BIGNUMERIC)
+    ) AS FLOAT64) AS s_x,
+    CAST(SUM(
+      CAST(CASE
         WHEN y_first = 1
         THEN CAST(n_y AS FLOAT64) * LN(CAST(n_y AS FLOAT64))
         ELSE 0
-      END
-    ) AS s_y
+      END AS BIGNUMERIC)
+    ) AS FLOAT64) AS s_y
   FROM cells
   GROUP BY
     attr

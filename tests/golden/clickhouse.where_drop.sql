@@ -152,21 +152,23 @@ WITH ordered_3 AS (
     CAST(SUM(n) AS Nullable(Float64)) AS n_total_f,
     CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS Nullable(Int64)) AS n_values,
     CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS Nullable(Int64)) AS n_classes,
-    SUM(CAST(n AS Nullable(Float64)) * LN(CAST(n AS Nullable(Float64)))) AS s_xy,
-    SUM(
-      CASE
+    CAST(SUM(
+      CAST(CAST(n AS Nullable(Float64)) * LN(CAST(n AS Nullable(Float64))) AS Nullable(Decimal(38, 18)))
+    ) AS Nullable(Float64)) AS s_xy,
+    CAST(SUM(
+      CAST(CASE
         WHEN x_first = 1
         THEN CAST(n_x AS Nullable(Float64)) * LN(CAST(n_x AS Nullable(Float64)))
         ELSE 0
-      END
-    ) AS s_x,
-    SUM(
-      CASE
+      END AS Nullable(Decimal(38, 18)))
+    ) AS Nullable(Float64)) AS s_x,
+    CAST(SUM(
+      CAST(CASE
         WHEN y_first = 1
         THEN CAST(n_y AS Nullable(Float64)) * LN(CAST(n_y AS Nullable(Float64)))
         ELSE 0
-      END
-    ) AS s_y
+      END AS Nullable(Decimal(38, 18)))
+    ) AS Nullable(Float64)) AS s_y
   FROM cells
   GROUP BY
     attr

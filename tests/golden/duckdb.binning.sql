@@ -203,13 +203,13 @@ WITH bound_aggregates AS (
     CAST(SUM(n) AS DOUBLE) AS n_total_f,
     CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS BIGINT) AS n_values,
     CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS BIGINT) AS n_classes,
-    SUM(CAST(n AS DOUBLE) * LN(CAST(n AS DOUBLE))) AS s_xy,
-    SUM(
-      CASE WHEN x_first = 1 THEN CAST(n_x AS DOUBLE) * LN(CAST(n_x AS DOUBLE)) ELSE 0 END
-    ) AS s_x,
-    SUM(
-      CASE WHEN y_first = 1 THEN CAST(n_y AS DOUBLE) * LN(CAST(n_y AS DOUBLE)) ELSE 0 END
-    ) AS s_y
+    CAST(SUM(CAST(CAST(n AS DOUBLE) * LN(CAST(n AS DOUBLE)) AS DECIMAL(38, 18))) AS DOUBLE) AS s_xy,
+    CAST(SUM(
+      CAST(CASE WHEN x_first = 1 THEN CAST(n_x AS DOUBLE) * LN(CAST(n_x AS DOUBLE)) ELSE 0 END AS DECIMAL(38, 18))
+    ) AS DOUBLE) AS s_x,
+    CAST(SUM(
+      CAST(CASE WHEN y_first = 1 THEN CAST(n_y AS DOUBLE) * LN(CAST(n_y AS DOUBLE)) ELSE 0 END AS DECIMAL(38, 18))
+    ) AS DOUBLE) AS s_y
   FROM cells
   GROUP BY
     attr

@@ -101,21 +101,23 @@ WITH bound_aggregates AS (
     CAST(SUM(n) AS DOUBLE PRECISION) AS n_total_f,
     CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS INT) AS n_values,
     CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS INT) AS n_classes,
-    SUM(CAST(n AS DOUBLE PRECISION) * LN(CAST(n AS DOUBLE PRECISION))) AS s_xy,
-    SUM(
-      CASE
+    CAST(SUM(
+      CAST(CAST(n AS DOUBLE PRECISION) * LN(CAST(n AS DOUBLE PRECISION)) AS NUMBER(38, 18))
+    ) AS DOUBLE PRECISION) AS s_xy,
+    CAST(SUM(
+      CAST(CASE
         WHEN x_first = 1
         THEN CAST(n_x AS DOUBLE PRECISION) * LN(CAST(n_x AS DOUBLE PRECISION))
         ELSE 0
-      END
-    ) AS s_x,
-    SUM(
-      CASE
+      END AS NUMBER(38, 18))
+    ) AS DOUBLE PRECISION) AS s_x,
+    CAST(SUM(
+      CAST(CASE
         WHEN y_first = 1
         THEN CAST(n_y AS DOUBLE PRECISION) * LN(CAST(n_y AS DOUBLE PRECISION))
         ELSE 0
-      END
-    ) AS s_y
+      END AS NUMBER(38, 18))
+    ) AS DOUBLE PRECISION) AS s_y
   FROM cells
   GROUP BY
     attr

@@ -170,9 +170,13 @@ WITH ordered_3 AS (
     CAST(SUM(n) AS REAL) AS n_total_f,
     CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS INTEGER) AS n_values,
     CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS INTEGER) AS n_classes,
-    SUM(CAST(n AS REAL) * LN(CAST(n AS REAL))) AS s_xy,
-    SUM(CASE WHEN x_first = 1 THEN CAST(n_x AS REAL) * LN(CAST(n_x AS REAL)) ELSE 0 END) AS s_x,
-    SUM(CASE WHEN y_first = 1 THEN CAST(n_y AS REAL) * LN(CAST(n_y AS REAL)) ELSE 0 END) AS s_y
+    CAST(SUM(CAST(CAST(n AS REAL) * LN(CAST(n AS REAL)) AS REAL(38, 18))) AS REAL) AS s_xy,
+    CAST(SUM(
+      CAST(CASE WHEN x_first = 1 THEN CAST(n_x AS REAL) * LN(CAST(n_x AS REAL)) ELSE 0 END AS REAL(38, 18))
+    ) AS REAL) AS s_x,
+    CAST(SUM(
+      CAST(CASE WHEN y_first = 1 THEN CAST(n_y AS REAL) * LN(CAST(n_y AS REAL)) ELSE 0 END AS REAL(38, 18))
+    ) AS REAL) AS s_y
   FROM cells
   GROUP BY
     attr

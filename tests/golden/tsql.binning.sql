@@ -255,13 +255,13 @@ WITH bound_aggregates AS (
     CAST(SUM(n) AS FLOAT) AS n_total_f,
     CAST(SUM(CASE WHEN x_first = 1 THEN 1 ELSE 0 END) AS BIGINT) AS n_values,
     CAST(SUM(CASE WHEN y_first = 1 THEN 1 ELSE 0 END) AS BIGINT) AS n_classes,
-    SUM(CAST(n AS FLOAT) * LOG(CAST(n AS FLOAT))) AS s_xy,
-    SUM(
-      CASE WHEN x_first = 1 THEN CAST(n_x AS FLOAT) * LOG(CAST(n_x AS FLOAT)) ELSE 0 END
-    ) AS s_x,
-    SUM(
-      CASE WHEN y_first = 1 THEN CAST(n_y AS FLOAT) * LOG(CAST(n_y AS FLOAT)) ELSE 0 END
-    ) AS s_y
+    CAST(SUM(CAST(CAST(n AS FLOAT) * LOG(CAST(n AS FLOAT)) AS NUMERIC(38, 18))) AS FLOAT) AS s_xy,
+    CAST(SUM(
+      CAST(CASE WHEN x_first = 1 THEN CAST(n_x AS FLOAT) * LOG(CAST(n_x AS FLOAT)) ELSE 0 END AS NUMERIC(38, 18))
+    ) AS FLOAT) AS s_x,
+    CAST(SUM(
+      CAST(CASE WHEN y_first = 1 THEN CAST(n_y AS FLOAT) * LOG(CAST(n_y AS FLOAT)) ELSE 0 END AS NUMERIC(38, 18))
+    ) AS FLOAT) AS s_y
   FROM cells
   GROUP BY
     attr
