@@ -249,12 +249,18 @@ def _child(script: str, *args: str) -> subprocess.Popen[str]:
                             preexec_fn=_default_sigint if os.name == "posix" else None)  # noqa: PLW1509
 
 
+@pytest.mark.parametrize("table_exists", [False, True], ids=["first-runs", "reruns"])
 def test_concurrent_runs_of_one_run_id_leave_one_record_set(destination: Destination,
-                                                             tmp_path: Path) -> None:
+                                                             tmp_path: Path,
+                                                             table_exists: bool) -> None:
     # Issue 16 item 5: before, PostgreSQL kept every row twice (each writer deleted before the
     # other inserted), racing first runs failed on creating the table, and a second DuckDB
     # writer failed on the file lock after ranking: its results were lost.
     job_file = _job_file(tmp_path, destination)
+    earlier = {}
+    if table_exists:
+        run_job(load_job(job_file), "earlier")
+        earlier = {"earlier": 7}
     barrier = tmp_path / "barrier"
     barrier.mkdir()
     children = [_child(RACING_CHILD, str(barrier), str(WRITERS), "run", str(job_file),
@@ -263,7 +269,7 @@ def test_concurrent_runs_of_one_run_id_leave_one_record_set(destination: Destina
     assert [(code, err) for code, _, err in outcomes] == [(0, "")] * WRITERS
     assert all(out.rstrip().endswith(f"wrote 7 rows to {destination.table} in "
                                       f"{destination.display}") for _, out, _ in outcomes)
-    assert history_count(destination) == {"same": 7}
+    assert history_count(destination) == {**earlier, "same": 7}
     with open_store(destination) as store:
         rows = store.read("nightly", ["same"])
     assert sorted((r["ranking"], r["position"]) for r in rows) == (
