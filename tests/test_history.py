@@ -435,6 +435,24 @@ def test_dry_run_refuses_a_name_too_long_for_an_existing_table(
     assert history_count(destination, "j") == {"r1": 4}
 
 
+@pytest.mark.parametrize("engine", ["duckdb", "postgres", "mariadb"])
+def test_dry_run_refuses_a_missing_schema(engine: str, tmp_path: Path,
+                                          request: pytest.FixtureRequest,
+                                          capsys: pytest.CaptureFixture[str]) -> None:
+    # The write would create the table in that schema and fail after the ranking work.
+    location = {"duckdb": str(tmp_path / "h.duckdb"), "postgres": POSTGRES_URL,
+                "mariadb": MARIADB_URL}[engine]
+    if engine != "duckdb":  # skips (or fails in CI) when the server is unreachable
+        request.getfixturevalue(f"{engine}_engine")
+    destination = Destination(location, "no_such_schema_t16.history")
+    job_file = _job_file(tmp_path, destination)
+    code, out, err = run_main(capsys, "run", job_file, "--dry-run")
+    assert (code, out) == (1, "")
+    assert err.endswith(f"job.toml:5: results table no_such_schema_t16.history in "
+                        f"{destination.display}: schema no_such_schema_t16 does not exist; "
+                        "create it, or choose another results table\n")
+
+
 def test_ctrl_c_during_a_duckdb_history_write_exits_130(tmp_path: Path) -> None:
     # Issue 16 item 8: DuckDB reports Ctrl-C inside a statement as RuntimeError("Query
     # interrupted"), which bitsift printed as "unexpected RuntimeError" with exit code 1.

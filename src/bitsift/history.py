@@ -318,8 +318,20 @@ class HistoryStore(ABC):
         """
         existing = self.existing_columns()
         if existing is None:
+            # The write would create the table there: a missing schema would fail it after
+            # the ranking work.
+            if not self.schema_exists():
+                raise HistoryError(
+                    f"results table {self.destination.table} in {self.destination.display}: "
+                    f"schema {self.table.db} does not exist; create it, or choose another "
+                    "results table"
+                )
             return False
         self._verify(existing, self.newest_schema_version)
+        return True
+
+    def schema_exists(self) -> bool:
+        """Whether the table's schema exists (True for an unqualified table)."""
         return True
 
     def column_widths(self) -> dict[str, int]:
@@ -476,6 +488,17 @@ class DuckDBStore(HistoryStore):
         if not rows:
             return None
         return {name: family_of(type_name, "duckdb") for name, type_name in rows}
+
+    def schema_exists(self) -> bool:
+        schema = self.table.db
+        if not schema:
+            return True
+        if self.connection is None:  # no file yet: it will have only DuckDB's "main"
+            return schema.lower() == "main"
+        query = ("SELECT count(*) FROM information_schema.schemata "
+                 "WHERE lower(schema_name) = lower(?)")
+        row = self.connection.execute(query, [schema]).fetchone()
+        return bool(row and row[0])
 
     def newest_schema_version(self) -> int | None:
         assert self.connection is not None
@@ -691,6 +714,12 @@ class SqlAlchemyStore(HistoryStore):
     def newest_schema_version(self) -> int | None:
         with self._connection(write=False) as connection:
             return self._newest(connection)
+
+    def schema_exists(self) -> bool:
+        if not self.schema:
+            return True
+        with self._connection(write=False) as connection:
+            return self.schema in sa.inspect(connection).get_schema_names()
 
     def column_widths(self) -> dict[str, int]:
         if self.engine.dialect.name == "sqlite":
