@@ -21,7 +21,7 @@ from pathlib import Path
 import duckdb
 import pytest
 import sqlalchemy as sa
-from conftest import MARIADB_URL
+from conftest import MARIADB_URL, unique_name
 from sqlglot import exp
 from test_errors import run_main
 from test_faults import _default_sigint, finish, wait_for
@@ -364,6 +364,7 @@ def test_a_mariadb_url_destination_is_usable(mariadb_database: str,
 #: Invented column names: 300 characters (DuckDB allows it), a few scripts, and emoji.
 LONG_NAME = ("reading_of_the_" + "very_" * 57)[:289] + "long_sensor"
 ODD_NAMES = (LONG_NAME, "Größe", "温度", "🌱 sprout 🌧")
+SHORT_ODD_NAMES = (*ODD_NAMES[1:], "🌧")
 
 
 def _odd_names_source(path: Path) -> Path:
@@ -403,6 +404,26 @@ def test_names_of_any_length_and_script_are_stored(destination: Destination,
         rows = store.read("nightly", ["odd"])
     assert {r["attribute"] for r in rows} == set(ODD_NAMES)
     assert len(rows) == 7
+
+
+def test_emoji_names_in_a_latin1_mariadb_database(mariadb_engine: sa.Engine,
+                                                  ranking: bitsift.Ranking) -> None:
+    # The table is created utf8mb4 whatever the database's default character set.
+    database = unique_name()
+    with mariadb_engine.begin() as connection:
+        connection.exec_driver_sql(f"CREATE DATABASE `{database}` CHARACTER SET latin1")
+    try:
+        destination = Destination(MARIADB_URL, f"{database}.history")
+        rows = rows_of(ranking)
+        for row, name in zip(rows, SHORT_ODD_NAMES, strict=True):
+            row["attribute"] = name
+        with open_store(destination, write=True) as store:
+            store.replace_run("j", "r1", rows)
+            read = store.read("j", ["r1"])
+    finally:
+        with mariadb_engine.begin() as connection:
+            connection.exec_driver_sql(f"DROP DATABASE `{database}`")
+    assert sorted(r["attribute"] for r in read) == sorted(SHORT_ODD_NAMES)
 
 
 @pytest.mark.parametrize("engine", ["postgres", "mariadb"])
