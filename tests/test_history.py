@@ -1,20 +1,36 @@
-"""The results history table: documented schema, creation, refusal of incompatible tables, and
-one transaction per run (on DuckDB and PostgreSQL)."""
+"""The results history table: documented schema, creation, refusal of incompatible tables, one
+transaction per run, and (issue 16) writers taking turns, byte-exact keys, names of any length
+and script, and Ctrl-C during the write; on DuckDB, SQLite, PostgreSQL and MariaDB.
+
+Data: random rows (test_jobs.random_rows, seeded) and invented names."""
 
 from __future__ import annotations
 
 import datetime as _dt
+import json
+import os
 import re
+import signal
+import subprocess
+import sys
+import textwrap
+import time
 from collections.abc import Iterator
 from pathlib import Path
 
 import duckdb
 import pytest
 import sqlalchemy as sa
-from conftest import MARIADB_URL
-from test_jobs import POSTGRES_URL, duckdb_source
+from conftest import MARIADB_URL, unique_name
+from sqlglot import exp
+from test_errors import run_main
+from test_faults import _default_sigint, finish, wait_for
+from test_jobs import POSTGRES_URL, duckdb_source, history_count, random_rows, two_rankings
 
 import bitsift
+import bitsift.api
+from bitsift import history
+from bitsift.drift import drift
 from bitsift.history import (
     COLUMN_NAMES,
     COLUMNS,
@@ -24,7 +40,7 @@ from bitsift.history import (
     open_store,
     ranking_rows,
 )
-from bitsift.jobs import load_job, preflight
+from bitsift.jobs import JobError, load_job, preflight, run_job
 
 ROOT = Path(__file__).resolve().parents[1]
 RUN_AT = _dt.datetime(2026, 3, 1, 4, 5, 6, 789000, tzinfo=_dt.UTC)
@@ -177,3 +193,327 @@ def test_destination_problems_without_connecting(tmp_path: Path) -> None:
     assert "results table must be" in Destination(POSTGRES_URL, "c.s.t").problems()[0]
     assert Destination("postgresql+psycopg://u:secret@h/db").display == (
         "postgresql+psycopg://u:***@h/db")
+
+
+# --- trust (issue 16): concurrent writers, twin keys, long and unicode names, Ctrl-C ------------
+
+#: Concurrent `bitsift run` processes in the concurrency test.
+WRITERS = 4
+
+#: A `bitsift run` child that widens the race windows without changing what it does: every
+#: writer waits at a barrier (until all have ranked, or 10 s) before opening the results for
+#: writing, and a SQLAlchemy writer pauses 0.3 s after looking at the table and before writing,
+#: as a busy server might. Arguments: barrier folder, writer count, then bitsift's arguments.
+RACING_CHILD = textwrap.dedent("""\
+    import os, sys, time
+    from pathlib import Path
+    from bitsift import history, jobs
+
+    barrier, count = Path(sys.argv[1]), int(sys.argv[2])
+    open_store = jobs.open_store
+
+    def open_at_the_barrier(destination, *, write=False):
+        if write:
+            (barrier / str(os.getpid())).touch()
+            deadline = time.monotonic() + 10
+            while len(list(barrier.iterdir())) < count and time.monotonic() < deadline:
+                time.sleep(0.01)
+        return open_store(destination, write=write)
+
+    existing = history.SqlAlchemyStore._existing
+
+    def slow_existing(self, connection):
+        found = existing(self, connection)
+        time.sleep(0.3)
+        return found
+
+    jobs.open_store = open_at_the_barrier
+    history.SqlAlchemyStore._existing = slow_existing
+    from bitsift.cli import main
+    main(sys.argv[3:])
+""")
+
+
+def _job_file(folder: Path, destination: Destination, *, job: str = "nightly",
+              source: Path | None = None) -> Path:
+    source = source or duckdb_source(folder / "src.duckdb")
+    path = folder / "job.toml"
+    path.write_text(two_rankings(str(source), destination.location, destination.table)
+                    .replace('job = "nightly"', f"job = {json.dumps(job)}"), encoding="utf-8")
+    return path
+
+
+def _child(script: str, *args: str) -> subprocess.Popen[str]:
+    return subprocess.Popen([sys.executable, "-c", script, *args], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True,
+                            preexec_fn=_default_sigint if os.name == "posix" else None)  # noqa: PLW1509
+
+
+@pytest.mark.parametrize("table_exists", [False, True], ids=["first-runs", "reruns"])
+def test_concurrent_runs_of_one_run_id_leave_one_record_set(destination: Destination,
+                                                             tmp_path: Path,
+                                                             table_exists: bool) -> None:
+    # Issue 16 item 5: before, PostgreSQL kept every row twice (each writer deleted before the
+    # other inserted), racing first runs failed on creating the table, and a second DuckDB
+    # writer failed on the file lock after ranking: its results were lost.
+    job_file = _job_file(tmp_path, destination)
+    earlier = {}
+    if table_exists:
+        run_job(load_job(job_file), "earlier")
+        earlier = {"earlier": 7}
+    barrier = tmp_path / "barrier"
+    barrier.mkdir()
+    children = [_child(RACING_CHILD, str(barrier), str(WRITERS), "run", str(job_file),
+                       "--run-id", "same") for _ in range(WRITERS)]
+    outcomes = [finish(child, seconds=120) for child in children]
+    assert [(code, err) for code, _, err in outcomes] == [(0, "")] * WRITERS
+    assert all(out.rstrip().endswith(f"wrote 7 rows to {destination.table} in "
+                                      f"{destination.display}") for _, out, _ in outcomes)
+    assert history_count(destination) == {**earlier, "same": 7}
+    with open_store(destination) as store:
+        rows = store.read("nightly", ["same"])
+    assert sorted((r["ranking"], r["position"]) for r in rows) == (
+        [("all", p) for p in range(1, 4)] + [("positive", p) for p in range(1, 5)])
+
+
+def test_a_results_file_held_too_long_fails_before_ranking(tmp_path: Path,
+                                                           monkeypatch: pytest.MonkeyPatch
+                                                           ) -> None:
+    # A DuckDB results file admits one writing process; a run waits for it (bounded), and
+    # when the wait runs out it stops at its checks, before any ranking work, in one line.
+    destination = Destination(str(tmp_path / "h.duckdb"), "history")
+    job = load_job(_job_file(tmp_path, destination))
+    holder = _child("import duckdb, sys, time\ncon = duckdb.connect(sys.argv[1])\n"
+                    "print('held', flush=True)\ntime.sleep(30)\n", str(destination.path))
+    try:
+        assert holder.stdout is not None and holder.stdout.readline() == "held\n"
+        monkeypatch.setattr(history, "WRITE_WAIT_SECONDS", 0.5)
+        ranked: list[object] = []
+        monkeypatch.setattr(bitsift.api, "rank", lambda *a, **k: ranked.append(a))
+        with pytest.raises(JobError) as caught:
+            run_job(job, "late")
+    finally:
+        holder.kill()
+        holder.communicate()
+    message = str(caught.value)
+    assert f"results file {destination.path} was held by another process for more than " \
+           "0.5 s, so nothing was written to it: IO Error: Could not set lock" in message
+    assert ranked == []
+    assert history_count(destination) == {}
+
+
+TWIN_JOBS = ("Sales", "sales", "sales ")
+
+
+def _rows_for(ranking: bitsift.Ranking, job: str, run_id: str, minute: int
+              ) -> list[dict[str, object]]:
+    return ranking_rows(ranking, run_id=run_id, run_at=RUN_AT.replace(minute=minute), job=job,
+                        ranking_name="all", options={"target": "y"})
+
+
+def test_rows_of_another_run_are_refused(tmp_path: Path, ranking: bitsift.Ranking) -> None:
+    # replace_run deletes (job, run_id) and inserts the rows: rows carrying other keys would
+    # not replace that run but sit beside it, and a rerun would double them.
+    destination = Destination(str(tmp_path / "h.duckdb"), "history")
+    with open_store(destination, write=True) as store:
+        with pytest.raises(HistoryError, match=r"rows of job 'j', run 'r1' cannot be written as "
+                                               r"job 'nightly', run 'r2'; nothing was written"):
+            store.replace_run("nightly", "r2", rows_of(ranking))
+        assert store.runs("j") == [] and store.runs("nightly") == []
+
+
+def test_twin_job_names_and_run_ids_stay_apart(destination: Destination,
+                                               ranking: bitsift.Ranking) -> None:
+    # Issue 16 item 6: on MariaDB the default collation ignores case and trailing spaces, so
+    # each job's rerun deleted its twins' rows, and runs R1 and r1 were counted as one.
+    with open_store(destination, write=True) as store:
+        for minute, job in enumerate(TWIN_JOBS):
+            store.replace_run(job, "R1", _rows_for(ranking, job, "R1", minute))
+        store.replace_run("sales", "r1", _rows_for(ranking, "sales", "r1", 10))
+        store.replace_run("Sales", "R1", _rows_for(ranking, "Sales", "R1", 20))  # a rerun
+        runs = {job: [(r.run_id, r.run_at.minute, r.rows) for r in store.runs(job)]
+                for job in TWIN_JOBS}
+        read = store.read("sales", ["r1"])
+        both = store.read("sales", ["R1", "r1"])
+    assert runs == {"Sales": [("R1", 20, 4)], "sales": [("r1", 10, 4), ("R1", 1, 4)],
+                    "sales ": [("R1", 2, 4)]}
+    assert {(r["job"], r["run_id"]) for r in read} == {("sales", "r1")} and len(read) == 4
+    assert sorted((r["job"], r["run_id"]) for r in both) == (
+        [("sales", "R1")] * 4 + [("sales", "r1")] * 4)
+    # Reading for drift: the job's own two runs, not a twin's.
+    report = drift(destination, "sales")
+    assert report.old is not None and report.new is not None
+    assert (report.old.run_id, report.new.run_id, report.new.rows) == ("R1", "r1", 4)
+    assert drift(destination, "sales ").notes == [
+        f"job 'sales ' has 1 run in {destination.table}: nothing to compare yet"]
+
+
+def test_a_mariadb_url_destination_is_usable(mariadb_database: str,
+                                             ranking: bitsift.Ranking) -> None:
+    # Issue 16 item 7: `mariadb+pymysql://` failed with "unexpected ValueError: Unknown dialect
+    # 'mariadb'" (bitsift's dialect name was handed to sqlglot).
+    url = MARIADB_URL.replace("mysql+pymysql://", "mariadb+pymysql://")
+    destination = Destination(url, f"{mariadb_database}.history")
+    assert destination.problems() == []
+    assert destination.sqlglot_dialect() == "mysql"
+    with open_store(destination, write=True) as store:
+        store.replace_run("j", "r1", rows_of(ranking))
+        assert [(r.run_id, r.rows) for r in store.runs("j")] == [("r1", 4)]
+
+
+#: Invented column names: 300 characters (DuckDB allows it), a few scripts, and emoji.
+LONG_NAME = ("reading_of_the_" + "very_" * 57)[:289] + "long_sensor"
+ODD_NAMES = (LONG_NAME, "Größe", "温度", "🌱 sprout 🌧")
+SHORT_ODD_NAMES = (*ODD_NAMES[1:], "🌧")
+
+
+def _odd_names_source(path: Path) -> Path:
+    rows = random_rows(300)
+    con = duckdb.connect(str(path))
+    con.execute("CREATE TABLE t (a INTEGER, b VARCHAR, amount DOUBLE, label VARCHAR, y VARCHAR)")
+    con.executemany("INSERT INTO t VALUES (?, ?, ?, ?, ?)",
+                    [[r["a"], r["b"], r["amount"], r["label"], r["y"]] for r in rows])
+    for old, new in zip(("a", "b", "amount", "label"), ODD_NAMES, strict=True):
+        con.execute(exp.rename_column("t", old, new).sql("duckdb"))
+    con.close()
+    return path
+
+
+def _odd_names_job(folder: Path, destination: Destination) -> Path:
+    job_file = _job_file(folder, destination, source=_odd_names_source(folder / "s.duckdb"))
+    text = (job_file.read_text(encoding="utf-8")
+            .replace('exclude = ["label"]', 'exclude = ["🌱 sprout 🌧"]')
+            .replace('where = "amount > 0"', "where = '\"温度\" > 0'"))
+    job_file.write_text(text, encoding="utf-8")
+    return job_file
+
+
+def test_names_of_any_length_and_script_are_stored(destination: Destination,
+                                                   tmp_path: Path,
+                                                   capsys: pytest.CaptureFixture[str]) -> None:
+    # Issue 16 item 7: a 300-character attribute passed --dry-run, then the write failed on
+    # PostgreSQL and MariaDB (VARCHAR(255)) and the run was lost.
+    assert len(LONG_NAME) == 300
+    job_file = _odd_names_job(tmp_path, destination)
+    code, _, err = run_main(capsys, "run", job_file, "--dry-run", "--run-id", "odd")
+    assert (code, err) == (0, "")
+    code, out, err = run_main(capsys, "run", job_file, "--run-id", "odd")
+    assert (code, err) == (0, "")
+    assert "wrote 7 rows" in out
+    with open_store(destination) as store:
+        rows = store.read("nightly", ["odd"])
+    assert {r["attribute"] for r in rows} == set(ODD_NAMES)
+    assert len(rows) == 7
+
+
+def test_emoji_names_in_a_latin1_mariadb_database(mariadb_engine: sa.Engine,
+                                                  ranking: bitsift.Ranking) -> None:
+    # The table is created utf8mb4 whatever the database's default character set.
+    database = unique_name()
+    with mariadb_engine.begin() as connection:
+        connection.exec_driver_sql(f"CREATE DATABASE `{database}` CHARACTER SET latin1")
+    try:
+        destination = Destination(MARIADB_URL, f"{database}.history")
+        rows = rows_of(ranking)
+        for row, name in zip(rows, SHORT_ODD_NAMES, strict=True):
+            row["attribute"] = name
+        with open_store(destination, write=True) as store:
+            store.replace_run("j", "r1", rows)
+            read = store.read("j", ["r1"])
+    finally:
+        with mariadb_engine.begin() as connection:
+            connection.exec_driver_sql(f"DROP DATABASE `{database}`")
+    assert sorted(r["attribute"] for r in read) == sorted(SHORT_ODD_NAMES)
+
+
+@pytest.mark.parametrize("engine", ["postgres", "mariadb"])
+def test_dry_run_refuses_a_name_too_long_for_an_existing_table(
+        engine: str, tmp_path: Path, request: pytest.FixtureRequest, ranking: bitsift.Ranking,
+        capsys: pytest.CaptureFixture[str]) -> None:
+    # A table created by an earlier bitsift holds at most 255 characters per attribute: the
+    # dry run (and the run, before ranking) must say so instead of the write failing.
+    if engine == "postgres":
+        destination = Destination(POSTGRES_URL, f"{request.getfixturevalue('pg_schema')}.history")
+        narrow = "ALTER TABLE {} ALTER COLUMN attribute TYPE VARCHAR(255)"
+    else:
+        destination = Destination(MARIADB_URL,
+                                  f"{request.getfixturevalue('mariadb_database')}.history")
+        narrow = "ALTER TABLE {} MODIFY attribute VARCHAR(255) NOT NULL"
+    with open_store(destination, write=True) as store:
+        store.replace_run("j", "r1", rows_of(ranking))
+    execute(destination, narrow.format(destination.table_name().sql(
+        destination.sqlglot_dialect())))
+    job_file = _odd_names_job(tmp_path, destination)
+    code, out, err = run_main(capsys, "run", job_file, "--dry-run")
+    assert (code, out) == (1, "")
+    assert err == (
+        f"Error: 1 problem in job file {job_file}:\n  {job_file}:5: results table "
+        f"{destination.table} in {destination.display}: column attribute holds at most 255 "
+        f"characters, but '{LONG_NAME[:40]}...' has 300; widen the column (for example to "
+        "TEXT) or choose another results table\n")
+    with pytest.raises(JobError, match="column attribute holds at most 255"):
+        run_job(load_job(job_file), "late")
+    assert history_count(destination, "j") == {"r1": 4}
+
+
+@pytest.mark.parametrize("engine", ["duckdb", "postgres", "mariadb"])
+def test_dry_run_refuses_a_missing_schema(engine: str, tmp_path: Path,
+                                          request: pytest.FixtureRequest,
+                                          capsys: pytest.CaptureFixture[str]) -> None:
+    # The write would create the table in that schema and fail after the ranking work.
+    location = {"duckdb": str(tmp_path / "h.duckdb"), "postgres": POSTGRES_URL,
+                "mariadb": MARIADB_URL}[engine]
+    if engine != "duckdb":  # skips (or fails in CI) when the server is unreachable
+        request.getfixturevalue(f"{engine}_engine")
+    destination = Destination(location, "no_such_schema_t16.history")
+    job_file = _job_file(tmp_path, destination)
+    code, out, err = run_main(capsys, "run", job_file, "--dry-run")
+    assert (code, out) == (1, "")
+    assert err.endswith(f"job.toml:5: results table no_such_schema_t16.history in "
+                        f"{destination.display}: schema no_such_schema_t16 does not exist; "
+                        "create it, or choose another results table\n")
+
+
+def test_ctrl_c_during_a_duckdb_history_write_exits_130(tmp_path: Path) -> None:
+    # Issue 16 item 8: DuckDB reports Ctrl-C inside a statement as RuntimeError("Query
+    # interrupted"), which bitsift printed as "unexpected RuntimeError" with exit code 1.
+    destination = Destination(str(tmp_path / "h.duckdb"), "history")
+    job_file = _job_file(tmp_path, destination)
+    run_job(load_job(job_file), "first")
+    marker = tmp_path / "writing"
+    # The child runs a long statement in the write's transaction (after creating/deleting
+    # nothing yet): the moment Ctrl-C lands is then inside DuckDB, as in the report.
+    script = textwrap.dedent("""\
+        import sys
+        from pathlib import Path
+        from bitsift import history
+
+        replace_run, check = history.DuckDBStore.replace_run, history.DuckDBStore.check
+        writing = []
+
+        def marked_replace_run(self, *args):
+            writing.append(True)
+            return replace_run(self, *args)
+
+        def slow_check(self):
+            if writing:
+                # One thread: DuckDB notices a signal between tasks, and worker threads on
+                # one long task would keep it waiting.
+                self.connection.execute("SET threads = 1")
+                Path(sys.argv[1]).touch()
+                self.connection.execute("SELECT sum(hash(range)) FROM range(20000000000)")
+            return check(self)
+
+        history.DuckDBStore.replace_run = marked_replace_run
+        history.DuckDBStore.check = slow_check
+        from bitsift.cli import main
+        main(sys.argv[2:])
+    """)
+    child = _child(script, str(marker), "run", str(job_file), "--run-id", "second")
+    wait_for(lambda: marker.exists() or child.poll() is not None, 120, "the history write")
+    time.sleep(0.3)
+    child.send_signal(signal.SIGINT)
+    code, out, err = finish(child, seconds=60)
+    assert code == 130 and err.strip() in ("Aborted.", "Interrupted.")  # as in test_faults
+    assert "wrote" not in out
+    assert history_count(destination) == {"first": 7}  # the write was rolled back

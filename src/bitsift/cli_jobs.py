@@ -13,7 +13,7 @@ import click
 from bitsift import drift as drift_lib
 from bitsift.dialects import CAPABILITIES
 from bitsift.history import DEFAULT_TABLE, Destination
-from bitsift.jobs import load_job, preflight, run_job
+from bitsift.jobs import check_run_id, load_job, preflight, run_job
 from bitsift.models import write_models
 from bitsift.names import one_line
 from bitsift.result import SEGMENT_STATUS, Ranking, SegmentedRanking, segment_label
@@ -33,7 +33,7 @@ def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
     job = load_job(job_file)
     where = f"{job.destination.table} in {job.destination.display}"
     if dry_run:
-        preflight(job)
+        preflight(job, run_id=check_run_id(run_id) if run_id is not None else None)
         click.echo(f"job {job.name}: {len(job.rankings)} ranking(s) checked, results table {where}"
                    " is usable; nothing was ranked or written")
         return

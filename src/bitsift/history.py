@@ -5,12 +5,22 @@ The schema is :data:`COLUMNS` (documented in docs/scheduled-runs.md) with versio
 :data:`SCHEMA_VERSION`, stored in every row. A missing table is created; an existing table whose
 columns differ is an error and is never altered. Destinations are a DuckDB file (written through
 DuckDB, SQL built by sqlglot) or a SQLAlchemy URL (written through SQLAlchemy Core).
+
+Writers of one history table take turns: a DuckDB file admits one writing process (the others
+wait for it, up to :data:`WRITE_WAIT_SECONDS`), PostgreSQL and MySQL/MariaDB writers hold a lock
+named after the table (an advisory lock, ``GET_LOCK``) for the whole write, and SQLite writers
+start with ``BEGIN IMMEDIATE``. Two runs with one run id therefore replace each other's rows
+instead of both inserting. The key columns (job, run id) compare byte for byte on every engine,
+also where the column's collation ignores case or trailing spaces (MySQL/MariaDB).
 """
 
 from __future__ import annotations
 
 import datetime as _dt
+import hashlib
+import json
 import os
+import time
 from abc import ABC, abstractmethod
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
@@ -24,7 +34,7 @@ from sqlalchemy.dialects import mysql
 from sqlglot import exp
 
 from bitsift import jsonout
-from bitsift.dialects import SQLALCHEMY_DIALECTS
+from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
 from bitsift.errors import BitsiftError, SpecError
 from bitsift.result import Ranking
@@ -37,6 +47,14 @@ SCHEMA_VERSION = 1
 DEFAULT_TABLE = "bitsift_history"
 #: Environment variable that may hold the destination's password instead of its URL.
 PASSWORD_VARIABLE = "BITSIFT_RESULTS_PASSWORD"
+#: How long a run waits for another run writing the same history table (or holding the DuckDB
+#: file) before it gives up with one line. A write itself takes well under a second.
+WRITE_WAIT_SECONDS = 60.0
+#: SQLAlchemy dialects whose text comparison follows a collation that may ignore case and
+#: trailing spaces (``'Sales' = 'sales '`` is true): their keys are compared as UTF-8 bytes.
+_COLLATING_DIALECTS = ("mysql", "mariadb")
+#: SQLAlchemy dialects that understand CREATE TABLE IF NOT EXISTS.
+_IF_NOT_EXISTS_DIALECTS = ("postgresql", "mysql", "mariadb", "sqlite", "duckdb")
 
 
 class HistoryError(BitsiftError):
@@ -63,11 +81,12 @@ COLUMNS: tuple[HistoryColumn, ...] = (
     HistoryColumn("run_at", "timestamp", "when the run started, UTC (stored without a zone)"),
     HistoryColumn("job", "text", "the job's name (`job` in the job file)", length=200),
     HistoryColumn("ranking", "text", "the ranking's name within the job", length=200),
-    HistoryColumn("source_table", "text", "the table (or file) that was ranked", length=1000),
-    HistoryColumn("target", "text", "the target column", length=255),
+    # Names come from the source, which may allow any length: stored unbounded.
+    HistoryColumn("source_table", "text", "the table (or file) that was ranked"),
+    HistoryColumn("target", "text", "the target column"),
     HistoryColumn("segment", "text", "segment values as a JSON object; empty (or NULL) for an "
                   "unsegmented ranking", nullable=True),
-    HistoryColumn("attribute", "text", "the ranked column", length=255),
+    HistoryColumn("attribute", "text", "the ranked column"),
     HistoryColumn("position", "integer", "1-based place in the ranking's sort order"),
     HistoryColumn("kind", "text", "`categorical` or `numeric` (quantile-binned)", length=20),
     HistoryColumn("distinct_values", "integer", "distinct values (bins for numeric attributes)"),
@@ -97,7 +116,10 @@ _DUCKDB_TYPES = {"text": "VARCHAR", "integer": "BIGINT", "float": "DOUBLE",
 
 def _sa_type(column: HistoryColumn) -> Any:
     if column.family == "text":
-        return sa.String(column.length) if column.length else sa.Text()
+        if column.length:
+            return sa.String(column.length)
+        # MySQL's TEXT holds 64 KB; a long options list or segment may need more.
+        return sa.Text().with_variant(mysql.MEDIUMTEXT(), "mysql", "mariadb")
     if column.family == "integer":
         return sa.BigInteger()
     if column.family == "float":
@@ -137,7 +159,9 @@ class Destination:
             backend = sa.engine.make_url(self.location).get_backend_name()
         except Exception:  # noqa: BLE001 - reported by validate()
             return ""
-        return SQLALCHEMY_DIALECTS.get(backend, "")
+        # SQLALCHEMY_DIALECTS names bitsift's dialects ("mariadb"); sqlglot's may differ.
+        name = SQLALCHEMY_DIALECTS.get(backend)
+        return capabilities(name).sqlglot_dialect if name else ""
 
     def table_name(self) -> exp.Table:
         """The table as ``[schema.]table``, every part quoted by sqlglot."""
@@ -268,7 +292,8 @@ class HistoryStore(ABC):
 
     @abstractmethod
     def replace_run(self, job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> int:
-        """In one transaction: create the table if missing, delete the run, insert ``rows``."""
+        """In one transaction, with the table's other writers waiting: create the table if
+        missing, delete the run, insert ``rows``."""
 
     @abstractmethod
     def runs(self, job: str) -> list[RunInfo]:
@@ -294,9 +319,57 @@ class HistoryStore(ABC):
         """
         existing = self.existing_columns()
         if existing is None:
+            # The write would create the table there: a missing schema would fail it after
+            # the ranking work.
+            if not self.schema_exists():
+                raise HistoryError(
+                    f"results table {self.destination.table} in {self.destination.display}: "
+                    f"schema {self.table.db} does not exist; create it, or choose another "
+                    "results table"
+                )
             return False
         self._verify(existing, self.newest_schema_version)
         return True
+
+    def schema_exists(self) -> bool:
+        """Whether the table's schema exists (True for an unqualified table)."""
+        return True
+
+    def column_widths(self) -> dict[str, int]:
+        """Column name -> the most characters it holds, for the columns that have a limit."""
+        return {}
+
+    @staticmethod
+    def _check_keys(job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> None:
+        """Refuse rows of another job or run: they would not replace the run being deleted
+        but sit beside it, and be doubled by the next rerun."""
+        for row in rows:
+            if row["job"] != job or row["run_id"] != run_id:
+                raise HistoryError(
+                    f"rows of job {row['job']!r}, run {row['run_id']!r} cannot be written as "
+                    f"job {job!r}, run {run_id!r}; nothing was written"
+                )
+
+    def width_problems(self, values: Mapping[str, Iterable[str]]) -> list[str]:
+        """One line per column that a value to be written does not fit (checked before the
+        ranking work, which such a write would throw away); empty when everything fits."""
+        widths = self.column_widths()
+        problems = []
+        for name in COLUMN_NAMES:
+            limit = widths.get(name)
+            if limit is None or name not in values:
+                continue
+            # sorted first: of equally long values, always the same one is named.
+            longest = max(sorted(values[name]), key=len, default="")
+            if len(longest) > limit:
+                shown = longest if len(longest) <= 40 else longest[:40] + "..."
+                problems.append(
+                    f"results table {self.destination.table} in {self.destination.display}: "
+                    f"column {name} holds at most {limit} characters, but {shown!r} has "
+                    f"{len(longest)}; widen the column (for example to TEXT) or choose "
+                    "another results table"
+                )
+        return problems
 
     def _verify(self, existing: Mapping[str, str], newest_version: Callable[[], int | None]
                 ) -> None:
@@ -321,6 +394,65 @@ def _rows_to_dicts(names: Sequence[str], rows: Iterable[Sequence[Any]]) -> list[
     return [dict(zip(names, row, strict=True)) for row in rows]
 
 
+def _wait_until(attempt: Callable[[], bool], seconds: float) -> bool:
+    """Call ``attempt`` until it returns True (then True), pausing a little longer each time,
+    or until ``seconds`` have passed (then False)."""
+    deadline = time.monotonic() + seconds
+    pause = 0.01
+    while not attempt():
+        if time.monotonic() >= deadline:
+            return False
+        time.sleep(pause)
+        pause = min(pause * 2, 0.25)
+    return True
+
+
+def _interrupted(error: BaseException) -> bool:
+    """Whether ``error`` is DuckDB reporting Ctrl-C during a statement: it raises
+    ``RuntimeError("Query interrupted")`` (or InterruptException), not KeyboardInterrupt."""
+    return isinstance(error, duckdb.InterruptException) or (
+        isinstance(error, RuntimeError) and "interrupted" in str(error).lower()
+    )
+
+
+@contextmanager
+def _ctrl_c_as_interrupt() -> Iterator[None]:
+    """Turn DuckDB's report of Ctrl-C into KeyboardInterrupt, which the CLI reports as
+    "Interrupted." with exit code 130."""
+    try:
+        yield
+    except (duckdb.Error, RuntimeError) as error:
+        if _interrupted(error):
+            raise KeyboardInterrupt from None
+        raise
+
+
+def _connect_duckdb(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection:
+    """Open the results file, waiting up to :data:`WRITE_WAIT_SECONDS` while another process
+    holds it: DuckDB lets one process write a file, and nobody else open it meanwhile."""
+    opened: list[duckdb.DuckDBPyConnection] = []
+    conflicts: list[duckdb.Error] = []
+
+    def attempt() -> bool:
+        try:
+            opened.append(duckdb.connect(str(path), read_only=read_only))
+        except duckdb.IOException as error:
+            if "lock" not in str(error).lower():
+                raise HistoryError(f"cannot open results file {path}: {_line(error)}") from None
+            conflicts.append(error)
+            return False
+        except duckdb.Error as error:
+            raise HistoryError(f"cannot open results file {path}: {_line(error)}") from None
+        return True
+
+    if not _wait_until(attempt, WRITE_WAIT_SECONDS):
+        raise HistoryError(
+            f"results file {path} was held by another process for more than "
+            f"{WRITE_WAIT_SECONDS:g} s, so nothing was written to it: {_line(conflicts[-1])}"
+        )
+    return opened[0]
+
+
 def _ident(name: str) -> exp.Identifier:
     return exp.to_identifier(name, quoted=True)
 
@@ -338,10 +470,7 @@ class DuckDBStore(HistoryStore):
         self.connection: duckdb.DuckDBPyConnection | None = None
         if not write and not path.exists():
             return
-        try:
-            self.connection = duckdb.connect(str(path), read_only=not write)
-        except duckdb.Error as error:
-            raise HistoryError(f"cannot open results file {path}: {_line(error)}") from None
+        self.connection = _connect_duckdb(path, read_only=not write)
 
     def _sql(self, tree: exp.Expression) -> str:
         return tree.sql("duckdb")
@@ -361,6 +490,17 @@ class DuckDBStore(HistoryStore):
             return None
         return {name: family_of(type_name, "duckdb") for name, type_name in rows}
 
+    def schema_exists(self) -> bool:
+        schema = self.table.db
+        if not schema:
+            return True
+        if self.connection is None:  # no file yet: it will have only DuckDB's "main"
+            return schema.lower() == "main"
+        query = ("SELECT count(*) FROM information_schema.schemata "
+                 "WHERE lower(schema_name) = lower(?)")
+        row = self.connection.execute(query, [schema]).fetchone()
+        return bool(row and row[0])
+
     def newest_schema_version(self) -> int | None:
         assert self.connection is not None
         query = exp.select(exp.func("MAX", _col("schema_version"))).from_(self.table.copy())
@@ -379,7 +519,8 @@ class DuckDBStore(HistoryStore):
             for c in COLUMNS
         ]
         return self._sql(exp.Create(this=exp.Schema(this=self.table.copy(),
-                                                    expressions=definitions), kind="TABLE"))
+                                                    expressions=definitions), kind="TABLE",
+                                    exists=True))
 
     def _run_filter(self) -> exp.Condition:
         return exp.and_(_col("job").eq(exp.Placeholder()), _col("run_id").eq(exp.Placeholder()))
@@ -387,12 +528,14 @@ class DuckDBStore(HistoryStore):
     def replace_run(self, job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> int:
         assert self.connection is not None, "opened for reading only"
         con = self.connection
+        self._check_keys(job, run_id, rows)
         delete = exp.delete(self.table.copy(), where=self._run_filter())
         insert = exp.insert(
             exp.Values(expressions=[exp.tuple_(*(exp.Placeholder() for _ in COLUMNS))]),
             self.table.copy(),
             columns=[_ident(n) for n in COLUMN_NAMES],
         )
+        # This process holds the file alone (see _connect_duckdb): writers take turns.
         con.begin()
         try:
             if not self.check():
@@ -403,6 +546,8 @@ class DuckDBStore(HistoryStore):
             con.commit()
         except BaseException as error:
             con.rollback()
+            if _interrupted(error):
+                raise KeyboardInterrupt from None
             if isinstance(error, duckdb.Error):
                 raise HistoryError(
                     f"writing to {self.destination.table} in {self.destination.display} failed, "
@@ -422,7 +567,8 @@ class DuckDBStore(HistoryStore):
             .where(_col("job").eq(exp.Placeholder()))
             .group_by(_col("run_id"))
         )
-        result = self.connection.execute(self._sql(query), [job]).fetchall()
+        with _ctrl_c_as_interrupt():
+            result = self.connection.execute(self._sql(query), [job]).fetchall()
         return _newest_first(RunInfo(r[0], r[1], int(r[2])) for r in result)
 
     def read(self, job: str, run_ids: Iterable[str]) -> list[dict[str, Any]]:
@@ -436,8 +582,9 @@ class DuckDBStore(HistoryStore):
             .where(exp.and_(_col("job").eq(exp.Placeholder()),
                             _col("run_id").isin(*(exp.Placeholder() for _ in ids))))
         )
-        cursor = self.connection.execute(self._sql(query), [job, *ids])
-        return _rows_to_dicts(COLUMN_NAMES, cursor.fetchall())
+        with _ctrl_c_as_interrupt():
+            fetched = self.connection.execute(self._sql(query), [job, *ids]).fetchall()
+        return _rows_to_dicts(COLUMN_NAMES, fetched)
 
     def close(self) -> None:
         if self.connection is not None:
@@ -454,8 +601,11 @@ class SqlAlchemyStore(HistoryStore):
         if url.password is None and os.environ.get(PASSWORD_VARIABLE):
             url = url.set(password=os.environ[PASSWORD_VARIABLE])
         self._secret = url.password if isinstance(url.password, str) else None
+        # SQLite: a writer waits this long for another one's BEGIN IMMEDIATE (default 5 s).
+        connect_args = {"timeout": WRITE_WAIT_SECONDS} if url.get_backend_name() == "sqlite" else {}
         try:
-            self.engine = sa.create_engine(url, poolclass=sa.pool.NullPool)
+            self.engine = sa.create_engine(url, poolclass=sa.pool.NullPool,
+                                           connect_args=connect_args)
         except (ImportError, sa.exc.NoSuchModuleError) as error:
             raise HistoryError(
                 f"the driver for {url.drivername} is not installed ({_line(error)})"
@@ -466,7 +616,11 @@ class SqlAlchemyStore(HistoryStore):
             sa.MetaData(),
             *(sa.Column(c.name, _sa_type(c), nullable=c.nullable) for c in COLUMNS),
             schema=self.schema,
+            # Names in any script, emoji included (MySQL's older "utf8" stops at 3 bytes).
+            mysql_charset="utf8mb4",
+            mariadb_charset="utf8mb4",
         )
+        self._bytewise = self.engine.dialect.name in _COLLATING_DIALECTS
 
     @contextmanager
     def _connection(self, *, write: bool) -> Iterator[sa.Connection]:
@@ -478,7 +632,12 @@ class SqlAlchemyStore(HistoryStore):
             ) from None
         try:
             if write:
+                self._take_writer_turn(connection)
                 with connection.begin():
+                    if connection.dialect.name == "sqlite":
+                        # Take SQLite's write lock now, not at the first write: a reader that
+                        # later wants to write fails at once instead of waiting its turn.
+                        connection.exec_driver_sql("BEGIN IMMEDIATE")
                     yield connection
             else:
                 yield connection
@@ -491,6 +650,48 @@ class SqlAlchemyStore(HistoryStore):
             ) from None
         finally:
             connection.close()
+
+    def _take_writer_turn(self, connection: sa.Connection) -> None:
+        """Wait (up to :data:`WRITE_WAIT_SECONDS`) for a session lock named after the table.
+
+        Without it two runs with one run id both delete (nothing, in READ COMMITTED) and then
+        both insert, and two first runs both create the table. The lock is a session's, so it
+        also covers a table created before the transaction; closing the connection (NullPool:
+        at the end of every write) releases it, whatever happened.
+        """
+        name = connection.dialect.name
+        identity = "\x1f".join(["bitsift history", str(self.engine.url.database or ""),
+                                 self.schema or "", self.table.name])
+        digest = hashlib.sha256(identity.encode("utf-8")).digest()
+        if name == "postgresql":
+            key = sa.literal(int.from_bytes(digest[:8], "big", signed=True), sa.BigInteger)
+            take = sa.select(sa.func.pg_try_advisory_lock(key))
+        elif name in _COLLATING_DIALECTS:
+            # GET_LOCK names are at most 64 characters and global to the server.
+            take = sa.select(sa.func.get_lock(sa.literal("bitsift_" + digest.hex()[:48]), 0))
+        else:
+            return
+        if not _wait_until(lambda: bool(connection.execute(take).scalar()), WRITE_WAIT_SECONDS):
+            raise HistoryError(
+                f"results table {self.destination.table} in {self.destination.display}: "
+                f"another run kept writing it for more than {WRITE_WAIT_SECONDS:g} s, so "
+                "nothing was written"
+            )
+        connection.commit()  # ends the lock query's transaction; the session keeps the lock
+
+    def _key(self, column: sa.ColumnElement[Any]) -> sa.ColumnElement[Any]:
+        """``column`` as compared in keys: its UTF-8 bytes where the engine's collation would
+        call ``'Sales'`` and ``'sales '`` equal, else the column itself."""
+        if not self._bytewise:
+            return column
+        return sa.cast(sa.cast(column, mysql.CHAR(charset="utf8mb4")), sa.LargeBinary)
+
+    def _key_value(self, text: str) -> str | bytes:
+        """A value compared with :meth:`_key`."""
+        return text.encode("utf-8") if self._bytewise else text
+
+    def _same(self, column: sa.ColumnElement[Any], text: str) -> sa.ColumnElement[bool]:
+        return self._key(column) == self._key_value(text)
 
     def _scrub(self, error: BaseException) -> str:
         text = _line(error)
@@ -515,15 +716,40 @@ class SqlAlchemyStore(HistoryStore):
         with self._connection(write=False) as connection:
             return self._newest(connection)
 
+    def schema_exists(self) -> bool:
+        if not self.schema:
+            return True
+        with self._connection(write=False) as connection:
+            return self.schema in sa.inspect(connection).get_schema_names()
+
+    def column_widths(self) -> dict[str, int]:
+        if self.engine.dialect.name == "sqlite":
+            return {}  # SQLite stores text of any length whatever the declared type says
+        with self._connection(write=False) as connection:
+            inspector = sa.inspect(connection)
+            if not inspector.has_table(self.table.name, schema=self.schema):
+                return {c.name: c.length for c in COLUMNS if c.length}
+            reflected = inspector.get_columns(self.table.name, schema=self.schema)
+        return {c["name"].lower(): c["type"].length for c in reflected
+                if isinstance(c["type"], sa.String) and c["type"].length}
+
+    def _create(self, connection: sa.Connection) -> None:
+        # IF NOT EXISTS where understood: with the writer lock held it is not needed, but a
+        # writer of another bitsift version (without the lock) may create it meanwhile.
+        if_not_exists = connection.dialect.name in _IF_NOT_EXISTS_DIALECTS
+        connection.execute(sa.schema.CreateTable(self.sa_table, if_not_exists=if_not_exists))
+
     def replace_run(self, job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> int:
         table = self.sa_table
+        self._check_keys(job, run_id, rows)
         with self._connection(write=True) as connection:
             existing = self._existing(connection)
             if existing is None:
-                table.create(connection)
+                self._create(connection)
             else:
                 self._verify(existing, lambda: self._newest(connection))
-            connection.execute(table.delete().where(table.c.job == job, table.c.run_id == run_id))
+            connection.execute(table.delete().where(self._same(table.c.job, job),
+                                                    self._same(table.c.run_id, run_id)))
             if rows:
                 connection.execute(table.insert(), [dict(r) for r in rows])
         return len(rows)
@@ -533,10 +759,12 @@ class SqlAlchemyStore(HistoryStore):
         with self._connection(write=False) as connection:
             if self._existing(connection) is None:
                 return []
+            # Grouped by the bytes too, so that runs R1 and r1 stay two runs.
+            groups = [table.c.run_id] + ([self._key(table.c.run_id)] if self._bytewise else [])
             result = connection.execute(
                 sa.select(table.c.run_id, sa.func.max(table.c.run_at), sa.func.count())
-                .where(table.c.job == job)
-                .group_by(table.c.run_id)
+                .where(self._same(table.c.job, job))
+                .group_by(*groups)
             ).all()
         return _newest_first(RunInfo(r[0], r[1], int(r[2])) for r in result)
 
@@ -546,8 +774,10 @@ class SqlAlchemyStore(HistoryStore):
         with self._connection(write=False) as connection:
             if not ids or self._existing(connection) is None:
                 return []
+            run_ids = [self._key_value(run_id) for run_id in ids]
             result = connection.execute(
-                sa.select(table).where(table.c.job == job, table.c.run_id.in_(ids))
+                sa.select(table).where(self._same(table.c.job, job),
+                                       self._key(table.c.run_id).in_(run_ids))
             ).all()
         return _rows_to_dicts(COLUMN_NAMES, result)
 

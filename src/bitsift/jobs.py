@@ -56,7 +56,7 @@ from bitsift.predicate import parse_predicate
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column
 from bitsift.sources import open_source, parse_table_name
-from bitsift.spec import RankOptions, Thresholds, resolve
+from bitsift.spec import RankOptions, RankSpec, Thresholds, resolve
 
 TOP_KEYS: tuple[str, ...] = ("job", "source", "results", "defaults", "ranking")
 RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
@@ -487,14 +487,18 @@ def load_job(path: str | Path) -> Job:
 # --- checks against the source and the destination --------------------------------------------
 
 
-def preflight(job: Job, *, destination: bool = True) -> None:
+def preflight(job: Job, *, destination: bool = True, run_id: str | None = None) -> None:
     """Check every ranking against the source's catalog and (with ``destination``) the results
-    table's layout.
+    table: its layout, and that every name the run would write fits its columns.
 
     Nothing is ranked and nothing is written; every problem is reported at once.
     """
     problems: list[Problem] = []
     source_line = job.lines.of("", 0, "source")
+    # The names each text column of the history will receive (attributes: every candidate).
+    written: dict[str, set[str]] = {"job": {job.name}, "run_id": {run_id} if run_id else set(),
+                                    "ranking": set(), "source_table": set(), "target": set(),
+                                    "attribute": set()}
     for ranking in job.rankings:
         where = f"ranking {ranking.name!r}: "
         try:
@@ -514,20 +518,30 @@ def preflight(job: Job, *, destination: bool = True) -> None:
             except BitsiftError as error:
                 problems.append(Problem(source_line, where + str(error)))
                 continue
-            problems += _ranking_problems(ranking, columns, opened.table, opened.display,
-                                          engine.caps.sqlglot_dialect)
+            found, spec = _ranking_problems(ranking, columns, opened.table, opened.display,
+                                            engine.caps.sqlglot_dialect)
+            problems += found
+            if spec is not None:
+                written["ranking"].add(ranking.name)
+                written["source_table"].add(spec.source_name)
+                written["target"].add(spec.target)
+                written["attribute"].update(a.name for a in spec.attributes)
     if destination:
+        results_line = job.lines.of("results", 0)
         try:
             with open_store(job.destination) as store:
                 store.check()
+                problems += [Problem(results_line, p) for p in store.width_problems(written)]
         except HistoryError as error:
-            problems.append(Problem(job.lines.of("results", 0), str(error)))
+            problems.append(Problem(results_line, str(error)))
     if problems:
         raise JobError(job.path, problems)
 
 
 def _ranking_problems(ranking: JobRanking, columns: Sequence[Column], table: Any,
-                      display: str, dialect: str) -> list[Problem]:
+                      display: str, dialect: str) -> tuple[list[Problem], RankSpec | None]:
+    """The ranking's problems against the source's columns, and its checked request when it
+    has none."""
     where = f"ranking {ranking.name!r}: "
     options = api.make_options(ranking.target, **ranking.options)
     names = [c.name for c in columns]
@@ -546,12 +560,13 @@ def _ranking_problems(ranking: JobRanking, columns: Sequence[Column], table: Any
             parse_predicate(options.where, {c.name: c for c in columns}, dialect)
         except PredicateError as error:
             problems.append(Problem(ranking.line_of("where"), where + str(error)))
+    spec = None
     if not problems:
         try:
-            resolve(options, columns, table, display, dialect)
+            spec = resolve(options, columns, table, display, dialect)
         except BitsiftError as error:
             problems.append(Problem(ranking.line, where + str(error)))
-    return problems
+    return problems, spec
 
 
 # --- running ------------------------------------------------------------------------------------
@@ -589,7 +604,7 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
     """
     run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
     run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
-    preflight(job)
+    preflight(job, run_id=run_id)
     done: list[tuple[JobRanking, Ranking | SegmentedRanking]] = []
     for ranking in job.rankings:
         try:
