@@ -12,6 +12,7 @@ from bitsift import api
 from bitsift.dialects import CAPABILITIES
 from bitsift.errors import BitsiftError
 from bitsift.formatting import FORMATS, render
+from bitsift.masking import environment_secrets, mask_text
 from bitsift.sources import ENGINE_NAMES, EngineSource
 from bitsift.spec import BINNING_METHODS, MISSING_MODES, SORT_METRICS, Thresholds
 from bitsift.version import __version__
@@ -204,16 +205,33 @@ def main(argv: Sequence[str] | None = None) -> None:
         sys.exit(130)
     except BitsiftError as error:
         if _DEBUG["on"] or "--debug" in args:
+            _mask_chain(error)
             raise
-        click.echo(f"Error: {error}", err=True)
+        click.echo(f"Error: {mask_text(str(error), environment_secrets())}", err=True)
         sys.exit(1)
     except Exception as error:  # noqa: BLE001 - no tracebacks for users unless --debug
         if _DEBUG["on"] or "--debug" in args:
+            _mask_chain(error)
             raise
-        first = (str(error).strip().splitlines() or [""])[0]
+        text = mask_text(str(error), environment_secrets())
+        first = (text.strip().splitlines() or [""])[0]
         click.echo(f"Error: unexpected {type(error).__name__}: {first} "
                    "(run with --debug for details)", err=True)
         sys.exit(1)
+
+
+def _mask_chain(error: BaseException) -> None:
+    """Mask the messages of ``error`` and of the errors it was raised from, in place, before
+    --debug lets Python print their traceback (a driver's error may quote the URL or DSN)."""
+    seen: set[int] = set()
+    link: BaseException | None = error
+    while link is not None and id(link) not in seen:
+        seen.add(id(link))
+        text = str(link)
+        masked = mask_text(text, environment_secrets())
+        if masked != text:
+            link.args = (masked,)
+        link = link.__cause__ or link.__context__
 
 
 # The scheduled-run commands (run, drift, models) live in their own module.

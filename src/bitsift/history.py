@@ -27,6 +27,13 @@ from sqlglot import exp
 from bitsift.dialects import SQLALCHEMY_DIALECTS
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
 from bitsift.errors import BitsiftError, SpecError
+from bitsift.masking import (
+    environment_secrets,
+    mask_text,
+    mask_url,
+    raw_at_in_password,
+    url_secrets,
+)
 from bitsift.result import Ranking
 from bitsift.schema import family_of
 from bitsift.sources import parse_table_name
@@ -126,9 +133,7 @@ class Destination:
         """The location without a password, for messages."""
         if not self.is_url:
             return str(self.path)
-        from bitsift.engines.sqlalchemy_engine import safe_url
-
-        return safe_url(self.location)
+        return mask_url(self.location)
 
     def sqlglot_dialect(self) -> str:
         if not self.is_url:
@@ -149,7 +154,10 @@ class Destination:
     def problems(self) -> list[str]:
         """Everything wrong with the destination that can be told without connecting."""
         found = []
-        if self.is_url:
+        if self.is_url and raw_at_in_password(self.location):
+            # SQLAlchemy would read the rest of the password as the host: refuse it unsent.
+            found.append(f"the password in {self.display} contains '@': write it as %40")
+        elif self.is_url:
             try:
                 sa.engine.make_url(self.location)
             except Exception:  # noqa: BLE001 - any parse failure
@@ -453,7 +461,7 @@ class SqlAlchemyStore(HistoryStore):
         url = sa.engine.make_url(destination.location)
         if url.password is None and os.environ.get(PASSWORD_VARIABLE):
             url = url.set(password=os.environ[PASSWORD_VARIABLE])
-        self._secret = url.password if isinstance(url.password, str) else None
+        self._secrets = url_secrets(url)
         try:
             self.engine = sa.create_engine(url, poolclass=sa.pool.NullPool)
         except (ImportError, sa.exc.NoSuchModuleError) as error:
@@ -493,8 +501,7 @@ class SqlAlchemyStore(HistoryStore):
             connection.close()
 
     def _scrub(self, error: BaseException) -> str:
-        text = _line(error)
-        return text.replace(self._secret, "***") if self._secret else text
+        return mask_text(_line(error), (*self._secrets, *environment_secrets()))
 
     def _existing(self, connection: sa.Connection) -> dict[str, str] | None:
         inspector = sa.inspect(connection)
