@@ -17,7 +17,6 @@ import re
 import subprocess
 import sys
 import textwrap
-import traceback
 import uuid
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -28,9 +27,9 @@ from urllib.parse import quote
 import pytest
 import sqlalchemy as sa
 from conftest import MARIADB_URL, POSTGRES_URL, unique_name
+from helpers import run_main
 
 import bitsift
-from bitsift.cli import main
 from bitsift.errors import BitsiftError
 
 pytestmark = [pytest.mark.mariadb, pytest.mark.postgres]
@@ -125,34 +124,6 @@ def cli(*args: str, debug_logging: bool = False, env: dict[str, str] | None = No
         [sys.executable, "-c", setup + "from bitsift.cli import main; main()", *args],
         capture_output=True, text=True, timeout=180, check=False, env=env,
     )
-
-
-@dataclass
-class Outcome:
-    code: int
-    out: str
-    err: str
-
-    @property
-    def texts(self) -> tuple[str, str]:
-        return self.out, self.err
-
-
-def run_main(capsys: pytest.CaptureFixture[str], *args: str) -> Outcome:
-    """``bitsift ARGS`` in this process (quicker than a subprocess). With --debug an error
-    escapes ``main`` as it would reach Python's top level: its traceback, formatted as Python
-    prints it, is added to stderr."""
-    trace = ""
-    try:
-        main(list(args))
-        code = 0
-    except SystemExit as exit_:
-        code = exit_.code if isinstance(exit_.code, int) else 1
-    except Exception as error:  # noqa: BLE001 - what --debug lets through
-        code = 1
-        trace = "".join(traceback.format_exception(error))
-    out, err = capsys.readouterr()
-    return Outcome(code, out, err + trace)
 
 
 # --- output and logs of a working ranking -------------------------------------------------------

@@ -174,6 +174,7 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
     """
     report = api.check(_engine_source(source, engine), sample_rows=sample_rows,
                        **_library_options(kwargs))
+    _notes(report.ranking.notes)
     scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
     click.echo(f"{report.ranking.table}: {len(report.ranking.attributes)} attributes, "
                f"database vs NumPy reference on the {scope}")

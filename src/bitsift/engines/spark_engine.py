@@ -179,7 +179,7 @@ class SparkEngine(Engine):
             raise SourceError(f"Spark cannot read {path} as Parquet: {_line(error)}") from None
         return self.register(frame)
 
-    def columns(self, table: exp.Expression, display: str) -> list[Column]:
+    def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
         query = exp.select(exp.Star()).from_(table).limit(0).sql("spark")
         try:
             schema = self.spark.sql(query).schema  # analysed eagerly; no job runs

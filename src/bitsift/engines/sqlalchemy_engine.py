@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextlib
 import os
 import re
+import warnings
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -229,7 +230,7 @@ class SqlAlchemyEngine(Engine):
         if not self.borrowed_transaction:
             self._rollback_quietly()
 
-    def columns(self, table: exp.Expression, display: str) -> list[Column]:
+    def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
         assert isinstance(table, exp.Table)
         schema, name = table.db or None, table.name
         inspector = sa.inspect(self.con)
@@ -242,7 +243,7 @@ class SqlAlchemyEngine(Engine):
                 where = f" in schema {schema!r}" if schema else ""
                 raise TableNotFoundError(f"unknown table: {display!r}{where}"
                                          f"{suggest(name, tables)}")
-            columns = inspector.get_columns(real, schema=schema)
+            columns, unrecognized = _reflect_columns(inspector, real, schema)
             default_schema = None if schema else inspector.default_schema_name
         except sa.exc.DBAPIError as error:  # unknown schema and friends
             raise TableNotFoundError(
@@ -259,9 +260,16 @@ class SqlAlchemyEngine(Engine):
             table.set("db", exp.to_identifier(default_schema, quoted=True))
         return [
             Column(name=self._reflected_name(c["name"]), family=sqlalchemy_family(c["type"]),
-                   type_name=str(c["type"]))
+                   type_name=unrecognized.get(c["name"]) or self._type_name(c["type"]))
             for c in columns
         ]
+
+    def _type_name(self, sa_type: Any) -> str:
+        """The type as this database writes it (``json[]``, where SQLAlchemy says ``ARRAY``)."""
+        try:
+            return str(sa_type.compile(dialect=self.con.dialect))
+        except Exception:  # noqa: BLE001 - a type SQLAlchemy cannot write back
+            return str(sa_type)
 
     def _reflected_name(self, name: str) -> str:
         """A column name as the catalog spells it.
@@ -361,6 +369,29 @@ class SqlAlchemyEngine(Engine):
             self.engine.dispose()
         self.connection = None
         self.engine = None
+
+
+#: SQLAlchemy's warning for a column type its dialect does not know (PostgreSQL xml, point;
+#: MariaDB geometry): the only place the catalog's own type name is still given.
+_UNRECOGNIZED_TYPE = re.compile(r"Did not recognize type '(?P<type>.*)' of column '(?P<column>.*)'")
+
+
+def _reflect_columns(inspector: Any, table: str, schema: str | None
+                     ) -> tuple[list[dict[str, Any]], dict[str, str]]:
+    """The reflected columns, and the type names of those SQLAlchemy did not recognize (it
+    reflects them as NullType, printed "NULL"). Its warnings are kept off the user's screen."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", sa.exc.SAWarning)
+        columns = inspector.get_columns(table, schema=schema)
+    unrecognized = {}
+    for warning in caught:
+        match = _UNRECOGNIZED_TYPE.search(str(warning.message))
+        if match:
+            unrecognized[match["column"]] = match["type"]
+        else:
+            warnings.warn_explicit(warning.message, warning.category, warning.filename,
+                                   warning.lineno)
+    return columns, unrecognized
 
 
 def _timeout_text(template: str, seconds: float) -> str:
