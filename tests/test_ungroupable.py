@@ -20,6 +20,8 @@ import sqlalchemy as sa
 from conftest import MARIADB_URL, POSTGRES_URL
 from helpers import Outcome, run_main
 
+import bitsift
+
 #: The columns PostgreSQL cannot group, with the type the note must name.
 PG_UNGROUPABLE = {"j": "json", "x": "xml", "p": "point", "ja": "json[]"}
 #: Columns of types outside bitsift's families that PostgreSQL does group: ranked.
@@ -180,3 +182,16 @@ def test_sqlite_columns_of_any_declared_type_are_ranked(
         assert done.code == 0, (command, done.err)
         _assert_clean(done, command)
         assert "cannot group" not in done.err
+
+
+def test_postgres_probe_leaves_the_callers_open_transaction_usable(
+        postgres_engine: sa.Engine, pg_table: str) -> None:
+    schema, table = pg_table.split(".")
+    with postgres_engine.connect() as connection, connection.begin():
+        connection.exec_driver_sql("SELECT 1")  # the caller's transaction is open
+        ranking = bitsift.rank(connection, table=pg_table, target="y")
+        assert {s.attribute for s in ranking.attributes} == {"k", *PG_GROUPABLE}
+        assert any("'j' (json)" in note.lower() for note in ranking.notes)
+        # Still usable: a failed probe did not abort it.
+        assert connection.exec_driver_sql(
+            f'SELECT COUNT(*) FROM "{schema}"."{table}"').scalar() == 60

@@ -6,7 +6,7 @@ import contextlib
 import os
 import re
 import warnings
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -263,6 +263,17 @@ class SqlAlchemyEngine(Engine):
                    type_name=unrecognized.get(c["name"]) or self._type_name(c["type"]))
             for c in columns
         ]
+
+    def _groups(self, table: exp.Expression, columns: Sequence[Column]) -> bool:
+        if not self.borrowed_transaction:
+            return super()._groups(table, columns)
+        # A failed probe would abort the caller's open transaction (PostgreSQL): try it
+        # under a savepoint, rolled back either way.
+        savepoint = self.con.begin_nested()
+        try:
+            return super()._groups(table, columns)
+        finally:
+            savepoint.rollback()
 
     def _type_name(self, sa_type: Any) -> str:
         """The type as this database writes it (``json[]``, where SQLAlchemy says ``ARRAY``)."""
