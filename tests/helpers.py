@@ -12,6 +12,7 @@ import dataclasses
 import math
 import random
 import re
+import traceback
 from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -29,6 +30,7 @@ from sqlglot import exp
 import bitsift
 from bitsift import reference
 from bitsift.api import make_options, run_ranking
+from bitsift.cli import main
 from bitsift.dialects import capabilities
 from bitsift.result import Ranking
 from bitsift.sources import open_source
@@ -412,3 +414,31 @@ def invalid_constructs(sql: str, dialect: str) -> list[str]:
     ):
         problems.append("SELECT without FROM (Oracle needs FROM DUAL)")
     return problems
+
+
+@dataclass
+class Outcome:
+    code: int
+    out: str
+    err: str
+
+    @property
+    def texts(self) -> tuple[str, str]:
+        return self.out, self.err
+
+
+def run_main(capsys: pytest.CaptureFixture[str], *args: str) -> Outcome:
+    """``bitsift ARGS`` in this process (quicker than a subprocess). With --debug an error
+    escapes ``main`` as it would reach Python's top level: its traceback, formatted as Python
+    prints it, is added to stderr."""
+    trace = ""
+    try:
+        main(list(args))
+        code = 0
+    except SystemExit as exit_:
+        code = exit_.code if isinstance(exit_.code, int) else 1
+    except Exception as error:  # noqa: BLE001 - what --debug lets through
+        code = 1
+        trace = "".join(traceback.format_exception(error))
+    out, err = capsys.readouterr()
+    return Outcome(code, out, err + trace)

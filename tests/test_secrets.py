@@ -13,10 +13,10 @@ from __future__ import annotations
 
 import logging
 import os
+import re
 import subprocess
 import sys
 import textwrap
-import traceback
 import uuid
 from collections.abc import Iterator
 from dataclasses import dataclass
@@ -27,9 +27,9 @@ from urllib.parse import quote
 import pytest
 import sqlalchemy as sa
 from conftest import MARIADB_URL, POSTGRES_URL, unique_name
+from helpers import run_main
 
 import bitsift
-from bitsift.cli import main
 from bitsift.errors import BitsiftError
 
 pytestmark = [pytest.mark.mariadb, pytest.mark.postgres]
@@ -124,34 +124,6 @@ def cli(*args: str, debug_logging: bool = False, env: dict[str, str] | None = No
         [sys.executable, "-c", setup + "from bitsift.cli import main; main()", *args],
         capture_output=True, text=True, timeout=180, check=False, env=env,
     )
-
-
-@dataclass
-class Outcome:
-    code: int
-    out: str
-    err: str
-
-    @property
-    def texts(self) -> tuple[str, str]:
-        return self.out, self.err
-
-
-def run_main(capsys: pytest.CaptureFixture[str], *args: str) -> Outcome:
-    """``bitsift ARGS`` in this process (quicker than a subprocess). With --debug an error
-    escapes ``main`` as it would reach Python's top level: its traceback, formatted as Python
-    prints it, is added to stderr."""
-    trace = ""
-    try:
-        main(list(args))
-        code = 0
-    except SystemExit as exit_:
-        code = exit_.code if isinstance(exit_.code, int) else 1
-    except Exception as error:  # noqa: BLE001 - what --debug lets through
-        code = 1
-        trace = "".join(traceback.format_exception(error))
-    out, err = capsys.readouterr()
-    return Outcome(code, out, err + trace)
 
 
 # --- output and logs of a working ranking -------------------------------------------------------
@@ -382,3 +354,174 @@ def test_password_from_the_environment_end_to_end(reader: Account, writer: Accou
     real = cli("rank", bare, "--table", "t", "--target", "y", env=env)
     assert real.returncode == 0, real.stderr
     assert_hidden(reader, real.stdout, real.stderr)
+
+
+# --- every form a password can take in a URL (issue 16, item 9) ---------------------------------
+
+
+@dataclass(frozen=True)
+class PasswordForm:
+    """One way of giving a password: in the URL's user part (as written there), in a query key,
+    or through the environment variables. ``weak`` passwords are ordinary text ('p', '127'):
+    those cannot be searched for, so their URL forms are searched for instead."""
+
+    name: str
+    password: str
+    #: How the password is written in the user part; None: not there.
+    written: str | None = None
+    #: The query key that carries it instead.
+    key: str | None = None
+    #: Through BITSIFT_PASSWORD / BITSIFT_RESULTS_PASSWORD instead.
+    environment: bool = False
+    #: The source opens and ranks (else every command fails, masked all the same).
+    works: bool = True
+    weak: bool = False
+
+
+def _forms() -> list[PasswordForm]:
+    tag = uuid.uuid4().hex[:10]
+    special = f"Pc{tag}%@:/?#&=+"
+    forms = [
+        PasswordForm("plain", f"Plain{tag}", written=f"Plain{tag}"),
+        PasswordForm("percent-encoded", special, written=quote(special, safe="")),
+        PasswordForm("spaces", f"Sp {tag} x", written=f"Sp {tag} x"),
+        PasswordForm("raw-at", f"At{tag}/@x", written=f"At{tag}/@x", works=False),
+        PasswordForm("raw-specials", f"Rs{tag}:/#?", written=f"Rs{tag}:/#?"),
+        PasswordForm("environment", f"Env{tag}", environment=True),
+        PasswordForm("one-letter", "p", written="p", weak=True),
+        PasswordForm("host-substring", "127", written="127", weak=True),
+        PasswordForm("driver-name", "pymysql", written="pymysql", weak=True),
+    ]
+    # password= is PyMySQL's own argument: it logs in. The others are refused by the driver
+    # (passwd= too: deprecated, and this suite turns warnings into errors), and must not be
+    # shown in that refusal either.
+    for key in ("password", "passwd", "pwd", "token", "secret", "access_token", "api_key"):
+        forms.append(PasswordForm(f"query-{key}", f"Q{key}{tag}", key=key,
+                                  works=key == "password"))
+    return forms
+
+
+FORMS = _forms()
+
+
+def _form_url(form: PasswordForm, base: str, user: str, database: str) -> str:
+    """``base``'s scheme and host with ``user``, ``database`` and the password as ``form``
+    writes it (built by hand: a URL builder would encode what the form keeps raw)."""
+    url = sa.make_url(base)
+    host = f"{url.host}:{url.port}" if url.port else str(url.host)
+    userinfo = f"{user}:{form.written}" if form.written is not None else user
+    query = f"?{form.key}={quote(form.password, safe='')}" if form.key else ""
+    return f"{url.drivername}://{userinfo}@{host}/{database}{query}"
+
+
+@pytest.fixture(scope="module")
+def form_users(mariadb_engine: sa.Engine) -> Iterator[dict[str, Account]]:
+    """One MariaDB user per password form, each reading one database holding ``t``."""
+    place = unique_name()
+    accounts = {f.name: Account(f"bitsift_f_{uuid.uuid4().hex[:8]}", f.password, place)
+                for f in FORMS}
+    with mariadb_engine.begin() as connection:
+        _run(connection, f"CREATE DATABASE `{place}`")
+        _run(connection, f"CREATE TABLE `{place}`.t AS SELECT seq % 4 AS a, seq % 3 AS b, "
+                         "seq % 2 AS y FROM seq_1_to_60")
+        for account in accounts.values():
+            literal = account.password.replace("\\", "\\\\").replace("'", "\\'")
+            for host in ("%", "localhost"):
+                _run(connection, f"CREATE USER '{account.user}'@'{host}' "
+                                 f"IDENTIFIED BY '{literal}'")
+                _run(connection, f"GRANT SELECT ON `{place}`.* TO '{account.user}'@'{host}'")
+    try:
+        yield accounts
+    finally:
+        with mariadb_engine.begin() as connection:
+            for account in accounts.values():
+                for host in ("%", "localhost"):
+                    _run(connection, f"DROP USER '{account.user}'@'{host}'")
+            _run(connection, f"DROP DATABASE `{place}`")
+
+
+def assert_masked(form: PasswordForm, *texts: str) -> None:
+    """No spelling of the password anywhere, no masked text glued to letters (a password
+    replaced inside a word spells itself out: '***sycopg', '***.0.0.1'); weak passwords are
+    looked for where a URL or a key=value would hold them."""
+    spellings = {form.password, quote(form.password, safe=""), quote(form.password)}
+    if form.written:
+        spellings.add(form.written)
+    for text in texts:
+        assert not re.search(r"[A-Za-z0-9.]\*\*\*|\*\*\*[A-Za-z0-9.]", text), (
+            f"{form.name}: masking glued to text in {text[:500]!r}")
+        for spelling in spellings:
+            if form.weak:
+                pattern = rf"[:=]{re.escape(spelling)}(?:[@&\s'\"]|$)"
+                assert not re.search(pattern, text), f"{form.name}: found in {text[:500]!r}"
+            else:
+                assert spelling not in text, f"{form.name}: found in {text[:500]!r}"
+
+
+@pytest.mark.parametrize("form", FORMS, ids=[f.name for f in FORMS])
+def test_every_password_form_is_masked_by_every_command(
+        form: PasswordForm, form_users: dict[str, Account], pg_schema: str, tmp_path: Path,
+        monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str],
+        caplog: pytest.LogCaptureFixture) -> None:
+    caplog.set_level(logging.DEBUG)
+    caplog.set_level(logging.DEBUG, logger="sqlalchemy")
+    account = form_users[form.name]
+    if form.environment:
+        monkeypatch.setenv("BITSIFT_PASSWORD", form.password)
+        monkeypatch.setenv("BITSIFT_RESULTS_PASSWORD", form.password)
+    source = _form_url(form, MARIADB_URL, account.user, account.place)
+    # This PostgreSQL server trusts local connections: any password opens the destination.
+    destination = _form_url(form, POSTGRES_URL, "postgres", "test")
+    unreachable = _form_url(form, "postgresql+psycopg://h@127.0.0.1:1/test", "postgres", "test")
+    job = _job(tmp_path, source, destination, f"{pg_schema}.history")
+    (tmp_path / "failing").mkdir()
+    failing = _job(tmp_path / "failing", source, unreachable, "history")
+    report = tmp_path / "report.html"
+    ranking = ["-t", "t", "-y", "y"]
+    commands = {
+        "rank": ["rank", source, *ranking],
+        "sql": ["sql", source, *ranking],
+        "check": ["check", source, *ranking],
+        "report": ["report", source, *ranking, "--out", str(report)],
+        "run --dry-run": ["run", str(job), "--dry-run"],
+        "run": ["run", str(job), "--run-id", "r1"],
+        "run again": ["run", str(job), "--run-id", "r2"],
+        "drift": ["drift", str(job)],
+        "run, unreachable destination": ["run", str(failing)],
+    }
+    texts: list[str] = []
+    codes: dict[str, int] = {}
+    errors: list[str] = []
+    for label, args in commands.items():
+        for debug in ([], ["--debug"]):
+            done = run_main(capsys, *debug, *args)
+            codes[label] = done.code
+            texts += done.texts
+            errors += [done.err] if done.code else []
+    if form.name == "raw-at":
+        # Refused before anything is sent (SQLAlchemy would take the password's tail for
+        # the host, and the driver would print it), for sources and destinations alike.
+        assert all("write it as %40" in error for error in errors), errors
+    destination_works = form.works and form.key in (None, "password")
+    expected = {"rank", "sql", "check", "report"} if form.works else set()
+    if destination_works:
+        expected |= {"run --dry-run", "run", "run again", "drift"}
+    assert {k for k, v in codes.items() if v == 0} == expected, codes
+    if destination_works:
+        dry = run_main(capsys, "run", str(job), "--dry-run")
+        shown = ("postgres:***@127.0.0.1" if form.written else f"?{form.key}=***" if form.key
+                 else "postgres@127.0.0.1")
+        assert shown in dry.out, dry.out  # the destination is shown, masked
+        rows = _history_rows(pg_schema)
+        assert len(rows) == 2 * 2  # two runs, two attributes
+        texts += [*dry.texts, *(repr(row) for row in rows), report.read_text(encoding="utf-8")]
+    assert_masked(form, *texts, caplog.text)
+
+
+def _history_rows(schema: str) -> list[Any]:
+    engine = sa.create_engine(POSTGRES_URL, poolclass=sa.pool.NullPool)
+    try:
+        with engine.connect() as connection:
+            return list(connection.exec_driver_sql(f'SELECT * FROM "{schema}".history').all())
+    finally:
+        engine.dispose()

@@ -243,8 +243,9 @@ def statement(
             spec = resolve(spec_options, columns, opened.table, opened.display,
                            engine.caps.sqlglot_dialect)
             # MDL's cut points need a Python step: computed here and inlined as literals.
-            return _unshadowed(paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec)),
+            text = _unshadowed(paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec)),
                                spec, caps)
+            return _with_notes(text, engine.notes)
     if not table:
         raise SpecError("--table is required without a SOURCE")
     if not spec_options.attributes and not spec_options.numeric:
@@ -259,6 +260,15 @@ def statement(
     source_table = parse_table_name(table, caps.sqlglot_dialect)
     spec = resolve(spec_options, columns, source_table, table, caps.sqlglot_dialect)
     return _unshadowed(paste_statement(spec, caps), spec, caps)
+
+
+def _with_notes(text: str, notes: Sequence[str]) -> str:
+    """The statement with the engine's notes (columns left out...) as comments after its first
+    line, where whoever pastes it reads them."""
+    if not notes:
+        return text
+    first, _, rest = text.partition("\n")
+    return "\n".join([first, *(f"-- note: {n}" for n in notes), rest])
 
 
 def _unshadowed(text: str, spec: RankSpec, caps: Capabilities) -> str:
@@ -364,7 +374,22 @@ def _pull_rows(engine: Engine, spec: RankSpec, limit: int | None) -> dict[str, l
         query = query.limit(limit)
     result = engine.fetch(query.sql(engine.caps.sqlglot_dialect))
     columns = list(zip(*result.rows, strict=True)) if result.rows else [() for _ in names]
-    return {n: list(c) for n, c in zip(names, columns, strict=True)}
+    return {n: [_hashable(v) for v in c] for n, c in zip(names, columns, strict=True)}
+
+
+def _hashable(value: Any) -> Any:
+    """A value the reference can count: the database groups lists, structs and maps (DuckDB
+    LIST/STRUCT/MAP, PostgreSQL arrays) by their contents, which Python's dict cannot key on
+    until they are tuples.
+
+    >>> _hashable([1, {"a": [2]}])
+    (1, (('a', (2,)),))
+    """
+    if isinstance(value, list | tuple):
+        return tuple(_hashable(v) for v in value)
+    if isinstance(value, dict):
+        return tuple((k, _hashable(v)) for k, v in value.items())
+    return value
 
 
 def _compare(ranking: Ranking, spec: RankSpec, data: Mapping[str, Sequence[Any]],

@@ -13,6 +13,7 @@ from bitsift.dialects import CAPABILITIES
 from bitsift.errors import BitsiftError
 from bitsift.formatting import FORMATS, render
 from bitsift.jobs import JobError
+from bitsift.masking import environment_secrets, mask_text
 from bitsift.names import one_line
 from bitsift.sources import ENGINE_NAMES, EngineSource
 from bitsift.spec import (
@@ -195,6 +196,7 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
     """
     report = api.check(_engine_source(source, engine), sample_rows=sample_rows,
                        **_library_options(kwargs))
+    _notes(report.ranking.notes)
     scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
     click.echo(f"{one_line(report.ranking.table)}: {len(report.ranking.attributes)} attributes,"
                f" database vs NumPy reference on the {scope}")
@@ -234,16 +236,33 @@ def main(argv: Sequence[str] | None = None) -> None:
         sys.exit(130)
     except BitsiftError as error:
         if _DEBUG["on"] or "--debug" in args:
+            _mask_chain(error)
             raise
-        click.echo(f"Error: {error_text(error)}", err=True)
+        click.echo(f"Error: {mask_text(error_text(error), environment_secrets())}", err=True)
         sys.exit(1)
     except Exception as error:  # noqa: BLE001 - no tracebacks for users unless --debug
         if _DEBUG["on"] or "--debug" in args:
+            _mask_chain(error)
             raise
-        first = one_line((str(error).strip().splitlines() or [""])[0])
+        text = mask_text(str(error), environment_secrets())
+        first = one_line((text.strip().splitlines() or [""])[0])
         click.echo(f"Error: unexpected {type(error).__name__}: {first} "
                    "(run with --debug for details)", err=True)
         sys.exit(1)
+
+
+def _mask_chain(error: BaseException) -> None:
+    """Mask the messages of ``error`` and of the errors it was raised from, in place, before
+    --debug lets Python print their traceback (a driver's error may quote the URL or DSN)."""
+    seen: set[int] = set()
+    link: BaseException | None = error
+    while link is not None and id(link) not in seen:
+        seen.add(id(link))
+        text = str(link)
+        masked = mask_text(text, environment_secrets())
+        if masked != text:
+            link.args = (masked,)
+        link = link.__cause__ or link.__context__
 
 
 # The scheduled-run commands (run, drift, models) live in their own module.

@@ -18,7 +18,6 @@ from __future__ import annotations
 
 import datetime as _dt
 import hashlib
-import json
 import os
 import time
 from abc import ABC, abstractmethod
@@ -37,6 +36,13 @@ from bitsift import jsonout
 from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
 from bitsift.errors import BitsiftError, SpecError
+from bitsift.masking import (
+    environment_secrets,
+    mask_text,
+    mask_url,
+    raw_at_in_password,
+    url_secrets,
+)
 from bitsift.result import Ranking
 from bitsift.schema import family_of
 from bitsift.sources import parse_table_name
@@ -148,9 +154,7 @@ class Destination:
         """The location without a password, for messages."""
         if not self.is_url:
             return str(self.path)
-        from bitsift.engines.sqlalchemy_engine import safe_url
-
-        return safe_url(self.location)
+        return mask_url(self.location)
 
     def sqlglot_dialect(self) -> str:
         if not self.is_url:
@@ -173,7 +177,10 @@ class Destination:
     def problems(self) -> list[str]:
         """Everything wrong with the destination that can be told without connecting."""
         found = []
-        if self.is_url:
+        if self.is_url and raw_at_in_password(self.location):
+            # SQLAlchemy would read the rest of the password as the host: refuse it unsent.
+            found.append(f"the password in {self.display} contains '@': write it as %40")
+        elif self.is_url:
             try:
                 sa.engine.make_url(self.location)
             except Exception:  # noqa: BLE001 - any parse failure
@@ -600,7 +607,7 @@ class SqlAlchemyStore(HistoryStore):
         url = sa.engine.make_url(destination.location)
         if url.password is None and os.environ.get(PASSWORD_VARIABLE):
             url = url.set(password=os.environ[PASSWORD_VARIABLE])
-        self._secret = url.password if isinstance(url.password, str) else None
+        self._secrets = url_secrets(url)
         # SQLite: a writer waits this long for another one's BEGIN IMMEDIATE (default 5 s).
         connect_args = {"timeout": WRITE_WAIT_SECONDS} if url.get_backend_name() == "sqlite" else {}
         try:
@@ -694,8 +701,7 @@ class SqlAlchemyStore(HistoryStore):
         return self._key(column) == self._key_value(text)
 
     def _scrub(self, error: BaseException) -> str:
-        text = _line(error)
-        return text.replace(self._secret, "***") if self._secret else text
+        return mask_text(_line(error), (*self._secrets, *environment_secrets()))
 
     def _existing(self, connection: sa.Connection) -> dict[str, str] | None:
         inspector = sa.inspect(connection)

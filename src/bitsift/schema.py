@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Literal
 
 import sqlglot
 from sqlglot import exp
+
+from bitsift.errors import ColumnError
 
 #: Coarse type families; the only thing bitsift needs to know about a column's type.
 Family = Literal["integer", "float", "decimal", "text", "boolean", "date", "timestamp", "other"]
@@ -38,11 +41,27 @@ class Column:
     name: str
     family: Family
     type_name: str = ""
+    #: False when the database cannot GROUP BY this column's type (PostgreSQL json, xml,
+    #: point...): such a column can be neither ranked nor a target, segment or weight.
+    groupable: bool = True
 
     @property
     def default_kind(self) -> Kind:
         """Floating and decimal columns are numeric; everything else is categorical."""
         return "numeric" if self.family in ("float", "decimal") else "categorical"
+
+
+def refuse_ungroupable(by_name: Mapping[str, Column],
+                       roles: Mapping[str, Sequence[str]]) -> None:
+    """Raise :class:`ColumnError` naming every column the user named in a role (target,
+    --attributes, --by, --weight) whose type the database cannot group, with its type."""
+    named = [f"{name!r} ({by_name[name].type_name or 'unknown type'}, as {role})"
+             for role, names in roles.items() for name in dict.fromkeys(names)
+             if not by_name[name].groupable]
+    if named:
+        raise ColumnError("the database cannot group the values of column"
+                          + ("s " if len(named) > 1 else " ") + ", ".join(named)
+                          + ": they cannot be ranked nor used as target, segment or weight")
 
 
 def family_of(type_name: str, dialect: str = "duckdb") -> Family:

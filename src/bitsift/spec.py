@@ -11,7 +11,7 @@ from sqlglot import exp
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
 from bitsift.names import resolve_name
 from bitsift.predicate import Predicate, parse_predicate
-from bitsift.schema import NUMERIC_FAMILIES, Column, Kind
+from bitsift.schema import NUMERIC_FAMILIES, Column, Kind, refuse_ungroupable
 
 Missing = Literal["category", "drop"]
 SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty")
@@ -305,14 +305,17 @@ def resolve(
     target = target_found[0]
     weight = weight_found[0] if weight_found else None
     _check_segments_and_weight(target, segment_names, weight, picked, by_name)
+    refuse_ungroupable(by_name, {"target": [target], "--attributes": picked,
+                                 "--by": segment_names, "--weight": [weight] if weight else []})
     # Segment and weight columns are never ranked: within a segment, its columns are constant.
     roles = {*segment_names, *([weight] if weight else [])}
     if options.attributes:
         names = [n for n in dict.fromkeys(picked)
                  if n != target and n not in excluded and n not in roles]
     else:
-        names = [c.name for c in columns
-                 if c.name != target and c.name not in excluded and c.name not in roles]
+        # An ungroupable column is left out (the engine's note names it and its type).
+        names = [c.name for c in columns if c.groupable
+                 and c.name != target and c.name not in excluded and c.name not in roles]
     if not names:
         raise SpecError(f"no attributes left to rank in {source_name} (only the target remains)")
     binnable = NUMERIC_FAMILIES | TEMPORAL_FAMILIES

@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from dataclasses import dataclass, field
+from collections.abc import Sequence
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from sqlglot import exp
 
 from bitsift.dialects import Capabilities
+from bitsift.errors import QueryError
 from bitsift.names import resolve_name  # noqa: F401 - engines and jobs import it from here
 from bitsift.schema import Column
 
@@ -34,9 +36,52 @@ class Engine(ABC):
     #: Every statement sent, in order (for --debug and for the tests' statement log).
     statements: list[str] = field(default_factory=list)
 
-    @abstractmethod
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
-        """The table's columns in catalog order, or :class:`TableNotFoundError`."""
+        """The table's columns in catalog order, or :class:`TableNotFoundError`; those the
+        database cannot group by marked ``groupable=False``, with a note naming each."""
+        return self._mark_ungroupable(table, self.catalog_columns(table, display))
+
+    @abstractmethod
+    def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
+        """The table's columns in catalog order, as the catalog describes them."""
+
+    def _mark_ungroupable(self, table: exp.Expression, columns: list[Column]) -> list[Column]:
+        """Ask the database which columns of a type outside bitsift's families it can group.
+
+        Which types have an equality the database can group by depends on the engine and its
+        extensions (PostgreSQL json, xml and point cannot; jsonb and arrays of int can; DuckDB
+        groups lists and structs; Spark cannot group maps), so each is tried on no rows:
+        first all at once, then one by one when that fails.
+        """
+        unknown = [c for c in columns if c.family == "other"]
+        if not unknown or self._groups(table, unknown):
+            return columns
+        refused = {c.name for c in unknown if not self._groups(table, [c])}
+        for column in columns:
+            if column.name in refused:
+                self.notes.append(
+                    f"column {column.name!r} ({column.type_name or 'unknown type'}) is not "
+                    f"ranked: {self.caps.name} cannot group its values"
+                )
+        return [replace(c, groupable=False) if c.name in refused else c for c in columns]
+
+    def _groups(self, table: exp.Expression, columns: Sequence[Column]) -> bool:
+        """Whether a GROUP BY of each of ``columns`` (over no rows) runs."""
+        dialect = self.caps.sqlglot_dialect
+        no_rows = exp.EQ(this=exp.Literal.number(1), expression=exp.Literal.number(0))
+        probes = [
+            exp.select(exp.alias_(exp.Literal.number(1), "g"))
+            .from_(table.copy())
+            .where(no_rows.copy())
+            .group_by(exp.column(exp.to_identifier(c.name, quoted=True)))
+            for c in columns
+        ]
+        statement = probes[0] if len(probes) == 1 else exp.union(*probes, distinct=False)
+        try:
+            self.fetch(statement.sql(dialect))
+        except QueryError:
+            return False
+        return True
 
     @abstractmethod
     def fetch(self, sql: str) -> FetchResult:

@@ -152,7 +152,7 @@ class ChdbEngine(Engine):
         assert self.session is not None, "engine is closed"
         return self.session.query(sql, "ArrowTable")
 
-    def columns(self, table: exp.Expression, display: str) -> list[Column]:
+    def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
         query = "DESCRIBE TABLE " + table.sql("clickhouse") + settings_clause(self.caps, None)
         try:
             described = self._query(query).to_pylist()

@@ -80,7 +80,7 @@ class DuckDBEngine(Engine):
         assert self.connection is not None, "engine is closed"
         return self.connection
 
-    def columns(self, table: exp.Expression, display: str) -> list[Column]:
+    def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
         query = exp.select(exp.Star()).from_(table).limit(0).sql("duckdb")
         try:
             relation = self.con.sql(query)

@@ -41,6 +41,7 @@ from bitsift.errors import (
     TableNotFoundError,
     unknown_names_message,
 )
+from bitsift.masking import mask_text
 from bitsift.schema import Column, Family
 
 if TYPE_CHECKING:  # pragma: no cover - typing only; pyspark is an optional extra
@@ -147,7 +148,9 @@ class SparkEngine(Engine):
             with _quiet_pyspark():
                 session = builder.getOrCreate()
         except Exception as error:  # noqa: BLE001 - Java missing, bad master, ...
-            raise SourceError(f"cannot start a Spark session: {_line(error)}") from None
+            # Spark's message may quote the master URL, and with it its credentials.
+            raise SourceError(f"cannot start a Spark session: {mask_text(_line(error))}"
+                              ) from None
         # Every Spark error reaches the user as a bitsift message; the JVM's log lines
         # (a JSON record per failed analysis) would repeat it on stderr.
         session.sparkContext.setLogLevel("OFF")
@@ -179,7 +182,7 @@ class SparkEngine(Engine):
             raise SourceError(f"Spark cannot read {path} as Parquet: {_line(error)}") from None
         return self.register(frame)
 
-    def columns(self, table: exp.Expression, display: str) -> list[Column]:
+    def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
         query = exp.select(exp.Star()).from_(table).limit(0).sql("spark")
         try:
             schema = self.spark.sql(query).schema  # analysed eagerly; no job runs
