@@ -2,15 +2,18 @@
 
 from __future__ import annotations
 
+import signal
 import sys
-from collections.abc import Callable, Sequence
-from typing import Any
+import threading
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from typing import Any, NoReturn
 
 import click
 
 from bitsift import api
 from bitsift.dialects import CAPABILITIES
-from bitsift.errors import BitsiftError
+from bitsift.errors import BitsiftError, Terminated
 from bitsift.formatting import FORMATS, render
 from bitsift.jobs import JobError
 from bitsift.masking import environment_secrets, mask_text
@@ -22,6 +25,7 @@ from bitsift.spec import (
     SORT_METRICS,
     Thresholds,
     split_outside_quotes,
+    timeout_seconds,
 )
 from bitsift.version import __version__
 
@@ -178,7 +182,8 @@ def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
     Without SOURCE, describe the columns with --table, --attributes and --numeric.
     """
     options = _library_options(kwargs)
-    options.pop("timeout", None)
+    # The statement is printed, not run: --timeout is only checked.
+    timeout_seconds(options.pop("timeout", None))
     options.pop("limit", None)
     click.echo(api.statement(source, dialect=dialect, **options), nl=False)
 
@@ -220,20 +225,51 @@ def error_text(error: BitsiftError) -> str:
     return one_line(str(error))
 
 
+def _raise_terminated(_signum: int, _frame: object) -> None:
+    raise Terminated
+
+
+def _interrupted(error: BaseException) -> NoReturn:
+    """Ctrl-C or SIGTERM, once every statement was cancelled: one line, 130 or 143."""
+    if isinstance(error, Terminated) or isinstance(error.__cause__, Terminated):
+        click.echo("Terminated.", err=True)
+        sys.exit(128 + signal.SIGTERM)
+    click.echo("Interrupted." if isinstance(error, KeyboardInterrupt) else "Aborted.", err=True)
+    sys.exit(128 + signal.SIGINT)
+
+
 def main(argv: Sequence[str] | None = None) -> None:
-    """Console entry point: one clear error line and exit 1 for bitsift errors."""
+    """Console entry point: one clear error line and exit 1 for bitsift errors.
+
+    SIGTERM becomes :class:`~bitsift.errors.Terminated` (a KeyboardInterrupt), so the running
+    statements are cancelled on the server as on Ctrl-C instead of running on after exit.
+    """
     args = list(sys.argv[1:] if argv is None else argv)
+    with _sigterm_raises():
+        _main(args)
+
+
+@contextmanager
+def _sigterm_raises() -> Iterator[None]:
+    """SIGTERM raises Terminated while bitsift runs (only the main thread may set handlers)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _main(args: list[str]) -> None:
     try:
         cli.main(args=args, prog_name="bitsift", standalone_mode=False)
-    except click.exceptions.Abort:
-        click.echo("Aborted.", err=True)
-        sys.exit(130)
+    except (click.exceptions.Abort, KeyboardInterrupt) as error:
+        _interrupted(error)
     except click.ClickException as error:
         error.show()
         sys.exit(error.exit_code)
-    except KeyboardInterrupt:
-        click.echo("Interrupted.", err=True)
-        sys.exit(130)
     except BitsiftError as error:
         if _DEBUG["on"] or "--debug" in args:
             _mask_chain(error)

@@ -20,8 +20,9 @@ behind each choice are in benchmarks/RESULTS.md.
 from __future__ import annotations
 
 import queue
+import time
 from collections.abc import Iterator, Sequence
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import FIRST_EXCEPTION, Future, ThreadPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from typing import Any
@@ -34,6 +35,11 @@ from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.sqlbuild import rank_statement
 
 Record = dict[str, Any]
+
+#: Seconds between two cancels of the sessions still running after a failure or Ctrl-C.
+CANCEL_RETRY = 0.25
+#: How long bitsift keeps cancelling before it leaves the sessions to end on their own.
+STOP_WITHIN = 30.0
 
 #: Relative cost of an attribute in a part: a numeric one adds a quantile pre-pass and binning.
 _WEIGHT = {"numeric": 4, "categorical": 1}
@@ -78,12 +84,11 @@ class SessionPool:
     members: list[Engine]
     idle: queue.Queue[Engine]
 
-    def interrupt(self) -> None:
-        """Ask DuckDB sessions to stop (``interrupt()`` is safe from another thread there);
-        a statement on a server runs on to its timeout, if one was set."""
+    def cancel(self) -> None:
+        """Cancel every session's running statement (DuckDB ``interrupt()``, PostgreSQL's
+        cancel request, MariaDB ``KILL QUERY``) and make each refuse its next one."""
         for member in self.members:
-            if isinstance(member, DuckDBEngine) and member.connection is not None:
-                member.connection.interrupt()
+            member.cancel()
 
 
 @contextmanager
@@ -192,15 +197,39 @@ def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_si
         max_workers=size, thread_name_prefix="bitsift"
     ) as executor:
         futures = [executor.submit(_run_on_pool, pool, part) for part in narrowed]
-        try:
-            results = [future.result() for future in futures]
-        except BaseException:
-            # A failed part or Ctrl-C: drop the parts not started, stop the running ones.
-            for future in futures:
-                future.cancel()
-            pool.interrupt()
-            raise
+        results = _results(futures, pool)
     return _merge(groups, results)
+
+
+def _results(futures: list[Future[PartResult]], pool: SessionPool) -> list[PartResult]:
+    """The parts' results in order, or the first part's failure once every other session's
+    statement is stopped; on Ctrl-C or SIGTERM too (a KeyboardInterrupt in this thread).
+
+    Waits for the first failure, not for the parts in order: a failed second session must not
+    wait for the first one's statement to run to its end.
+    """
+    try:
+        wait(futures, return_when=FIRST_EXCEPTION)
+    except BaseException:
+        _stop(futures, pool)
+        raise
+    failed = [f for f in futures if f.done() and not f.cancelled() and f.exception() is not None]
+    if failed:
+        _stop(futures, pool)
+        raise failed[0].exception()  # type: ignore[misc]  # checked above: not None
+    return [future.result() for future in futures]
+
+
+def _stop(futures: list[Future[PartResult]], pool: SessionPool) -> None:
+    """Drop the parts not started and cancel the running ones, again until they have ended:
+    a cancel that lands while a session is between two statements stops neither."""
+    for future in futures:
+        future.cancel()
+    deadline = time.monotonic() + STOP_WITHIN
+    while time.monotonic() < deadline:
+        pool.cancel()
+        if not wait(futures, timeout=CANCEL_RETRY).not_done:
+            return
 
 
 def _merge(groups: list[list[int]], results: list[PartResult],

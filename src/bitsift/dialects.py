@@ -50,6 +50,7 @@ case-insensitive and ignore trailing spaces too: its paste-ready SQL groups text
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass, replace
 from typing import Literal
 
@@ -140,6 +141,9 @@ class Capabilities:
     statement_settings: tuple[str, ...] = ()
     #: The timeout as one more such setting, with the placeholders of :attr:`timeout_statement`.
     timeout_setting: str | None = None
+    #: The longest ``--timeout`` the engine's mechanism can hold, in seconds. Default: the
+    #: longest wait of a Python timer, which bitsift's client-side interrupts use.
+    timeout_max: float = threading.TIMEOUT_MAX
     #: SQLite builds without math functions lack LN and FLOOR: bitsift registers Python's.
     register_math_functions: bool = False
     #: Does the engine have a chi-square survival function? (none listed has; p comes from Python)
@@ -199,6 +203,8 @@ CAPABILITIES: dict[str, Capabilities] = {
             # a few dozen groups: 2M x 16 took 19.7 s, 10.2 s with this (RESULTS.md).
             transaction_settings=("SET LOCAL work_mem = '256MB'",),
             timeout_statement="SET LOCAL statement_timeout = {ms}",
+            # statement_timeout is a 32-bit count of milliseconds (pg_settings.max_val).
+            timeout_max=2_147_483.647,
             read_only_statement="SET TRANSACTION READ ONLY",
             executed_in_tests=True,
         ),
@@ -211,6 +217,8 @@ CAPABILITIES: dict[str, Capabilities] = {
             count_strategy="union_all",
             exact_key_type="BINARY",
             timeout_statement="SET SESSION max_execution_time = {ms}",
+            # max_execution_time: an unsigned 32-bit count of milliseconds.
+            timeout_max=4_294_967.295,
             read_only_statement="SET TRANSACTION READ ONLY",
         ),
         # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect), has no GROUPING() at all, and
@@ -227,6 +235,9 @@ CAPABILITIES: dict[str, Capabilities] = {
             run_quantile="buckets",
             exact_key_type="BINARY",
             timeout_prefix="SET STATEMENT max_statement_time = {seconds} FOR ",
+            # max_statement_time: at most 31536000 s (one year, SYSTEM_VARIABLES on 10.11);
+            # a larger value is silently cut to that.
+            timeout_max=31_536_000.0,
             read_only_statement="SET TRANSACTION READ ONLY",
             executed_in_tests=True,
         ),
@@ -236,6 +247,8 @@ CAPABILITIES: dict[str, Capabilities] = {
             sqlglot_dialect="snowflake",
             quantile="percentile_cont",
             timeout_statement="ALTER SESSION SET STATEMENT_TIMEOUT_IN_SECONDS = {whole_seconds}",
+            # At most 604800 s (seven days), from Snowflake's parameter reference.
+            timeout_max=604_800.0,
         ),
         replace(_DEFAULT, name="bigquery", sqlglot_dialect="bigquery"),
         # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.
@@ -244,6 +257,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="redshift",
             sqlglot_dialect="redshift",
             timeout_statement="SET statement_timeout TO {ms}",
+            timeout_max=2_147_483.647,  # as PostgreSQL's: 32-bit milliseconds
         ),
         # Trino has only approx_percentile: window method.
         replace(_DEFAULT, name="trino", sqlglot_dialect="trino"),
@@ -274,6 +288,8 @@ CAPABILITIES: dict[str, Capabilities] = {
             sqlglot_dialect="clickhouse",
             statement_settings=("readonly = 2",),
             timeout_setting="max_execution_time = {seconds}",
+            # Held as int64 microseconds: chdb 4.4 refuses 9223372036855 s and more.
+            timeout_max=9_223_372_036_854.0,
             executed_in_tests=True,
         ),
     ]

@@ -52,6 +52,19 @@ class QueryTimeoutError(QueryError):
     """The statement timeout fired."""
 
 
+class QueryCancelledError(QueryError):
+    """The statement was cancelled: by bitsift (Ctrl-C, a failed sibling session) or on the
+    server (``KILL QUERY``, ``pg_cancel_backend``), not by a timeout."""
+
+
+class Terminated(KeyboardInterrupt):  # noqa: N818 - named after the signal, like KeyboardInterrupt
+    """SIGTERM, raised in the main thread by the CLI's handler.
+
+    A KeyboardInterrupt, so every path that cancels the running statement on Ctrl-C (psycopg's
+    own cancel, bitsift's ``KILL QUERY``, the session pool's cancel) also runs on SIGTERM.
+    """
+
+
 #: The shortest identifier limit among SQL engines (PostgreSQL's 63 bytes): a suggestion that is
 #: the start of a longer name, and at least this long, is that name cut by the database.
 CUT_NAME_BYTES = 63

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Literal
@@ -143,6 +144,27 @@ class Thresholds:
     high_cardinality: int = 1000
 
 
+def timeout_seconds(value: object) -> float | None:
+    """``--timeout`` checked: a finite, positive number of seconds, or None for no limit
+    (``inf`` too). Each engine checks its own upper limit (:attr:`Capabilities.timeout_max`).
+
+    >>> timeout_seconds(2), timeout_seconds(float("inf"))
+    (2.0, None)
+    >>> timeout_seconds(float("nan"))
+    Traceback (most recent call last):
+    bitsift.errors.SpecError: --timeout must be a positive number of seconds, not nan
+    """
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise SpecError(f"--timeout must be a number of seconds, not {value!r}")
+    if value == math.inf:
+        return None
+    if math.isnan(value) or value <= 0:
+        raise SpecError(f"--timeout must be a positive number of seconds, not {value:.15g}")
+    return float(value)
+
+
 @dataclass(frozen=True)
 class RankOptions:
     """What the user asked for, before it is checked against the table's columns."""
@@ -199,8 +221,10 @@ class RankOptions:
                             + ", ".join(date_numeric))
         if self.limit is not None and self.limit < 1:
             problems.append(f"--limit must be at least 1, not {self.limit}")
-        if self.timeout is not None and self.timeout <= 0:
-            problems.append(f"--timeout must be positive, not {self.timeout}")
+        try:
+            object.__setattr__(self, "timeout", timeout_seconds(self.timeout))
+        except SpecError as error:
+            problems.append(str(error))
         both = sorted(set(self.categorical) & set(self.numeric))
         if both:
             problems.append("columns named both --categorical and --numeric: " + ", ".join(both))

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import threading
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
@@ -10,7 +11,7 @@ from typing import Any
 from sqlglot import exp
 
 from bitsift.dialects import Capabilities
-from bitsift.errors import QueryError
+from bitsift.errors import QueryCancelledError, QueryError, SpecError
 from bitsift.names import resolve_name  # noqa: F401 - engines and jobs import it from here
 from bitsift.schema import Column
 
@@ -35,6 +36,9 @@ class Engine(ABC):
     notes: list[str] = field(default_factory=list)
     #: Every statement sent, in order (for --debug and for the tests' statement log).
     statements: list[str] = field(default_factory=list)
+    #: Set by :meth:`cancel`: the session sends no further statement.
+    cancelled: threading.Event = field(default_factory=threading.Event, repr=False,
+                                       compare=False)
 
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
         """The table's columns in catalog order, or :class:`TableNotFoundError`; those the
@@ -91,6 +95,18 @@ class Engine(ABC):
     def set_timeout(self, seconds: float | None) -> None:
         """Set a statement timeout, or add a note saying the engine has none."""
 
+    def cancel(self) -> None:
+        """From another thread: stop the statement running on this session (on the server
+        where the engine has a cancel) and refuse the next ones. Engines that can stop a
+        running statement extend this."""
+        self.cancelled.set()
+
+    def refuse_if_cancelled(self) -> None:
+        """:class:`QueryCancelledError` once :meth:`cancel` has run: a statement sent after
+        the cancel would otherwise run to its end."""
+        if self.cancelled.is_set():
+            raise QueryCancelledError("the query was cancelled")
+
     def close(self) -> None:  # noqa: B027 - optional hook
         """Release what the engine opened (connections it does not own stay open)."""
 
@@ -99,3 +115,12 @@ class Engine(ABC):
 
     def __exit__(self, *exc: object) -> None:
         self.close()
+
+
+
+def check_timeout_limit(caps: Capabilities, seconds: float | None) -> None:
+    """:class:`SpecError` when ``seconds`` is longer than the engine's timeout can hold
+    (instead of a driver's overflow, a server's range error, or a value silently cut)."""
+    if seconds is not None and seconds > caps.timeout_max:
+        raise SpecError(f"--timeout {seconds:.15g} s is longer than {caps.name} can enforce "
+                        f"(at most {caps.timeout_max:.15g} s); give inf for no limit")

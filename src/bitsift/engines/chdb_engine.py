@@ -18,7 +18,7 @@ from typing import Any
 from sqlglot import exp
 
 from bitsift.dialects import Capabilities, capabilities
-from bitsift.engines.base import Engine, FetchResult
+from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
 from bitsift.errors import (
     MissingDriverError,
     QueryError,
@@ -178,6 +178,7 @@ class ChdbEngine(Engine):
 
     def set_timeout(self, seconds: float | None) -> None:
         # ClickHouse's own max_execution_time, set per statement in fetch().
+        check_timeout_limit(self.caps, seconds)
         self.timeout = seconds or None
 
     def fetch(self, sql: str) -> FetchResult:

@@ -10,8 +10,9 @@ import duckdb
 from sqlglot import exp
 
 from bitsift.dialects import capabilities
-from bitsift.engines.base import Engine, FetchResult
+from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
 from bitsift.errors import (
+    QueryCancelledError,
     QueryError,
     QueryTimeoutError,
     SourceError,
@@ -124,9 +125,11 @@ class DuckDBEngine(Engine):
 
     def set_timeout(self, seconds: float | None) -> None:
         # DuckDB has no statement timeout setting; a timer interrupts the query instead.
+        check_timeout_limit(self.caps, seconds)
         self.timeout = seconds
 
     def fetch(self, sql: str) -> FetchResult:
+        self.refuse_if_cancelled()
         self.statements.append(sql)
         timer = None
         fired = threading.Event()
@@ -141,28 +144,35 @@ class DuckDBEngine(Engine):
             cursor = self.con.execute(sql)
             names = [d[0] for d in cursor.description or []]
             rows = cursor.fetchall()
-        except (duckdb.InterruptException, RuntimeError) as error:
-            if fired.is_set():
-                raise QueryTimeoutError(
-                    f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
-                ) from None
-            raise QueryError(f"DuckDB error: {_line(error)}") from None
-        except duckdb.Error as error:
-            if fired.is_set():
-                raise QueryTimeoutError(
-                    f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
-                ) from None
-            raise QueryError(f"DuckDB error: {_line(error)}") from None
+        except (duckdb.Error, RuntimeError) as error:
+            raise self._failure(error, fired.is_set()) from None
         finally:
             if timer is not None:
                 timer.cancel()
         if fired.is_set():
             # An interrupt that lands before DuckDB starts executing is lost and the query
             # runs to the end; it still ran past the deadline, so the outcome is the same.
-            raise QueryTimeoutError(
-                f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
-            )
+            raise self._timeout_error()
         return FetchResult(columns=names, rows=rows)
+
+    def _failure(self, error: BaseException, timed_out: bool) -> QueryError:
+        """The timeout if it fired, a cancel if :meth:`cancel` ran, else DuckDB's error."""
+        if timed_out:
+            return self._timeout_error()
+        if self.cancelled.is_set():
+            return QueryCancelledError("the query was cancelled")
+        return QueryError(f"DuckDB error: {_line(error)}")
+
+    def _timeout_error(self) -> QueryTimeoutError:
+        return QueryTimeoutError(
+            f"the query ran longer than --timeout {self.timeout:g} s and was cancelled")
+
+    def cancel(self) -> None:
+        """From another thread: interrupt the running statement (``interrupt()`` is
+        thread-safe), refuse new ones."""
+        super().cancel()
+        if self.connection is not None:
+            self.connection.interrupt()
 
     def close(self) -> None:
         if self.owned and self.connection is not None:

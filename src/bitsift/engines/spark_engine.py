@@ -31,7 +31,7 @@ from typing import TYPE_CHECKING, Any
 from sqlglot import exp
 
 from bitsift.dialects import capabilities
-from bitsift.engines.base import Engine, FetchResult
+from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
 from bitsift.errors import (
     MissingDriverError,
     QueryError,
@@ -207,6 +207,7 @@ class SparkEngine(Engine):
 
     def set_timeout(self, seconds: float | None) -> None:
         # No statement timeout in Spark: fetch() interrupts its own tagged operation.
+        check_timeout_limit(self.caps, seconds)
         self.timeout = seconds or None
 
     def fetch(self, sql: str) -> FetchResult:

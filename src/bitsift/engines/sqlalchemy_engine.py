@@ -17,9 +17,10 @@ from sqlglot import exp
 
 from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines import sqlite_support
-from bitsift.engines.base import Engine, FetchResult, resolve_name
+from bitsift.engines.base import Engine, FetchResult, check_timeout_limit, resolve_name
 from bitsift.errors import (
     MissingDriverError,
+    QueryCancelledError,
     QueryError,
     QueryTimeoutError,
     SourceError,
@@ -45,9 +46,18 @@ DRIVER_EXTRAS: dict[str, tuple[str, str]] = {
 #: Environment variable that may hold the password instead of the URL.
 PASSWORD_VARIABLE = "BITSIFT_PASSWORD"
 
+#: A statement timeout's error: PostgreSQL "canceling statement due to statement timeout",
+#: MariaDB "Query execution was interrupted (max_statement_time exceeded)", MySQL "...,
+#: maximum statement execution time exceeded". (SQLite's deadline is known by its own flag.)
 _TIMEOUT_PATTERNS = re.compile(
-    r"statement timeout|max_statement_time|max_execution_time|query execution was interrupted"
-    r"|canceling statement due to statement timeout|^interrupted$",
+    r"statement timeout|max_statement_time|max_execution_time"
+    r"|maximum statement execution time",
+    re.IGNORECASE,
+)
+#: A statement cancelled without a timeout: MariaDB/MySQL ``KILL QUERY`` ("Query execution
+#: was interrupted"), PostgreSQL ``pg_cancel_backend`` or a cancel request, SQLite interrupt().
+_CANCEL_PATTERNS = re.compile(
+    r"query execution was interrupted|canceling statement due to user request|^interrupted$",
     re.IGNORECASE,
 )
 
@@ -108,6 +118,8 @@ class SqlAlchemyEngine(Engine):
     #: The caller's Connection had an open transaction: leave it alone.
     borrowed_transaction: bool = False
     _session_read_only: bool = False
+    #: Stops the statement now running on this connection (see :meth:`_server_cancel`).
+    _cancel_running: Callable[[], None] = field(default=lambda: None, repr=False)
 
     @classmethod
     def open_url(cls, url: str) -> SqlAlchemyEngine:
@@ -294,6 +306,7 @@ class SqlAlchemyEngine(Engine):
         return name
 
     def set_timeout(self, seconds: float | None) -> None:
+        check_timeout_limit(self.caps, seconds)
         if not seconds:
             return
         if not self.caps.has_timeout:
@@ -310,50 +323,60 @@ class SqlAlchemyEngine(Engine):
         client_timeout = (self.timeout if self.caps.timeout_in_client
                           and not self.borrowed_transaction else None)
         try:
+            self.refuse_if_cancelled()
             self._begin()
             # Logged after the transaction's own settings, in the order they are sent.
             self.statements.append(text)
-            cancel = self._server_cancel()
+            self._cancel_running = self._server_cancel()
+            self.refuse_if_cancelled()  # a cancel() that came before the line above
             with self._client_deadline(client_timeout) as fired:
                 try:
                     result = self._execute(text)
                     names = list(result.keys())
                     rows = [tuple(r) for r in result.fetchall()]
-                except KeyboardInterrupt:
-                    cancel()
+                except KeyboardInterrupt:  # Ctrl-C or SIGTERM (errors.Terminated)
+                    self._cancel_running()
                     raise
                 except sa.exc.DBAPIError as error:
-                    message = _scrub(_line(error.orig or error), self.secret)
-                    if fired() or _TIMEOUT_PATTERNS.search(message):
-                        raise QueryTimeoutError(
-                            f"the query ran longer than --timeout {self.timeout:g} s and was "
-                            f"cancelled ({message})"
-                        ) from None
-                    raise QueryError(f"{self.caps.name} error: {message}") from None
+                    raise self._failure(_scrub(_line(error.orig or error), self.secret),
+                                        timed_out=fired()) from None
         finally:
             self._end()
         return FetchResult(columns=names, rows=rows)
 
+    def _failure(self, message: str, timed_out: bool) -> QueryError:
+        """The error for a failed statement: the timeout (only if one was set), a cancel
+        (by bitsift or on the server, e.g. MariaDB ``KILL QUERY``), or any other error."""
+        if self.timeout and (timed_out or _TIMEOUT_PATTERNS.search(message)):
+            return QueryTimeoutError(f"the query ran longer than --timeout {self.timeout:g} s "
+                                     f"and was cancelled ({message})")
+        if self.cancelled.is_set() or _CANCEL_PATTERNS.search(message):
+            return QueryCancelledError(f"the query was cancelled: {message}")
+        return QueryError(f"{self.caps.name} error: {message}")
+
+    def cancel(self) -> None:
+        """From another thread: cancel the running statement on the server, refuse new ones."""
+        super().cancel()
+        self._cancel_running()
+
     def _server_cancel(self) -> Callable[[], None]:
-        """What stops the running statement on the server when the user presses Ctrl-C.
+        """What stops the statement about to run on this connection, callable from any thread
+        (on Ctrl-C or SIGTERM, and by the session pool when a sibling session fails).
 
-        psycopg cancels the query itself on KeyboardInterrupt, and DuckDB and SQLite run in
-        this process. A MySQL-protocol driver (PyMySQL, mysqlclient) only stops reading: the
-        server would run the statement to its end, so bitsift sends ``KILL QUERY <thread id>``
-        for its own session from a second connection. Taken before the statement starts,
-        because SQLAlchemy invalidates the interrupted connection.
+        A MySQL-protocol driver (PyMySQL, mysqlclient) only stops reading: the server would
+        run the statement to its end, so bitsift sends ``KILL QUERY <thread id>`` for its own
+        session from a second connection. psycopg sends PostgreSQL's cancel request
+        (``cancel_safe``, thread-safe); sqlite3 has ``interrupt()``. Taken before the statement
+        starts, because SQLAlchemy invalidates an interrupted connection.
         """
-        thread_id = getattr(self._driver_connection(), "thread_id", None)
-        engine = self.con.engine
-        if not callable(thread_id):
-            return lambda: None
-        session = int(thread_id())
-
-        def kill() -> None:
-            with contextlib.suppress(Exception), engine.connect() as other:  # best effort
-                other.exec_driver_sql(f"KILL QUERY {session}")  # an int from the driver
-
-        return kill
+        driver = self._driver_connection()
+        thread_id = getattr(driver, "thread_id", None)
+        if callable(thread_id):
+            return _kill_query(self.con.engine, int(thread_id()))
+        for method in ("cancel_safe", "interrupt"):
+            if callable(getattr(driver, method, None)):
+                return _quietly(getattr(driver, method))
+        return lambda: None
 
     @contextmanager
     def _client_deadline(self, seconds: float | None) -> Iterator[Callable[[], bool]]:
@@ -403,6 +426,27 @@ def _reflect_columns(inspector: Any, table: str, schema: str | None
             warnings.warn_explicit(warning.message, warning.category, warning.filename,
                                    warning.lineno)
     return columns, unrecognized
+
+
+def _kill_query(engine: sa.Engine, session: int) -> Callable[[], None]:
+    """``KILL QUERY`` for MySQL/MariaDB session ``session``, sent from a new connection."""
+    statement = exp.Kill(this=exp.Literal.number(session), kind="QUERY").sql("mysql")
+
+    def kill() -> None:
+        with contextlib.suppress(Exception), engine.connect() as other:  # best effort
+            other.exec_driver_sql(statement, execution_options={"no_parameters": True})
+
+    return kill
+
+
+def _quietly(cancel: Callable[[], object]) -> Callable[[], None]:
+    """``cancel`` with its errors dropped: the connection may already be gone."""
+
+    def call() -> None:
+        with contextlib.suppress(Exception):
+            cancel()
+
+    return call
 
 
 def _timeout_text(template: str, seconds: float) -> str:
