@@ -287,6 +287,9 @@ WHERE_COLUMNS = {n: Column(n, "integer") for n in ("a", "version", "session")}
     ("mysql", "a = _utf8'1'", "character set introducer"),
     ("mysql", "a = _latin1 X'31'", "character set introducer"),
     ("postgres", "a = @x", "variable or parameter"),
+    # Found looking for the same class: an 'unexpected UnsupportedError' at statement building.
+    ("mysql", "a = [1, 2]", "mysql cannot run: Arrays are not supported"),
+    ("mysql", "a = ANY (ARRAY[1])", "mysql cannot run"),
 ])
 def test_where_refuses_variables_and_introducers(dialect: str, text: str, message: str) -> None:
     with pytest.raises(PredicateError, match=message):
