@@ -172,6 +172,23 @@ def test_postgres_quoted_case_twins(postgres_engine: sa.Engine, pg_schema: str) 
     assert [s.segment for s in segmented.segments] == [{"y": "p"}, {"y": "q"}]
 
 
+def test_duckdb_table_non_ascii_case_twins(tmp_path: Path) -> None:
+    # DuckDB refuses ASCII twins in a table ("Y", "y") but keeps "É" and "é" apart.
+    import duckdb
+
+    path = tmp_path / "twins.duckdb"
+    with duckdb.connect(str(path)) as connection:
+        connection.execute('CREATE TABLE t ("\u00c9" VARCHAR, "\u00e9" VARCHAR, k VARCHAR, '
+                           "w DOUBLE)")
+        connection.executemany("INSERT INTO t VALUES (?, ?, ?, 1.0)", _twin_rows())
+    assert gains(bitsift.rank(path, "\u00c9", table="t", weight="w")) == {"\u00e9": 0.0,
+                                                                          "k": 1.0}
+    segmented = bitsift.rank(path, "k", table="t", by="\u00e9")
+    assert [s.segment for s in segmented.segments] == [{"\u00e9": "p"}, {"\u00e9": "q"}]
+    with pytest.raises(ColumnError, match="spell it exactly"):
+        bitsift.rank(path, "k", table="t", weight="E\u0301")  # É decomposed: both match
+
+
 def test_sqlite_non_ascii_case_twins(tmp_path: Path) -> None:
     # SQLite folds ASCII case only: "É" and "é" are two columns there.
     path = tmp_path / "twins.sqlite"
