@@ -95,6 +95,19 @@ def test_case_twins_error_is_one_line_in_the_cli(twin_files: dict[str, Path],
     assert "differ only in case" in line
 
 
+def test_twins_among_nested_parquet_columns_are_found(tmp_path: Path) -> None:
+    # Struct and list columns add schema rows of their own: only top-level names are compared.
+    nested = {"s": pa.array([{"p": 1, "q": {"r": 2}}] * 4), "L": pa.array([[1], [2], [3], [4]])}
+    twins = tmp_path / "nested.parquet"
+    pq.write_table(pa.table({**nested, **TWIN_ROWS}), twins)
+    with pytest.raises(SourceError, match="reads them as 'Y', 'y_1'"):
+        bitsift.rank(twins, "k")
+    apart = tmp_path / "apart.parquet"
+    pq.write_table(pa.table({**nested, "Y_1": TWIN_ROWS["Y"], "y": TWIN_ROWS["y"],
+                             "k": TWIN_ROWS["k"]}), apart)
+    assert gains(bitsift.rank(apart, "k", attributes=["y", "Y_1"])) == {"Y_1": 1.0, "y": 0.0}
+
+
 def test_a_csv_header_repeating_a_name_is_refused(tmp_path: Path) -> None:
     path = tmp_path / "repeated.csv"
     path.write_text("x,x,y\n1,2,a\n2,1,b\n")
