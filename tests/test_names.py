@@ -95,6 +95,19 @@ def test_case_twins_error_is_one_line_in_the_cli(twin_files: dict[str, Path],
     assert "differ only in case" in line
 
 
+def test_twins_among_nested_parquet_columns_are_found(tmp_path: Path) -> None:
+    # Struct and list columns add schema rows of their own: only top-level names are compared.
+    nested = {"s": pa.array([{"p": 1, "q": {"r": 2}}] * 4), "L": pa.array([[1], [2], [3], [4]])}
+    twins = tmp_path / "nested.parquet"
+    pq.write_table(pa.table({**nested, **TWIN_ROWS}), twins)
+    with pytest.raises(SourceError, match="reads them as 'Y', 'y_1'"):
+        bitsift.rank(twins, "k")
+    apart = tmp_path / "apart.parquet"
+    pq.write_table(pa.table({**nested, "Y_1": TWIN_ROWS["Y"], "y": TWIN_ROWS["y"],
+                             "k": TWIN_ROWS["k"]}), apart)
+    assert gains(bitsift.rank(apart, "k", attributes=["y", "Y_1"])) == {"Y_1": 1.0, "y": 0.0}
+
+
 def test_a_csv_header_repeating_a_name_is_refused(tmp_path: Path) -> None:
     path = tmp_path / "repeated.csv"
     path.write_text("x,x,y\n1,2,a\n2,1,b\n")
@@ -170,6 +183,23 @@ def test_postgres_quoted_case_twins(postgres_engine: sa.Engine, pg_schema: str) 
     assert gains(bitsift.rank(url, "y", table=table)) == {"Y": 0.0, "k": 0.0}
     segmented = bitsift.rank(url, "k", table=table, by="y", where="\"Y\" = 'a' OR y = 'q'")
     assert [s.segment for s in segmented.segments] == [{"y": "p"}, {"y": "q"}]
+
+
+def test_duckdb_table_non_ascii_case_twins(tmp_path: Path) -> None:
+    # DuckDB refuses ASCII twins in a table ("Y", "y") but keeps "É" and "é" apart.
+    import duckdb
+
+    path = tmp_path / "twins.duckdb"
+    with duckdb.connect(str(path)) as connection:
+        connection.execute('CREATE TABLE t ("\u00c9" VARCHAR, "\u00e9" VARCHAR, k VARCHAR, '
+                           "w DOUBLE)")
+        connection.executemany("INSERT INTO t VALUES (?, ?, ?, 1.0)", _twin_rows())
+    assert gains(bitsift.rank(path, "\u00c9", table="t", weight="w")) == {"\u00e9": 0.0,
+                                                                          "k": 1.0}
+    segmented = bitsift.rank(path, "k", table="t", by="\u00e9")
+    assert [s.segment for s in segmented.segments] == [{"\u00e9": "p"}, {"\u00e9": "q"}]
+    with pytest.raises(ColumnError, match="spell it exactly"):
+        bitsift.rank(path, "k", table="t", weight="E\u0301")  # É decomposed: both match
 
 
 def test_sqlite_non_ascii_case_twins(tmp_path: Path) -> None:
@@ -287,6 +317,9 @@ WHERE_COLUMNS = {n: Column(n, "integer") for n in ("a", "version", "session")}
     ("mysql", "a = _utf8'1'", "character set introducer"),
     ("mysql", "a = _latin1 X'31'", "character set introducer"),
     ("postgres", "a = @x", "variable or parameter"),
+    # Found looking for the same class: an 'unexpected UnsupportedError' at statement building.
+    ("mysql", "a = [1, 2]", "mysql cannot run: Arrays are not supported"),
+    ("mysql", "a = ANY (ARRAY[1])", "mysql cannot run"),
 ])
 def test_where_refuses_variables_and_introducers(dialect: str, text: str, message: str) -> None:
     with pytest.raises(PredicateError, match=message):

@@ -117,6 +117,12 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
         column.replace(exp.column(exp.to_identifier(name, quoted=True)))
     if unknown:
         raise PredicateError("--where uses " + unknown_names_message("column", unknown, columns))
+    try:
+        # The statement is generated this strictly later: refuse here, with the reason.
+        tree.sql(dialect, unsupported_level=sqlglot.ErrorLevel.RAISE)
+    except sqlglot.errors.UnsupportedError as error:
+        raise PredicateError(f"--where uses what {dialect} cannot run: {_first_line(error)}"
+                             ) from None
     return Predicate(text=text, expression=tree)
 
 

@@ -178,7 +178,8 @@ def refuse_renamed_columns(engine: DuckDBEngine, path: str) -> None:
 
     DuckDB matches names ignoring case and so renames one of the twins on read; ranking against
     either would mean guessing which one the user meant. Raises :class:`SourceError` naming
-    the columns; a file whose names cannot be read here is left to the reader's own errors.
+    the columns, also when a name looks renamed (``y_1`` beside ``Y``) and the file's own names
+    cannot be read to tell; a file the reader cannot open is left to the reader's own errors.
     """
     try:
         names = engine.con.sql(exp.select(exp.Star()).from_(file_table(path)).limit(0)
