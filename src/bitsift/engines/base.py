@@ -57,11 +57,10 @@ class Engine(ABC):
             return columns
         refused = {c.name for c in unknown if not self._groups(table, [c])}
         for column in columns:
-            if column.name in refused:
-                self.notes.append(
-                    f"column {column.name!r} ({column.type_name or 'unknown type'}) is not "
-                    f"ranked: {self.caps.name} cannot group its values"
-                )
+            note = (f"column {column.name!r} ({column.type_name or 'unknown type'}) is not "
+                    f"ranked: {self.caps.name} cannot group its values")
+            if column.name in refused and note not in self.notes:  # columns() may run twice
+                self.notes.append(note)
         return [replace(c, groupable=False) if c.name in refused else c for c in columns]
 
     def _groups(self, table: exp.Expression, columns: Sequence[Column]) -> bool:
