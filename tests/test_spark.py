@@ -36,7 +36,7 @@ from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
-from bitsift.errors import QueryTimeoutError, SpecError, TableNotFoundError
+from bitsift.errors import ColumnError, QueryTimeoutError, SpecError, TableNotFoundError
 from bitsift.sources import EngineSource
 
 pytestmark = pytest.mark.spark
@@ -234,3 +234,21 @@ def test_engine_spark_with_table_wants_a_master() -> None:
     assert "SOURCE is the Spark master" in str(result.exception)
     with pytest.raises(SpecError, match="unknown engine 'sparkle'"):
         bitsift.rank(EngineSource("sparkle", "x.parquet"), target="y")
+
+
+def test_map_columns_are_left_out_or_refused(spark: Any, tmp_path: Path) -> None:
+    """Spark groups arrays and structs but cannot partition by a MAP (issue 16, item 4)."""
+    path = tmp_path / "nested.parquet"
+    with duckdb.connect() as connection:
+        connection.execute(
+            f"COPY (SELECT i % 3 AS y, MAP([1], [i % 2]) AS m, [i % 2, i % 3] AS l, "
+            f"{{'a': i % 2}} AS s, i % 5 AS k FROM range(60) r(i)) TO '{path}' (FORMAT parquet)")
+    frame = spark.read.parquet(str(path))
+    ranking = bitsift.rank(frame, target="y")
+    assert {a.attribute for a in ranking.attributes} == {"l", "s", "k"}
+    assert any("'m' (map<int,bigint>)" in note and "cannot group" in note
+               for note in ranking.notes), ranking.notes
+    checked = bitsift.check(frame, target="y")
+    assert checked.ok and checked.whole_table
+    with pytest.raises(ColumnError, match=r"'m' \(map<int,bigint>, as --attributes\)"):
+        bitsift.rank(frame, target="y", attributes="k,m")

@@ -122,8 +122,7 @@ def test_postgres_named_ungroupable_column_is_refused_in_one_line(
         assert named.lower() in lines[0].lower(), (command, lines[0])
 
 
-def test_duckdb_nested_types_are_ranked_and_checked(tmp_path: Path,
-                                                    capsys: pytest.CaptureFixture[str]) -> None:
+def _nested_duckdb(tmp_path: Path) -> Path:
     path = tmp_path / "nested.duckdb"
     with duckdb.connect(str(path)) as connection:
         connection.execute(
@@ -131,6 +130,12 @@ def test_duckdb_nested_types_are_ranked_and_checked(tmp_path: Path,
             "MAP([1], [i % 2]) AS m, CAST(CAST(i % 4 AS VARCHAR) AS JSON) AS j, "
             "union_value(num := i % 2)::UNION(num INTEGER, str VARCHAR) AS u, i % 5 AS k "
             "FROM range(60) r(i)")
+    return path
+
+
+def test_duckdb_nested_types_are_ranked_and_checked(tmp_path: Path,
+                                                    capsys: pytest.CaptureFixture[str]) -> None:
+    path = _nested_duckdb(tmp_path)
     for command, args in _commands(str(path), "t", tmp_path).items():
         done = run_main(capsys, *args)
         assert done.code == 0, (command, done.err)
@@ -139,6 +144,20 @@ def test_duckdb_nested_types_are_ranked_and_checked(tmp_path: Path,
     checked = run_main(capsys, "check", str(path), "--table", "t", "--target", "y")
     assert "result: database and reference agree" in checked.out
     assert "t: 6 attributes" in checked.out
+
+
+@pytest.mark.parametrize("target", ["l", "s", "m"])
+def test_duckdb_nested_types_as_the_target(target: str, tmp_path: Path,
+                                           capsys: pytest.CaptureFixture[str]) -> None:
+    path = _nested_duckdb(tmp_path)
+    common = [str(path), "--table", "t", "--target", target]
+    for args in (["check", *common], ["profile", *common, "--attribute", "k"],
+                 ["report", *common, "--out", str(tmp_path / "r.html")]):
+        done = run_main(capsys, *args)
+        assert done.code == 0, (args[0], done.err)
+        _assert_clean(done, args[0])
+    profiled = run_main(capsys, "profile", *common, "--attribute", "k")
+    assert ("[0, 0]" if target == "l" else "{") in profiled.out  # classes shown as they came
 
 
 def test_postgres_arrays_are_checked_against_the_reference(

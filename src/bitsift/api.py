@@ -19,7 +19,7 @@ from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
 from bitsift.readout import read_ranking, read_segments
 from bitsift.result import Ranking, SegmentedRanking
-from bitsift.schema import Column
+from bitsift.schema import Column, hashable_value
 from bitsift.sources import open_source, parse_table_name
 from bitsift.spec import (
     RankOptions,
@@ -374,22 +374,8 @@ def _pull_rows(engine: Engine, spec: RankSpec, limit: int | None) -> dict[str, l
         query = query.limit(limit)
     result = engine.fetch(query.sql(engine.caps.sqlglot_dialect))
     columns = list(zip(*result.rows, strict=True)) if result.rows else [() for _ in names]
-    return {n: [_hashable(v) for v in c] for n, c in zip(names, columns, strict=True)}
+    return {n: [hashable_value(v) for v in c] for n, c in zip(names, columns, strict=True)}
 
-
-def _hashable(value: Any) -> Any:
-    """A value the reference can count: the database groups lists, structs and maps (DuckDB
-    LIST/STRUCT/MAP, PostgreSQL arrays) by their contents, which Python's dict cannot key on
-    until they are tuples.
-
-    >>> _hashable([1, {"a": [2]}])
-    (1, (('a', (2,)),))
-    """
-    if isinstance(value, list | tuple):
-        return tuple(_hashable(v) for v in value)
-    if isinstance(value, dict):
-        return tuple((k, _hashable(v)) for k, v in value.items())
-    return value
 
 
 def _compare(ranking: Ranking, spec: RankSpec, data: Mapping[str, Sequence[Any]],

@@ -26,7 +26,7 @@ from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
 from bitsift.predicate import Predicate
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
-from bitsift.schema import Column
+from bitsift.schema import Column, hashable_value
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
 from bitsift.sqlbuild import (
@@ -325,7 +325,8 @@ def read_profiles(
     rest: dict[int, tuple[int, float]] = {}
     for record in records:
         attr = _number(record["attribute_index"])
-        y, n = record["y"], _number(record["n"])
+        # A list or struct class (DuckDB) is counted by its contents, shown as it came.
+        y, n = hashable_value(record["y"]), _number(record["n"])
         if attr == 0:
             class_totals[y] = class_totals.get(y, 0) + n
             continue

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
 import sqlglot
 from sqlglot import exp
@@ -62,6 +62,31 @@ def refuse_ungroupable(by_name: Mapping[str, Column],
         raise ColumnError("the database cannot group the values of column"
                           + ("s " if len(named) > 1 else " ") + ", ".join(named)
                           + ": they cannot be ranked nor used as target, segment or weight")
+
+
+class FrozenValue(tuple):  # type: ignore[type-arg]
+    """A list, struct or map value made hashable, still shown as the database returned it."""
+
+    shown: str
+
+    def __str__(self) -> str:
+        return self.shown
+
+
+def hashable_value(value: Any) -> Any:
+    """A value Python can count by: the database groups lists, structs and maps (DuckDB LIST/
+    STRUCT/MAP, PostgreSQL arrays) by their contents, which a dict cannot key on as they come.
+
+    >>> frozen = hashable_value([1, {"a": [2]}])
+    >>> frozen == hashable_value([1, {"a": [2]}]), str(frozen)
+    (True, "[1, {'a': [2]}]")
+    """
+    if isinstance(value, list | tuple | dict):
+        items = value.items() if isinstance(value, dict) else value
+        frozen = FrozenValue(hashable_value(v) for v in items)
+        frozen.shown = str(value)
+        return frozen
+    return value
 
 
 def family_of(type_name: str, dialect: str = "duckdb") -> Family:

@@ -62,27 +62,27 @@ class Engine(ABC):
             return columns
         refused = {c.name for c in unknown if not self._groups(table, [c])}
         for column in columns:
-            if column.name in refused:
-                self.notes.append(
-                    f"column {column.name!r} ({column.type_name or 'unknown type'}) is not "
-                    f"ranked: {self.caps.name} cannot group its values"
-                )
+            note = (f"column {column.name!r} ({column.type_name or 'unknown type'}) is not "
+                    f"ranked: {self.caps.name} cannot group its values")
+            if column.name in refused and note not in self.notes:  # columns() may run twice
+                self.notes.append(note)
         return [replace(c, groupable=False) if c.name in refused else c for c in columns]
 
     def _groups(self, table: exp.Expression, columns: Sequence[Column]) -> bool:
-        """Whether a GROUP BY of each of ``columns`` (over no rows) runs."""
-        dialect = self.caps.sqlglot_dialect
+        """Whether a GROUP BY of each of ``columns``, and a window partitioned by it, run (on
+        no rows)."""
         no_rows = exp.EQ(this=exp.Literal.number(1), expression=exp.Literal.number(0))
-        probes = [
-            exp.select(exp.alias_(exp.Literal.number(1), "g"))
-            .from_(table.copy())
-            .where(no_rows.copy())
-            .group_by(exp.column(exp.to_identifier(c.name, quoted=True)))
-            for c in columns
-        ]
+        probes = []
+        for column in columns:
+            name = exp.column(exp.to_identifier(column.name, quoted=True))
+            # The ranking statement both groups by the column and partitions windows by it
+            # (Spark groups a MAP but cannot partition by it).
+            window = exp.Window(this=exp.Count(this=exp.Star()), partition_by=[name.copy()])
+            probes.append(exp.select(exp.alias_(window, "g")).from_(table.copy())
+                          .where(no_rows.copy()).group_by(name))
         statement = probes[0] if len(probes) == 1 else exp.union(*probes, distinct=False)
         try:
-            self.fetch(statement.sql(dialect))
+            self.fetch(statement.sql(self.caps.sqlglot_dialect))
         except QueryError:
             return False
         return True
