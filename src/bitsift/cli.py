@@ -4,14 +4,12 @@ from __future__ import annotations
 
 import signal
 import sys
-import threading
-from collections.abc import Callable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Callable, Sequence
 from typing import Any, NoReturn
 
 import click
 
-from bitsift import api
+from bitsift import api, signals
 from bitsift.dialects import CAPABILITIES
 from bitsift.errors import BitsiftError, Terminated
 from bitsift.formatting import FORMATS, render
@@ -225,10 +223,6 @@ def error_text(error: BitsiftError) -> str:
     return one_line(str(error))
 
 
-def _raise_terminated(_signum: int, _frame: object) -> None:
-    raise Terminated
-
-
 def _interrupted(error: BaseException) -> NoReturn:
     """Ctrl-C or SIGTERM, once every statement was cancelled: one line, 130 or 143."""
     if isinstance(error, Terminated) or isinstance(error.__cause__, Terminated):
@@ -241,25 +235,12 @@ def _interrupted(error: BaseException) -> NoReturn:
 def main(argv: Sequence[str] | None = None) -> None:
     """Console entry point: one clear error line and exit 1 for bitsift errors.
 
-    SIGTERM becomes :class:`~bitsift.errors.Terminated` (a KeyboardInterrupt), so the running
-    statements are cancelled on the server as on Ctrl-C instead of running on after exit.
+    Ctrl-C and SIGTERM cancel the running statements (:mod:`bitsift.signals`) instead of
+    leaving them to run on after exit.
     """
     args = list(sys.argv[1:] if argv is None else argv)
-    with _sigterm_raises():
+    with signals.cancel_on_signals():
         _main(args)
-
-
-@contextmanager
-def _sigterm_raises() -> Iterator[None]:
-    """SIGTERM raises Terminated while bitsift runs (only the main thread may set handlers)."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
-    previous = signal.signal(signal.SIGTERM, _raise_terminated)
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGTERM, previous)
 
 
 def _main(args: list[str]) -> None:
@@ -271,6 +252,9 @@ def _main(args: list[str]) -> None:
         error.show()
         sys.exit(error.exit_code)
     except BitsiftError as error:
+        interrupt = signals.received()
+        if interrupt is not None:  # the failure is the cancel the signal caused
+            _interrupted(interrupt)
         if _DEBUG["on"] or "--debug" in args:
             _mask_chain(error)
             raise

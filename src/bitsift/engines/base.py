@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import threading
+import weakref
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
@@ -95,6 +96,9 @@ class Engine(ABC):
     def set_timeout(self, seconds: float | None) -> None:
         """Set a statement timeout, or add a note saying the engine has none."""
 
+    def __post_init__(self) -> None:
+        _LIVE[id(self)] = self
+
     def cancel(self) -> None:
         """From another thread: stop the statement running on this session (on the server
         where the engine has a cancel) and refuse the next ones. Engines that can stop a
@@ -116,6 +120,17 @@ class Engine(ABC):
     def __exit__(self, *exc: object) -> None:
         self.close()
 
+
+#: Every engine not yet garbage-collected, for :func:`cancel_all` (weak: keeps none alive;
+#: keyed by id because engines, as dataclasses that compare, are not hashable).
+_LIVE: weakref.WeakValueDictionary[int, Engine] = weakref.WeakValueDictionary()
+
+
+def cancel_all() -> None:
+    """Cancel every open engine's running statement, from any thread (the CLI's signal
+    watcher: the main thread may be inside a statement that only returns once cancelled)."""
+    for engine in list(_LIVE.values()):
+        engine.cancel()
 
 
 def check_timeout_limit(caps: Capabilities, seconds: float | None) -> None:

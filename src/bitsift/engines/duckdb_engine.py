@@ -55,6 +55,13 @@ class DuckDBEngine(Engine):
     owned: bool = True
     timeout: float | None = field(default=None)
 
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        if self.owned and self.connection is not None:
+            # DuckDB draws a progress bar on stdout once a statement has run 2 s, into a pipe
+            # too, mixed into bitsift's output. A connection setting: only on bitsift's own.
+            self.connection.execute("SET enable_progress_bar = false")
+
     @classmethod
     def open_file(cls, path: str) -> DuckDBEngine:
         """A database file opened read-only, or an in-memory session for Parquet/CSV files."""
