@@ -267,3 +267,15 @@ def test_a_folder_that_is_no_chdb_database_is_refused_untouched(chdb_session: An
     with pytest.raises(SourceError, match="not a chdb database directory"):
         bitsift.rank(EngineSource("clickhouse", str(folder)), target="y", table="t")
     assert sorted(p.name for p in folder.iterdir()) == ["notes.txt"]
+
+
+def test_timeout_up_to_chdbs_limit_is_sent_and_a_longer_one_refused(chdb_session: Any) -> None:
+    # chdb 4.4 holds max_execution_time as int64 microseconds: 9223372036855 s and more fail
+    # inside the server ("Cannot convert seconds to microseconds").
+    from bitsift.engines.chdb_engine import ChdbEngine
+
+    with ChdbEngine.in_memory() as engine:
+        engine.set_timeout(9_223_372_036_854)
+        assert engine.fetch("SELECT 41 + 1 AS answer").rows == [(42,)]
+        with pytest.raises(SpecError, match="longer than clickhouse can enforce"):
+            engine.set_timeout(1e13)

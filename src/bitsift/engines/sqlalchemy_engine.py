@@ -366,14 +366,14 @@ class SqlAlchemyEngine(Engine):
         A MySQL-protocol driver (PyMySQL, mysqlclient) only stops reading: the server would
         run the statement to its end, so bitsift sends ``KILL QUERY <thread id>`` for its own
         session from a second connection. psycopg sends PostgreSQL's cancel request
-        (``cancel_safe``, thread-safe); sqlite3 has ``interrupt()``. Taken before the statement
-        starts, because SQLAlchemy invalidates an interrupted connection.
+        (``cancel_safe``; psycopg2 ``cancel``, both thread-safe); sqlite3 has ``interrupt()``.
+        Taken before the statement starts: SQLAlchemy invalidates an interrupted connection.
         """
         driver = self._driver_connection()
         thread_id = getattr(driver, "thread_id", None)
         if callable(thread_id):
             return _kill_query(self.con.engine, int(thread_id()))
-        for method in ("cancel_safe", "interrupt"):
+        for method in ("cancel_safe", "cancel", "interrupt"):  # psycopg 3, psycopg2, sqlite3
             if callable(getattr(driver, method, None)):
                 return _quietly(getattr(driver, method))
         return lambda: None
