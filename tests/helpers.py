@@ -31,7 +31,7 @@ import bitsift
 from bitsift import reference
 from bitsift.api import make_options, run_ranking
 from bitsift.cli import main
-from bitsift.dialects import capabilities
+from bitsift.dialects import CAPABILITIES, capabilities
 from bitsift.result import Ranking
 from bitsift.sources import open_source
 from bitsift.spec import resolve
@@ -340,11 +340,9 @@ def assert_same_ranking(got: Ranking, want: Ranking, context: str = "") -> None:
 # --- paste-ready SQL: golden files -------------------------------------------------------------
 
 GOLDEN_DIR = Path(__file__).resolve().parent / "golden"
-#: Every dialect `bitsift sql --dialect` must write.
-PASTE_DIALECTS: tuple[str, ...] = (
-    "duckdb", "sqlite", "postgres", "mysql", "mariadb", "snowflake", "bigquery", "redshift",
-    "trino", "tsql", "oracle", "databricks", "spark", "clickhouse",
-)
+#: Every dialect `bitsift sql --dialect` must write: each entry of the capability table, so a
+#: new dialect gets golden files (and fails until they are generated) without a list to edit.
+PASTE_DIALECTS: tuple[str, ...] = tuple(CAPABILITIES)
 #: The golden statements: described without a connection, so every dialect gets the same spec.
 #: The table name is unqualified so the same text runs in a scratch schema (search_path) or
 #: database. Columns are those of :func:`random_dataset`.

@@ -2,15 +2,15 @@
 
 The query builder never asks "is this PostgreSQL?"; it asks the dialect's
 :class:`Capabilities` entry. Adding a dialect means adding one entry here (and
-one test file, ``tests/dialects/test_<name>.py``).
+one entry in the expectations table of ``tests/test_dialects.py``).
 
 Entries marked ``executed_in_tests`` were checked by executing the generated SQL on
 DuckDB 2.0, SQLite 3.40, PostgreSQL 15 and MariaDB 10.11 (tests/test_parity.py,
 tests/test_golden.py), Spark 4.3 local[2] (tests/test_spark.py) and ClickHouse 26.9 embedded as
 chdb 4.4 (tests/test_clickhouse.py) against the NumPy reference; the others come from sqlglot's
-output, the pitfalls in design.md and the vendors' documentation (tests/dialects/). Once, by
-hand (2026-12-01, not in the suite), the golden databricks statements ran on a local Spark 4.3
-too: every attribute matched DuckDB's ranking.
+output, the pitfalls in design.md and the vendors' documentation (tests/test_dialects.py).
+Once, by hand (2026-12-01, not in the suite), the golden databricks statements ran on a local
+Spark 4.3 too: every attribute matched DuckDB's ranking.
 
 Why each engine's count strategy
 --------------------------------

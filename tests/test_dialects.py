@@ -1,0 +1,271 @@
+"""Every dialect's capability entry and what its paste-ready SQL must (not) say, from one table.
+
+:data:`EXPECTED` holds, per dialect, the capability fields the entry must have, why, and the
+text its paste-ready statement (golden variant ``default``) must and must not contain; the same
+two tests read every entry. Adding a dialect: one ``Capabilities`` entry in
+``src/bitsift/dialects.py`` and one :class:`Expected` here (DEVELOPERS.md, "How to add a
+dialect"). At the end, what only a running engine shows (timeouts, read-only statements), on
+the engines that run here.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import sqlite3
+from collections.abc import Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import duckdb
+import pytest
+import sqlalchemy as sa
+import sqlglot
+from conftest import MARIADB_URL
+from helpers import fill_sqlalchemy, invalid_constructs, paste_sql, random_dataset
+from sqlglot import exp
+
+import bitsift
+from bitsift import dialects
+from bitsift.dialects import capabilities
+from bitsift.errors import QueryTimeoutError
+
+
+@dataclass(frozen=True)
+class Expected:
+    """What one dialect's capability entry and paste-ready statement must be."""
+
+    #: Why the entry is what it is (the engine's traits that decide it).
+    why: str
+    #: ``Capabilities`` fields and the value each must have.
+    caps: Mapping[str, Any]
+    #: Text the statement must contain, exactly as written.
+    says: tuple[str, ...] = ()
+    #: Text it must not contain, exactly as written.
+    never_says: tuple[str, ...] = ()
+    #: Text it must not contain in any letter case.
+    never_says_any_case: tuple[str, ...] = ()
+    #: Another dialect whose statement this one's equals, apart from the dialect's name.
+    same_statement_as: str | None = None
+
+
+EXPECTED: dict[str, Expected] = {
+    "duckdb": Expected(
+        why="The embedded default: exact quantiles with quantile_cont (one list per "
+            "attribute), GROUPING SETS, LN; the timeout is enforced by interrupting the query "
+            "from the client.",
+        caps={"count_strategy": "grouping_sets", "quantile": "quantile_cont",
+              "timeout_in_client": True, "exact_key_type": None, "executed_in_tests": True},
+        says=("QUANTILE_CONT(CAST(\"score\" AS DOUBLE), [0.25, 0.5, 0.75])", "GROUPING SETS",
+              "LN(CAST(n AS DOUBLE))"),
+    ),
+    "sqlite": Expected(
+        why="No GROUPING SETS and no quantile aggregate: UNION ALL of narrow GROUP BYs and "
+            "exact quantiles from ROW_NUMBER(). Read-only through PRAGMA query_only (undone at "
+            "close); --timeout through a progress handler; LN/FLOOR registered from Python "
+            "when the build lacks them.",
+        caps={"count_strategy": "union_all", "quantile": "window",
+              "read_only_statement": "PRAGMA query_only = ON",
+              "read_only_reset": "PRAGMA query_only = OFF", "timeout_in_client": True,
+              "register_math_functions": True, "executed_in_tests": True},
+        says=("UNION ALL", "ROW_NUMBER() OVER (ORDER BY CAST(\"score\" AS REAL) NULLS LAST)",
+              "CAST(n AS REAL)"),
+        never_says=("GROUPING",),
+    ),
+    "postgres": Expected(
+        why="GROUPING SETS with one-column GROUPING(), PERCENTILE_CONT ... WITHIN GROUP "
+            "(exact). Read-only and statement_timeout are set per transaction (SET TRANSACTION "
+            "READ ONLY, SET LOCAL), so a caller's pooled connection keeps its own settings.",
+        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont",
+              "read_only_statement": "SET TRANSACTION READ ONLY",
+              "timeout_statement": "SET LOCAL statement_timeout = {ms}",
+              "executed_in_tests": True},
+        says=("PERCENTILE_CONT(0.25) WITHIN GROUP (ORDER BY", "GROUPING(a1) = 0",
+              "LN(CAST(n AS DOUBLE PRECISION))"),
+    ),
+    "mysql": Expected(
+        why="Only WITH ROLLUP (sqlglot would still print GROUPING SETS), PERCENTILE_CONT only "
+            "as a window function, and case-insensitive default collations: UNION ALL, window "
+            "quantiles, and text grouped as CAST(... AS BINARY) (sqlglot would print "
+            "VARBINARY, which MySQL rejects).",
+        caps={"count_strategy": "union_all", "quantile": "window", "exact_key_type": "BINARY",
+              "timeout_statement": "SET SESSION max_execution_time = {ms}"},
+        says=("CAST(src.`word` AS BINARY) AS a1", "CAST(src.`y` AS BINARY) AS y",
+              "CAST(SUM(n) AS SIGNED)", "CAST(n AS DOUBLE)"),
+    ),
+    "mariadb": Expected(
+        why="MySQL's SQL (sqlglot's mysql dialect), no GROUPING() at all, utf8mb4_general_ci "
+            "merging 'a'/'A' and 'x'/'x ' in GROUP BY: UNION ALL, window quantiles, text "
+            "grouped as BINARY. The timeout is a per-statement prefix (SET STATEMENT "
+            "max_statement_time = s FOR ...), leaving no session state.",
+        caps={"count_strategy": "union_all", "exact_key_type": "BINARY",
+              "timeout_prefix": "SET STATEMENT max_statement_time = {seconds} FOR ",
+              "read_only_statement": "SET TRANSACTION READ ONLY", "executed_in_tests": True},
+        same_statement_as="mysql",
+    ),
+    "snowflake": Expected(
+        why="GROUPING SETS, exact PERCENTILE_CONT ... WITHIN GROUP; case-sensitive comparisons "
+            "by default. Not executed here: checked by sqlglot and the vendor's documentation.",
+        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont",
+              "executed_in_tests": False},
+        says=("PERCENTILE_CONT(0.5) WITHIN GROUP (ORDER BY", "GROUPING SETS",
+              "CAST(n AS DOUBLE)"),
+    ),
+    "bigquery": Expected(
+        why="GROUPING SETS and GROUPING(); no exact quantile aggregate sqlglot maps "
+            "faithfully, so the portable window method. LOG's arguments are reversed in "
+            "BigQuery: only LN is written. Not executed here.",
+        caps={"count_strategy": "grouping_sets", "quantile": "window",
+              "executed_in_tests": False},
+        says=("FROM `bitsift_golden`", "CAST(n AS FLOAT64)", "CAST(SUM(n) AS INT64)",
+              "ROW_NUMBER() OVER"),
+        never_says=("WITHIN GROUP",),
+    ),
+    "redshift": Expected(
+        why="GROUPING SETS; every PERCENTILE_CONT of one query must share its ORDER BY on "
+            "Redshift, so the window method. Not executed here.",
+        caps={"count_strategy": "grouping_sets", "quantile": "window",
+              "timeout_statement": "SET statement_timeout TO {ms}"},
+        says=("GROUPING SETS", "DOUBLE PRECISION"),
+        never_says=("PERCENTILE_CONT",),
+    ),
+    "trino": Expected(
+        why="GROUPING SETS; only approx_percentile natively (sqlglot rewrites exact "
+            "percentiles into it), so the window method. Not executed here.",
+        caps={"count_strategy": "grouping_sets", "quantile": "window"},
+        says=("GROUPING SETS", "CAST(n AS DOUBLE)"),
+        never_says_any_case=("APPROX",),
+    ),
+    "tsql": Expected(
+        why="GROUPING SETS; COUNT is 32-bit (sqlglot writes COUNT_BIG); one-argument LOG is "
+            "the natural log there (sqlglot writes LOG for LN); PERCENTILE_CONT is "
+            "window-only: window method. Default collations are case-insensitive and always "
+            "ignore trailing spaces: text grouped as VARBINARY(8000). Not executed here.",
+        caps={"count_strategy": "grouping_sets", "exact_key_type": "VARBINARY(8000)"},
+        says=("COUNT_BIG(*) AS n", "LOG(CAST(n AS FLOAT))",
+              "CAST(src.[word] AS VARBINARY(8000))"),
+        never_says=("LN(", " LIMIT ", " TOP "),
+    ),
+    "oracle": Expected(
+        why="GROUPING SETS, PERCENTILE_CONT ... WITHIN GROUP; no SELECT without FROM (the "
+            "attribute-index list of the cross-join strategy would need DUAL, so it is not "
+            "used), no AS before table aliases. Not executed here.",
+        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont"},
+        says=("FROM \"bitsift_golden\" src", "PERCENTILE_CONT(0.25) WITHIN GROUP"),
+        never_says=("LIMIT", "CLOB"),
+    ),
+    "databricks": Expected(
+        why="Spark SQL: GROUPING SETS; sqlglot turns WITHIN GROUP into percentile_approx "
+            "(approximate), so the window method. Not executed here.",
+        caps={"count_strategy": "grouping_sets", "quantile": "window"},
+        says=("FROM `bitsift_golden` AS src",),
+        never_says_any_case=("PERCENTILE",),
+    ),
+    "spark": Expected(
+        why="GROUPING SETS with one-column GROUPING(); quantiles by Spark's exact percentile() "
+            "aggregate (sqlglot would turn PERCENTILE_CONT ... WITHIN GROUP into the "
+            "approximate percentile_approx). Executed on a local Spark session in "
+            "tests/test_spark.py.",
+        caps={"count_strategy": "grouping_sets", "quantile": "percentile"},
+        says=("PERCENTILE(CAST(`score` AS DOUBLE), ARRAY(", "GROUPING(a1) = 0"),
+        never_says_any_case=("PERCENTILE_APPROX",),
+    ),
+    "clickhouse": Expected(
+        why="GROUPING SETS; non-grouped columns read '' or 0 instead of NULL, which is "
+            "harmless here because the rows of each grouping set are told apart by "
+            "GROUPING(); sqlglot's quantile is approximate, so the window method. Executed on "
+            "embedded ClickHouse (chdb) in tests/test_clickhouse.py.",
+        caps={"count_strategy": "grouping_sets", "quantile": "window"},
+        says=("GROUPING(a1) = 0", "Float64"),
+        never_says_any_case=("quantile(",),
+    ),
+}
+
+
+def test_every_dialect_has_one_entry_here() -> None:
+    # A dialect added to the capability table without its expectations (or the reverse) fails.
+    without_expectations = sorted(set(dialects.CAPABILITIES) - set(EXPECTED))
+    without_capabilities = sorted(set(EXPECTED) - set(dialects.CAPABILITIES))
+    assert without_expectations == []
+    assert without_capabilities == []
+
+
+@pytest.mark.parametrize("dialect", EXPECTED)
+def test_capability_entry(dialect: str) -> None:
+    caps = capabilities(dialect)
+    wanted = EXPECTED[dialect].caps
+    assert {field: getattr(caps, field) for field in wanted} == wanted
+
+
+@pytest.mark.parametrize("dialect", EXPECTED)
+def test_paste_sql(dialect: str) -> None:
+    expected = EXPECTED[dialect]
+    sql = paste_sql(dialect, "default")
+    assert invalid_constructs(sql, dialect) == []
+    assert [text for text in expected.says if text not in sql] == []
+    assert [text for text in expected.never_says if text in sql] == []
+    assert [text for text in expected.never_says_any_case if text.lower() in sql.lower()] == []
+    if expected.same_statement_as is not None:
+        other = expected.same_statement_as
+        assert sql.replace(f"dialect {dialect}", f"dialect {other}") == paste_sql(other, "default")
+
+
+# --- what only a running engine shows ----------------------------------------------------------
+
+
+def test_duckdb_timeout_interrupts_the_query() -> None:
+    connection = duckdb.connect()
+    connection.execute("CREATE TABLE big AS SELECT i % 7 AS a, (i * 13) % 11 AS b, i % 3 AS y "
+                       "FROM range(20000000) r(i)")
+    with pytest.raises(QueryTimeoutError, match="--timeout 0.001"):
+        bitsift.rank(connection, table="big", target="y", timeout=0.001)
+
+
+def test_sqlite_url_maps_to_its_entry_and_opens_read_only(tmp_path: Path) -> None:
+    path = tmp_path / "x.sqlite"
+    with sqlite3.connect(path) as connection:
+        connection.execute("CREATE TABLE t (a TEXT, y TEXT)")
+        connection.executemany("INSERT INTO t VALUES (?, ?)", [("p", "q"), ("r", "s")])
+    ranking = bitsift.rank(f"sqlite:///{path}", table="t", target="y")
+    assert ranking.dialect == "sqlite"
+    # The pragma is sent once, when the connection opens, before any query.
+    assert ranking.statements[0] == "PRAGMA query_only = ON"
+    assert ranking.statements.count("PRAGMA query_only = ON") == 1
+
+
+@pytest.mark.mariadb
+def test_mariadb_statements_sent_carry_read_only_and_timeout(mariadb_database: str) -> None:
+    dataset = random_dataset(seed=41, rows=60)
+    writer = sa.create_engine(MARIADB_URL, poolclass=sa.pool.NullPool)
+    with writer.begin() as connection:
+        fill_sqlalchemy("mariadb", connection, [mariadb_database, "t"], dataset)
+    writer.dispose()
+    ranking = bitsift.rank(MARIADB_URL, table=f"{mariadb_database}.t", target="y", timeout=30)
+    selects = [s for s in ranking.statements if "SELECT" in s]
+    assert selects and all(
+        s.startswith("SET STATEMENT max_statement_time = 30.000000 FOR ") for s in selects)
+    assert ranking.statements.count("SET TRANSACTION READ ONLY") == len(selects)
+
+
+def first_counts_branch(sql: str, dialect: str) -> str:
+    """The first SELECT of the ``counts`` CTE's UNION ALL, as one line of ``dialect``."""
+    tree = sqlglot.parse_one(sql, read=dialect)
+    counts = next(cte for cte in tree.find_all(exp.CTE) if cte.alias == "counts")
+    branch = counts.this
+    while isinstance(branch, exp.Union):
+        branch = branch.this
+    return branch.sql(dialect=dialect)
+
+
+def test_postgres_union_all_types_its_columns_before_the_null_branches(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    # PostgreSQL types UNION branches pairwise from the left: a first branch of NULLs only
+    # would make every attribute column text. The typed, row-less first branch prevents it.
+    grouping_sets = bitsift.statement(table="t", target="y", attributes="a,b",
+                                      dialect="postgres")
+    assert sqlglot.parse_one(grouping_sets, read="postgres").find(exp.GroupingSets) is not None
+    monkeypatch.setitem(dialects.CAPABILITIES, "postgres",
+                        dataclasses.replace(capabilities("postgres"), count_strategy="union_all"))
+    union_all = bitsift.statement(table="t", target="y", attributes="a,b", dialect="postgres")
+    assert (first_counts_branch(union_all, "postgres")
+            == "SELECT 0 AS attr, a1, a2, y, 0 AS n FROM base WHERE 1 = 0")
