@@ -217,3 +217,35 @@ def test_a_long_duckdb_statement_draws_no_progress_bar_on_stdout(slow_duckdb: Pa
     returned, out, err = finish(process, seconds=60)
     assert (returned, out) == (1, "")
     assert _one_line(err).startswith("Error: the query ran longer than --timeout 3 s")
+
+
+def test_cancel_after_the_connection_closed_is_quiet() -> None:
+    # Race seen in CI: the signal watcher cancelled an engine whose DuckDB connection the main
+    # thread had just closed; interrupt() raised and the watcher printed a thread traceback.
+    from bitsift.engines.duckdb_engine import DuckDBEngine
+
+    connection = duckdb.connect()
+    engine = DuckDBEngine.wrap(connection)
+    connection.close()
+    engine.cancel()
+    assert engine.cancelled.is_set()
+
+
+def test_cancel_all_reaches_every_engine_when_one_cancel_fails() -> None:
+    from bitsift.engines import base
+    from bitsift.engines.duckdb_engine import DuckDBEngine
+
+    class Broken(DuckDBEngine):
+        def cancel(self) -> None:
+            raise RuntimeError("connection gone")
+
+    broken = Broken.wrap(duckdb.connect())
+    healthy = DuckDBEngine.wrap(duckdb.connect())
+    ordered = {id(broken): broken, id(healthy): healthy}
+    live = base._LIVE
+    try:
+        base._LIVE = base.weakref.WeakValueDictionary(ordered)
+        base.cancel_all()
+    finally:
+        base._LIVE = live
+    assert healthy.cancelled.is_set()

@@ -130,7 +130,10 @@ def cancel_all() -> None:
     """Cancel every open engine's running statement, from any thread (the CLI's signal
     watcher: the main thread may be inside a statement that only returns once cancelled)."""
     for engine in list(_LIVE.values()):
-        engine.cancel()
+        try:
+            engine.cancel()
+        except Exception:  # noqa: BLE001 - best effort: one engine must not spare the others
+            continue
 
 
 def check_timeout_limit(caps: Capabilities, seconds: float | None) -> None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import threading
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -178,8 +179,11 @@ class DuckDBEngine(Engine):
         """From another thread: interrupt the running statement (``interrupt()`` is
         thread-safe), refuse new ones."""
         super().cancel()
-        if self.connection is not None:
-            self.connection.interrupt()
+        connection = self.connection  # close() may run meanwhile in the main thread
+        if connection is not None:
+            # A connection closed since: nothing is left running to interrupt.
+            with contextlib.suppress(duckdb.ConnectionException):
+                connection.interrupt()
 
     def close(self) -> None:
         if self.owned and self.connection is not None:
