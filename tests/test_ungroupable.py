@@ -122,6 +122,7 @@ def test_postgres_named_ungroupable_column_is_refused_in_one_line(
         assert named.lower() in lines[0].lower(), (command, lines[0])
 
 
+@pytest.mark.slow
 def test_duckdb_nested_types_are_ranked_and_checked(tmp_path: Path,
                                                     capsys: pytest.CaptureFixture[str]) -> None:
     path = tmp_path / "nested.duckdb"

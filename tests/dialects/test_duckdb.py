@@ -34,6 +34,7 @@ def test_paste_sql() -> None:
     assert "LN(CAST(n AS DOUBLE))" in sql
 
 
+@pytest.mark.slow
 def test_timeout_interrupts_the_query() -> None:
     connection = duckdb.connect()
     connection.execute("CREATE TABLE big AS SELECT i % 7 AS a, (i * 13) % 11 AS b, i % 3 AS y "
