@@ -24,6 +24,42 @@ MARIADB_URL = os.environ.get(
     "BITSIFT_TEST_MARIADB_URL", "mysql+pymysql://root@127.0.0.1:3306/test"
 )
 IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
+#: Fixtures that need a server or an optional stack, and the marker a test using them gets.
+FIXTURE_MARKERS: dict[str, str] = {
+    "postgres_engine": "postgres",
+    "mariadb_engine": "mariadb",
+    "spark": "spark",
+    "chdb_session": "clickhouse",
+}
+#: Values of an ``engine`` parameter that are servers: the test gets the server's marker.
+SERVER_ENGINES: frozenset[str] = frozenset({"postgres", "mariadb"})
+
+
+def pytest_collection_modifyitems(items: list[pytest.Item]) -> None:
+    """Mark each test with what it needs, so ``-m "not postgres"`` (``make test-fast``) leaves
+    out every test that needs the server, whether it names the marker itself or not: through
+    a fixture (also indirectly, e.g. ``pg_schema``) or an ``engine`` parameter."""
+    for item in items:
+        for marker in sorted(markers_needed(item)):
+            item.add_marker(marker)
+
+
+def markers_needed(item: pytest.Item) -> set[str]:
+    used = set(getattr(item, "fixturenames", ()))
+    needed = {marker for fixture, marker in FIXTURE_MARKERS.items() if fixture in used}
+    callspec = getattr(item, "callspec", None)
+    engine = callspec.params.get("engine") if callspec is not None else None
+    if isinstance(engine, str) and engine in SERVER_ENGINES:
+        needed.add(engine)
+    return needed
+
+
+def require_marker(request: pytest.FixtureRequest, marker: str) -> None:
+    """A test that reaches a server through ``request.getfixturevalue`` escapes the markers
+    given at collection: it must name the marker itself, or the fast lane would run it."""
+    if request.node.get_closest_marker(marker) is None:
+        pytest.fail(f"{request.node.nodeid} uses the {marker} server: "
+                    f"mark it @pytest.mark.{marker} (or parametrize engine={marker!r})")
 
 
 def unique_name(prefix: str = "bitsift_t") -> str:
@@ -55,8 +91,9 @@ def mariadb_engine() -> sa.Engine:
 
 
 @pytest.fixture
-def pg_schema(postgres_engine: sa.Engine) -> Iterator[str]:
+def pg_schema(postgres_engine: sa.Engine, request: pytest.FixtureRequest) -> Iterator[str]:
     """A fresh PostgreSQL schema, dropped afterwards."""
+    require_marker(request, "postgres")
     name = unique_name()
     with postgres_engine.begin() as connection:
         connection.exec_driver_sql(f'CREATE SCHEMA "{name}"')
@@ -68,8 +105,9 @@ def pg_schema(postgres_engine: sa.Engine) -> Iterator[str]:
 
 
 @pytest.fixture
-def mariadb_database(mariadb_engine: sa.Engine) -> Iterator[str]:
+def mariadb_database(mariadb_engine: sa.Engine, request: pytest.FixtureRequest) -> Iterator[str]:
     """A fresh MariaDB database (MariaDB's schemas), dropped afterwards."""
+    require_marker(request, "mariadb")
     name = unique_name()
     with mariadb_engine.begin() as connection:
         connection.exec_driver_sql(f"CREATE DATABASE `{name}` CHARACTER SET utf8mb4")

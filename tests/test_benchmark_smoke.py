@@ -43,6 +43,7 @@ def assert_agreement(result: dict[str, Any], expected: set[str]) -> None:
         assert worst < TOLERANCE, f"{label} differs from bitsift by {worst:g}: {differences}"
 
 
+@pytest.mark.slow
 def test_duckdb_side_by_side(tmp_path: Path) -> None:
     stdout, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "4")
     assert set(result["summaries"]) == {"a", "b", "b_arrow", "c", "d", "e"}
@@ -60,6 +61,7 @@ def test_duckdb_side_by_side(tmp_path: Path) -> None:
     assert set(result["agreement"]["e"]) == set(result["agreement"]["c"])
 
 
+@pytest.mark.slow
 def test_duckdb_concurrent_strategies_agree(tmp_path: Path) -> None:
     # The one-statement strategies are checked against each other by the parity tests; here
     # the per-attribute and split runs over two sessions (bitsift.concurrent), and the quantile
@@ -88,6 +90,7 @@ def test_postgres_side_by_side(tmp_path: Path, postgres_engine: sa.Engine) -> No
     assert left == 0, f"the benchmark left its schema {schema} behind"
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["sqlite", "mariadb"])
 def test_quantile_methods_agree(engine: str, request: pytest.FixtureRequest) -> None:
     # benchmarks/quantile_methods.py: every way of finding quantile bins, same gains.

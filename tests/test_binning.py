@@ -148,6 +148,7 @@ def duckdb_with(dataset: Dataset, table: str = "t") -> duckdb.DuckDBPyConnection
 # --- MDL ---------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_numpy_mdl_equals_the_papers_procedure_on_iris() -> None:
     X, y = load_iris(return_X_y=True)
     for feature in range(4):
@@ -155,6 +156,7 @@ def test_numpy_mdl_equals_the_papers_procedure_on_iris() -> None:
                                                             abs=1e-12)
 
 
+@pytest.mark.slow
 def test_mdl_through_the_database_equals_the_paper_on_iris() -> None:
     dataset = iris_dataset()
     with duckdb_with(dataset, "iris") as connection:
@@ -219,6 +221,7 @@ def test_mdl_resolution_is_documented() -> None:
 # --- best split --------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", range(4))
 def test_best_split_equals_a_brute_force_search(seed: int) -> None:
     dataset = tied_dataset(seed)
@@ -290,6 +293,7 @@ def test_equal_width_cuts_from_min_and_max() -> None:
         assert ranking[column].binning == "equal-width" and ranking[column].bins == 6
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("binning", ["quantile", "equal-width", "best-split", "mdl"])
 @pytest.mark.parametrize("missing", ["category", "drop"])
 def test_every_binning_matches_the_reference(binning: str, missing: str) -> None:
@@ -337,6 +341,7 @@ def date_part(value: Any, part: str) -> int | None:
     return int(getattr(value, part))
 
 
+@pytest.mark.slow
 def test_dates_as_epoch_seconds_under_any_binning() -> None:
     dataset = dated_dataset(1)
     with duckdb_with(dataset) as connection:
@@ -426,6 +431,7 @@ def test_columns_named_in_binning_options_are_checked() -> None:
 # --- CLI ---------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_cli_mdl_on_the_demo_shows_cuts_a_numpy_search_confirms(demo_db: Path) -> None:
     args = ["rank", str(demo_db), "--table", "trays", "--target", "outcome", "--binning", "mdl"]
     shown = CliRunner().invoke(cli, args)
@@ -462,6 +468,7 @@ def test_cli_sql_mdl_needs_a_source(capsys: pytest.CaptureFixture[str]) -> None:
     assert "Python step" in error and "SOURCE" in error
 
 
+@pytest.mark.slow
 def test_cli_sql_mdl_with_a_source_inlines_the_cuts(tmp_path: Path) -> None:
     dataset = iris_dataset()
     path = tmp_path / "iris.duckdb"
@@ -488,6 +495,7 @@ def test_cli_sql_mdl_with_a_source_inlines_the_cuts(tmp_path: Path) -> None:
         assert rows[scored.attribute]["distinct_values"] == scored.distinct
 
 
+@pytest.mark.slow
 def test_cli_binning_options_reach_the_ranking(tmp_path: Path) -> None:
     dataset = tied_dataset(5)
     path = tmp_path / "t.duckdb"

@@ -98,6 +98,7 @@ def assert_cuts(got: list[float] | None, want: list[float], where: str) -> None:
         assert abs(a - b) <= 1e-12 * max(1.0, abs(b)), f"{where}: {got} != {want}"
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_every_binning_gives_the_same_bins_on_every_engine(
         engine: str, request: pytest.FixtureRequest) -> None:
@@ -125,6 +126,7 @@ def test_every_binning_gives_the_same_bins_on_every_engine(
                     context)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_mdl_on_iris_equals_the_paper_on_every_engine(
         engine: str, request: pytest.FixtureRequest) -> None:
@@ -158,6 +160,7 @@ def test_date_parts_give_the_same_categories_on_every_engine(
                     context)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_check_compares_binned_dates_with_the_reference(
         engine: str, request: pytest.FixtureRequest) -> None:

@@ -86,6 +86,7 @@ def db_args(path: Path) -> list[str]:
     return [str(path), "--table", "visits", "--target", "converted"]
 
 
+@pytest.mark.slow
 def test_json_contract_keys_order_and_types(visits_db: Path) -> None:
     payload = rank_json(*db_args(visits_db))
     assert list(payload) == TOP_KEYS
@@ -115,6 +116,7 @@ def test_json_contract_keys_order_and_types(visits_db: Path) -> None:
     assert "id_like" in flags["visit_id"] and "constant" in flags["region"]
 
 
+@pytest.mark.slow
 def test_parquet_source_gives_the_same_numbers(visits_db: Path) -> None:
     from_db = rank_json(*db_args(visits_db))
     parquet = visits_db.with_suffix(".parquet")
@@ -123,6 +125,7 @@ def test_parquet_source_gives_the_same_numbers(visits_db: Path) -> None:
     assert_same_attributes(from_file["attributes"], from_db["attributes"])
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("metric", ["information_gain", "gain_ratio", "symmetric_uncertainty"])
 def test_sort_orders(visits_db: Path, metric: str) -> None:
     payload = rank_json(*db_args(visits_db), "--sort", metric)
@@ -131,6 +134,7 @@ def test_sort_orders(visits_db: Path, metric: str) -> None:
     assert len(keys) == len(ATTRIBUTES)
 
 
+@pytest.mark.slow
 def test_default_sort_is_information_gain(visits_db: Path) -> None:
     default = rank_json(*db_args(visits_db))
     explicit = rank_json(*db_args(visits_db), "--sort", "information_gain")
@@ -141,6 +145,7 @@ def test_default_sort_is_information_gain(visits_db: Path) -> None:
     assert by_ratio["attributes"][0]["attribute"] != "visit_id"
 
 
+@pytest.mark.slow
 def test_limit_keeps_the_top(visits_db: Path) -> None:
     full = rank_json(*db_args(visits_db))
     top = rank_json(*db_args(visits_db), "--limit", "2")
@@ -150,6 +155,7 @@ def test_limit_keeps_the_top(visits_db: Path) -> None:
         assert top[key] == full[key]
 
 
+@pytest.mark.slow
 def test_attributes_and_exclude(visits_db: Path) -> None:
     picked = rank_json(*db_args(visits_db), "--attributes", "channel,weekday")
     assert {a["attribute"] for a in picked["attributes"]} == {"channel", "weekday"}
@@ -162,6 +168,7 @@ def test_attributes_and_exclude(visits_db: Path) -> None:
     assert {a["attribute"] for a in both["attributes"]} == {"channel", "weekday"}
 
 
+@pytest.mark.slow
 def test_categorical_and_numeric_overrides(visits_db: Path) -> None:
     payload = rank_json(*db_args(visits_db), "--categorical", "amount", "--numeric", "weekday",
                         "--bins", "3")
@@ -176,6 +183,7 @@ def test_categorical_and_numeric_overrides(visits_db: Path) -> None:
     assert default["weekday"]["kind"] == "categorical" and default["weekday"]["distinct"] == 5
 
 
+@pytest.mark.slow
 def test_missing_drop(visits_db: Path) -> None:
     category = {a["attribute"]: a for a in rank_json(*db_args(visits_db))["attributes"]}
     dropped = {a["attribute"]: a for a in
@@ -211,6 +219,7 @@ def test_table_format_is_aligned(visits_db: Path) -> None:
     assert "flags:" in lines and any(line.strip().startswith("id_like:") for line in lines)
 
 
+@pytest.mark.slow
 def test_csv_format(visits_db: Path) -> None:
     payload = rank_json(*db_args(visits_db))
     result = invoke("rank", *db_args(visits_db), "--format", "csv")
@@ -246,6 +255,7 @@ def _parse_one(sql: str, dialect: str) -> exp.Expression:
     return trees[0]
 
 
+@pytest.mark.slow
 def test_sql_command_parses_and_matches_rank(visits_db: Path) -> None:
     result = invoke("sql", *db_args(visits_db), "--missing", "drop")
     assert result.exit_code == 0, result.output
@@ -270,6 +280,7 @@ def test_sql_command_parses_and_matches_rank(visits_db: Path) -> None:
         assert pasted[name]["distinct_values"] == attribute["distinct"]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("dialect", ["duckdb", "postgres", "sqlite", "mysql"])
 def test_sql_command_without_source(dialect: str) -> None:
     result = invoke("sql", "--table", "sales.orders", "--target", "late",
@@ -320,6 +331,7 @@ def run_script(*args: str) -> subprocess.CompletedProcess[str]:
                           check=False)
 
 
+@pytest.mark.slow
 def test_installed_script_ranks_a_parquet_file(visits_db: Path) -> None:
     done = run_script("rank", str(visits_db.with_suffix(".parquet")), "--target", "converted",
                       "--format", "json", "--limit", "3")
@@ -329,6 +341,7 @@ def test_installed_script_ranks_a_parquet_file(visits_db: Path) -> None:
     assert done.stderr == ""
 
 
+@pytest.mark.slow
 def test_installed_script_error_is_one_line(visits_db: Path) -> None:
     done = run_script("rank", str(visits_db), "--table", "visits", "--target", "convrted",
                       "-a", "chanel")
@@ -342,6 +355,7 @@ def test_installed_script_error_is_one_line(visits_db: Path) -> None:
     assert "Traceback" not in done.stderr
 
 
+@pytest.mark.slow
 def test_installed_script_debug_shows_traceback(visits_db: Path) -> None:
     done = run_script("--debug", "rank", str(visits_db), "--table", "visits",
                       "--target", "convrted")
@@ -350,6 +364,7 @@ def test_installed_script_debug_shows_traceback(visits_db: Path) -> None:
     assert "ColumnError" in done.stderr
 
 
+@pytest.mark.slow
 def test_demo_ranking_shows_every_flag(demo_db: Path) -> None:
     # What `make demo` runs, on the session's 20,000-row demo table.
     result = invoke("rank", demo_db, "--table", "trays", "--target", "outcome")

@@ -60,9 +60,10 @@ def chdb_session() -> Any:
     try:
         import chdb.session
     except ImportError as error:
+        message = f"chdb is not installed ({error}): pip install -e '.[test-all]' (make test)"
         if IN_CI:
-            pytest.fail(f"chdb is not installed: {error}")
-        pytest.skip(f"chdb is not installed: {error}")
+            pytest.fail(message)
+        pytest.skip(message)
     return chdb.session
 
 

@@ -105,6 +105,7 @@ def _assert_identical_twins(payload: dict[str, Any]) -> None:
         assert {**twin, "attribute": "a_copy"} == copy
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres", "mariadb"])
 def test_rank_prints_the_same_bytes_on_every_run(engine: str,
                                                  request: pytest.FixtureRequest) -> None:

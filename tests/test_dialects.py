@@ -213,6 +213,7 @@ def test_paste_sql(dialect: str) -> None:
 # --- what only a running engine shows ----------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_duckdb_timeout_interrupts_the_query() -> None:
     connection = duckdb.connect()
     connection.execute("CREATE TABLE big AS SELECT i % 7 AS a, (i * 13) % 11 AS b, i % 3 AS y "

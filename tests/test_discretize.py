@@ -67,6 +67,7 @@ def histogram(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return values, h
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("feature", range(4))
 def test_mdl_on_iris_equals_the_papers_procedure(feature: int) -> None:
     # iris is bundled with scikit-learn (Fisher 1936), no download.
@@ -93,6 +94,7 @@ def test_mdl_refuses_to_cut_noise() -> None:
     assert mdl_cut_indices(histogram(x, y)[1]) == []
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", range(5))
 def test_best_split_equals_brute_force(seed: int) -> None:
     rng = np.random.default_rng(seed)

@@ -81,6 +81,7 @@ def plant_change(path: Path) -> None:
         con.execute(PLANTED.format(table="t"))
 
 
+@pytest.mark.slow
 def test_planted_change_is_drift_and_exits_3(tmp_path: Path) -> None:
     source = duckdb_source(tmp_path / "src.duckdb")
     job_file = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))
@@ -123,6 +124,7 @@ def test_planted_change_is_drift_and_exits_3(tmp_path: Path) -> None:
     assert not loose.drifted
 
 
+@pytest.mark.slow
 def test_drift_errors(tmp_path: Path) -> None:
     duckdb_source(tmp_path / "src.duckdb")
     job_file = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))

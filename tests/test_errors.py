@@ -96,6 +96,7 @@ def test_column_names_match_case_insensitively(capsys: pytest.CaptureFixture[str
     assert out.splitlines()[1].startswith("region,")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("table", "expected"),
     [
@@ -117,6 +118,7 @@ def test_where_matching_no_rows(capsys: pytest.CaptureFixture[str], shop: Path) 
     assert "no rows to rank matching --where" in line
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("where", "expected"),
     [
@@ -208,6 +210,7 @@ def test_debug_raises_with_traceback(capsys: pytest.CaptureFixture[str], shop: P
         main(["--debug", "rank", str(shop), "--table", "nope", "--target", "delivery"])
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     ("kwargs", "error"),
     [

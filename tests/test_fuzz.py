@@ -451,12 +451,14 @@ FUZZ_SERVER = settings(FUZZ, max_examples=max(1, EXAMPLES * 3 // 5))
 timeouts = st.sampled_from([None, None, 600.0])
 
 
+@pytest.mark.slow
 @FUZZ
 @given(example=hostile_tables("duckdb"), timeout=timeouts)
 def test_fuzz_duckdb(example: tuple[str, Dataset], timeout: float | None) -> None:
     check_example("duckdb", *example, None, timeout)
 
 
+@pytest.mark.slow
 @FUZZ
 @given(example=hostile_tables("sqlite"), timeout=timeouts)
 def test_fuzz_sqlite(example: tuple[str, Dataset], timeout: float | None,
@@ -561,6 +563,7 @@ def test_postgres_case_variant_names_stay_apart(pg_schema: str) -> None:
 # --- what fuzzing found, kept as plain regression tests ----------------------------------------
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "sqlite", "postgres", "mariadb"])
 def test_regressions_found_by_fuzzing(engine: str, request: pytest.FixtureRequest) -> None:
     # A column name with a backtick (SQLAlchemy's MySQL reflection doubled it), a float column
@@ -585,6 +588,7 @@ def test_regressions_found_by_fuzzing(engine: str, request: pytest.FixtureReques
                 assert len(rows_back) == 4  # the target and three attributes
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("name", ["counts", "Base", "cells"])
 def test_paste_mode_refuses_an_unqualified_table_named_like_a_step(name: str) -> None:
     # Without a SOURCE bitsift cannot look up the table's schema: the pasted statement would

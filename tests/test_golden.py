@@ -48,6 +48,7 @@ def test_statement_matches_golden_file(dialect: str, variant: str) -> None:
     )
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(("dialect", "variant"), CASES)
 def test_golden_file_parses_back_as_one_select(dialect: str, variant: str) -> None:
     text = golden_path(dialect, variant).read_text(encoding="utf-8")
@@ -61,6 +62,7 @@ def test_golden_file_parses_back_as_one_select(dialect: str, variant: str) -> No
     assert uses_sets == (capabilities(dialect).count_strategy == "grouping_sets")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(("dialect", "variant"), CASES)
 def test_golden_file_has_no_known_invalid_construct(dialect: str, variant: str) -> None:
     text = golden_path(dialect, variant).read_text(encoding="utf-8")
@@ -78,6 +80,7 @@ def test_invalid_construct_check_catches_the_pitfalls() -> None:
     assert invalid_constructs("SELECT COUNT(*) FROM t", "tsql")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("dialect", PASTE_DIALECTS)
 def test_sql_command_output_parses_back(dialect: str) -> None:
     result = CliRunner().invoke(cli, [
@@ -99,6 +102,7 @@ COMPARED = ("information_gain", "gain_ratio", "symmetric_uncertainty", "conditio
             "attribute_entropy", "target_entropy", "g_statistic")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_golden_sql_executes_and_equals_rank(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=11, rows=900)

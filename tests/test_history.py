@@ -57,7 +57,9 @@ def rows_of(ranking: bitsift.Ranking, run_id: str = "r1") -> list[dict[str, obje
                         options={"target": "y", "bins": 10})
 
 
-@pytest.fixture(params=["duckdb", "sqlite", "postgres", "mariadb"])
+@pytest.fixture(params=["duckdb", "sqlite",
+                        pytest.param("postgres", marks=pytest.mark.postgres),
+                        pytest.param("mariadb", marks=pytest.mark.mariadb)])
 def destination(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[Destination]:
     if request.param == "duckdb":
         yield Destination(str(tmp_path / "h.duckdb"), "history")
@@ -104,6 +106,7 @@ def test_rows_of_a_ranking(ranking: bitsift.Ranking) -> None:
     assert first["segment"] == "" and first["schema_version"] == SCHEMA_VERSION
 
 
+@pytest.mark.slow
 def test_creates_the_table_and_round_trips_rows(destination: Destination,
                                                 ranking: bitsift.Ranking) -> None:
     with open_store(destination, write=True) as store:
@@ -136,6 +139,7 @@ def test_a_failed_write_changes_nothing(destination: Destination,
         assert [(r.run_id, r.rows) for r in store.runs("j")] == [("r1", 4)]
 
 
+@pytest.mark.slow
 def test_an_incompatible_table_is_refused_and_left_alone(destination: Destination,
                                                          ranking: bitsift.Ranking,
                                                          tmp_path: Path) -> None:
@@ -172,6 +176,7 @@ def test_rows_from_a_newer_schema_are_refused(tmp_path: Path, ranking: bitsift.R
         store.check()
 
 
+@pytest.mark.slow
 def test_schema_qualified_table_in_duckdb(tmp_path: Path, ranking: bitsift.Ranking) -> None:
     destination = Destination(str(tmp_path / "h.duckdb"), "ops.rank_history")
     execute(destination, "CREATE SCHEMA ops")
@@ -249,6 +254,7 @@ def _child(script: str, *args: str) -> subprocess.Popen[str]:
                             preexec_fn=_default_sigint if os.name == "posix" else None)  # noqa: PLW1509
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("table_exists", [False, True], ids=["first-runs", "reruns"])
 def test_concurrent_runs_of_one_run_id_leave_one_record_set(destination: Destination,
                                                              tmp_path: Path,
@@ -276,6 +282,7 @@ def test_concurrent_runs_of_one_run_id_leave_one_record_set(destination: Destina
         [("all", p) for p in range(1, 4)] + [("positive", p) for p in range(1, 5)])
 
 
+@pytest.mark.slow
 def test_a_results_file_held_too_long_fails_before_ranking(tmp_path: Path,
                                                            monkeypatch: pytest.MonkeyPatch
                                                            ) -> None:
@@ -322,6 +329,7 @@ def test_rows_of_another_run_are_refused(tmp_path: Path, ranking: bitsift.Rankin
         assert store.runs("j") == [] and store.runs("nightly") == []
 
 
+@pytest.mark.slow
 def test_twin_job_names_and_run_ids_stay_apart(destination: Destination,
                                                ranking: bitsift.Ranking) -> None:
     # Issue 16 item 6: on MariaDB the default collation ignores case and trailing spaces, so
@@ -388,6 +396,7 @@ def _odd_names_job(folder: Path, destination: Destination) -> Path:
     return job_file
 
 
+@pytest.mark.slow
 def test_names_of_any_length_and_script_are_stored(destination: Destination,
                                                    tmp_path: Path,
                                                    capsys: pytest.CaptureFixture[str]) -> None:
@@ -474,6 +483,7 @@ def test_dry_run_refuses_a_missing_schema(engine: str, tmp_path: Path,
                         "create it, or choose another results table\n")
 
 
+@pytest.mark.slow
 def test_ctrl_c_during_a_duckdb_history_write_exits_130(tmp_path: Path) -> None:
     # Issue 16 item 8: DuckDB reports Ctrl-C inside a statement as RuntimeError("Query
     # interrupted"), which bitsift printed as "unexpected RuntimeError" with exit code 1.

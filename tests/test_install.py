@@ -32,16 +32,19 @@ def run(*args: str | Path, cwd: Path | None = None) -> subprocess.CompletedProce
 
 
 @pytest.fixture(scope="module")
-def installed(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """A fresh venv with the wheel of this checkout installed; returns the venv folder."""
-    work = tmp_path_factory.mktemp("install")
-    wheels = work / "wheels"
+def wheel(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The wheel of this checkout."""
+    wheels = tmp_path_factory.mktemp("wheels")
     run(sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "--quiet",
         "--wheel-dir", wheels, ROOT)
-    (wheel,) = wheels.glob("bitsift-*.whl")
-    with zipfile.ZipFile(wheel) as archive:
-        names = archive.namelist()
-    assert "bitsift/templates/rank.sql.j2" in names
+    (built,) = wheels.glob("bitsift-*.whl")
+    return built
+
+
+@pytest.fixture(scope="module")
+def installed(tmp_path_factory: pytest.TempPathFactory, wheel: Path) -> Path:
+    """A fresh venv with the wheel of this checkout installed; returns the venv folder."""
+    work = tmp_path_factory.mktemp("install")
     venv = work / "venv"
     run(sys.executable, "-m", "venv", "--without-pip", venv)
     python = venv / "bin" / "python"
@@ -63,6 +66,15 @@ def table_file(tmp_path_factory: pytest.TempPathFactory) -> Path:
             f"FROM range(240) r(i)) TO '{path}' (FORMAT parquet)"
         )
     return path
+
+
+@pytest.mark.slow
+def test_wheel_ships_templates_and_type_marker(wheel: Path) -> None:
+    with zipfile.ZipFile(wheel) as archive:
+        names = archive.namelist()
+    assert "bitsift/templates/rank.sql.j2" in names
+    # PEP 561: without py.typed, type checkers ignore the package's annotations.
+    assert "bitsift/py.typed" in names
 
 
 INSPECT = """

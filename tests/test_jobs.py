@@ -227,6 +227,7 @@ where = "amount > 0 AND colour = 'red'"
 # --- runs on DuckDB ---------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_run_twice_then_rerun_with_same_id_on_duckdb(tmp_path: Path) -> None:
     duckdb_source(tmp_path / "src.duckdb")
     job = load_job(write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb", "main.h")))
@@ -251,6 +252,7 @@ def test_run_twice_then_rerun_with_same_id_on_duckdb(tmp_path: Path) -> None:
     assert {r["source_table"] for r in rows} == {"t"}
 
 
+@pytest.mark.slow
 def test_a_failing_ranking_leaves_no_rows(tmp_path: Path) -> None:
     duckdb_source(tmp_path / "src.duckdb")
     good = load_job(write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb")))
@@ -273,6 +275,7 @@ def test_a_failing_ranking_leaves_no_rows(tmp_path: Path) -> None:
     assert not (tmp_path / "fresh.duckdb").exists()
 
 
+@pytest.mark.slow
 def test_cli_run_and_dry_run(tmp_path: Path) -> None:
     duckdb_source(tmp_path / "src.duckdb")
     path = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))
@@ -289,6 +292,7 @@ def test_cli_run_and_dry_run(tmp_path: Path) -> None:
     assert bad.exit_code == 1 and "--run-id must be 1 to 100 printable" in str(bad.exception)
 
 
+@pytest.mark.slow
 def test_example_job_runs_on_the_demo_data(tmp_path: Path, demo_db: Path) -> None:
     (tmp_path / "data").mkdir()
     shutil.copy(demo_db, tmp_path / "data" / "greenhouse.duckdb")

@@ -124,6 +124,7 @@ def test_million_distinct_values_keep_client_memory_flat(pg_schema: str,
             assert abs(scores["grp"][metric] - want) <= 1e-9 * max(1, abs(want)), metric
 
 
+@pytest.mark.slow
 def test_million_distinct_text_values_on_duckdb() -> None:
     connection = duckdb.connect()
     connection.execute("CREATE TABLE t AS SELECT md5(CAST(i AS VARCHAR)) AS code, i AS id, "
@@ -179,6 +180,7 @@ def test_500_columns_rank_in_batches(engine: str, request: pytest.FixtureRequest
     assert bool(over_counts) == (capabilities(engine).run_quantile == "counted"), engine
 
 
+@pytest.mark.slow
 def test_batches_agree_with_one_statement(monkeypatch: pytest.MonkeyPatch) -> None:
     # The same 100 attributes ranked in one statement and in batches of 40 give the same
     # numbers: the target's row is taken once, the attributes renumbered.
@@ -209,6 +211,7 @@ def test_batches_agree_with_one_statement(monkeypatch: pytest.MonkeyPatch) -> No
 # --- 200 classes --------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_200_classes(engine: str, request: pytest.FixtureRequest) -> None:
     rng = np.random.default_rng(200)

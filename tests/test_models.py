@@ -72,6 +72,7 @@ def check_models(job: Job, out: Path, dialect: str, run_sql: object) -> None:
     assert "a (numeric)" in second
 
 
+@pytest.mark.slow
 def test_models_on_duckdb_equal_rank(tmp_path: Path) -> None:
     source = duckdb_source(tmp_path / "src.duckdb")
     job = load_job(write_job(tmp_path, job_text(str(source), "t")))
@@ -98,6 +99,7 @@ def test_models_on_postgres_equal_rank(tmp_path: Path, postgres_engine: sa.Engin
     check_models(job, tmp_path / "models", "postgres", run_sql)
 
 
+@pytest.mark.slow
 def test_models_cli_and_name_clashes(tmp_path: Path) -> None:
     source = duckdb_source(tmp_path / "src.duckdb")
     path = write_job(tmp_path, job_text(str(source), "t"))

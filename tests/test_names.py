@@ -77,6 +77,7 @@ def twin_files(tmp_path: Path) -> dict[str, Path]:
     return {"parquet": parquet, "csv": csv, "ndjson": ndjson, "json": array}
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("kind", ["parquet", "csv", "ndjson", "json"])
 @pytest.mark.parametrize("target", ["y", "Y", "k"])
 def test_a_file_with_case_twins_is_refused(twin_files: dict[str, Path], kind: str,
@@ -143,6 +144,7 @@ def unicode_file(tmp_path: Path) -> Path:
     return path
 
 
+@pytest.mark.slow
 def test_exact_spelling_wins_among_unicode_twins(unicode_file: Path) -> None:
     every = [NFC_E, NFD_E, "\u00c9x", "\u00e9x"]
     for wanted in every:
@@ -237,6 +239,7 @@ def evil_file(tmp_path: Path) -> Path:
     return path
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("fmt", ["table", "markdown"])
 @pytest.mark.parametrize("by", [[], ["--by", RED]])
 def test_text_formats_escape_control_characters(evil_file: Path, fmt: str, by: list[str],
@@ -254,6 +257,7 @@ def test_text_formats_escape_control_characters(evil_file: Path, fmt: str, by: l
         assert "seg\\x1b[31m" in out
 
 
+@pytest.mark.slow
 def test_json_and_csv_keep_names_exact(evil_file: Path,
                                        capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run_main(capsys, "rank", evil_file, "--target", "t", "--format", "json")
@@ -265,6 +269,7 @@ def test_json_and_csv_keep_names_exact(evil_file: Path,
     assert {r["attribute"] for r in csv.DictReader(io.StringIO(out))} == names
 
 
+@pytest.mark.slow
 def test_html_report_shows_escapes(evil_file: Path, tmp_path: Path,
                                    capsys: pytest.CaptureFixture[str]) -> None:
     page = tmp_path / "report.html"
@@ -275,6 +280,7 @@ def test_html_report_shows_escapes(evil_file: Path, tmp_path: Path,
     assert EVIL_SHOWN in html
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("command", [
     ["profile", "--attribute", EVIL],
     ["redundancy"],
@@ -326,6 +332,7 @@ def test_where_refuses_variables_and_introducers(dialect: str, text: str, messag
         parse_predicate(text, WHERE_COLUMNS, dialect)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("text", [
     "(" * 3000 + "a = 1" + ")" * 3000,
     "NOT " * 3000 + "a = 1",
@@ -340,6 +347,7 @@ def test_where_nested_too_deeply_is_one_clear_line(text: str, tmp_path: Path,
     assert f"nests more than {MAX_NESTING} levels" in line
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("by", [None, "a"])
 def test_where_at_the_nesting_limit_runs_end_to_end(tmp_path: Path, by: str | None) -> None:
     path = tmp_path / "t.parquet"
@@ -389,6 +397,7 @@ def test_a_sqlite_url_never_creates_the_database(tmp_path: Path, form: str) -> N
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.slow
 def test_an_existing_sqlite_database_opens_through_a_file_uri(tmp_path: Path) -> None:
     path = tmp_path / "shop.db"
     with sqlite3.connect(path) as connection:

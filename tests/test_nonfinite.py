@@ -81,6 +81,7 @@ def test_report_segments_compare_with_typed_literals(engine: str,
         assert sorted(sum(v.counts) for v in values) == [4, 4, 4], run.segment
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres"])
 def test_segmented_json_is_strict(engine: str, request: pytest.FixtureRequest) -> None:
     with loaded(engine, segmented_dataset(), request, duckdb_file=True) as where:

@@ -127,6 +127,7 @@ def con() -> Iterator[duckdb.DuckDBPyConnection]:
     connection.close()
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("missing", ["category", "drop"])
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6])
 def test_metrics_match_scipy_and_sklearn(con: duckdb.DuckDBPyConnection, seed: int,
@@ -206,6 +207,7 @@ def test_constant_and_single_value_attributes(con: duckdb.DuckDBPyConnection) ->
 AWKWARD_NAMES = ['select', 'a"b', "x y", "Ünïcödé", "group", "it's", "1st"]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("target_type", ["BIGINT", "BOOLEAN", "VARCHAR"])
 def test_awkward_names_and_target_types(con: duckdb.DuckDBPyConnection,
                                         target_type: str) -> None:

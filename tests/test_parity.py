@@ -37,6 +37,7 @@ CASES = [(e, s) for e, strategies in STRATEGIES.items() for s in strategies]
 NUMERIC = (*NUMERIC_COLUMNS, "level")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(("engine", "strategy"), CASES)
 def test_every_strategy_matches_the_reference(engine: str, strategy: str,
                                               request: pytest.FixtureRequest) -> None:
@@ -49,6 +50,7 @@ def test_every_strategy_matches_the_reference(engine: str, strategy: str,
                                      missing=missing, context=f"{engine}/{strategy}/{missing}")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", list(QUANTILES))
 def test_every_quantile_method_matches_numpy(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=5, rows=1200)

@@ -105,6 +105,7 @@ def assert_agrees_with_ranking(run: ProfiledRun, context: str) -> None:
         assert math.isclose(math.fsum(v.share for v in found.values), 1.0, abs_tol=1e-12), where
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_counts_match_python_on_every_engine(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=71, rows=700)
@@ -124,6 +125,7 @@ def test_counts_match_python_on_every_engine(engine: str, request: pytest.Fixtur
     assert [v.kind for v in score.values] == ["bin"] * (len(score.cuts or ()) + 1) + ["missing"]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join"])
 @pytest.mark.parametrize("missing", ["category", "drop"])
 def test_every_count_strategy_gives_the_same_counts(strategy: str, missing: str) -> None:
@@ -173,6 +175,7 @@ def test_merged_rest_keeps_the_conditional_entropy_exact() -> None:
     assert abs(word.values[1].entropy - mean) <= 1e-9
 
 
+@pytest.mark.slow
 def test_statement_is_valid_for_every_dialect() -> None:
     columns = [Column("y", "text"), Column("word", "text"), Column("level", "integer"),
                Column("score", "float")]
@@ -211,6 +214,7 @@ def _demo_connection() -> duckdb.DuckDBPyConnection:
     return connection
 
 
+@pytest.mark.slow
 def test_sensitive_names_are_resolved_and_checked() -> None:
     connection = _demo_connection()
     run = rank_and_profile(connection, target="paid", table="people", sensitive="SEX",
@@ -228,6 +232,7 @@ def _invoke(args: list[str]) -> Any:
     return CliRunner().invoke(cli, args, catch_exceptions=False)
 
 
+@pytest.mark.slow
 def test_profile_command_table_and_json(tmp_path: Any) -> None:
     path = tmp_path / "people.duckdb"
     connection = duckdb.connect(str(path))
@@ -280,6 +285,7 @@ class _Terminal(io.StringIO):
         return True
 
 
+@pytest.mark.slow
 def test_progress_only_on_a_terminal_and_never_with_quiet() -> None:
     terminal = _Terminal()
     say = progress_printer(False, terminal)

@@ -13,6 +13,7 @@ from typing import Any
 
 import duckdb
 import pyarrow as pa
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -95,6 +96,7 @@ def assert_matches_reference(scored: bitsift.AttributeScore, values: Sequence[An
     assert wrong == {}, scored.attribute
 
 
+@pytest.mark.slow
 @PROPERTY_SETTINGS
 @given(table=tables(), missing=st.sampled_from(["category", "drop"]))
 def test_sql_equals_numpy_reference_and_is_bounded(table: dict[str, Any], missing: str) -> None:
@@ -120,6 +122,7 @@ def assert_bounded(s: bitsift.AttributeScore) -> None:
     assert s.conditional_entropy <= s.target_entropy + 1e-12
 
 
+@pytest.mark.slow
 @PROPERTY_SETTINGS
 @given(table=tables(), order=st.randoms(use_true_random=False), data=st.data())
 def test_invariant_under_row_order_and_relabelling(table: dict[str, Any], order: Any,
@@ -152,6 +155,7 @@ def test_invariant_under_row_order_and_relabelling(table: dict[str, Any], order:
             assert abs(getattr(a, metric) - getattr(b, metric)) <= 1e-12, (name, metric)
 
 
+@pytest.mark.slow
 @PROPERTY_SETTINGS
 @given(table=tables(numeric=True), bins=st.integers(2, 12),
        missing=st.sampled_from(["category", "drop"]))

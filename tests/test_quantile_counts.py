@@ -43,6 +43,7 @@ def _assert_counted(ranking: Ranking) -> None:
     assert "quantile_cont" not in sent and ROW_BINNING not in sent
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("missing", ["category", "drop"])
 @pytest.mark.parametrize("bins", [10, 3, 7])
 def test_counted_bins_equal_the_numpy_reference(missing: str, bins: int,
@@ -59,6 +60,7 @@ def test_counted_bins_equal_the_numpy_reference(missing: str, bins: int,
                              context=f"missing={missing} bins={bins}")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("missing", ["category", "drop"])
 def test_counted_shapes_equal_the_row_by_row_bins(missing: str,
                                                   request: pytest.FixtureRequest) -> None:
@@ -91,6 +93,7 @@ def _tied_dataset(rows: int, seed: int) -> Dataset:
                    rows=data)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("options", [{}, {"where": "grp <> 2"}, {"missing": "drop", "bins": 4},
                                      {"bins": 2}, {"bins": 50}])
 def test_counted_bins_equal_the_row_by_row_bins(options: dict[str, Any],
@@ -127,6 +130,7 @@ def test_only_dialects_that_can_run_it_count() -> None:
     assert all(capabilities(d).run_quantile != "counted" for d in ("mysql", "mariadb"))
 
 
+@pytest.mark.slow
 def test_infinite_and_nan_values_are_ranked_the_usual_way(
         request: pytest.FixtureRequest) -> None:
     dataset = non_finite_dataset(rows=500, seed=4)
@@ -141,6 +145,7 @@ def test_infinite_and_nan_values_are_ranked_the_usual_way(
         assert a.cuts == b.cuts, a.attribute
 
 
+@pytest.mark.slow
 def test_a_table_changing_between_the_steps_is_ranked_the_usual_way(
         monkeypatch: pytest.MonkeyPatch) -> None:
     # Rows arrive after step 2 counted the buckets, on every cut point: step 3's bucket sizes
@@ -170,6 +175,7 @@ def test_a_table_changing_between_the_steps_is_ranked_the_usual_way(
     assert_same_ranking(ranking, fresh)
 
 
+@pytest.mark.slow
 def test_too_many_given_rows_are_binned_by_the_ranking_statement(
         monkeypatch: pytest.MonkeyPatch, request: pytest.FixtureRequest) -> None:
     dataset = shaped_dataset(rows=1000, seed=2)
@@ -183,6 +189,7 @@ def test_too_many_given_rows_are_binned_by_the_ranking_statement(
         assert a.cuts == b.cuts, a.attribute
 
 
+@pytest.mark.slow
 def test_a_file_source_counts_on_its_own_session(request: pytest.FixtureRequest) -> None:
     # A DuckDB file bitsift opens itself: categorical attributes on one session, the counted
     # numeric ones on another, at once; the merged rows equal one session's.
@@ -195,6 +202,7 @@ def test_a_file_source_counts_on_its_own_session(request: pytest.FixtureRequest)
     assert_matches_reference(two, dataset, "y", numeric=SHAPES)
 
 
+@pytest.mark.slow
 def test_segments_and_weights_keep_the_row_by_row_binning(
         request: pytest.FixtureRequest) -> None:
     dataset = shaped_dataset(rows=600, seed=3)
@@ -227,6 +235,7 @@ def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None
     assert counted.attributes[0].cuts == row_by_row.attributes[0].cuts
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("options", [{}, {"missing": "drop", "bins": 7}])
 def test_decimal_date_integer_and_timestamp_columns_count_like_floats(
         options: dict[str, Any]) -> None:

@@ -74,6 +74,7 @@ def expected(dataset: Dataset, shape: str, bins: int, keep: Any = None) -> list[
     return numpy_cuts(dataset.column(shape), y, bins)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres", "mariadb", "sqlite"])
 def test_cut_points_equal_numpy_bit_for_bit(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = shaped_dataset(rows=3000, seed=11)

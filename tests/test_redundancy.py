@@ -142,6 +142,7 @@ def measure_with(source: Any, table: str, target: str, *, strategy: str | None =
 
 # --- against scikit-learn, on every engine -----------------------------------------------------
 
+@pytest.mark.slow
 @pytest.mark.parametrize(("engine", "strategy"),
                          [(e, s) for e, ss in STRATEGIES.items() for s in ss])
 def test_every_pair_equals_scikit_learn(engine: str, strategy: str,
@@ -158,6 +159,8 @@ def test_every_pair_equals_scikit_learn(engine: str, strategy: str,
                                          f"{engine}/{strategy}/{missing}")
 
 
+@pytest.mark.slow
+@pytest.mark.postgres
 def test_duckdb_and_postgres_agree_pair_by_pair(request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=12, rows=700)
     results = {}
@@ -176,6 +179,7 @@ def test_duckdb_and_postgres_agree_pair_by_pair(request: pytest.FixtureRequest) 
     assert max(p.mutual_information for p in duck.pairs.values()) > 0.01
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres"])
 def test_where_limits_the_rows_of_every_pair(engine: str,
                                              request: pytest.FixtureRequest) -> None:
@@ -191,6 +195,7 @@ def test_where_limits_the_rows_of_every_pair(engine: str,
     assert max(p.rows for p in matrix.pairs.values()) < sum(keep)  # NULLs dropped per pair
 
 
+@pytest.mark.slow
 def test_batches_give_the_same_matrix_in_more_statements(
         request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=13, rows=400)
@@ -231,6 +236,7 @@ def test_known_mutual_information(shapes: duckdb.DuckDBPyConnection) -> None:
     assert m.pair("constant", "a").symmetric_uncertainty == 0.0
 
 
+@pytest.mark.slow
 def test_missing_drop_measures_rows_where_both_are_present(
         shapes: duckdb.DuckDBPyConnection) -> None:
     kept = redundancy(shapes, target="y", table="t", missing="category").matrix
@@ -262,6 +268,7 @@ def test_matrix_is_symmetric_with_an_empty_diagonal(shapes: duckdb.DuckDBPyConne
         m.matrix("gini")
 
 
+@pytest.mark.slow
 def test_dates_are_paired_as_the_ranking_measured_them() -> None:
     """A date ranked by its month (--date-part) or binned as epoch seconds (--numeric)."""
     start = datetime.date(2025, 1, 1)
@@ -303,6 +310,7 @@ def _spec(missing: str = "category") -> Any:
                    "bitsift_golden", "duckdb")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("dialect", PASTE_DIALECTS)
 def test_statement_parses_in_every_dialect_without_its_pitfalls(dialect: str) -> None:
     caps = capabilities(dialect)
@@ -358,6 +366,7 @@ def assert_same_document(got: Any, want: Any, path: str = "") -> None:
         assert got == want, path
 
 
+@pytest.mark.slow
 def test_command_table_lists_the_top_pairs(source: str) -> None:
     result = CliRunner().invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "--top", "3"])
     assert result.exit_code == 0, result.output
@@ -373,6 +382,7 @@ def test_command_table_lists_the_top_pairs(source: str) -> None:
     assert lines[7] == ""
 
 
+@pytest.mark.slow
 def test_command_csv_and_json_list_every_pair(source: str) -> None:
     runner = CliRunner()
     csv_out = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "-f", "csv",

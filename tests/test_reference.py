@@ -109,6 +109,7 @@ def con() -> Iterator[duckdb.DuckDBPyConnection]:
     connection.close()
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("missing", ["category", "drop"])
 def test_check_agrees_on_the_whole_table(con: duckdb.DuckDBPyConnection, missing: str) -> None:
     report = bitsift.check(con, target="c", table="t", missing=missing)

@@ -84,6 +84,7 @@ def run(connection: Any) -> ProfiledRun:
                             bins=4, top=3)
 
 
+@pytest.mark.slow
 def test_module_examples_hold() -> None:
     for module in (bitsift.report, bitsift.profile):
         outcome = doctest.testmod(module)
@@ -198,6 +199,7 @@ def _database(tmp_path: Path) -> Path:
     return path
 
 
+@pytest.mark.slow
 def test_report_command_writes_the_file(tmp_path: Path) -> None:
     source = _database(tmp_path)
     out = tmp_path / "report.html"

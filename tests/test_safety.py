@@ -46,6 +46,7 @@ WHERE_ON_HOSTILE = {"duckdb": '"x y" > 1 AND "a ""b""" <> \'a\'',
                     "mariadb": "`x y` > 1 AND `a \"b\"` <> 'a'"}
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_hostile_names_rank_correctly(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=21, rows=700).renamed(HOSTILE)
@@ -66,6 +67,7 @@ def test_hostile_names_rank_correctly(engine: str, request: pytest.FixtureReques
         assert again.rows + again.rows_excluded == len(dataset.rows)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_where_on_hostile_names_filters_like_python(engine: str,
                                                     request: pytest.FixtureRequest) -> None:
@@ -386,6 +388,7 @@ def test_mariadb_max_statement_time_fires(mariadb_database: str,
         bitsift.rank(MARIADB_URL, table=f"{mariadb_database}.big", target="y", timeout=0.001)
 
 
+@pytest.mark.slow
 def test_sqlite_timeout_by_progress_handler(tmp_path: pytest.TempPathFactory) -> None:
     url = f"sqlite:///{tmp_path}/big.sqlite"
     engine = sa.create_engine(url)
@@ -423,6 +426,7 @@ def test_timeout_message_names_the_option_in_the_cli(pg_schema: str,
     assert len(result.stderr.strip().splitlines()) == 1
 
 
+@pytest.mark.postgres
 def test_ranking_is_unchanged_by_safety_settings(request: pytest.FixtureRequest) -> None:
     # Read-only transactions and a generous timeout do not change a single number.
     dataset = random_dataset(seed=23, rows=400)

@@ -108,6 +108,7 @@ def assert_segments_equal_filtered_runs(segmented: SegmentedRanking, source: Any
         assert math.isclose(ranking.target_entropy, alone.target_entropy, abs_tol=1e-9)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_segments_equal_separate_filtered_runs(engine: str,
                                                request: pytest.FixtureRequest) -> None:
@@ -128,6 +129,7 @@ def test_segments_equal_separate_filtered_runs(engine: str,
         assert sum(s.rows_excluded for s in segmented) == whole.rows_excluded
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join"])
 def test_two_segment_columns_on_every_count_strategy(strategy: str) -> None:
     dataset = segmented_dataset(seed=8)
@@ -197,6 +199,7 @@ def test_segment_columns_are_checked() -> None:
     assert {a.attribute for s in segmented for a in s.attributes} == {"b"}
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_paste_statement_with_segments_and_weight_equals_rank(
         engine: str, request: pytest.FixtureRequest) -> None:
@@ -224,6 +227,7 @@ def test_paste_statement_with_segments_and_weight_equals_rank(
                     assert abs(got - want) <= 1e-9 * max(1.0, abs(want)), (metric, engine)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("dialect", PASTE_DIALECTS)
 def test_paste_statement_parses_back_on_every_dialect(dialect: str) -> None:
     sql = bitsift.statement(table="sales.orders", target="late", attributes="channel",
@@ -253,6 +257,7 @@ def _cli_source(tmp_path: Path) -> Path:
     return path
 
 
+@pytest.mark.slow
 def test_cli_json_has_one_ranking_per_segment(tmp_path: Path) -> None:
     path = _cli_source(tmp_path)
     args = ["rank", str(path), "--table", "t", "--target", "y", "--attributes", CATEGORICAL]
@@ -306,6 +311,7 @@ weight = "weight"
     return job_file
 
 
+@pytest.mark.slow
 def test_job_writes_one_row_per_segment_and_attribute_and_drift_compares_them(
         tmp_path: Path) -> None:
     source = _cli_source(tmp_path)
@@ -334,6 +340,7 @@ def test_job_writes_one_row_per_segment_and_attribute_and_drift_compares_them(
     assert "by region: 4 segments" in result.output and "region = NULL:" in result.output
 
 
+@pytest.mark.slow
 def test_report_has_one_section_per_segment(tmp_path: Path) -> None:
     source = _cli_source(tmp_path)
     runs = rank_and_profile_segments(str(source), "y", "t", by="region",

@@ -156,6 +156,7 @@ def wine() -> Dataset:
 
 # --- against the NumPy oracle ------------------------------------------------------------------
 
+@pytest.mark.slow
 @pytest.mark.parametrize("criterion", ["mid", "miq"])
 def test_random_data_selection_equals_numpy(criterion: str,
                                             request: pytest.FixtureRequest) -> None:
@@ -170,6 +171,7 @@ def test_random_data_selection_equals_numpy(criterion: str,
     assert not {"strong", "strong_twin"} <= set(selection.attributes[:2])
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres"])
 def test_wine_selection_equals_numpy_with_both_criteria(engine: str,
                                                         request: pytest.FixtureRequest) -> None:
@@ -276,6 +278,7 @@ def test_bad_requests() -> None:
         greedy_mrmr({"a": 1.0}, 1, _lookup({}), order=["a", "z"])
 
 
+@pytest.mark.slow
 def test_a_measured_matrix_gives_the_same_steps() -> None:
     con = duckdb.connect()
     fill_duckdb(con, ["t"], near_copies(seed=23, rows=600))
@@ -302,6 +305,7 @@ def source(tmp_path: Any) -> str:
     return str(path)
 
 
+@pytest.mark.slow
 def test_command_table(source: str) -> None:
     result = CliRunner().invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "3"])
     assert result.exit_code == 0, result.output
@@ -318,6 +322,7 @@ def test_command_table(source: str) -> None:
     assert lines[5].split()[-2] == api.steps[0].attribute
 
 
+@pytest.mark.slow
 def test_command_json_and_csv(source: str) -> None:
     runner = CliRunner()
     out = runner.invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "4",
@@ -334,6 +339,7 @@ def test_command_json_and_csv(source: str) -> None:
     assert rows[1].split(",")[5:] == ["", "0.0"]
 
 
+@pytest.mark.slow
 def test_command_k_beyond_the_candidates_lists_them_all(source: str) -> None:
     result = CliRunner().invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "9",
                                       "-a", "strong,flag,noise"])
@@ -371,6 +377,7 @@ def elements(html: str) -> list[tuple[str, dict[str, str]]]:
     return parser.found
 
 
+@pytest.mark.slow
 def test_report_shows_the_selection_and_every_pair_of_the_heatmap(source: str) -> None:
     run = rank_and_profile(source, target="y", table="t", top=2)
     select_for_runs(source, [run], target="y", table="t", k=3, candidates=6)
@@ -400,6 +407,7 @@ def _inside(found: list[tuple[str, dict[str, str]]], target: dict[str, str],
     return any(a is target for _, a in found[start:end])
 
 
+@pytest.mark.slow
 def test_report_command_adds_the_section_only_when_asked(source: str, tmp_path: Any) -> None:
     runner = CliRunner()
     plain = runner.invoke(cli, ["report", source, "-t", "t", "-y", "y", "-o", "-", "-q"])
@@ -418,6 +426,7 @@ def test_report_command_adds_the_section_only_when_asked(source: str, tmp_path: 
             if _inside(tags, a, "r1-redundancy") and "data-attribute" in a] == api.attributes
 
 
+@pytest.mark.slow
 def test_report_segments_measure_pairs_within_each_segment(tmp_path: Any) -> None:
     dataset = near_copies(seed=25, rows=600)
     con = duckdb.connect()
@@ -443,6 +452,7 @@ def test_report_segments_measure_pairs_within_each_segment(tmp_path: Any) -> Non
     assert 'id="r1-heatmap"' in html and 'id="r2-heatmap"' in html
 
 
+@pytest.mark.slow
 def test_flagged_candidates_are_named_in_a_note(tmp_path: Any) -> None:
     path = tmp_path / "flags.duckdb"
     with duckdb.connect(str(path)) as con:

@@ -58,6 +58,7 @@ COMMANDS = {
 }
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("command", sorted(COMMANDS))
 @pytest.mark.parametrize("value", BAD)
 def test_bad_timeout_is_one_line_on_every_command(capsys: pytest.CaptureFixture[str],
@@ -90,6 +91,7 @@ def test_timeout_longer_than_python_timers_is_one_line_on_duckdb(
                    "(at most 9223372036 s); give inf for no limit\n")
 
 
+@pytest.mark.slow
 def test_inf_is_no_limit(small_db: Path) -> None:
     ranking = bitsift.rank(str(small_db), table="t", target="y", timeout=math.inf)
     assert len(ranking.attributes) == 2

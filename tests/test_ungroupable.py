@@ -133,6 +133,7 @@ def _nested_duckdb(tmp_path: Path) -> Path:
     return path
 
 
+@pytest.mark.slow
 def test_duckdb_nested_types_are_ranked_and_checked(tmp_path: Path,
                                                     capsys: pytest.CaptureFixture[str]) -> None:
     path = _nested_duckdb(tmp_path)

@@ -50,6 +50,9 @@ def _assert_same_json(got: dict, want: dict, context: str) -> None:
                 assert a[key] == value, (context, a["attribute"], key)
 
 
+@pytest.mark.slow
+@pytest.mark.mariadb
+@pytest.mark.postgres
 def test_done_when_cli_rank_on_every_engine_gives_the_duckdb_numbers(
         request: pytest.FixtureRequest) -> None:
     # The acceptance check: `bitsift rank <URL> --table s.t --target y` on
@@ -64,6 +67,7 @@ def test_done_when_cli_rank_on_every_engine_gives_the_duckdb_numbers(
         _assert_same_json(got, want, engine)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["sqlite", "postgres", "mariadb"])
 def test_engine_and_connection_sources_equal_the_url(engine: str,
                                                      request: pytest.FixtureRequest) -> None:
@@ -83,6 +87,7 @@ def test_engine_and_connection_sources_equal_the_url(engine: str,
     assert_same_ranking(by_connection, by_url, f"{engine} Connection")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_columns_are_introspected_with_their_kinds(engine: str,
                                                    request: pytest.FixtureRequest) -> None:
@@ -100,6 +105,7 @@ def test_mysql_url_on_a_mariadb_server_uses_the_mariadb_entry(mariadb_database: 
         assert engine.caps.exact_key_type == "BINARY"
 
 
+@pytest.mark.postgres
 def test_unknown_table_lists_a_close_match(request: pytest.FixtureRequest) -> None:
     with loaded("postgres", DATASET, request, table="orders") as where:
         schema = where.schema
@@ -107,6 +113,7 @@ def test_unknown_table_lists_a_close_match(request: pytest.FixtureRequest) -> No
             bitsift.rank(POSTGRES_URL, table=f"{schema}.ordres", target="y")
 
 
+@pytest.mark.mariadb
 def test_paste_statement_from_a_connection_uses_its_dialect(
         request: pytest.FixtureRequest) -> None:
     with loaded("mariadb", DATASET, request) as where:

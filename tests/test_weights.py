@@ -54,6 +54,7 @@ def assert_same_metrics(weighted: Ranking, repeated: Ranking, context: str) -> N
                 f"{context} {a.attribute} {metric}: {got!r} != {want!r}")
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ENGINES)
 def test_weights_equal_duplicated_rows(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = segmented_dataset(seed=21, rows=500)
@@ -77,6 +78,7 @@ def test_weights_equal_duplicated_rows(engine: str, request: pytest.FixtureReque
         assert weighted.notes == [] or all("whole numbers" not in n for n in weighted.notes)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join"])
 def test_weighted_segments_equal_duplicated_segments(strategy: str) -> None:
     dataset = segmented_dataset(seed=22, rows=600)
@@ -131,6 +133,7 @@ def test_fractional_weights_keep_the_entropies_and_drop_the_p_value() -> None:
                                  "rows_without_weight", "weight_total"]
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres"])
 def test_a_negative_weight_is_an_error(engine: str, request: pytest.FixtureRequest) -> None:
     dataset = segmented_dataset(seed=2, rows=200)
@@ -149,6 +152,7 @@ def test_a_negative_weight_is_an_error(engine: str, request: pytest.FixtureReque
         assert isinstance(fine, Ranking) and fine.rows > 0
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("engine", ["duckdb", "postgres"])
 @pytest.mark.parametrize("bad", ["nan", "inf", "-inf"])
 def test_a_non_finite_weight_is_an_error(engine: str, bad: str,
@@ -176,6 +180,7 @@ def error_line(capsys: pytest.CaptureFixture[str], *args: str) -> str:
     return lines[0]
 
 
+@pytest.mark.slow
 def test_weight_errors_in_the_cli(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     path = tmp_path / "w.duckdb"
     with duckdb.connect(str(path)) as connection:
@@ -194,6 +199,7 @@ def test_weight_errors_in_the_cli(tmp_path: Path, capsys: pytest.CaptureFixture[
         bitsift.check(str(path), target="y", table="t", weight="w")
 
 
+@pytest.mark.slow
 def test_fractional_weights_reach_the_history_as_null_p_values(tmp_path: Path) -> None:
     source = tmp_path / "frac.duckdb"
     with duckdb.connect(str(source)) as target:

@@ -129,6 +129,7 @@ def test_day_column_is_id_like(weather: duckdb.DuckDBPyConnection) -> None:
         assert "id_like" not in ranking[name].flags
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("suffix", ["parquet", "csv"])
 def test_book_gains_through_cli_json(weather: duckdb.DuckDBPyConnection, tmp_path: Path,
                                      suffix: str) -> None:

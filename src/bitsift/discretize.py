@@ -18,7 +18,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -33,7 +33,8 @@ def _entropy_rows(counts: NDArray[np.float64]) -> NDArray[np.float64]:
     with np.errstate(divide="ignore", invalid="ignore"):
         p = np.where(totals > 0, counts / np.where(totals > 0, totals, 1), 0.0)
         logs = np.where(p > 0, np.log2(np.where(p > 0, p, 1.0)), 0.0)
-    return -(p * logs).sum(axis=1)
+    # np.where's result is typed Any; the sum of float64 rows is float64.
+    return cast(NDArray[np.float64], -(p * logs).sum(axis=1))
 
 
 @dataclass(frozen=True)

@@ -780,10 +780,10 @@ class SqlAlchemyStore(HistoryStore):
         with self._connection(write=False) as connection:
             if not ids or self._existing(connection) is None:
                 return []
-            run_ids = [self._key_value(run_id) for run_id in ids]
+            keys = [self._key_value(run_id) for run_id in ids]
             result = connection.execute(
                 sa.select(table).where(self._same(table.c.job, job),
-                                       self._key(table.c.run_id).in_(run_ids))
+                                       self._key(table.c.run_id).in_(keys))
             ).all()
         return _rows_to_dicts(COLUMN_NAMES, result)
 

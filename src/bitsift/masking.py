@@ -99,7 +99,7 @@ def raw_at_in_password(url: str) -> bool:
     (True, False)
     """
     match = _USERINFO.fullmatch(url.partition("://")[2])
-    return bool(match) and "@" in match["password"]
+    return match is not None and "@" in match["password"]
 
 
 def url_secrets(url: URL) -> tuple[str, ...]:

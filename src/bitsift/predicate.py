@@ -10,17 +10,18 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import cast
 
 import sqlglot
-from sqlglot import exp
+from sqlglot import Token, TokenType, exp
 from sqlglot.dialects.dialect import Dialect
-from sqlglot.tokens import Token, TokenType
 
 from bitsift.errors import PredicateError, unknown_names_message
 from bitsift.names import resolve_name
 from bitsift.schema import Column
 
-_FORBIDDEN: tuple[type[exp.Expression], ...] = (
+#: exp.Expr: sqlglot's typed base, which its trait classes (Query, DDL, DML) derive from.
+_FORBIDDEN: tuple[type[exp.Expr], ...] = (
     exp.Query,
     exp.Subquery,
     exp.DDL,
@@ -51,7 +52,7 @@ _FORBIDDEN_TOKENS: dict[TokenType, str] = {
 #: embeds it a few levels further down, and sqlglot's recursive parser and generator hit
 #: Python's recursion limit near 40 levels in all. A chain of AND/OR counts once.
 MAX_NESTING = 32
-_BOOLEAN_ROOTS: tuple[type[exp.Expression], ...] = (
+_BOOLEAN_ROOTS: tuple[type[exp.Expr], ...] = (
     exp.Predicate,
     exp.Connector,
     exp.Not,
@@ -95,7 +96,8 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     # Even a trailing ';' is refused: a separator has no place in one condition.
     if len(statements) != 1 or any(t.token_type == TokenType.SEMICOLON for t in tokens):
         raise PredicateError("--where must be one expression (no ';' and no second statement)")
-    tree = statements[0]
+    # parse() is typed with sqlglot's Expr base; every node it builds is an exp.Expression.
+    tree = cast(exp.Expression, statements[0])
     for node in tree.walk():
         if isinstance(node, _FORBIDDEN):
             what = (f"function {node.name}()" if isinstance(node, exp.Anonymous)

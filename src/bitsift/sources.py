@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -136,6 +137,8 @@ def _open_with_engine(source: EngineSource, table: str | None) -> OpenSource:
     """``--engine NAME SOURCE``: start or open that engine on SOURCE."""
     if source.engine == "duckdb":
         return open_source(source.location, table)
+    # Declared once with the common Engine type: each branch imports a different engine's opener.
+    open_location: Callable[[str, str | None], tuple[Engine, exp.Table | None]]
     if source.engine == "spark":
         from bitsift.engines.spark_engine import open_spark_location as open_location
     elif source.engine == "clickhouse":

@@ -33,7 +33,9 @@ def split_outside_quotes(text: str, separator: str = ",") -> list[str]:
     >>> split_outside_quotes('"a,b"=mdl, c=quantile:4')
     ['"a,b"=mdl', ' c=quantile:4']
     """
-    parts, current, quoted = [], [], False
+    parts: list[str] = []
+    current: list[str] = []
+    quoted = False
     for ch in text:
         if ch == '"':
             quoted = not quoted  # a doubled quote toggles twice: still inside
@@ -53,20 +55,21 @@ def _name_and_setting(item: str, what: str) -> tuple[str, str, bool]:
     if not text.startswith('"'):
         name, sep, setting = text.partition("=")
         return name.strip(), setting.strip(), bool(sep)
-    name, position = [], 1
+    pieces: list[str] = []
+    position = 1
     while True:
         end = text.find('"', position)
         if end < 0:
             raise SpecError(f"{what}: a closing double quote is missing in {item!r}")
-        name.append(text[position:end])
+        pieces.append(text[position:end])
         if text[end + 1:end + 2] != '"':
             break
-        name.append('"')  # "" inside quotes is one quote
+        pieces.append('"')  # "" inside quotes is one quote
         position = end + 2
     rest = text[end + 1:].strip()
     if rest and not rest.startswith("="):
         raise SpecError(f"{what} takes COLUMN=VALUE or \"COLUMN\"=VALUE, not {item!r}")
-    return "".join(name), rest[1:].strip(), bool(rest)
+    return "".join(pieces), rest[1:].strip(), bool(rest)
 
 
 def _pairs(value: object, what: str) -> list[tuple[str, str]]:

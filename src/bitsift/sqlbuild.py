@@ -296,6 +296,7 @@ def _apply_hooks(tree: exp.Expression, caps: Capabilities, copy: bool = True) ->
             value, part = node.expressions
             return temporal_value(value, part.name, caps)
         if isinstance(node, exp.Anonymous) and node.name.lower() == EXACT_KEY:
+            argument: exp.Expression  # the list is typed Any
             (argument,) = node.expressions
             if caps.exact_key_type is None:
                 return argument

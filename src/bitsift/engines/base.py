@@ -13,7 +13,7 @@ from sqlglot import exp
 
 from bitsift.dialects import Capabilities
 from bitsift.errors import QueryCancelledError, QueryError, SpecError
-from bitsift.names import resolve_name  # noqa: F401 - engines and jobs import it from here
+from bitsift.names import resolve_name as resolve_name  # re-exported: engines, jobs use it
 from bitsift.schema import Column
 
 

@@ -337,7 +337,8 @@ def _condition(error: BaseException) -> str | None:
         method = getattr(error, name, None)
         if callable(method):
             try:
-                return method()
+                condition: str | None = method()  # found by name, so typed Any
+                return condition
             except Exception:  # noqa: BLE001
                 return None
     return None
