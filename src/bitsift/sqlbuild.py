@@ -12,6 +12,7 @@ import functools
 import math
 from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any, cast
 
 import sqlglot
 from sqlglot import exp
@@ -19,6 +20,7 @@ from sqlglot import exp
 from bitsift.dialects import Capabilities
 from bitsift.errors import SpecError
 from bitsift.jsonout import NON_FINITE
+from bitsift.predicate import Predicate
 from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.templates import render
 from bitsift.version import __version__
@@ -222,6 +224,41 @@ def _grouping_key(name: str, family: str, caps: Capabilities) -> str:
     return f"{EXACT_KEY}({column})" if _exact(family, caps) else column
 
 
+def _measured(index: int, attribute: AttributeSpec, caps: Capabilities,
+              cuts: Mapping[str, Sequence[float]] | None = None) -> dict[str, object]:
+    """The template entry every counting statement shares for one attribute: its number, the
+    value measured (a column, a date's epoch seconds or part; ``value`` qualified by ``src``,
+    ``raw`` not), whether it is grouped byte-exactly (:func:`_exact`) and, for a numeric
+    attribute named in ``cuts``, its literal cut points."""
+    return {
+        "index": index,
+        "value": attribute_value(attribute, "src"),
+        "raw": attribute_value(attribute),
+        "cuts": _literal_cuts(attribute, cuts) if cuts is not None else None,
+        "exact": _exact(attribute.family, caps) and not attribute.date_part,
+    }
+
+
+def _literal_cuts(attribute: AttributeSpec, cuts: Mapping[str, Sequence[float]],
+                  ) -> list[str] | None:
+    """A numeric attribute's cut points (from the ranking) as literals; None if categorical."""
+    if attribute.kind != "numeric":
+        return None
+    if attribute.name not in cuts:
+        raise SpecError(f"no cut points for the numeric attribute {attribute.name!r}")
+    return [literal(float(c)) for c in cuts[attribute.name]]
+
+
+def _where(spec: RankSpec) -> str | None:
+    """The user's ``--where`` (canonical dialect), columns unqualified."""
+    return spec.where.expression.sql(CANONICAL) if spec.where else None
+
+
+def _qualified_where(spec: RankSpec) -> str | None:
+    """The user's ``--where`` with its columns qualified by ``src``."""
+    return _qualified(spec.where.expression, "src").sql(CANONICAL) if spec.where else None
+
+
 def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[float]] | None,
              ) -> dict[str, object]:
     """The ranking template's context. Numeric attributes named in ``cuts`` are binned at
@@ -229,16 +266,9 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
     attributes = []
     computed = []
     for index, attribute in enumerate(spec.attributes, start=1):
-        entry: dict[str, object] = {
-            "index": index,
-            "column": quote(attribute.name),
-            "value": attribute_value(attribute, "src"),
-            "raw": attribute_value(attribute),
-            "label": literal(attribute.name),
-            "kind": attribute.kind,
-            "cuts": None,
-            "exact": _exact(attribute.family, caps) and not attribute.date_part,
-        }
+        entry = _measured(index, attribute, caps)
+        entry.update({"column": quote(attribute.name), "label": literal(attribute.name),
+                      "kind": attribute.kind})
         if attribute.kind == "numeric":
             if cuts is not None and attribute.name in cuts:
                 entry["cuts"] = [literal(float(c)) for c in cuts[attribute.name]]
@@ -253,14 +283,11 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "target_label": literal(spec.target),
         "target_exact": _exact(spec.target_family, caps),
         "attributes": attributes,
-        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
-        "qualified_where": _qualified(spec.where.expression, "src").sql(CANONICAL)
-        if spec.where
-        else None,
+        "where": _where(spec),
+        "qualified_where": _qualified_where(spec),
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
-        "given": None,
     }
 
 
@@ -367,7 +394,7 @@ def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> 
         "source": source_sql(spec.source),
         "target": quote(spec.target),
         "target_key": _grouping_key(spec.target, spec.target_family, caps),
-        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
+        "where": _where(spec),
         "resolution": literal(int(resolution)),
     }
     return _finish(render("histogram.sql.j2", **context), caps, pretty=False)
@@ -380,7 +407,7 @@ def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
         "source": source_sql(spec.source),
         "target": quote(spec.target),
         "target_key": _grouping_key(spec.target, spec.target_family, caps),
-        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
+        "where": _where(spec),
     }
 
 
@@ -464,21 +491,155 @@ def quantile_splits_statement(spec: RankSpec, caps: Capabilities,
     return _finish(render("quantile_splits.sql.j2", **context), caps, pretty=False)
 
 
-def counted_rank_statement(spec: RankSpec, caps: Capabilities,
-                           rows: Sequence[Sequence[int | None]]) -> Statement:
-    """The ranking statement's formulas over cells counted beforehand: ``rows`` are
-    (attr, a1 .. aK, class, n) with attr 0 for the target's own rows, classes numbered and
-    at most one of a1 .. aK set (run mode, :mod:`bitsift.quantile_counts`)."""
-    if spec.by or spec.weight:
-        raise ValueError("counted cells carry no segments or weights")
-    context = _context(spec, caps, {a.name: () for a in spec.numeric})
-    context.update(_segments_and_weight(spec, caps))
-    context["order_by_gain"] = None
-    # The first row's NULLs are typed: PostgreSQL types a VALUES column of NULLs only as text.
-    null = ["CAST(NULL AS BIGINT)"] + ["NULL"] * (len(rows) - 1)
-    context["given"] = [[null[n] if v is None else literal(int(v)) for v in row]
-                        for n, row in enumerate(rows)]
-    return _finish(render("rank.sql.j2", **context), caps, pretty=False)
+#: Values of a categorical attribute the drill-down lists one by one; the rest are merged.
+DEFAULT_MAX_VALUES = 20
+
+
+def profile_statement(
+    spec: RankSpec,
+    caps: Capabilities,
+    cuts: Mapping[str, Sequence[float]],
+    *,
+    max_values: int = DEFAULT_MAX_VALUES,
+    pretty: bool = False,
+) -> Statement:
+    """The drill-down's statement (templates/profile.sql.j2): value x class rows of every
+    attribute of ``spec``.
+
+    ``cuts`` holds the bin boundaries of each numeric attribute (from the ranking, see
+    :attr:`~bitsift.result.AttributeScore.cuts`); every bin of a numeric attribute is listed,
+    categorical ones list their ``max_values`` most frequent values and merge the rest.
+    """
+    if max_values < 1:
+        raise SpecError(f"--max-values must be at least 1, not {max_values}")
+    attributes = []
+    for index, attribute in enumerate(spec.attributes, start=1):
+        entry = _measured(index, attribute, caps, cuts)
+        bins = _literal_cuts(attribute, cuts)
+        # A numeric attribute lists every bin, and its missing values.
+        entry["max_values"] = literal(max_values if bins is None else len(bins) + 2)
+        attributes.append(entry)
+    context = {
+        "source": source_sql(spec.source),
+        "target": quote(spec.target),
+        "target_exact": _exact(spec.target_family, caps),
+        "attributes": attributes,
+        "where": _where(spec),
+        "strategy": caps.count_strategy,
+        "drop_missing": spec.options.missing == "drop",
+    }
+    return _finish(render("profile.sql.j2", **context), caps, pretty)
+
+
+def refuse_segments_and_weights(spec: RankSpec) -> None:
+    """Redundancy and selection measure one table by row counts: no --by, no --weight."""
+    refused = [name for name, used in (("--by", spec.by), ("--weight", spec.weight)) if used]
+    if refused:
+        raise SpecError(
+            f"redundancy and selection do not take {' or '.join(refused)}: they count rows of "
+            "the whole table (for one segment, give its condition with --where)"
+        )
+
+
+def _checked_pairs(spec: RankSpec, pairs: Sequence[tuple[str, str]]) -> None:
+    if not pairs:
+        raise SpecError("no pairs of attributes to measure")
+    names = {a.name for a in spec.attributes}
+    unknown = sorted({n for pair in pairs for n in pair if n not in names})
+    if unknown:
+        raise SpecError("not attributes of this ranking: " + ", ".join(unknown))
+    if any(a == b for a, b in pairs):
+        raise SpecError("a pair needs two different attributes")
+
+
+def pairs_statement(
+    spec: RankSpec,
+    caps: Capabilities,
+    cuts: Mapping[str, Sequence[float]],
+    pairs: Sequence[tuple[str, str]],
+    *,
+    pretty: bool = False,
+) -> Statement:
+    """The redundancy statement (templates/pairs.sql.j2) measuring ``pairs`` of ``spec``'s
+    attributes, one row per pair.
+
+    ``cuts`` holds the ranking's cut points of every numeric attribute named in a pair
+    (:attr:`~bitsift.result.AttributeScore.cuts`). Only the attributes named in a pair are read.
+
+    >>> from bitsift.dialects import capabilities
+    >>> from bitsift.schema import Column
+    >>> from bitsift.sources import parse_table_name
+    >>> from bitsift.api import make_options
+    >>> from bitsift.spec import resolve
+    >>> cols = [Column("y", "text"), Column("a", "text"), Column("b", "float")]
+    >>> spec = resolve(make_options("y"), cols, parse_table_name("t", "duckdb"), "t", "duckdb")
+    >>> sql = pairs_statement(spec, capabilities("postgres"), {"b": [0.5]}, [("a", "b")]).sql
+    >>> "GROUPING SETS" in sql and "< 0.5" in sql
+    True
+    """
+    refuse_segments_and_weights(spec)
+    _checked_pairs(spec, pairs)
+    by_name = {a.name: a for a in spec.attributes}
+    involved = list(dict.fromkeys(n for pair in pairs for n in pair))
+    local = {name: i for i, name in enumerate(involved, start=1)}
+    pair_rows = [
+        {"index": p, "left": local[a], "right": local[b]}
+        for p, (a, b) in enumerate(pairs, start=1)
+    ]
+    attributes = []
+    for name in involved:
+        # The value the ranking measured, grouped byte-exactly where the ranking groups it so.
+        entry = _measured(local[name], by_name[name], caps, cuts)
+        index = local[name]
+        entry["left_pairs"] = [p["index"] for p in pair_rows if p["left"] == index]
+        entry["right_pairs"] = [p["index"] for p in pair_rows if p["right"] == index]
+        entry["pairs"] = [p["index"] for p in pair_rows if index in (p["left"], p["right"])]
+        attributes.append(entry)
+    context = {
+        "source": source_sql(spec.source),
+        "target": quote(spec.target),
+        "attributes": attributes,
+        "pairs": pair_rows,
+        "qualified_where": _qualified_where(spec),
+        "strategy": caps.count_strategy,
+        "drop_missing": spec.options.missing == "drop",
+    }
+    return _finish(render("pairs.sql.j2", **context), caps, pretty)
+
+
+def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
+    """The user's ``--where`` (if any) and the conditions selecting one segment's rows.
+
+    Values are compared as the ranking grouped them: byte-exactly where the dialect's
+    collation could merge 'a' and 'A' (:func:`_apply_hooks` turns the placeholder into a cast).
+    """
+    conditions: list[exp.Expression] = []
+    for column in spec.by:
+        value = segment[column.name]
+        node: exp.Expression = exp.column(exp.to_identifier(column.name, quoted=True))
+        if value is None:
+            conditions.append(exp.Is(this=node, expression=exp.Null()))
+            continue
+        if column.family in COLLATED_FAMILIES:
+            node = exp.Anonymous(this=EXACT_KEY, expressions=[node])
+        conditions.append(exp.EQ(this=node, expression=value_literal(value)))
+    if spec.where is not None:
+        conditions.insert(0, exp.Paren(this=spec.where.expression.copy()))
+    text = " AND ".join(c.sql(CANONICAL) for c in conditions)
+    return Predicate(text=text, expression=cast(exp.Expression, exp.and_(*conditions)))
+
+
+def rows_statement(spec: RankSpec, caps: Capabilities, limit: int | None = None) -> Statement:
+    """The target and every attribute as ranked (a date's epoch seconds or part rather than
+    the date), row by row, at most ``limit`` rows: what ``bitsift check`` compares."""
+    values = [exp.column(exp.to_identifier(spec.target, quoted=True)),
+              *(value_expression(a, caps) for a in spec.attributes)]
+    query = exp.select(*values).from_(spec.source.copy())
+    if spec.where is not None:
+        query = query.where(spec.where.expression.copy())
+    if limit is not None:
+        query = query.limit(limit)
+    return Statement(sql=query.sql(caps.sqlglot_dialect), tree=query, dialect=caps.name)
 
 
 def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None = None) -> str:
