@@ -131,6 +131,20 @@ def test_the_counted_statements_run_on_other_engines(engine: str,
                              bins=5, context=engine)
 
 
+@pytest.mark.parametrize("options", [{"where": "grp <> 2"}, {"missing": "drop", "bins": 4}])
+def test_counted_bins_equal_the_row_by_row_bins_on_mariadb(
+        options: dict[str, Any], request: pytest.FixtureRequest) -> None:
+    # MariaDB groups text byte-exactly (BINARY keys): the classes arrive as bytes.
+    dataset = _tied_dataset(rows=1500, seed=6)
+    with loaded("mariadb", dataset, request) as where:
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED, **options)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, **options)
+    _assert_counted(counted)
+    assert_same_ranking(counted, row_by_row, str(options))
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts, a.attribute
+
+
 def test_the_dialects_run_and_measured_here_count() -> None:
     # MySQL has no server in the tests: it keeps its one-statement quantile.
     counting = ("duckdb", "postgres", "sqlite", "mariadb")
