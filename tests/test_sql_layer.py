@@ -22,6 +22,7 @@ PACKAGE = Path(bitsift.__file__).resolve().parent
 #: Modules allowed to build sqlglot trees outside the SQL layer, and why.
 OWN_STATEMENTS = {
     "sqlbuild.py": "the SQL layer itself",
+    "sqlstatements.py": "the SQL layer itself",
     "sources.py": "opening a source: table names and DuckDB's file readers on its own session",
     "history.py": "the history store's own tables, written (the SQL layer sends one SELECT)",
     "predicate.py": "re-quotes the column names of the user's --where it parses",

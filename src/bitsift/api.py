@@ -34,8 +34,8 @@ from bitsift.sqlbuild import (
     cut_count,
     histogram_statement,
     paste_statement,
-    rows_statement,
 )
+from bitsift.sqlstatements import rows_statement
 
 
 def _names(value: str | Iterable[str] | None) -> tuple[str, ...]:

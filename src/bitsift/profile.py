@@ -25,7 +25,7 @@ from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_labe
 from bitsift.schema import Column, hashable_value
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
-from bitsift.sqlbuild import DEFAULT_MAX_VALUES, profile_statement, segment_predicate
+from bitsift.sqlstatements import DEFAULT_MAX_VALUES, profile_statement, segment_predicate
 
 MISSING_LABEL = "(missing)"
 

@@ -40,7 +40,8 @@ from bitsift.engines.base import Engine
 from bitsift.metrics import table_row
 from bitsift.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
 from bitsift.spec import RankSpec
-from bitsift.sqlbuild import quantile_cells_statement, quantile_splits_statement, rank_statement
+from bitsift.sqlbuild import rank_statement
+from bitsift.sqlstatements import quantile_cells_statement, quantile_splits_statement
 
 Record = dict[str, Any]
 #: A class as Python sees it (NaN made equal to NaN, as the engines group it); None: NULL.

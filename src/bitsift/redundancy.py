@@ -29,7 +29,7 @@ from bitsift.metrics import snap
 from bitsift.result import Ranking
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
-from bitsift.sqlbuild import pairs_statement, refuse_segments_and_weights
+from bitsift.sqlstatements import pairs_statement, refuse_segments_and_weights
 
 #: Pairs per statement: one grouping set each. Engines cap the number of grouping sets
 #: (PostgreSQL at 4096) and a wide GROUP BY costs memory, so large matrices go in batches.

@@ -12,7 +12,6 @@ import functools
 import math
 from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any, cast
 
 import sqlglot
 from sqlglot import exp
@@ -20,7 +19,6 @@ from sqlglot import exp
 from bitsift.dialects import Capabilities
 from bitsift.errors import SpecError
 from bitsift.jsonout import NON_FINITE
-from bitsift.predicate import Predicate
 from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.templates import render
 from bitsift.version import __version__
@@ -116,7 +114,7 @@ class Statement:
     dialect: str
 
 
-def _exact(family: str, caps: Capabilities) -> bool:
+def exact_grouping(family: str, caps: Capabilities) -> bool:
     return caps.exact_key_type is not None and family in COLLATED_FAMILIES
 
 
@@ -215,31 +213,31 @@ def _bounds(computed: Sequence[dict[str, object]], spec: RankSpec, caps: Capabil
                        or (a["method"] == "quantile" and aggregate)],
         "windowed": [a for a in computed if a["method"] == "quantile" and not aggregate],
         "splits": [a for a in computed if a["method"] == "best-split"],
-        "target_key": _grouping_key(spec.target, spec.target_family, caps),
+        "target_key": grouping_key(spec.target, spec.target_family, caps),
     }
 
 
-def _grouping_key(name: str, family: str, caps: Capabilities) -> str:
+def grouping_key(name: str, family: str, caps: Capabilities) -> str:
     column = quote(name)
-    return f"{EXACT_KEY}({column})" if _exact(family, caps) else column
+    return f"{EXACT_KEY}({column})" if exact_grouping(family, caps) else column
 
 
-def _measured(index: int, attribute: AttributeSpec, caps: Capabilities,
+def measured_entry(index: int, attribute: AttributeSpec, caps: Capabilities,
               cuts: Mapping[str, Sequence[float]] | None = None) -> dict[str, object]:
     """The template entry every counting statement shares for one attribute: its number, the
     value measured (a column, a date's epoch seconds or part; ``value`` qualified by ``src``,
-    ``raw`` not), whether it is grouped byte-exactly (:func:`_exact`) and, for a numeric
+    ``raw`` not), whether it is grouped byte-exactly (:func:`exact_grouping`) and, for a numeric
     attribute named in ``cuts``, its literal cut points."""
     return {
         "index": index,
         "value": attribute_value(attribute, "src"),
         "raw": attribute_value(attribute),
-        "cuts": _literal_cuts(attribute, cuts) if cuts is not None else None,
-        "exact": _exact(attribute.family, caps) and not attribute.date_part,
+        "cuts": literal_cuts(attribute, cuts) if cuts is not None else None,
+        "exact": exact_grouping(attribute.family, caps) and not attribute.date_part,
     }
 
 
-def _literal_cuts(attribute: AttributeSpec, cuts: Mapping[str, Sequence[float]],
+def literal_cuts(attribute: AttributeSpec, cuts: Mapping[str, Sequence[float]],
                   ) -> list[str] | None:
     """A numeric attribute's cut points (from the ranking) as literals; None if categorical."""
     if attribute.kind != "numeric":
@@ -249,12 +247,12 @@ def _literal_cuts(attribute: AttributeSpec, cuts: Mapping[str, Sequence[float]],
     return [literal(float(c)) for c in cuts[attribute.name]]
 
 
-def _where(spec: RankSpec) -> str | None:
+def where_sql(spec: RankSpec) -> str | None:
     """The user's ``--where`` (canonical dialect), columns unqualified."""
     return spec.where.expression.sql(CANONICAL) if spec.where else None
 
 
-def _qualified_where(spec: RankSpec) -> str | None:
+def qualified_where_sql(spec: RankSpec) -> str | None:
     """The user's ``--where`` with its columns qualified by ``src``."""
     return _qualified(spec.where.expression, "src").sql(CANONICAL) if spec.where else None
 
@@ -266,7 +264,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
     attributes = []
     computed = []
     for index, attribute in enumerate(spec.attributes, start=1):
-        entry = _measured(index, attribute, caps)
+        entry = measured_entry(index, attribute, caps)
         entry.update({"column": quote(attribute.name), "label": literal(attribute.name),
                       "kind": attribute.kind})
         if attribute.kind == "numeric":
@@ -281,17 +279,17 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "source": source_sql(spec.source),
         "target": quote(spec.target),
         "target_label": literal(spec.target),
-        "target_exact": _exact(spec.target_family, caps),
+        "target_exact": exact_grouping(spec.target_family, caps),
         "attributes": attributes,
-        "where": _where(spec),
-        "qualified_where": _qualified_where(spec),
+        "where": where_sql(spec),
+        "qualified_where": qualified_where_sql(spec),
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
     }
 
 
-def _finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
+def finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
     try:
         trees = sqlglot.parse(text, read=CANONICAL)
     except sqlglot.errors.SqlglotError as error:  # pragma: no cover - a template bug
@@ -350,17 +348,17 @@ def rank_statement(
     context = _context(spec, caps, cuts)
     context.update(_segments_and_weight(spec, caps))
     context["order_by_gain"] = order_by
-    return _finish(render("rank.sql.j2", **context), caps, pretty)
+    return finish(render("rank.sql.j2", **context), caps, pretty)
 
 
 def _segments_and_weight(spec: RankSpec, caps: Capabilities) -> dict[str, object]:
     """The ranking template's segment columns (``--by``) and weight column (``--weight``).
 
-    Segment values are grouped byte-exactly like attribute values (see :func:`_exact`).
+    Segment values are grouped byte-exactly like attribute values (see :func:`exact_grouping`).
     """
     return {
         "segments": [
-            {"index": index, "column": quote(s.name), "exact": _exact(s.family, caps)}
+            {"index": index, "column": quote(s.name), "exact": exact_grouping(s.family, caps)}
             for index, s in enumerate(spec.by, start=1)
         ],
         "weight": quote(spec.weight) if spec.weight else None,
@@ -376,7 +374,7 @@ def bounds_statement(spec: RankSpec, caps: Capabilities, skip: Collection[str] =
     context = _context(spec, caps, known)
     if context["bounds"] is None:
         return None
-    return _finish(render("bounds_query.sql.j2", **context), caps, pretty=False)
+    return finish(render("bounds_query.sql.j2", **context), caps, pretty=False)
 
 
 def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> Statement | None:
@@ -393,253 +391,11 @@ def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> 
         "attributes": attributes,
         "source": source_sql(spec.source),
         "target": quote(spec.target),
-        "target_key": _grouping_key(spec.target, spec.target_family, caps),
-        "where": _where(spec),
+        "target_key": grouping_key(spec.target, spec.target_family, caps),
+        "where": where_sql(spec),
         "resolution": literal(int(resolution)),
     }
-    return _finish(render("histogram.sql.j2", **context), caps, pretty=False)
-
-
-def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
-                      caps: Capabilities) -> dict[str, object]:
-    return {
-        "attributes": attributes,
-        "source": source_sql(spec.source),
-        "target": quote(spec.target),
-        "target_key": _grouping_key(spec.target, spec.target_family, caps),
-        "where": _where(spec),
-    }
-
-
-def quantile_ranges_statement(spec: RankSpec, caps: Capabilities,
-                              indexes: Sequence[int]) -> Statement:
-    """Lowest and highest value of the attributes numbered ``indexes`` (1-based, in
-    ``spec.attributes``) over the whole source, and its row count: step 1 of
-    :mod:`bitsift.quantiles` and :mod:`bitsift.quantile_counts`."""
-    attributes = [{"index": i, "raw": attribute_value(spec.attributes[i - 1])} for i in indexes]
-    return _finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes, caps)),
-                   caps, pretty=False)
-
-
-def bucket_expression(attribute: AttributeSpec, low: float, scale: float) -> str:
-    """``FLOOR((value - low) * scale)``: the equal-width bucket of a value (canonical SQL)."""
-    value = f"CAST({attribute_value(attribute)} AS DOUBLE)"
-    return f"FLOOR(({value} - ({literal(float(low))})) * {literal(float(scale))})"
-
-
-def _bucketed(spec: RankSpec, buckets: Mapping[int, tuple[float, float]],
-              ) -> list[dict[str, object]]:
-    """Template entries (index, raw value, bucket expression) of the attributes in
-    ``buckets`` (index -> (low, scale))."""
-    return [
-        {"index": i, "raw": attribute_value(spec.attributes[i - 1]),
-         "bucket": bucket_expression(spec.attributes[i - 1], low, scale)}
-        for i, (low, scale) in buckets.items()
-    ]
-
-
-def quantile_buckets_statement(spec: RankSpec, caps: Capabilities,
-                               buckets: Mapping[int, tuple[float, float]]) -> Statement:
-    """Value counts per equal-width bucket: ``buckets`` maps an attribute's index to the
-    (low, scale) of its buckets. Step 2 of :mod:`bitsift.quantiles`."""
-    context = _quantile_context(spec, _bucketed(spec, buckets), caps)
-    return _finish(render("quantile_buckets.sql.j2", **context), caps, pretty=False)
-
-
-def quantile_picks_statement(spec: RankSpec, caps: Capabilities,
-                             buckets: Mapping[int, tuple[float, float]],
-                             picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
-    """The values at (bucket, position) ``picks`` of each attribute, positions counted from 1
-    in value order within the bucket. Step 3 of :mod:`bitsift.quantiles`."""
-    attributes = _bucketed(spec, {i: buckets[i] for i in picks})
-    for entry in attributes:
-        ordered = sorted(set(picks[entry["index"]]))  # type: ignore[index]
-        entry["buckets"] = [literal(b) for b in sorted({b for b, _ in ordered})]
-        entry["picks"] = [(literal(b), literal(p)) for b, p in ordered]
-    context = _quantile_context(spec, attributes, caps)
-    return _finish(render("quantile_picks.sql.j2", **context), caps, pretty=False)
-
-
-def quantile_cells_statement(spec: RankSpec, caps: Capabilities,
-                             buckets: Mapping[int, tuple[float, float]]) -> Statement:
-    """Rows counted per (equal-width bucket, class) of each attribute in ``buckets`` (index ->
-    (low, scale)), NULL values and NULL targets included: step 2 of
-    :mod:`bitsift.quantile_counts`."""
-    context = _quantile_context(spec, _bucketed(spec, buckets), caps)
-    return _finish(render("quantile_cells.sql.j2", **context), caps, pretty=False)
-
-
-def quantile_splits_statement(spec: RankSpec, caps: Capabilities,
-                              buckets: Mapping[int, tuple[float, float]],
-                              picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
-    """For each (bucket, position) of ``picks``, the value there and the rows of its bucket
-    below and equal to it, per class: step 3 of :mod:`bitsift.quantile_counts`."""
-    attributes = []
-    wanted = []
-    for entry in _bucketed(spec, {i: buckets[i] for i in picks}):
-        index = int(entry["index"])  # type: ignore[call-overload]
-        by_bucket: dict[int, list[int]] = {}
-        for bucket, position in sorted(set(picks[index])):
-            by_bucket.setdefault(bucket, []).append(position)
-        entry["buckets"] = [literal(b) for b in by_bucket]
-        wanted += [(literal(index), literal(b), [literal(p) for p in ps])
-                   for b, ps in by_bucket.items()]
-        attributes.append(entry)
-    context = _quantile_context(spec, attributes, caps)
-    context["picks"] = wanted
-    context["positions"] = [literal(p) for p in sorted({p for ps in picks.values() for _, p in ps})]
-    return _finish(render("quantile_splits.sql.j2", **context), caps, pretty=False)
-
-
-#: Values of a categorical attribute the drill-down lists one by one; the rest are merged.
-DEFAULT_MAX_VALUES = 20
-
-
-def profile_statement(
-    spec: RankSpec,
-    caps: Capabilities,
-    cuts: Mapping[str, Sequence[float]],
-    *,
-    max_values: int = DEFAULT_MAX_VALUES,
-    pretty: bool = False,
-) -> Statement:
-    """The drill-down's statement (templates/profile.sql.j2): value x class rows of every
-    attribute of ``spec``.
-
-    ``cuts`` holds the bin boundaries of each numeric attribute (from the ranking, see
-    :attr:`~bitsift.result.AttributeScore.cuts`); every bin of a numeric attribute is listed,
-    categorical ones list their ``max_values`` most frequent values and merge the rest.
-    """
-    if max_values < 1:
-        raise SpecError(f"--max-values must be at least 1, not {max_values}")
-    attributes = []
-    for index, attribute in enumerate(spec.attributes, start=1):
-        entry = _measured(index, attribute, caps, cuts)
-        bins = _literal_cuts(attribute, cuts)
-        # A numeric attribute lists every bin, and its missing values.
-        entry["max_values"] = literal(max_values if bins is None else len(bins) + 2)
-        attributes.append(entry)
-    context = {
-        "source": source_sql(spec.source),
-        "target": quote(spec.target),
-        "target_exact": _exact(spec.target_family, caps),
-        "attributes": attributes,
-        "where": _where(spec),
-        "strategy": caps.count_strategy,
-        "drop_missing": spec.options.missing == "drop",
-    }
-    return _finish(render("profile.sql.j2", **context), caps, pretty)
-
-
-def refuse_segments_and_weights(spec: RankSpec) -> None:
-    """Redundancy and selection measure one table by row counts: no --by, no --weight."""
-    refused = [name for name, used in (("--by", spec.by), ("--weight", spec.weight)) if used]
-    if refused:
-        raise SpecError(
-            f"redundancy and selection do not take {' or '.join(refused)}: they count rows of "
-            "the whole table (for one segment, give its condition with --where)"
-        )
-
-
-def _checked_pairs(spec: RankSpec, pairs: Sequence[tuple[str, str]]) -> None:
-    if not pairs:
-        raise SpecError("no pairs of attributes to measure")
-    names = {a.name for a in spec.attributes}
-    unknown = sorted({n for pair in pairs for n in pair if n not in names})
-    if unknown:
-        raise SpecError("not attributes of this ranking: " + ", ".join(unknown))
-    if any(a == b for a, b in pairs):
-        raise SpecError("a pair needs two different attributes")
-
-
-def pairs_statement(
-    spec: RankSpec,
-    caps: Capabilities,
-    cuts: Mapping[str, Sequence[float]],
-    pairs: Sequence[tuple[str, str]],
-    *,
-    pretty: bool = False,
-) -> Statement:
-    """The redundancy statement (templates/pairs.sql.j2) measuring ``pairs`` of ``spec``'s
-    attributes, one row per pair.
-
-    ``cuts`` holds the ranking's cut points of every numeric attribute named in a pair
-    (:attr:`~bitsift.result.AttributeScore.cuts`). Only the attributes named in a pair are read.
-
-    >>> from bitsift.dialects import capabilities
-    >>> from bitsift.schema import Column
-    >>> from bitsift.sources import parse_table_name
-    >>> from bitsift.api import make_options
-    >>> from bitsift.spec import resolve
-    >>> cols = [Column("y", "text"), Column("a", "text"), Column("b", "float")]
-    >>> spec = resolve(make_options("y"), cols, parse_table_name("t", "duckdb"), "t", "duckdb")
-    >>> sql = pairs_statement(spec, capabilities("postgres"), {"b": [0.5]}, [("a", "b")]).sql
-    >>> "GROUPING SETS" in sql and "< 0.5" in sql
-    True
-    """
-    refuse_segments_and_weights(spec)
-    _checked_pairs(spec, pairs)
-    by_name = {a.name: a for a in spec.attributes}
-    involved = list(dict.fromkeys(n for pair in pairs for n in pair))
-    local = {name: i for i, name in enumerate(involved, start=1)}
-    pair_rows = [
-        {"index": p, "left": local[a], "right": local[b]}
-        for p, (a, b) in enumerate(pairs, start=1)
-    ]
-    attributes = []
-    for name in involved:
-        # The value the ranking measured, grouped byte-exactly where the ranking groups it so.
-        entry = _measured(local[name], by_name[name], caps, cuts)
-        index = local[name]
-        entry["left_pairs"] = [p["index"] for p in pair_rows if p["left"] == index]
-        entry["right_pairs"] = [p["index"] for p in pair_rows if p["right"] == index]
-        entry["pairs"] = [p["index"] for p in pair_rows if index in (p["left"], p["right"])]
-        attributes.append(entry)
-    context = {
-        "source": source_sql(spec.source),
-        "target": quote(spec.target),
-        "attributes": attributes,
-        "pairs": pair_rows,
-        "qualified_where": _qualified_where(spec),
-        "strategy": caps.count_strategy,
-        "drop_missing": spec.options.missing == "drop",
-    }
-    return _finish(render("pairs.sql.j2", **context), caps, pretty)
-
-
-def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
-    """The user's ``--where`` (if any) and the conditions selecting one segment's rows.
-
-    Values are compared as the ranking grouped them: byte-exactly where the dialect's
-    collation could merge 'a' and 'A' (:func:`_apply_hooks` turns the placeholder into a cast).
-    """
-    conditions: list[exp.Expression] = []
-    for column in spec.by:
-        value = segment[column.name]
-        node: exp.Expression = exp.column(exp.to_identifier(column.name, quoted=True))
-        if value is None:
-            conditions.append(exp.Is(this=node, expression=exp.Null()))
-            continue
-        if column.family in COLLATED_FAMILIES:
-            node = exp.Anonymous(this=EXACT_KEY, expressions=[node])
-        conditions.append(exp.EQ(this=node, expression=value_literal(value)))
-    if spec.where is not None:
-        conditions.insert(0, exp.Paren(this=spec.where.expression.copy()))
-    text = " AND ".join(c.sql(CANONICAL) for c in conditions)
-    return Predicate(text=text, expression=cast(exp.Expression, exp.and_(*conditions)))
-
-
-def rows_statement(spec: RankSpec, caps: Capabilities, limit: int | None = None) -> Statement:
-    """The target and every attribute as ranked (a date's epoch seconds or part rather than
-    the date), row by row, at most ``limit`` rows: what ``bitsift check`` compares."""
-    values = [exp.column(exp.to_identifier(spec.target, quoted=True)),
-              *(value_expression(a, caps) for a in spec.attributes)]
-    query = exp.select(*values).from_(spec.source.copy())
-    if spec.where is not None:
-        query = query.where(spec.where.expression.copy())
-    if limit is not None:
-        query = query.limit(limit)
-    return Statement(sql=query.sql(caps.sqlglot_dialect), tree=query, dialect=caps.name)
+    return finish(render("histogram.sql.j2", **context), caps, pretty=False)
 
 
 def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None = None) -> str:
