@@ -154,6 +154,11 @@ def attribute_value(attribute: AttributeSpec, alias: str | None = None) -> str:
     return node.sql(CANONICAL)
 
 
+def parsed_value(attribute: AttributeSpec) -> exp.Expression:
+    """:func:`attribute_value` as a tree of its own, placeholders kept (canonical dialect)."""
+    return _parsed(attribute_value(attribute), CANONICAL).copy()
+
+
 def value_expression(attribute: AttributeSpec, caps: Capabilities) -> exp.Expression:
     """:func:`attribute_value` as a tree ready for ``caps``' dialect (placeholders replaced),
     for statements built as trees (``bitsift check`` pulls the values it compares)."""
@@ -218,8 +223,12 @@ def _bounds(computed: Sequence[dict[str, object]], spec: RankSpec, caps: Capabil
 
 
 def grouping_key(name: str, family: str, caps: Capabilities) -> str:
-    column = quote(name)
-    return f"{EXACT_KEY}({column})" if exact_grouping(family, caps) else column
+    """A column as the templates group it (canonical SQL): wrapped in the byte-exact
+    placeholder where :func:`exact_grouping` says so."""
+    column: exp.Expression = exp.column(exp.to_identifier(name, quoted=True))
+    if exact_grouping(family, caps):
+        column = exp.Anonymous(this=EXACT_KEY, expressions=[column])
+    return column.sql(CANONICAL)
 
 
 def measured_entry(index: int, attribute: AttributeSpec, caps: Capabilities,

@@ -29,6 +29,7 @@ from bitsift.sqlbuild import (
     literal,
     literal_cuts,
     measured_entry,
+    parsed_value,
     qualified_where_sql,
     quote,
     source_sql,
@@ -57,13 +58,20 @@ def quantile_ranges_statement(spec: RankSpec, caps: Capabilities,
     :mod:`bitsift.quantiles` and :mod:`bitsift.quantile_counts`."""
     attributes = [{"index": i, "raw": attribute_value(spec.attributes[i - 1])} for i in indexes]
     return finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes, caps)),
-                   caps, pretty=False)
+                  caps, pretty=False)
 
 
 def bucket_expression(attribute: AttributeSpec, low: float, scale: float) -> str:
-    """``FLOOR((value - low) * scale)``: the equal-width bucket of a value (canonical SQL)."""
-    value = f"CAST({attribute_value(attribute)} AS DOUBLE)"
-    return f"FLOOR(({value} - ({literal(float(low))})) * {literal(float(scale))})"
+    """``FLOOR((value - low) * scale)``: the equal-width bucket of a value (canonical SQL).
+
+    >>> from bitsift.spec import AttributeSpec
+    >>> print(bucket_expression(AttributeSpec("x", "numeric", "float"), -1.5, 0.25))
+    FLOOR((CAST("x" AS DOUBLE) - (-1.5)) * 0.25)
+    """
+    value = exp.cast(parsed_value(attribute), exp.DataType.build("DOUBLE"))
+    offset = exp.Sub(this=value, expression=exp.Paren(this=value_literal(float(low))))
+    scaled = exp.Mul(this=exp.Paren(this=offset), expression=value_literal(float(scale)))
+    return exp.Floor(this=scaled).sql(CANONICAL)
 
 
 def _bucketed(spec: RankSpec, buckets: Mapping[int, tuple[float, float]],
