@@ -15,7 +15,8 @@ MODULES = sorted(
 )
 #: Modules whose public functions must carry runnable examples.
 WITH_EXAMPLES = ("bitsift", "bitsift.api", "bitsift.reference", "bitsift.metrics",
-                 "bitsift.schema", "bitsift.predicate", "bitsift.sqlbuild", "bitsift.sources")
+                 "bitsift.schema", "bitsift.predicate", "bitsift.sqlbuild", "bitsift.sqlstatements",
+                 "bitsift.sources")
 
 
 @pytest.mark.parametrize("name", ["bitsift", *MODULES])

@@ -32,14 +32,24 @@ ROW_BY_ROW = {"run_quantile": "buckets"}
 ROW_BINNING = "as double) < "
 
 
+#: What only the counted way's step 2 (quantile_cells.sql.j2) selects.
+CELLS = "bucket_cells"
+
+
 def _sent(ranking: Ranking) -> str:
     return "\n".join(ranking.statements).lower()
 
 
+def _ranking_statements(ranking: Ranking) -> list[str]:
+    """The ranking statements sent (counted attributes are measured in the client, in none)."""
+    return [s.lower() for s in ranking.statements if "information_gain" in s]
+
+
 def _assert_counted(ranking: Ranking) -> None:
-    """The ranking went the counted way: cells given as rows, no row binned by a CASE."""
+    """The ranking went the counted way: cells counted, metrics computed from them in the
+    client, no row binned by a CASE."""
     sent = _sent(ranking)
-    assert "given_counts" in sent and "bucket_rows" in sent
+    assert CELLS in sent
     assert "quantile_cont" not in sent and ROW_BINNING not in sent
 
 
@@ -104,18 +114,17 @@ def test_counted_bins_equal_the_row_by_row_bins(options: dict[str, Any],
         counted = rank_with(where.source, where.table, "y", caps=COUNTED, **options)
         row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, **options)
     _assert_counted(counted)
-    assert "given_counts" not in _sent(row_by_row)
+    assert CELLS not in _sent(row_by_row) and ROW_BINNING in _sent(row_by_row)
     assert_same_ranking(counted, row_by_row, str(options))
     for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
         assert a.cuts == b.cuts, a.attribute  # the same floats, bit for bit
 
 
-@pytest.mark.parametrize("engine", ["postgres", "sqlite"])
+@pytest.mark.parametrize("engine", ["postgres", "sqlite", "mariadb"])
 def test_the_counted_statements_run_on_other_engines(engine: str,
                                                      request: pytest.FixtureRequest) -> None:
-    # DuckDB, PostgreSQL and SQLite count this way by default (measured); the statements are
-    # plain SQL. Not on MySQL/MariaDB: sqlglot writes VALUES there as
-    # SELECTs whose columns are named after their literals, and two NULLs clash.
+    # DuckDB, PostgreSQL, SQLite and MariaDB count this way by default (measured); the
+    # statements are plain SQL, and the metrics are computed in the client from their counts.
     dataset = _tied_dataset(rows=1500, seed=8)
     with loaded(engine, dataset, request) as where:
         counted = rank_with(where.source, where.table, "y", caps=COUNTED, bins=5)
@@ -125,9 +134,26 @@ def test_the_counted_statements_run_on_other_engines(engine: str,
                              bins=5, context=engine)
 
 
-def test_only_dialects_that_can_run_it_count() -> None:
-    assert {capabilities(d).run_quantile for d in ("duckdb", "postgres", "sqlite")} == {"counted"}
-    assert all(capabilities(d).run_quantile != "counted" for d in ("mysql", "mariadb"))
+@pytest.mark.mariadb
+@pytest.mark.parametrize("options", [{"where": "grp <> 2"}, {"missing": "drop", "bins": 4}])
+def test_counted_bins_equal_the_row_by_row_bins_on_mariadb(
+        options: dict[str, Any], request: pytest.FixtureRequest) -> None:
+    # MariaDB groups text byte-exactly (BINARY keys): the classes arrive as bytes.
+    dataset = _tied_dataset(rows=1500, seed=6)
+    with loaded("mariadb", dataset, request) as where:
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED, **options)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, **options)
+    _assert_counted(counted)
+    assert_same_ranking(counted, row_by_row, str(options))
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts, a.attribute
+
+
+def test_the_dialects_run_and_measured_here_count() -> None:
+    # MySQL has no server in the tests: it keeps its one-statement quantile.
+    counting = ("duckdb", "postgres", "sqlite", "mariadb")
+    assert {capabilities(d).run_quantile for d in counting} == {"counted"}
+    assert capabilities("mysql").run_quantile == "statement"
 
 
 @pytest.mark.slow
@@ -137,9 +163,10 @@ def test_infinite_and_nan_values_are_ranked_the_usual_way(
     with loaded("duckdb", dataset, request) as where:
         counted = rank_with(where.source, where.table, "y", caps=COUNTED)
         row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW)
-    sent = _sent(counted)
-    assert "given_counts" in sent  # plain was counted ...
-    assert ROW_BINNING in sent.split("given_counts")[-1]  # ... the other two binned by rows
+    assert CELLS in _sent(counted)  # plain was counted ...
+    (ranked,) = _ranking_statements(counted)  # ... the other two binned by rows
+    assert ROW_BINNING in ranked and '"with_inf"' in ranked and '"with_nan"' in ranked
+    assert '"plain"' not in ranked
     assert_same_ranking(counted, row_by_row)
     for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
         assert a.cuts == b.cuts, a.attribute
@@ -171,22 +198,27 @@ def test_a_table_changing_between_the_steps_is_ranked_the_usual_way(
         fresh = rank_with(connection, "t", "y", caps=ROW_BY_ROW)
     finally:
         connection.close()
-    assert "given_counts" not in _sent(ranking) and ranking.rows == 3360
+    assert ROW_BINNING in _sent(ranking) and ranking.rows == 3360
     assert_same_ranking(ranking, fresh)
 
 
 @pytest.mark.slow
-def test_too_many_given_rows_are_binned_by_the_ranking_statement(
-        monkeypatch: pytest.MonkeyPatch, request: pytest.FixtureRequest) -> None:
-    dataset = shaped_dataset(rows=1000, seed=2)
-    monkeypatch.setattr(quantile_counts, "MAX_GIVEN_ROWS", 10)
+def test_many_bins_and_classes_are_still_counted(request: pytest.FixtureRequest) -> None:
+    # 50 bins x 400 classes x 2 attributes: about 25,000 non-empty (bin, class) cells. They
+    # were sent back to the database as literal rows, capped at 20,000 (above, binned row by
+    # row); computed in the client, nothing caps them.
+    rng = random.Random(12)
+    rows = [(f"c{rng.randrange(400)}", rng.gauss(0, 1), rng.expovariate(1.0))
+            for _ in range(20_000)]
+    dataset = Dataset(columns=(("y", "text"), ("normal", "float"), ("tail", "float")),
+                      rows=rows)
     with loaded("duckdb", dataset, request) as where:
-        ranking = rank_with(where.source, where.table, "y", caps=COUNTED)
-        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW)
-    assert "given_counts" not in _sent(ranking) and "bucket_rows" in _sent(ranking)
-    assert_same_ranking(ranking, row_by_row)
-    for a, b in zip(ranking.attributes, row_by_row.attributes, strict=True):
-        assert a.cuts == b.cuts, a.attribute
+        counted = rank_with(where.source, where.table, "y", caps=COUNTED, bins=50)
+        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, bins=50)
+    _assert_counted(counted)
+    assert_same_ranking(counted, row_by_row)
+    for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
+        assert a.cuts == b.cuts and len(a.cuts or []) == 49, a.attribute
 
 
 @pytest.mark.slow
@@ -212,7 +244,7 @@ def test_segments_and_weights_keep_the_row_by_row_binning(
         weighted = bitsift.rank(where.source, target="y", table=where.table, weight="grp",
                                 attributes="normal,ties")
     for result in (segmented, weighted):
-        assert "given_counts" not in "\n".join(result.statements).lower()
+        assert CELLS not in _sent(result) and ROW_BINNING in _sent(result)
 
 
 def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None:
@@ -230,7 +262,7 @@ def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None
     finally:
         connection.close()
     scale = 2000 / math.sqrt(2999)  # buckets / (highest - lowest value)
-    assert f"* {scale!r})" in _sent(counted).split("given_counts")[0]
+    assert f"* {scale!r})" in _sent(counted)
     assert_same_ranking(counted, row_by_row)
     assert counted.attributes[0].cuts == row_by_row.attributes[0].cuts
 

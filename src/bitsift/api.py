@@ -34,8 +34,8 @@ from bitsift.sqlbuild import (
     cut_count,
     histogram_statement,
     paste_statement,
-    value_expression,
 )
+from bitsift.sqlstatements import rows_statement
 
 
 def _names(value: str | Iterable[str] | None) -> tuple[str, ...]:
@@ -364,15 +364,7 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
 
 def _pull_rows(engine: Engine, spec: RankSpec, limit: int | None) -> dict[str, list[Any]]:
     names = [spec.target, *(a.name for a in spec.attributes)]
-    # Attributes as ranked: a date's epoch seconds or part rather than the date itself.
-    values = [exp.column(exp.to_identifier(spec.target, quoted=True)),
-              *(value_expression(a, engine.caps) for a in spec.attributes)]
-    query = exp.select(*values).from_(spec.source.copy())
-    if spec.where is not None:
-        query = query.where(spec.where.expression.copy())
-    if limit is not None:
-        query = query.limit(limit)
-    result = engine.fetch(query.sql(engine.caps.sqlglot_dialect))
+    result = engine.fetch(rows_statement(spec, engine.caps, limit).sql)
     columns = list(zip(*result.rows, strict=True)) if result.rows else [() for _ in names]
     return {n: [hashable_value(v) for v in c] for n, c in zip(names, columns, strict=True)}
 

@@ -6,6 +6,8 @@ import math
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
+import numpy as np
+from numpy.typing import ArrayLike
 from scipy import stats
 
 from bitsift.result import AttributeScore
@@ -71,6 +73,53 @@ def flags_for(distinct: int, rows: int, information_gain: float, target_entropy:
     if distinct > thresholds.high_cardinality:
         flags.append("high_cardinality")
     return flags
+
+
+def _n_ln_n(counts: np.ndarray) -> float:
+    """The sum of n ln n over the positive counts, exactly rounded (so in any order the same)."""
+    positive = counts[counts > 0]
+    return math.fsum((positive * np.log(positive)).tolist())
+
+
+def table_row(table: ArrayLike) -> dict[str, Any] | None:
+    """The fields the ranking statement computes for one attribute, from its value x class
+    counts counted beforehand (rows: values, columns: classes; rows without a target and, with
+    ``--missing drop``, the NULL value left out). None when no row is counted, where the
+    statement returns no row either.
+
+    The same formulas as templates/rank.sql.j2 (sums of n ln n, exactly summed) rather than
+    the reference's p log p form, so both paths agree to the last bits before :func:`score`
+    snaps them. The target's own row is the table of its classes alone (one value: IG 0).
+
+    >>> row = table_row([[2, 3], [4, 0], [3, 2]])  # a 3-valued attribute, 9/5 classes
+    >>> row["distinct_values"], row["dof"], round(row["information_gain"], 3)
+    (3, 2, 0.247)
+    """
+    t = np.atleast_2d(np.asarray(table, dtype=float))
+    n_x, n_y = t.sum(axis=1), t.sum(axis=0)
+    n_total = math.fsum(n_x.tolist())
+    if n_total <= 0:
+        return None
+    n_values, n_classes = int((n_x > 0).sum()), int((n_y > 0).sum())
+    s_xy, s_x, s_y = _n_ln_n(t.ravel()), _n_ln_n(n_x), _n_ln_n(n_y)
+    ln_n, ln_2 = math.log(n_total), math.log(2)
+    h_y = (ln_n - s_y / n_total) / ln_2 if n_classes > 1 else 0.0
+    h_x = (ln_n - s_x / n_total) / ln_2 if n_values > 1 else 0.0
+    gain = h_y - (s_x - s_xy) / n_total / ln_2
+    ig = gain if n_values > 1 and gain > 0 else 0.0
+    return {
+        "rows_used": int(n_total),
+        "distinct_values": n_values,
+        "classes": n_classes,
+        "target_entropy": h_y,
+        "attribute_entropy": h_x,
+        "conditional_entropy": h_y - ig,
+        "information_gain": ig,
+        "gain_ratio": ig / h_x if n_values > 1 else 0.0,
+        "symmetric_uncertainty": 2 * ig / (h_x + h_y) if h_x + h_y > 0 else 0.0,
+        "g_statistic": 2 * n_total * ln_2 * ig,
+        "dof": (n_values - 1) * (n_classes - 1),
+    }
 
 
 def score(row: Mapping[str, Any], name: str, kind: str, thresholds: Thresholds,

@@ -14,36 +14,18 @@ import math
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from decimal import Decimal
-from typing import Any, Literal, cast
-
-from sqlglot import exp
+from typing import Any, Literal
 
 from bitsift.api import make_options, run_ranking, run_segmented
-from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
 from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
-from bitsift.predicate import Predicate
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column, hashable_value
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
-from bitsift.sqlbuild import (
-    COLLATED_FAMILIES,
-    EXACT_KEY,
-    Statement,
-    _finish,
-    attribute_value,
-    literal,
-    quote,
-    source_sql,
-    value_literal,
-)
-from bitsift.templates import render
-
-#: Values of a categorical attribute listed one by one; the rest are merged into one row.
-DEFAULT_MAX_VALUES = 20
+from bitsift.sqlstatements import DEFAULT_MAX_VALUES, profile_statement, segment_predicate
 
 MISSING_LABEL = "(missing)"
 
@@ -193,58 +175,6 @@ def entropy_bits(counts: Iterable[int]) -> float:
         return 0.0
     bits = -math.fsum((c / total) * math.log2(c / total) for c in values)
     return bits if bits > 0 else 0.0  # never -0.0 nor a rounding-sized negative
-
-
-def profile_statement(
-    spec: RankSpec,
-    caps: Capabilities,
-    cuts: Mapping[str, Sequence[float]],
-    *,
-    max_values: int = DEFAULT_MAX_VALUES,
-    pretty: bool = False,
-) -> Statement:
-    """The statement counting value x class rows of every attribute of ``spec``.
-
-    ``cuts`` holds the bin boundaries of each numeric attribute (from the ranking, see
-    :attr:`AttributeScore.cuts`); every bin of a numeric attribute is listed, categorical ones
-    list their ``max_values`` most frequent values and merge the rest.
-    """
-    if max_values < 1:
-        raise SpecError(f"--max-values must be at least 1, not {max_values}")
-
-    def exact(family: str) -> bool:
-        # Same rule as the ranking: text under a collation that may merge 'a' and 'A'.
-        return caps.exact_key_type is not None and family in COLLATED_FAMILIES
-
-    attributes = []
-    for index, attribute in enumerate(spec.attributes, start=1):
-        attribute_cuts: list[str] | None = None
-        limit = max_values
-        if attribute.kind == "numeric":
-            if attribute.name not in cuts:
-                raise SpecError(f"no cut points for the numeric attribute {attribute.name!r}")
-            attribute_cuts = [literal(float(c)) for c in cuts[attribute.name]]
-            limit = len(attribute_cuts) + 2  # every bin, and the missing values
-        attributes.append(
-            {
-                "index": index,
-                # The value ranked: the column, or a date's epoch seconds or part.
-                "column": attribute_value(attribute),
-                "cuts": attribute_cuts,
-                "exact": exact(attribute.family) and not attribute.date_part,
-                "max_values": literal(limit),
-            }
-        )
-    context = {
-        "source": source_sql(spec.source),
-        "target": quote(spec.target),
-        "target_exact": exact(spec.target_family),
-        "attributes": attributes,
-        "where": spec.where.expression.sql("duckdb") if spec.where else None,
-        "strategy": caps.count_strategy,
-        "drop_missing": spec.options.missing == "drop",
-    }
-    return _finish(render("profile.sql.j2", **context), caps, pretty)
 
 
 def _number(value: Any) -> int:
@@ -526,28 +456,6 @@ def _no_weight(options: Mapping[str, Any]) -> None:
     if options.get("weight"):
         raise SpecError("the drill-down counts rows: --weight is not supported by report "
                         "and profile (use `bitsift rank --weight`)")
-
-
-def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
-    """The user's ``--where`` (if any) and the conditions selecting one segment's rows.
-
-    Values are compared as the ranking grouped them: byte-exactly where the dialect's
-    collation could merge 'a' and 'A' (the template hook turns the placeholder into a cast).
-    """
-    conditions: list[exp.Expression] = []
-    for column in spec.by:
-        value = segment[column.name]
-        node: exp.Expression = exp.column(exp.to_identifier(column.name, quoted=True))
-        if value is None:
-            conditions.append(exp.Is(this=node, expression=exp.Null()))
-            continue
-        if column.family in COLLATED_FAMILIES:
-            node = exp.Anonymous(this=EXACT_KEY, expressions=[node])
-        conditions.append(exp.EQ(this=node, expression=value_literal(value)))
-    if spec.where is not None:
-        conditions.insert(0, exp.Paren(this=spec.where.expression.copy()))
-    text = " AND ".join(c.sql("duckdb") for c in conditions)
-    return Predicate(text=text, expression=cast(exp.Expression, exp.and_(*conditions)))
 
 
 def rank_and_profile_segments(

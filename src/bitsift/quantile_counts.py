@@ -10,8 +10,9 @@ the bins' counts:
 2. ``quantile_cells.sql.j2``: rows per (bucket, class), NULL values and NULL targets included;
 3. ``quantile_splits.sql.j2``: in the few buckets holding a wanted rank, that rank's value
    ``v`` and, per class, the bucket's rows below ``v`` and equal to it;
-4. the ranking statement's own formulas (``rank.sql.j2`` with the cells given as literal
-   rows, classes numbered): the same metrics, computed in the database from the counts.
+4. the ranking statement's own formulas, computed here from the counts already in the client
+   (:func:`bitsift.metrics.table_row`): no statement sends them back to the database, so
+   their number is not capped and every dialect that runs steps 1-3 can count this way.
 
 Why it is exact: the bucket ``FLOOR((value - lo) * scale)`` never decreases as the value
 grows, so every row of an earlier bucket lies below a later bucket's values, and equal values
@@ -24,8 +25,7 @@ statement finds with ``CASE WHEN value < c ...``, to the row.
 
 Where step 2 shows an infinite or NaN value, or step 3 a bucket whose rows changed (the table
 changed in between), the attribute is ranked the usual way (:func:`bitsift.api.fetch_cuts`,
-then the ranking statement); so is every attribute when the given rows would make a very long
-statement. Segments (``--by``) and weights take the usual way too.
+then the ranking statement). Segments (``--by``) and weights take the usual way too.
 """
 
 from __future__ import annotations
@@ -37,24 +37,16 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from bitsift.engines.base import Engine
+from bitsift.metrics import table_row
 from bitsift.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
 from bitsift.spec import RankSpec
-from bitsift.sqlbuild import (
-    counted_rank_statement,
-    quantile_cells_statement,
-    quantile_splits_statement,
-    rank_statement,
-)
+from bitsift.sqlbuild import rank_statement
+from bitsift.sqlstatements import quantile_cells_statement, quantile_splits_statement
 
 Record = dict[str, Any]
 #: A class as Python sees it (NaN made equal to NaN, as the engines group it); None: NULL.
 ClassKey = Hashable
 PerClass = dict[ClassKey, int]
-
-#: Above this many given rows (bins x classes over the attributes) the attributes are binned
-#: by the ranking statement instead: a statement of literals grows with them.
-MAX_GIVEN_ROWS = 20_000
-
 
 class _NaN:
     """The one key of every NaN class value (NaN never equals itself in Python)."""
@@ -199,32 +191,34 @@ def _bins(cells: Cells, splits: Mapping[tuple[int, int, int], Split],
     return cuts, counts
 
 
-def _given_rows(indexes: Sequence[int], cells: Mapping[int, Cells],
-                binned: Mapping[int, tuple[list[float], list[PerClass]]],
-                ) -> list[list[int | None]]:
-    """(attr, a1 .. aK, class, n) rows: attr 0 the target's, then each attribute's bins and
-    NULL value; attributes numbered 1..K in ``indexes`` order, classes in order of arrival."""
-    numbers: dict[ClassKey, int] = {}
+def _table(per_value: Sequence[PerClass], classes: Sequence[ClassKey]) -> list[list[int]]:
+    """Value x class counts: one row per value, one column per class of ``classes``."""
+    return [[per_class.get(key, 0) for key in classes] for per_class in per_value]
 
-    def number(key: ClassKey) -> int | None:
-        return None if key is None else numbers.setdefault(key, len(numbers))
 
-    width = len(indexes)
-    rows: list[list[int | None]] = []
-    first = cells[indexes[0]]
-    for key, n in first.all_rows.items():
-        rows.append([0, *[None] * width, number(key), n])
+def _counted_records(spec: RankSpec, indexes: Sequence[int], cells: Mapping[int, Cells],
+                     binned: Mapping[int, tuple[list[float], list[PerClass]]]) -> list[Record]:
+    """The ranking statement's rows (the target's, then each attribute's, numbered 1..K in
+    ``indexes`` order) computed here from the counts, by the statement's own formulas
+    (:func:`bitsift.metrics.table_row`): the counts are already in the client."""
+    all_rows = cells[indexes[0]].all_rows
+    classes = [key for key in all_rows if key is not None]
+    shared = {"rows_excluded": all_rows.get(None, 0)}
+    tables: list[tuple[int, str, str, list[PerClass]]] = [
+        (0, spec.target, "target", [{k: n for k, n in all_rows.items() if k is not None}])]
     for position, i in enumerate(indexes, start=1):
-        _, per_bin = binned[i]
-        values: list[tuple[int | None, PerClass]] = [*enumerate(per_bin),
-                                                      (None, cells[i].missing)]
-        for value, per_class in values:
-            for key, n in per_class.items():
-                if n > 0:
-                    row: list[int | None] = [position, *[None] * width, number(key), n]
-                    row[position] = value
-                    rows.append(row)
-    return rows
+        attribute = spec.attributes[i - 1]
+        per_value = list(binned[i][1])
+        if spec.options.missing != "drop":
+            per_value.append(cells[i].missing)  # NULL: one more value
+        tables.append((position, attribute.name, attribute.kind, per_value))
+    records = []
+    for position, name, kind, per_value in tables:
+        row = table_row(_table(per_value, classes))
+        if row is not None:  # no row counted: the statement has no row for it either
+            records.append({"attribute_index": position, "attribute": name, "kind": kind,
+                            **shared, **row})
+    return records
 
 
 def _renumbered(records: Sequence[Record], positions: Sequence[int],
@@ -263,15 +257,11 @@ def rank_counted(engine: Engine, spec: RankSpec,
             if result is not None:
                 binned[i] = result
     counted = [i for i in indexes if i in binned]
-    rows = _given_rows(counted, cells, binned) if counted else []
-    if len(rows) > MAX_GIVEN_ROWS:
-        counted, rows = [], []
     records: list[Record] = []
     cuts: dict[str, list[float]] = {}
     if counted:
-        narrowed = replace(spec, attributes=tuple(spec.attributes[i - 1] for i in counted))
-        statement = counted_rank_statement(narrowed, engine.caps, rows)
-        records += _renumbered(engine.fetch(statement.sql).records(), counted, keep_target=True)
+        records += _renumbered(_counted_records(spec, counted, cells, binned), counted,
+                               keep_target=True)
         cuts.update({spec.attributes[i - 1].name: binned[i][0] for i in counted})
     rest = [i for i in range(1, len(spec.attributes) + 1) if i not in counted]
     if rest:

@@ -38,9 +38,9 @@ from dataclasses import dataclass, field
 
 from bitsift.engines.base import Engine
 from bitsift.spec import RankSpec
-from bitsift.sqlbuild import (
+from bitsift.sqlbuild import quantile_levels
+from bitsift.sqlstatements import (
     quantile_buckets_statement,
-    quantile_levels,
     quantile_picks_statement,
     quantile_ranges_statement,
 )

@@ -23,25 +23,13 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from bitsift.api import make_options, run_ranking
-from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
 from bitsift.metrics import snap
 from bitsift.result import Ranking
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
-from bitsift.sqlbuild import (
-    CANONICAL,
-    Statement,
-    _exact,
-    _finish,
-    _qualified,
-    attribute_value,
-    literal,
-    quote,
-    source_sql,
-)
-from bitsift.templates import render
+from bitsift.sqlstatements import pairs_statement, refuse_segments_and_weights
 
 #: Pairs per statement: one grouping set each. Engines cap the number of grouping sets
 #: (PostgreSQL at 4096) and a wide GROUP BY costs memory, so large matrices go in batches.
@@ -143,88 +131,6 @@ class RedundancyMatrix:
     def add(self, scores: Iterable[PairScore]) -> None:
         for score in scores:
             self.pairs[frozenset((score.first, score.second))] = score
-
-
-def refuse_segments_and_weights(spec: RankSpec) -> None:
-    """Redundancy and selection measure one table by row counts: no --by, no --weight."""
-    refused = [name for name, used in (("--by", spec.by), ("--weight", spec.weight)) if used]
-    if refused:
-        raise SpecError(
-            f"redundancy and selection do not take {' or '.join(refused)}: they count rows of "
-            "the whole table (for one segment, give its condition with --where)"
-        )
-
-
-def pairs_statement(
-    spec: RankSpec,
-    caps: Capabilities,
-    cuts: Mapping[str, Sequence[float]],
-    pairs: Sequence[tuple[str, str]],
-    *,
-    pretty: bool = False,
-) -> Statement:
-    """The statement measuring ``pairs`` of ``spec``'s attributes (one row per pair).
-
-    ``cuts`` holds the ranking's cut points of every numeric attribute named in a pair
-    (:attr:`~bitsift.result.AttributeScore.cuts`). Only the attributes named in a pair are read.
-
-    >>> import duckdb
-    >>> from bitsift.dialects import capabilities
-    >>> from bitsift.schema import Column
-    >>> from bitsift.sources import parse_table_name
-    >>> cols = [Column("y", "text"), Column("a", "text"), Column("b", "float")]
-    >>> spec = resolve(make_options("y"), cols, parse_table_name("t", "duckdb"), "t", "duckdb")
-    >>> sql = pairs_statement(spec, capabilities("postgres"), {"b": [0.5]}, [("a", "b")]).sql
-    >>> "GROUPING SETS" in sql and "< 0.5" in sql
-    True
-    """
-    refuse_segments_and_weights(spec)
-    if not pairs:
-        raise SpecError("no pairs of attributes to measure")
-    by_name = {a.name: a for a in spec.attributes}
-    unknown = sorted({n for pair in pairs for n in pair if n not in by_name})
-    if unknown:
-        raise SpecError("not attributes of this ranking: " + ", ".join(unknown))
-    if any(a == b for a, b in pairs):
-        raise SpecError("a pair needs two different attributes")
-    involved = list(dict.fromkeys(n for pair in pairs for n in pair))
-    local = {name: i for i, name in enumerate(involved, start=1)}
-    pair_rows = [
-        {"index": p, "left": local[a], "right": local[b]}
-        for p, (a, b) in enumerate(pairs, start=1)
-    ]
-    attributes = []
-    for name in involved:
-        attribute = by_name[name]
-        attribute_cuts: list[str] | None = None
-        if attribute.kind == "numeric":
-            if name not in cuts:
-                raise SpecError(f"no cut points for the numeric attribute {name!r}")
-            attribute_cuts = [literal(float(c)) for c in cuts[name]]
-        index = local[name]
-        # The value the ranking measured (a column, a date part, a date's epoch seconds),
-        # grouped byte-exactly where the ranking groups it so (sqlbuild's rules).
-        attributes.append({
-            "index": index,
-            "value": attribute_value(attribute, "src"),
-            "cuts": attribute_cuts,
-            "exact": _exact(attribute.family, caps) and not attribute.date_part,
-            "left_pairs": [p["index"] for p in pair_rows if p["left"] == index],
-            "right_pairs": [p["index"] for p in pair_rows if p["right"] == index],
-            "pairs": [p["index"] for p in pair_rows if index in (p["left"], p["right"])],
-        })
-    context = {
-        "source": source_sql(spec.source),
-        "target": quote(spec.target),
-        "attributes": attributes,
-        "pairs": pair_rows,
-        "qualified_where": _qualified(spec.where.expression, "src").sql(CANONICAL)
-        if spec.where
-        else None,
-        "strategy": caps.count_strategy,
-        "drop_missing": spec.options.missing == "drop",
-    }
-    return _finish(render("pairs.sql.j2", **context), caps, pretty)
 
 
 def _float(value: Any) -> float:

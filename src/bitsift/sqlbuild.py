@@ -114,7 +114,7 @@ class Statement:
     dialect: str
 
 
-def _exact(family: str, caps: Capabilities) -> bool:
+def exact_grouping(family: str, caps: Capabilities) -> bool:
     return caps.exact_key_type is not None and family in COLLATED_FAMILIES
 
 
@@ -152,6 +152,11 @@ def attribute_value(attribute: AttributeSpec, alias: str | None = None) -> str:
         node = exp.Anonymous(this=DATE_PART, expressions=[node,
                                                           exp.Literal.string(attribute.date_part)])
     return node.sql(CANONICAL)
+
+
+def parsed_value(attribute: AttributeSpec) -> exp.Expression:
+    """:func:`attribute_value` as a tree of its own, placeholders kept (canonical dialect)."""
+    return _parsed(attribute_value(attribute), CANONICAL).copy()
 
 
 def value_expression(attribute: AttributeSpec, caps: Capabilities) -> exp.Expression:
@@ -213,13 +218,52 @@ def _bounds(computed: Sequence[dict[str, object]], spec: RankSpec, caps: Capabil
                        or (a["method"] == "quantile" and aggregate)],
         "windowed": [a for a in computed if a["method"] == "quantile" and not aggregate],
         "splits": [a for a in computed if a["method"] == "best-split"],
-        "target_key": _grouping_key(spec.target, spec.target_family, caps),
+        "target_key": grouping_key(spec.target, spec.target_family, caps),
     }
 
 
-def _grouping_key(name: str, family: str, caps: Capabilities) -> str:
-    column = quote(name)
-    return f"{EXACT_KEY}({column})" if _exact(family, caps) else column
+def grouping_key(name: str, family: str, caps: Capabilities) -> str:
+    """A column as the templates group it (canonical SQL): wrapped in the byte-exact
+    placeholder where :func:`exact_grouping` says so."""
+    column: exp.Expression = exp.column(exp.to_identifier(name, quoted=True))
+    if exact_grouping(family, caps):
+        column = exp.Anonymous(this=EXACT_KEY, expressions=[column])
+    return column.sql(CANONICAL)
+
+
+def measured_entry(index: int, attribute: AttributeSpec, caps: Capabilities,
+              cuts: Mapping[str, Sequence[float]] | None = None) -> dict[str, object]:
+    """The template entry every counting statement shares for one attribute: its number, the
+    value measured (a column, a date's epoch seconds or part; ``value`` qualified by ``src``,
+    ``raw`` not), whether it is grouped byte-exactly (:func:`exact_grouping`) and, for a numeric
+    attribute named in ``cuts``, its literal cut points."""
+    return {
+        "index": index,
+        "value": attribute_value(attribute, "src"),
+        "raw": attribute_value(attribute),
+        "cuts": literal_cuts(attribute, cuts) if cuts is not None else None,
+        "exact": exact_grouping(attribute.family, caps) and not attribute.date_part,
+    }
+
+
+def literal_cuts(attribute: AttributeSpec, cuts: Mapping[str, Sequence[float]],
+                  ) -> list[str] | None:
+    """A numeric attribute's cut points (from the ranking) as literals; None if categorical."""
+    if attribute.kind != "numeric":
+        return None
+    if attribute.name not in cuts:
+        raise SpecError(f"no cut points for the numeric attribute {attribute.name!r}")
+    return [literal(float(c)) for c in cuts[attribute.name]]
+
+
+def where_sql(spec: RankSpec) -> str | None:
+    """The user's ``--where`` (canonical dialect), columns unqualified."""
+    return spec.where.expression.sql(CANONICAL) if spec.where else None
+
+
+def qualified_where_sql(spec: RankSpec) -> str | None:
+    """The user's ``--where`` with its columns qualified by ``src``."""
+    return _qualified(spec.where.expression, "src").sql(CANONICAL) if spec.where else None
 
 
 def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[float]] | None,
@@ -229,16 +273,9 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
     attributes = []
     computed = []
     for index, attribute in enumerate(spec.attributes, start=1):
-        entry: dict[str, object] = {
-            "index": index,
-            "column": quote(attribute.name),
-            "value": attribute_value(attribute, "src"),
-            "raw": attribute_value(attribute),
-            "label": literal(attribute.name),
-            "kind": attribute.kind,
-            "cuts": None,
-            "exact": _exact(attribute.family, caps) and not attribute.date_part,
-        }
+        entry = measured_entry(index, attribute, caps)
+        entry.update({"column": quote(attribute.name), "label": literal(attribute.name),
+                      "kind": attribute.kind})
         if attribute.kind == "numeric":
             if cuts is not None and attribute.name in cuts:
                 entry["cuts"] = [literal(float(c)) for c in cuts[attribute.name]]
@@ -251,20 +288,17 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "source": source_sql(spec.source),
         "target": quote(spec.target),
         "target_label": literal(spec.target),
-        "target_exact": _exact(spec.target_family, caps),
+        "target_exact": exact_grouping(spec.target_family, caps),
         "attributes": attributes,
-        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
-        "qualified_where": _qualified(spec.where.expression, "src").sql(CANONICAL)
-        if spec.where
-        else None,
+        "where": where_sql(spec),
+        "qualified_where": qualified_where_sql(spec),
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
-        "given": None,
     }
 
 
-def _finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
+def finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
     try:
         trees = sqlglot.parse(text, read=CANONICAL)
     except sqlglot.errors.SqlglotError as error:  # pragma: no cover - a template bug
@@ -324,17 +358,17 @@ def rank_statement(
     context = _context(spec, caps, cuts)
     context.update(_segments_and_weight(spec, caps))
     context["order_by_gain"] = order_by
-    return _finish(render("rank.sql.j2", **context), caps, pretty)
+    return finish(render("rank.sql.j2", **context), caps, pretty)
 
 
 def _segments_and_weight(spec: RankSpec, caps: Capabilities) -> dict[str, object]:
     """The ranking template's segment columns (``--by``) and weight column (``--weight``).
 
-    Segment values are grouped byte-exactly like attribute values (see :func:`_exact`).
+    Segment values are grouped byte-exactly like attribute values (see :func:`exact_grouping`).
     """
     return {
         "segments": [
-            {"index": index, "column": quote(s.name), "exact": _exact(s.family, caps)}
+            {"index": index, "column": quote(s.name), "exact": exact_grouping(s.family, caps)}
             for index, s in enumerate(spec.by, start=1)
         ],
         "weight": quote(spec.weight) if spec.weight else None,
@@ -350,7 +384,7 @@ def bounds_statement(spec: RankSpec, caps: Capabilities, skip: Collection[str] =
     context = _context(spec, caps, known)
     if context["bounds"] is None:
         return None
-    return _finish(render("bounds_query.sql.j2", **context), caps, pretty=False)
+    return finish(render("bounds_query.sql.j2", **context), caps, pretty=False)
 
 
 def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> Statement | None:
@@ -367,119 +401,11 @@ def histogram_statement(spec: RankSpec, caps: Capabilities, resolution: int) -> 
         "attributes": attributes,
         "source": source_sql(spec.source),
         "target": quote(spec.target),
-        "target_key": _grouping_key(spec.target, spec.target_family, caps),
-        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
+        "target_key": grouping_key(spec.target, spec.target_family, caps),
+        "where": where_sql(spec),
         "resolution": literal(int(resolution)),
     }
-    return _finish(render("histogram.sql.j2", **context), caps, pretty=False)
-
-
-def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
-                      caps: Capabilities) -> dict[str, object]:
-    return {
-        "attributes": attributes,
-        "source": source_sql(spec.source),
-        "target": quote(spec.target),
-        "target_key": _grouping_key(spec.target, spec.target_family, caps),
-        "where": spec.where.expression.sql(CANONICAL) if spec.where else None,
-    }
-
-
-def quantile_ranges_statement(spec: RankSpec, caps: Capabilities,
-                              indexes: Sequence[int]) -> Statement:
-    """Lowest and highest value of the attributes numbered ``indexes`` (1-based, in
-    ``spec.attributes``) over the whole source, and its row count: step 1 of
-    :mod:`bitsift.quantiles` and :mod:`bitsift.quantile_counts`."""
-    attributes = [{"index": i, "raw": attribute_value(spec.attributes[i - 1])} for i in indexes]
-    return _finish(render("quantile_ranges.sql.j2", **_quantile_context(spec, attributes, caps)),
-                   caps, pretty=False)
-
-
-def bucket_expression(attribute: AttributeSpec, low: float, scale: float) -> str:
-    """``FLOOR((value - low) * scale)``: the equal-width bucket of a value (canonical SQL)."""
-    value = f"CAST({attribute_value(attribute)} AS DOUBLE)"
-    return f"FLOOR(({value} - ({literal(float(low))})) * {literal(float(scale))})"
-
-
-def _bucketed(spec: RankSpec, buckets: Mapping[int, tuple[float, float]],
-              ) -> list[dict[str, object]]:
-    """Template entries (index, raw value, bucket expression) of the attributes in
-    ``buckets`` (index -> (low, scale))."""
-    return [
-        {"index": i, "raw": attribute_value(spec.attributes[i - 1]),
-         "bucket": bucket_expression(spec.attributes[i - 1], low, scale)}
-        for i, (low, scale) in buckets.items()
-    ]
-
-
-def quantile_buckets_statement(spec: RankSpec, caps: Capabilities,
-                               buckets: Mapping[int, tuple[float, float]]) -> Statement:
-    """Value counts per equal-width bucket: ``buckets`` maps an attribute's index to the
-    (low, scale) of its buckets. Step 2 of :mod:`bitsift.quantiles`."""
-    context = _quantile_context(spec, _bucketed(spec, buckets), caps)
-    return _finish(render("quantile_buckets.sql.j2", **context), caps, pretty=False)
-
-
-def quantile_picks_statement(spec: RankSpec, caps: Capabilities,
-                             buckets: Mapping[int, tuple[float, float]],
-                             picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
-    """The values at (bucket, position) ``picks`` of each attribute, positions counted from 1
-    in value order within the bucket. Step 3 of :mod:`bitsift.quantiles`."""
-    attributes = _bucketed(spec, {i: buckets[i] for i in picks})
-    for entry in attributes:
-        ordered = sorted(set(picks[entry["index"]]))  # type: ignore[index]
-        entry["buckets"] = [literal(b) for b in sorted({b for b, _ in ordered})]
-        entry["picks"] = [(literal(b), literal(p)) for b, p in ordered]
-    context = _quantile_context(spec, attributes, caps)
-    return _finish(render("quantile_picks.sql.j2", **context), caps, pretty=False)
-
-
-def quantile_cells_statement(spec: RankSpec, caps: Capabilities,
-                             buckets: Mapping[int, tuple[float, float]]) -> Statement:
-    """Rows counted per (equal-width bucket, class) of each attribute in ``buckets`` (index ->
-    (low, scale)), NULL values and NULL targets included: step 2 of
-    :mod:`bitsift.quantile_counts`."""
-    context = _quantile_context(spec, _bucketed(spec, buckets), caps)
-    return _finish(render("quantile_cells.sql.j2", **context), caps, pretty=False)
-
-
-def quantile_splits_statement(spec: RankSpec, caps: Capabilities,
-                              buckets: Mapping[int, tuple[float, float]],
-                              picks: Mapping[int, Collection[tuple[int, int]]]) -> Statement:
-    """For each (bucket, position) of ``picks``, the value there and the rows of its bucket
-    below and equal to it, per class: step 3 of :mod:`bitsift.quantile_counts`."""
-    attributes = []
-    wanted = []
-    for entry in _bucketed(spec, {i: buckets[i] for i in picks}):
-        index = int(entry["index"])  # type: ignore[call-overload]
-        by_bucket: dict[int, list[int]] = {}
-        for bucket, position in sorted(set(picks[index])):
-            by_bucket.setdefault(bucket, []).append(position)
-        entry["buckets"] = [literal(b) for b in by_bucket]
-        wanted += [(literal(index), literal(b), [literal(p) for p in ps])
-                   for b, ps in by_bucket.items()]
-        attributes.append(entry)
-    context = _quantile_context(spec, attributes, caps)
-    context["picks"] = wanted
-    context["positions"] = [literal(p) for p in sorted({p for ps in picks.values() for _, p in ps})]
-    return _finish(render("quantile_splits.sql.j2", **context), caps, pretty=False)
-
-
-def counted_rank_statement(spec: RankSpec, caps: Capabilities,
-                           rows: Sequence[Sequence[int | None]]) -> Statement:
-    """The ranking statement's formulas over cells counted beforehand: ``rows`` are
-    (attr, a1 .. aK, class, n) with attr 0 for the target's own rows, classes numbered and
-    at most one of a1 .. aK set (run mode, :mod:`bitsift.quantile_counts`)."""
-    if spec.by or spec.weight:
-        raise ValueError("counted cells carry no segments or weights")
-    context = _context(spec, caps, {a.name: () for a in spec.numeric})
-    context.update(_segments_and_weight(spec, caps))
-    context["order_by_gain"] = None
-    # The first row's NULLs are typed: PostgreSQL types a VALUES column of NULLs only as text.
-    null = ["CAST(NULL AS BIGINT)"] + ["NULL"] * (len(rows) - 1)
-    context["given"] = [[null[n] if v is None else literal(int(v)) for v in row]
-                        for n, row in enumerate(rows)]
-    return _finish(render("rank.sql.j2", **context), caps, pretty=False)
+    return finish(render("histogram.sql.j2", **context), caps, pretty=False)
 
 
 def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None = None) -> str:
