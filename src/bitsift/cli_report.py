@@ -15,7 +15,6 @@ from bitsift import jsonout
 from bitsift.cli import _DEBUG, _comma_list, _library_options, by_option, rank_options
 from bitsift.names import one_line
 from bitsift.profile import (
-    DEFAULT_MAX_VALUES,
     ProfiledRun,
     Progress,
     profile,
@@ -24,6 +23,7 @@ from bitsift.profile import (
 )
 from bitsift.report import profile_dict, profile_text, render_report
 from bitsift.selection import CRITERIA, REPORT_CANDIDATES, select_for_runs
+from bitsift.sqlstatements import DEFAULT_MAX_VALUES
 
 
 def progress_printer(quiet: bool, stream: IO[str] | None = None) -> Progress | None:

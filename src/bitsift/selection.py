@@ -32,7 +32,7 @@ from typing import Any, Literal
 from bitsift.api import make_options
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
-from bitsift.profile import ProfiledRun, Progress, segment_predicate
+from bitsift.profile import ProfiledRun, Progress
 from bitsift.redundancy import (
     DEFAULT_BATCH_PAIRS,
     RedundancyMatrix,
@@ -45,6 +45,7 @@ from bitsift.redundancy import (
 from bitsift.result import Ranking
 from bitsift.sources import open_source
 from bitsift.spec import RankSpec, resolve
+from bitsift.sqlstatements import segment_predicate
 
 Criterion = Literal["mid", "miq"]
 CRITERIA: tuple[str, ...] = ("mid", "miq")

@@ -24,7 +24,7 @@ from bitsift.errors import Terminated
 
 #: How long the main thread may take to unwind after a cancel before the process is ended.
 GRACE_SECONDS = 10.0
-_LINES = {signal.SIGINT: "Interrupted.", signal.SIGTERM: "Terminated."}
+_LINES: dict[int, str] = {int(signal.SIGINT): "Interrupted.", int(signal.SIGTERM): "Terminated."}
 #: The signals the watcher saw, first first.
 _RECEIVED: list[int] = []
 
