@@ -28,6 +28,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from bitsift import quantile_counts, quantiles
+from bitsift.cuts import fetch_cuts
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine
 from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
@@ -144,8 +145,6 @@ def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
     """The statements of one part on one session: the boundaries pre-pass and the ranking
     statement, or, where the dialect's ``run_quantile`` is "counted", the attributes binned
     by quantile ranked from bucket counts (:mod:`bitsift.quantile_counts`)."""
-    from bitsift.api import fetch_cuts  # api imports this module: import at call time
-
     if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         records, cuts = quantile_counts.rank_counted(engine, spec)
         return PartResult(cuts=cuts, records=records)

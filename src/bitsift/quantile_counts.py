@@ -23,7 +23,7 @@ A bin's count per class is then the difference of two such counts: the counts th
 statement finds with ``CASE WHEN value < c ...``, to the row.
 
 Where step 2 shows an infinite or NaN value, or step 3 a bucket whose rows changed (the table
-changed in between), the attribute is ranked the usual way (:func:`bitsift.api.fetch_cuts`,
+changed in between), the attribute is ranked the usual way (:func:`bitsift.cuts.fetch_cuts`,
 then the ranking statement); so is every attribute when the given rows would make a very long
 statement. Segments (``--by``) and weights take the usual way too.
 """
@@ -36,6 +36,7 @@ from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+from bitsift.cuts import fetch_cuts
 from bitsift.engines.base import Engine
 from bitsift.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
 from bitsift.spec import RankSpec
@@ -246,8 +247,6 @@ def rank_counted(engine: Engine, spec: RankSpec,
     ``spec.attributes``, the target's row included) and cut points of every attribute of
     ``spec``: those binned by quantile from counts, any other the usual way. ``buckets``: as
     many as :func:`bitsift.quantiles.bucket_count` gives for the source's rows, unless given."""
-    from bitsift.api import fetch_cuts  # api imports this module: import at call time
-
     indexes = quantile_indexes(spec) if counts_apply(spec) else []
     plans = fetch_plans(engine, spec, indexes, buckets) if indexes else {}
     cells = _cells(engine, spec, plans) if plans else {}
