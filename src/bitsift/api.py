@@ -6,7 +6,7 @@ The CLI is a thin shell over these functions; they never print and never exit.
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Any
 
 import sqlglot
@@ -115,32 +115,15 @@ MAX_ATTRIBUTES_PER_STATEMENT = 50
 
 def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
                                                            dict[str, list[float]]]:
-    """Cut points and result rows of the ranking, in batches of at most
-    :data:`MAX_ATTRIBUTES_PER_STATEMENT` attributes, renumbered as if from one statement.
-
-    The target's rows (``attribute_index`` 0, and NULL for a segment without a target) are
-    the same in every batch: the first batch's are kept.
+    """Cut points and result rows of the ranking, in parts of at most
+    :data:`MAX_ATTRIBUTES_PER_STATEMENT` attributes, renumbered as if from one statement
+    (:func:`bitsift.parts.merge_parts`). Serial batches are the one-session case of
+    :func:`bitsift.concurrent.fetch_records_in_parts`.
     """
-    sessions = concurrent.sessions_for(engine, spec)
-    if sessions > 1:
-        # The dialect's run_sessions: parts of the attributes at once (benchmarks/RESULTS.md).
-        return concurrent.fetch_records_in_parts(engine, spec, sessions,
-                                                 MAX_ATTRIBUTES_PER_STATEMENT)
-    records: list[dict[str, Any]] = []
-    cuts: dict[str, list[float]] = {}
-    for offset in range(0, len(spec.attributes), MAX_ATTRIBUTES_PER_STATEMENT):
-        batch = replace(
-            spec, attributes=spec.attributes[offset:offset + MAX_ATTRIBUTES_PER_STATEMENT])
-        part = concurrent.rank_part(engine, batch)
-        cuts.update(part.cuts)
-        for record in part.records:
-            index = record["attribute_index"]
-            if index is not None and int(index) > 0:
-                record["attribute_index"] = int(index) + offset
-            elif offset:
-                continue
-            records.append(record)
-    return records, cuts
+    # The dialect's run_sessions: parts of the attributes at once (benchmarks/RESULTS.md);
+    # one session runs the same parts one after another.
+    return concurrent.fetch_records_in_parts(engine, spec, concurrent.sessions_for(engine, spec),
+                                             MAX_ATTRIBUTES_PER_STATEMENT)
 
 
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:

@@ -38,6 +38,7 @@ from typing import Any
 
 from bitsift.cuts import fetch_cuts
 from bitsift.engines.base import Engine
+from bitsift.parts import Record, merge_parts
 from bitsift.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
 from bitsift.spec import RankSpec
 from bitsift.sqlbuild import (
@@ -47,7 +48,6 @@ from bitsift.sqlbuild import (
     rank_statement,
 )
 
-Record = dict[str, Any]
 #: A class as Python sees it (NaN made equal to NaN, as the engines group it); None: NULL.
 ClassKey = Hashable
 PerClass = dict[ClassKey, int]
@@ -228,19 +228,6 @@ def _given_rows(indexes: Sequence[int], cells: Mapping[int, Cells],
     return rows
 
 
-def _renumbered(records: Sequence[Record], positions: Sequence[int],
-                keep_target: bool) -> list[Record]:
-    """Records of a narrowed spec, attribute_index mapped back to ``positions`` (from 1)."""
-    out = []
-    for record in records:
-        index = record["attribute_index"]
-        if index is not None and int(index) > 0:
-            out.append({**record, "attribute_index": positions[int(index) - 1]})
-        elif keep_target:
-            out.append(record)
-    return out
-
-
 def rank_counted(engine: Engine, spec: RankSpec,
                  buckets: int | None = None) -> tuple[list[Record], dict[str, list[float]]]:
     """Result rows (as the ranking statement returns them, ``attribute_index`` numbering
@@ -265,12 +252,12 @@ def rank_counted(engine: Engine, spec: RankSpec,
     rows = _given_rows(counted, cells, binned) if counted else []
     if len(rows) > MAX_GIVEN_ROWS:
         counted, rows = [], []
-    records: list[Record] = []
+    parts: list[tuple[list[int], list[Record]]] = []
     cuts: dict[str, list[float]] = {}
     if counted:
         narrowed = replace(spec, attributes=tuple(spec.attributes[i - 1] for i in counted))
         statement = counted_rank_statement(narrowed, engine.caps, rows)
-        records += _renumbered(engine.fetch(statement.sql).records(), counted, keep_target=True)
+        parts.append((counted, engine.fetch(statement.sql).records()))
         cuts.update({spec.attributes[i - 1].name: binned[i][0] for i in counted})
     rest = [i for i in range(1, len(spec.attributes) + 1) if i not in counted]
     if rest:
@@ -278,10 +265,9 @@ def rank_counted(engine: Engine, spec: RankSpec,
         known = {spec.attributes[i - 1].name: binned[i][0] for i in rest if i in binned}
         found_cuts = {**fetch_cuts(engine, _without(narrowed, known)), **known}
         statement = rank_statement(narrowed, engine.caps, found_cuts)
-        records += _renumbered(engine.fetch(statement.sql).records(), rest,
-                               keep_target=not counted)
+        parts.append((rest, engine.fetch(statement.sql).records()))
         cuts.update(found_cuts)
-    return records, cuts
+    return merge_parts(parts), cuts
 
 
 def _without(spec: RankSpec, known: Mapping[str, object]) -> RankSpec:
