@@ -115,3 +115,127 @@ def test_one_session_runs_the_parts_serially(small_db: Path, monkeypatch: pytest
     assert [(a.attribute, a.information_gain, a.cuts) for a in parts.attributes] == [
         (a.attribute, a.information_gain, a.cuts) for a in whole.attributes]
     assert (parts.rows, parts.classes) == (whole.rows, whole.classes)
+
+
+# --- every command opens its source and resolves its request once -------------------------------
+
+
+class Calls:
+    """How often ``sources.open_source`` and ``spec.resolve`` ran, wherever they were imported."""
+
+    def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
+        import sys
+
+        from bitsift import sources, spec
+
+        self.opened = 0
+        self.resolved = 0
+        real_open, real_resolve = sources.open_source, spec.resolve
+
+        def counted_open(*args: object, **kwargs: object) -> object:
+            self.opened += 1
+            return real_open(*args, **kwargs)  # type: ignore[arg-type]
+
+        def counted_resolve(*args: object, **kwargs: object) -> object:
+            self.resolved += 1
+            return real_resolve(*args, **kwargs)  # type: ignore[arg-type]
+
+        # Every module holding the functions by name, so that no caller escapes the count.
+        for name, module in list(sys.modules.items()):
+            if not name.startswith("bitsift") or module is None:
+                continue
+            for attribute, value in list(vars(module).items()):
+                if value is real_open:
+                    monkeypatch.setattr(module, attribute, counted_open)
+                elif value is real_resolve:
+                    monkeypatch.setattr(module, attribute, counted_resolve)
+
+
+def _job(folder: Path, source: Path) -> Path:
+    path = folder / "job.toml"
+    path.write_text(f'''job = "nightly"
+source = "{source}"
+
+[results]
+destination = "{folder / 'history.duckdb'}"
+
+[[ranking]]
+name = "all"
+table = "t"
+target = "y"
+''', encoding="utf-8")
+    return path
+
+
+COMMANDS = {
+    "rank": ["rank", "{db}", "-t", "t", "-y", "y"],
+    "rank --by": ["rank", "{db}", "-t", "t", "-y", "y", "--by", "s"],
+    "check": ["check", "{db}", "-t", "t", "-y", "y"],
+    "sql": ["sql", "{db}", "-t", "t", "-y", "y"],
+    "profile": ["profile", "{db}", "-t", "t", "-y", "y", "--attribute", "a,n"],
+    "report": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}"],
+    "report --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2"],
+    "report --by --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--by", "s",
+                             "--select", "2"],
+    "redundancy": ["redundancy", "{db}", "-t", "t", "-y", "y"],
+    "select": ["select", "{db}", "-t", "t", "-y", "y", "--k", "2"],
+    "run": ["run", "{job}"],
+    "run --dry-run": ["run", "{job}", "--dry-run"],
+}
+
+
+@pytest.mark.parametrize("command", list(COMMANDS))
+def test_each_command_opens_and_resolves_its_source_once(
+        command: str, small_db: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from click.testing import CliRunner
+
+    from bitsift.cli import cli
+
+    places = {"db": str(small_db), "out": str(tmp_path / "report.html"),
+              "job": str(_job(tmp_path, small_db))}
+    args = [a.format(**places) for a in COMMANDS[command]]
+    calls = Calls(monkeypatch)
+    result = CliRunner().invoke(cli, args)
+    assert result.exit_code == 0, result.output
+    assert (calls.opened, calls.resolved) == (1, 1), command
+
+
+def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
+                                                      monkeypatch: pytest.MonkeyPatch) -> None:
+    import bitsift
+    from bitsift.profile import rank_and_profile
+    from bitsift.selection import select_for_runs
+    from bitsift.session import Session
+
+    calls = Calls(monkeypatch)
+    with Session.open(str(small_db), "t") as session:
+        ranked = bitsift.rank(session, "y")
+        runs = [rank_and_profile(session, "y")]
+        select_for_runs(session, runs, "y", k=2)
+        assert session.engine.fetch("SELECT 1 AS one").rows == [(1,)]  # still open
+    assert (calls.opened, calls.resolved) == (1, 1)
+    assert runs[0].selection is not None
+    assert [a.attribute for a in ranked.attributes] == [
+        a.attribute for a in runs[0].ranking.attributes]
+    # Each result lists the statements sent for it, not those of earlier calls on the session.
+    drilled = runs[0].ranking.statements
+    # (sorted: on a file bitsift opened, parts of a ranking run on two sessions at once)
+    assert sorted(drilled[:len(ranked.statements)]) == sorted(ranked.statements)
+    assert len(drilled) > len(ranked.statements) + 1  # + the drill-down and the pairs
+    assert runs[0].selection.statements == drilled[-len(runs[0].selection.statements):]
+
+
+def test_models_open_each_rankings_source_once(small_db: Path, tmp_path: Path,
+                                               monkeypatch: pytest.MonkeyPatch) -> None:
+    """`bitsift models` checks a ranking, then writes its statement, on one opened source (its
+    request without limit and timeout is a second, different one to resolve)."""
+    from click.testing import CliRunner
+
+    from bitsift.cli import cli
+
+    job = _job(tmp_path, small_db)
+    calls = Calls(monkeypatch)
+    result = CliRunner().invoke(cli, ["models", str(job), "--out", str(tmp_path / "models")])
+    assert result.exit_code == 0, result.output
+    assert calls.opened == 1
+    assert "SELECT" in (tmp_path / "models" / "nightly__all.sql").read_text(encoding="utf-8")

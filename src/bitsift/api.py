@@ -20,7 +20,8 @@ from bitsift.errors import SpecError
 from bitsift.readout import read_ranking, read_segments
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column, hashable_value
-from bitsift.sources import open_source, parse_table_name
+from bitsift.session import session_for
+from bitsift.sources import parse_table_name
 from bitsift.spec import (
     RankOptions,
     RankSpec,
@@ -64,7 +65,8 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
     """Rank the attributes of a table by information gain about ``target``, in the database.
 
     ``source``: a DuckDB database file (with ``table``), a Parquet/CSV file, a SQLAlchemy URL
-    (with ``table``), an open DuckDB connection, or a SQLAlchemy Engine or Connection.
+    (with ``table``), an open DuckDB connection, a SQLAlchemy Engine or Connection, or an open
+    :class:`~bitsift.session.Session` (its own table; left open).
     ``options``: ``attributes``, ``exclude``, ``categorical``, ``numeric`` (lists or
     comma-separated strings), ``missing`` ("category" or "drop"), ``bins``, ``where``, ``sort``,
     ``limit``, ``timeout`` (seconds), ``thresholds`` (:class:`~bitsift.spec.Thresholds`),
@@ -83,15 +85,13 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
     0.5
     """
     spec_options = make_options(target, **options)
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
-        if spec.by:
-            return run_segmented(engine, spec)
-        return run_ranking(engine, spec)
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec = session.prepare(spec_options)
+        result = run_segmented(session.engine, spec) if spec.by else run_ranking(session.engine,
+                                                                                   spec)
+        result.statements = session.statements_since(mark)
+        return result
 
 
 def _label_binning(ranking: Ranking, spec: RankSpec) -> None:
@@ -170,16 +170,13 @@ def statement(
     """
     spec_options = make_options(target, **options)
     if source is not None:
-        opened = open_source(source, table)
-        with opened.engine as engine:
-            columns = engine.columns(opened.table, opened.display)
-            caps = capabilities(dialect) if dialect else engine.caps
-            spec = resolve(spec_options, columns, opened.table, opened.display,
-                           engine.caps.sqlglot_dialect)
+        with session_for(source, table) as session:
+            caps = capabilities(dialect) if dialect else session.engine.caps
+            spec = session.resolve(spec_options)
             # MDL's cut points need a Python step: computed here and inlined as literals.
-            text = _unshadowed(paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec)),
-                               spec, caps)
-            return _with_notes(text, engine.notes)
+            cuts = fetch_mdl_cuts(session.engine, spec)
+            text = _unshadowed(paste_statement(spec, caps, cuts=cuts), spec, caps)
+            return _with_notes(text, session.notes)
     if not table:
         raise SpecError("--table is required without a SOURCE")
     if not spec_options.attributes and not spec_options.numeric:
@@ -283,16 +280,14 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
     if spec_options.by or spec_options.weight:
         raise SpecError("check compares an unsegmented, unweighted ranking with the reference: "
                         "check one segment with --where instead of by, and leave out weight")
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
-        ranking = run_ranking(engine, spec)
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec = session.prepare(spec_options)
+        ranking = run_ranking(session.engine, spec)
+        ranking.statements = session.statements_since(mark)
         total = ranking.rows + ranking.rows_excluded
         whole = total <= sample_rows
-        data = _pull_rows(engine, spec, None if whole else sample_rows)
+        data = _pull_rows(session.engine, spec, None if whole else sample_rows)
     return _compare(ranking, spec, data, whole)
 
 

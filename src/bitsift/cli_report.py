@@ -12,6 +12,7 @@ from typing import IO, Any
 import click
 
 from bitsift import jsonout
+from bitsift.api import make_options
 from bitsift.cli_options import (
     by_option,
     comma_list,
@@ -30,6 +31,7 @@ from bitsift.profile import (
 )
 from bitsift.report import profile_dict, profile_text, render_report
 from bitsift.selection import CRITERIA, REPORT_CANDIDATES, select_for_runs
+from bitsift.session import Session
 
 
 def progress_printer(quiet: bool, stream: IO[str] | None = None) -> Progress | None:
@@ -93,15 +95,20 @@ def report_command(source: str, out: str, top: int, max_values: int,
     say = progress_printer(quiet)
     options = library_options(kwargs)
     by = options.pop("by", ())
-    if by:
-        runs = rank_and_profile_segments(source, by=by, top=top or None, max_values=max_values,
-                                         sensitive=sensitive, progress=say, **options)
-    else:
-        runs = [rank_and_profile(source, top=top or None, max_values=max_values,
-                                 sensitive=sensitive, progress=say, **options)]
-    if select_k:
-        select_for_runs(source, runs, k=select_k, criterion=criterion, by=by, progress=say,
-                        **options)
+    table = options.pop("table", None)
+    make_options(by=by, **options)  # bad options are reported before the source is opened
+    # One session: the ranking, the drill-down and --select share the opened source and spec.
+    with Session.open(source, table) as session:
+        if by:
+            runs = rank_and_profile_segments(session, by=by, top=top or None,
+                                             max_values=max_values, sensitive=sensitive,
+                                             progress=say, **options)
+        else:
+            runs = [rank_and_profile(session, top=top or None, max_values=max_values,
+                                     sensitive=sensitive, progress=say, **options)]
+        if select_k:
+            select_for_runs(session, runs, k=select_k, criterion=criterion, by=by,
+                            progress=say, **options)
     run = runs[0]  # the segments share one connection: same statements and notes
     _after_run(run, quiet)
     if say:
