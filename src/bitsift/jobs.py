@@ -24,7 +24,8 @@ from __future__ import annotations
 import datetime as _dt
 import re
 import tomllib
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -530,6 +531,20 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
         raise JobError(job.path, problems)
 
 
+@contextmanager
+def checked_sessions(job: Job, *, destination: bool = True,
+                     run_id: str | None = None) -> Iterator[dict[int, Session]]:
+    """:func:`preflight`, then each ranking's open session (by its position in the job) for
+    what follows: the source is not opened again. Closed afterwards."""
+    sessions: dict[int, Session] = {}
+    try:
+        preflight(job, destination=destination, run_id=run_id, sessions=sessions)
+        yield sessions
+    finally:
+        for session in sessions.values():
+            session.close()
+
+
 def _check_on_session(job: Job, ranking: JobRanking, session: Session,
                       written: dict[str, set[str]]) -> list[Problem]:
     """One ranking's problems against its open source; the names it would write are added
@@ -628,15 +643,10 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
     """
     run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
     run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
-    sessions: dict[int, Session] = {}
-    try:
-        # Each ranking's source is opened and its request resolved once: by the checks.
-        preflight(job, run_id=run_id, sessions=sessions)
+    # Each ranking's source is opened and its request resolved once: by the checks.
+    with checked_sessions(job, run_id=run_id) as sessions:
         done = [(ranking, _run_ranking(job, ranking, sessions[number], run_id))
                 for number, ranking in enumerate(job.rankings)]
-    finally:
-        for session in sessions.values():
-            session.close()
     # One history row per attribute, and per segment for a ranking with `by`.
     rows = [
         row

@@ -17,7 +17,7 @@ from pathlib import Path
 
 from bitsift import api
 from bitsift.errors import BitsiftError, SpecError
-from bitsift.jobs import Job, JobRanking, preflight
+from bitsift.jobs import Job, JobRanking, checked_sessions, preflight
 from bitsift.session import Session
 from bitsift.version import __version__
 
@@ -90,15 +90,10 @@ def write_models(job: Job, out_dir: str | Path, dialect: str | None = None) -> l
     if clashes:
         raise SpecError("ranking names give the same model file name: " + ", ".join(clashes)
                         + ": rename the rankings")
-    sessions: dict[int, Session] = {}
-    try:
-        # Each ranking's source is opened once: by the checks, then kept for its statement.
-        preflight(job, destination=False, sessions=sessions)
+    # Each ranking's source is opened once: by the checks, then kept for its statement.
+    with checked_sessions(job, destination=False) as sessions:
         texts = [(r, name, model_text(job, r, dialect, sessions[number]))
                  for number, (r, name) in enumerate(zip(job.rankings, names, strict=True))]
-    finally:
-        for session in sessions.values():
-            session.close()
     out = Path(out_dir)
     try:
         out.mkdir(parents=True, exist_ok=True)
