@@ -88,8 +88,8 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
     with session_for(source, table) as session:
         mark = session.mark()
         spec = session.prepare(spec_options)
-        result = run_segmented(session.engine, spec) if spec.by else run_ranking(session.engine,
-                                                                                   spec)
+        result: Ranking | SegmentedRanking = (
+            run_segmented(session.engine, spec) if spec.by else run_ranking(session.engine, spec))
         result.statements = session.statements_since(mark)
         return result
 
