@@ -29,12 +29,10 @@ from sqlglot import exp
 
 import bitsift
 from bitsift import reference
-from bitsift.api import make_options, run_ranking
 from bitsift.cli import main
 from bitsift.dialects import CAPABILITIES, capabilities
 from bitsift.result import Ranking
-from bitsift.sources import open_source
-from bitsift.spec import resolve
+from bitsift.session import Session
 
 #: Engines the test suite executes SQL on.
 ENGINES: tuple[str, ...] = ("duckdb", "sqlite", "postgres", "mariadb")
@@ -262,16 +260,11 @@ def rank_with(source: Any, table: str | None, target: str, *, strategy: str | No
               **options: Any) -> Ranking:
     """``bitsift.rank`` with the dialect's count strategy / quantile method (or any other
     capability in ``caps``) overridden."""
-    opened = open_source(source, table)
-    with opened.engine as engine:
+    with Session.open(source, table) as session:
         overrides = {k: v for k, v in (("count_strategy", strategy), ("quantile", quantile)) if v}
-        engine.caps = dataclasses.replace(engine.caps, **overrides, **(caps or {}))
-        spec_options = make_options(target, **options)
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
-        return run_ranking(engine, spec)
+        session.engine.caps = dataclasses.replace(session.engine.caps, **overrides,
+                                                  **(caps or {}))
+        return bitsift.rank(session, target, **options)
 
 
 def numpy_cuts(values: Sequence[Any], y: Sequence[Any], bins: int) -> list[float]:

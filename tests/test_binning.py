@@ -30,8 +30,7 @@ from bitsift.api import fetch_mdl_cuts, make_options
 from bitsift.cli import cli, main
 from bitsift.discretize import MDL_RESOLUTION
 from bitsift.errors import ColumnError, SpecError
-from bitsift.sources import open_source
-from bitsift.spec import resolve
+from bitsift.session import Session
 
 IRIS_FEATURES = ("sepal_length", "sepal_width", "petal_length", "petal_width")
 
@@ -200,13 +199,10 @@ def test_mdl_on_fine_bins_above_the_resolution() -> None:
                       rows=[(str(a), float(b)) for a, b in zip(y, x, strict=True)])
     distinct = np.unique(x).size
     assert distinct > 64
-    with duckdb_with(dataset) as connection:
-        opened = open_source(connection, "t")
-        with opened.engine as engine:
-            spec = resolve(make_options("y", binning="mdl"), engine.columns(opened.table, "t"),
-                           opened.table, "t", "duckdb")
-            coarse = fetch_mdl_cuts(engine, spec, resolution=64)["x"]
-            exact = fetch_mdl_cuts(engine, spec, resolution=distinct)["x"]
+    with duckdb_with(dataset) as connection, Session.open(connection, "t") as session:
+        spec = session.resolve(make_options("y", binning="mdl"))
+        coarse = fetch_mdl_cuts(session.engine, spec, resolution=64)["x"]
+        exact = fetch_mdl_cuts(session.engine, spec, resolution=distinct)["x"]
     assert coarse == pytest.approx(_fine_bin_reference(x, y.astype(object), 64), abs=1e-12)
     assert exact == pytest.approx(numpy_mdl(x, y), abs=1e-12)
     # Coarse fine bins can only cut between them, so the cuts move (DEVELOPERS.md, "Binning").

@@ -21,8 +21,7 @@ from helpers import Dataset, loaded, numpy_cuts
 
 from bitsift import quantiles
 from bitsift.api import fetch_cuts, make_options
-from bitsift.sources import open_source
-from bitsift.spec import resolve
+from bitsift.session import Session
 from bitsift.sqlbuild import quantile_levels
 
 SHAPES = ("normal", "heavy_tail", "point_mass", "ties", "narrow", "negative", "mostly_null",
@@ -60,11 +59,9 @@ def shaped_dataset(rows: int, seed: int) -> Dataset:
 
 
 def bucketed(source: Any, table: str, buckets: int, **options: Any) -> dict[str, list[float]]:
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        spec = resolve(make_options("y", **options), engine.columns(opened.table, opened.display),
-                       opened.table, opened.display, engine.caps.sqlglot_dialect)
-        return quantiles.bucketed_cuts(engine, spec, buckets=buckets)
+    with Session.open(source, table) as session:
+        spec = session.resolve(make_options("y", **options))
+        return quantiles.bucketed_cuts(session.engine, spec, buckets=buckets)
 
 
 def expected(dataset: Dataset, shape: str, bins: int, keep: Any = None) -> list[float]:
@@ -110,10 +107,9 @@ def test_infinite_and_nan_values_fall_back_to_the_engines_quantile(
         found = bucketed(where.source, where.table, 1024)
         assert set(found) == {"plain"}  # the other two are left to the bounds pre-pass
         assert sorted(set(found["plain"])) == expected(dataset, "plain", 10)
-        opened = open_source(where.source, where.table)
-        with opened.engine as opened_engine:
-            spec = resolve(make_options("y"), opened_engine.columns(opened.table, opened.display),
-                           opened.table, opened.display, opened_engine.caps.sqlglot_dialect)
+        with Session.open(where.source, where.table) as session:
+            opened_engine = session.engine
+            spec = session.resolve(make_options("y"))
             by_statement = fetch_cuts(opened_engine, spec)
             opened_engine.caps = replace(opened_engine.caps, run_quantile="buckets")
             mixed = fetch_cuts(opened_engine, spec)
@@ -150,10 +146,9 @@ def test_a_ranking_reads_no_whole_column_sort_on_duckdb() -> None:
     connection = duckdb.connect()
     connection.execute("CREATE TABLE t AS SELECT i % 3 AS y, sin(i) AS s FROM range(5000) r(i)")
     try:
-        opened = open_source(connection, "t")
-        with opened.engine as engine:
-            spec = resolve(make_options("y"), engine.columns(opened.table, opened.display),
-                           opened.table, opened.display, "duckdb")
+        with Session.open(connection, "t") as session:
+            engine = session.engine
+            spec = session.resolve(make_options("y"))
             assert engine.caps.run_quantile == "counted"  # buckets for cut points, too
             fetch_cuts(engine, spec)
             sent = " ".join(engine.statements).lower()

@@ -49,7 +49,8 @@ from bitsift.redundancy import (
 )
 from bitsift.result import Ranking
 from bitsift.schema import Column
-from bitsift.sources import open_source, parse_table_name
+from bitsift.session import Session
+from bitsift.sources import parse_table_name
 from bitsift.spec import resolve
 
 ATTRIBUTES = ("word", "level", "score", "ratio", "noise", "price")
@@ -127,13 +128,11 @@ def measure_with(source: Any, table: str, target: str, *, strategy: str | None =
                  batch_pairs: int = 64, **options: Any) -> tuple[Ranking, RedundancyMatrix, int]:
     """Rank and measure every pair, with the dialect's count strategy overridden; also the
     number of pair statements sent."""
-    opened = open_source(source, table)
-    with opened.engine as engine:
+    with Session.open(source, table) as session:
+        engine = session.engine
         if strategy:
             engine.caps = dataclasses.replace(engine.caps, count_strategy=strategy)
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(make_options(target, **options), columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
+        spec = session.resolve(make_options(target, **options))
         ranking = run_ranking(engine, spec)
         before = len(engine.statements)
         matrix = measure_matrix(engine, spec, ranking, batch_pairs=batch_pairs)

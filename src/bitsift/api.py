@@ -5,22 +5,23 @@ The CLI is a thin shell over these functions; they never print and never exit.
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Any
 
 import sqlglot
 from sqlglot import exp
 
-from bitsift import concurrent, discretize, quantiles, reference
+from bitsift import concurrent, reference
+from bitsift.cuts import fetch_cuts, fetch_mdl_cuts  # noqa: F401 - re-exported for callers
 from bitsift.dialects import Capabilities, capabilities
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
 from bitsift.readout import read_ranking, read_segments
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column, hashable_value
-from bitsift.sources import open_source, parse_table_name
+from bitsift.session import session_for
+from bitsift.sources import parse_table_name
 from bitsift.spec import (
     RankOptions,
     RankSpec,
@@ -29,12 +30,7 @@ from bitsift.spec import (
     parse_date_parts,
     resolve,
 )
-from bitsift.sqlbuild import (
-    bounds_statement,
-    cut_count,
-    histogram_statement,
-    paste_statement,
-)
+from bitsift.sqlbuild import paste_statement
 from bitsift.sqlstatements import rows_statement
 
 
@@ -70,7 +66,8 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
     """Rank the attributes of a table by information gain about ``target``, in the database.
 
     ``source``: a DuckDB database file (with ``table``), a Parquet/CSV file, a SQLAlchemy URL
-    (with ``table``), an open DuckDB connection, or a SQLAlchemy Engine or Connection.
+    (with ``table``), an open DuckDB connection, a SQLAlchemy Engine or Connection, or an open
+    :class:`~bitsift.session.Session` (its own table; left open).
     ``options``: ``attributes``, ``exclude``, ``categorical``, ``numeric`` (lists or
     comma-separated strings), ``missing`` ("category" or "drop"), ``bins``, ``where``, ``sort``,
     ``limit``, ``timeout`` (seconds), ``thresholds`` (:class:`~bitsift.spec.Thresholds`),
@@ -89,58 +86,13 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
     0.5
     """
     spec_options = make_options(target, **options)
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
-        if spec.by:
-            return run_segmented(engine, spec)
-        return run_ranking(engine, spec)
-
-
-def fetch_cuts(engine: Engine, spec: RankSpec) -> dict[str, list[float]]:
-    """The cut points of every numeric attribute: the bounds pre-pass (quantile, equal-width,
-    best-split, computed in SQL) and, for mdl, the histogram pre-pass whose cut points are
-    found in Python. Where the dialect's ``run_quantile`` is "buckets", quantile cut points
-    come from :mod:`bitsift.quantiles` instead (same values, no whole-column sort).
-    Duplicate and non-finite cut points are dropped."""
-    cuts: dict[str, list[float]] = {}
-    if engine.caps.run_quantile in ("buckets", "counted"):
-        cuts = {name: _clean(found) for name, found in
-                quantiles.bucketed_cuts(engine, spec).items()}
-    statement = bounds_statement(spec, engine.caps, skip=cuts)
-    record = engine.fetch(statement.sql).records()[0] if statement is not None else {}
-    for index, attribute in enumerate(spec.attributes, start=1):
-        if attribute.kind != "numeric" or attribute.binning == "mdl" or attribute.name in cuts:
-            continue
-        values = [record.get(f"c{index}_{j}") for j in range(1, cut_count(attribute) + 1)]
-        cuts[attribute.name] = _clean(values)
-    cuts.update(fetch_mdl_cuts(engine, spec))
-    return cuts
-
-
-def _clean(values: Iterable[Any]) -> list[float]:
-    """Cut points sorted, without duplicates, NULLs and non-finite values."""
-    return sorted({float(v) for v in values if v is not None and math.isfinite(float(v))})
-
-
-def fetch_mdl_cuts(engine: Engine, spec: RankSpec,
-                   resolution: int = discretize.MDL_RESOLUTION) -> dict[str, list[float]]:
-    """MDL cut points of the attributes binned by mdl: the database counts the (fine bin x
-    class) histogram, :mod:`bitsift.discretize` splits it (Fayyad & Irani 1993)."""
-    statement = histogram_statement(spec, engine.caps, resolution)
-    if statement is None:
-        return {}
-    histograms = discretize.histograms_from_rows(engine.fetch(statement.sql).records())
-    cuts = {}
-    for index, attribute in enumerate(spec.attributes, start=1):
-        if attribute.kind == "numeric" and attribute.binning == "mdl":
-            histogram = histograms.get(index)
-            found = histogram.mdl_cuts() if histogram is not None else []
-            cuts[attribute.name] = sorted({c for c in found if math.isfinite(c)})
-    return cuts
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec = session.prepare(spec_options)
+        result: Ranking | SegmentedRanking = (
+            run_segmented(session.engine, spec) if spec.by else run_ranking(session.engine, spec))
+        result.statements = session.statements_since(mark)
+        return result
 
 
 def _label_binning(ranking: Ranking, spec: RankSpec) -> None:
@@ -164,32 +116,15 @@ MAX_ATTRIBUTES_PER_STATEMENT = 50
 
 def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
                                                            dict[str, list[float]]]:
-    """Cut points and result rows of the ranking, in batches of at most
-    :data:`MAX_ATTRIBUTES_PER_STATEMENT` attributes, renumbered as if from one statement.
-
-    The target's rows (``attribute_index`` 0, and NULL for a segment without a target) are
-    the same in every batch: the first batch's are kept.
+    """Cut points and result rows of the ranking, in parts of at most
+    :data:`MAX_ATTRIBUTES_PER_STATEMENT` attributes, renumbered as if from one statement
+    (:func:`bitsift.parts.merge_parts`). Serial batches are the one-session case of
+    :func:`bitsift.concurrent.fetch_records_in_parts`.
     """
-    sessions = concurrent.sessions_for(engine, spec)
-    if sessions > 1:
-        # The dialect's run_sessions: parts of the attributes at once (benchmarks/RESULTS.md).
-        return concurrent.fetch_records_in_parts(engine, spec, sessions,
-                                                 MAX_ATTRIBUTES_PER_STATEMENT)
-    records: list[dict[str, Any]] = []
-    cuts: dict[str, list[float]] = {}
-    for offset in range(0, len(spec.attributes), MAX_ATTRIBUTES_PER_STATEMENT):
-        batch = replace(
-            spec, attributes=spec.attributes[offset:offset + MAX_ATTRIBUTES_PER_STATEMENT])
-        part = concurrent.rank_part(engine, batch)
-        cuts.update(part.cuts)
-        for record in part.records:
-            index = record["attribute_index"]
-            if index is not None and int(index) > 0:
-                record["attribute_index"] = int(index) + offset
-            elif offset:
-                continue
-            records.append(record)
-    return records, cuts
+    # The dialect's run_sessions: parts of the attributes at once (benchmarks/RESULTS.md);
+    # one session runs the same parts one after another.
+    return concurrent.fetch_records_in_parts(engine, spec, concurrent.sessions_for(engine, spec),
+                                             MAX_ATTRIBUTES_PER_STATEMENT)
 
 
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
@@ -236,16 +171,13 @@ def statement(
     """
     spec_options = make_options(target, **options)
     if source is not None:
-        opened = open_source(source, table)
-        with opened.engine as engine:
-            columns = engine.columns(opened.table, opened.display)
-            caps = capabilities(dialect) if dialect else engine.caps
-            spec = resolve(spec_options, columns, opened.table, opened.display,
-                           engine.caps.sqlglot_dialect)
+        with session_for(source, table) as session:
+            caps = capabilities(dialect) if dialect else session.engine.caps
+            spec = session.resolve(spec_options)
             # MDL's cut points need a Python step: computed here and inlined as literals.
-            text = _unshadowed(paste_statement(spec, caps, cuts=fetch_mdl_cuts(engine, spec)),
-                               spec, caps)
-            return _with_notes(text, engine.notes)
+            cuts = fetch_mdl_cuts(session.engine, spec)
+            text = _unshadowed(paste_statement(spec, caps, cuts=cuts), spec, caps)
+            return _with_notes(text, session.notes)
     if not table:
         raise SpecError("--table is required without a SOURCE")
     if not spec_options.attributes and not spec_options.numeric:
@@ -349,16 +281,14 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
     if spec_options.by or spec_options.weight:
         raise SpecError("check compares an unsegmented, unweighted ranking with the reference: "
                         "check one segment with --where instead of by, and leave out weight")
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
-        ranking = run_ranking(engine, spec)
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec = session.prepare(spec_options)
+        ranking = run_ranking(session.engine, spec)
+        ranking.statements = session.statements_since(mark)
         total = ranking.rows + ranking.rows_excluded
         whole = total <= sample_rows
-        data = _pull_rows(engine, spec, None if whole else sample_rows)
+        data = _pull_rows(session.engine, spec, None if whole else sample_rows)
     return _compare(ranking, spec, data, whole)
 
 

@@ -4,149 +4,47 @@ from __future__ import annotations
 
 import signal
 import sys
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from typing import Any, NoReturn
 
 import click
 
 from bitsift import api, signals
+from bitsift.cli_jobs import JOB_COMMANDS
+from bitsift.cli_options import (
+    CliState,
+    engine_option,
+    engine_source,
+    library_options,
+    print_notes,
+    print_statements,
+    rank_options,
+    segment_options,
+)
+from bitsift.cli_report import profile_command, report_command
+from bitsift.cli_select import SELECT_COMMANDS
 from bitsift.dialects import CAPABILITIES
 from bitsift.errors import BitsiftError, Terminated
 from bitsift.formatting import FORMATS, render
 from bitsift.jobs import JobError
 from bitsift.masking import environment_secrets, mask_text
 from bitsift.names import one_line
-from bitsift.sources import ENGINE_NAMES, EngineSource
-from bitsift.spec import (
-    BINNING_METHODS,
-    MISSING_MODES,
-    SORT_METRICS,
-    Thresholds,
-    split_outside_quotes,
-    timeout_seconds,
-)
+from bitsift.spec import timeout_seconds
 from bitsift.version import __version__
-
-_DEBUG = {"on": False}
-
-
-def _comma_list(
-    _ctx: click.Context, _param: click.Parameter, value: Sequence[str]
-) -> tuple[str, ...]:
-    names: list[str] = []
-    for item in value:
-        names += [v.strip() for v in item.split(",") if v.strip()]
-    return tuple(names)
-
-
-def _pair_list(
-    _ctx: click.Context, _param: click.Parameter, value: Sequence[str]
-) -> tuple[str, ...]:
-    """COL=VALUE items split at commas outside double quotes ("a,b"=mdl names one column)."""
-    items: list[str] = []
-    for item in value:
-        items += [v.strip() for v in split_outside_quotes(item) if v.strip()]
-    return tuple(items)
-
-
-def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
-    """The options shared by every command that ranks (rank, sql, check)."""
-    options = [
-        click.option("--target", "-y", required=True, help="The categorical outcome column."),
-        click.option("--table", "-t", help="[schema.]table in a database SOURCE."),
-        click.option("--attributes", "-a", multiple=True, callback=_comma_list,
-                     help="Columns to rank (comma-separated; default: all but the target)."),
-        click.option("--exclude", "-x", multiple=True, callback=_comma_list,
-                     help="Columns to leave out."),
-        click.option("--categorical", multiple=True, callback=_comma_list,
-                     help="Treat these columns as categories even if numeric."),
-        click.option("--numeric", multiple=True, callback=_comma_list,
-                     help="Bin these number columns (floats and decimals always are)."),
-        click.option("--missing", type=click.Choice(MISSING_MODES), default="category",
-                     show_default=True,
-                     help="NULL attribute values: their own category, or dropped per attribute."),
-        click.option("--bins", type=int, default=10, show_default=True,
-                     help="Bins for numeric attributes (quantile and equal-width)."),
-        click.option("--binning", type=click.Choice(BINNING_METHODS), default="quantile",
-                     show_default=True,
-                     help="How numeric attributes are cut: equal-frequency or equal-width bins, "
-                          "the best binary split, or Fayyad & Irani's MDL."),
-        click.option("--binning-for", "binning_for", multiple=True, callback=_pair_list,
-                     metavar="COL=METHOD[:BINS]",
-                     help="Another binning for some columns, e.g. price=mdl,age=quantile:5; "
-                          'a name holding = or , in double quotes: "p=q"=mdl.'),
-        click.option("--date-part", "date_part", multiple=True, callback=_pair_list,
-                     metavar="[COL=]PART",
-                     help="Rank dates as categories of a part (year, month, dow, hour): "
-                          "sown_on=month, or a bare PART for every date column. Dates named "
-                          'in --numeric are binned as epoch seconds instead. A name holding '
-                          '= or , in double quotes: "d=1"=month.'),
-        click.option("--where", help="Only rows matching this condition (checked by sqlglot)."),
-        click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
-                     show_default=True, help="Metric to sort by (descending)."),
-        click.option("--limit", type=int, help="Show the top N attributes only."),
-        click.option("--timeout", type=float, help="Statement timeout in seconds."),
-        click.option("--high-cardinality", "high_cardinality", type=int, default=1000,
-                     show_default=True, help="Flag attributes with more distinct values."),
-    ]
-    for option in reversed(options):
-        command = option(command)
-    return command
-
-
-#: --by: segments, for the commands that support them (rank, sql, report).
-by_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option(
-    "--by", multiple=True, callback=_comma_list,
-    help="Rank within each segment: each combination of values of these columns "
-         "(comma-separated; NULL is a segment of its own).")
-#: --weight, for the commands that support it (rank, sql).
-weight_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option(
-    "--weight", help="Sum this column of non-negative weights instead of counting rows "
-                     "(NULL or 0: the row is left out).")
-
-
-def segment_options(command: Callable[..., Any]) -> Callable[..., Any]:
-    """--by and --weight, for the commands that support both (rank, sql)."""
-    return by_option(weight_option(command))
-
-
-#: --engine, for the commands that read SOURCE with a chosen engine (rank, check).
-engine_option = click.option(
-    "--engine", type=click.Choice(ENGINE_NAMES),
-    help="Read SOURCE with this engine. spark: a Parquet file or directory on a local Spark "
-         "session, or with --table the master (local[2], spark://host:7077) and a catalog "
-         "table; clickhouse: a Parquet file read by embedded ClickHouse (chdb), or with "
-         "--table a chdb database directory.")
-
-
-def _engine_source(source: str, engine: str | None) -> Any:
-    """SOURCE as given, or wrapped for the --engine that reads it."""
-    return EngineSource(engine, source) if engine else source
-
-
-def _library_options(kwargs: dict[str, Any]) -> dict[str, Any]:
-    cap = kwargs.pop("high_cardinality")
-    kwargs["thresholds"] = Thresholds(high_cardinality=cap)
-    kwargs["attributes"] = kwargs.get("attributes") or None
-    return kwargs
-
-
-def _notes(notes: Sequence[str]) -> None:
-    for note in notes:
-        click.echo(f"note: {one_line(note)}", err=True)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="bitsift")
 @click.option("--debug", is_flag=True, help="Show tracebacks and the SQL sent.")
-def cli(debug: bool) -> None:
+@click.pass_context
+def cli(ctx: click.Context, debug: bool) -> None:
     """Rank a table's columns by information gain about a categorical target, in the database.
 
     SOURCE is a DuckDB database file (with --table), a Parquet or CSV file read in place, or a
     SQLAlchemy URL such as postgresql+psycopg://user@host/db (with --table); rank and check
     can also read it with Spark or embedded ClickHouse (--engine).
     """
-    _DEBUG["on"] = debug
+    ctx.ensure_object(CliState).debug = debug
 
 
 @cli.command("rank")
@@ -158,11 +56,9 @@ def cli(debug: bool) -> None:
               show_default=True)
 def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> None:
     """Rank the attributes of SOURCE by what they tell about --target."""
-    ranking = api.rank(_engine_source(source, engine), **_library_options(kwargs))
-    if _DEBUG["on"]:
-        for statement in ranking.statements:
-            click.echo(f"-- sent to {ranking.dialect}:\n{statement};", err=True)
-    _notes(ranking.notes)
+    ranking = api.rank(engine_source(source, engine), **library_options(kwargs))
+    print_statements(ranking.dialect, ranking.statements)
+    print_notes(ranking.notes)
     # color=True: written as is. Click would otherwise strip what looks like a colour code from
     # output that is not a terminal, changing names in CSV; text formats escape them anyway.
     click.echo(render(ranking, fmt), nl=False, color=True)
@@ -179,7 +75,7 @@ def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
 
     Without SOURCE, describe the columns with --table, --attributes and --numeric.
     """
-    options = _library_options(kwargs)
+    options = library_options(kwargs)
     # The statement is printed, not run: --timeout is only checked.
     timeout_seconds(options.pop("timeout", None))
     options.pop("limit", None)
@@ -197,9 +93,9 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
 
     Exits 1 when the whole table fit in the sample and a metric differs by more than 1e-9.
     """
-    report = api.check(_engine_source(source, engine), sample_rows=sample_rows,
-                       **_library_options(kwargs))
-    _notes(report.ranking.notes)
+    report = api.check(engine_source(source, engine), sample_rows=sample_rows,
+                       **library_options(kwargs))
+    print_notes(report.ranking.notes)
     scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
     click.echo(f"{one_line(report.ranking.table)}: {len(report.ranking.attributes)} attributes,"
                f" database vs NumPy reference on the {scope}")
@@ -244,8 +140,9 @@ def main(argv: Sequence[str] | None = None) -> None:
 
 
 def _main(args: list[str]) -> None:
+    state = CliState()
     try:
-        cli.main(args=args, prog_name="bitsift", standalone_mode=False)
+        cli.main(args=args, prog_name="bitsift", standalone_mode=False, obj=state)
     except (click.exceptions.Abort, KeyboardInterrupt) as error:
         _interrupted(error)
     except click.ClickException as error:
@@ -255,13 +152,13 @@ def _main(args: list[str]) -> None:
         interrupt = signals.received()
         if interrupt is not None:  # the failure is the cancel the signal caused
             _interrupted(interrupt)
-        if _DEBUG["on"] or "--debug" in args:
+        if state.debug or "--debug" in args:
             _mask_chain(error)
             raise
         click.echo(f"Error: {mask_text(error_text(error), environment_secrets())}", err=True)
         sys.exit(1)
     except Exception as error:  # noqa: BLE001 - no tracebacks for users unless --debug
-        if _DEBUG["on"] or "--debug" in args:
+        if state.debug or "--debug" in args:
             _mask_chain(error)
             raise
         text = mask_text(str(error), environment_secrets())
@@ -285,20 +182,9 @@ def _mask_chain(error: BaseException) -> None:
         link = link.__cause__ or link.__context__
 
 
-# The scheduled-run commands (run, drift, models) live in their own module.
-from bitsift.cli_jobs import JOB_COMMANDS  # noqa: E402
-
-for _command in JOB_COMMANDS:
+for _command in (*JOB_COMMANDS, report_command, profile_command, *SELECT_COMMANDS):
     cli.add_command(_command)
 
-# The reports people read (report, profile) live in their own module.
-from bitsift.cli_report import profile_command, report_command  # noqa: E402
 
-cli.add_command(report_command)
-cli.add_command(profile_command)
-
-# Redundancy between attributes and mRMR selection (redundancy, select) live in their own module.
-from bitsift.cli_select import SELECT_COMMANDS  # noqa: E402
-
-for _command in SELECT_COMMANDS:
-    cli.add_command(_command)
+if __name__ == "__main__":  # python -m bitsift.cli
+    main()

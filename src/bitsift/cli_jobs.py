@@ -11,7 +11,7 @@ import sys
 import click
 
 from bitsift import drift as drift_lib
-from bitsift.cli import _notes
+from bitsift.cli_options import print_notes
 from bitsift.dialects import CAPABILITIES
 from bitsift.history import DEFAULT_TABLE, Destination
 from bitsift.jobs import check_run_id, load_job, preflight, run_job
@@ -40,7 +40,7 @@ def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
         return
     result = run_job(job, run_id)
     # Each ranking's notes (columns left out...), once each, as rank prints them.
-    _notes(list(dict.fromkeys(n for _, ranked in result.rankings for n in ranked.notes)))
+    print_notes(list(dict.fromkeys(n for _, ranked in result.rankings for n in ranked.notes)))
     stamp = result.run_at.strftime("%Y-%m-%d %H:%M:%S UTC")
     click.echo(f"job {job.name}, run {result.run_id} ({stamp})")
     for ranking, ranked in result.rankings:

@@ -1,6 +1,6 @@
 """The ``report`` and ``profile`` commands: options in, library call, output out.
 
-Registered on the ``bitsift`` group at the bottom of :mod:`bitsift.cli`.
+Registered on the ``bitsift`` group by :mod:`bitsift.cli`.
 """
 
 from __future__ import annotations
@@ -12,7 +12,14 @@ from typing import IO, Any
 import click
 
 from bitsift import jsonout
-from bitsift.cli import _DEBUG, _comma_list, _library_options, by_option, rank_options
+from bitsift.api import make_options
+from bitsift.cli_options import (
+    by_option,
+    comma_list,
+    library_options,
+    print_statements,
+    rank_options,
+)
 from bitsift.names import one_line
 from bitsift.profile import (
     ProfiledRun,
@@ -23,6 +30,7 @@ from bitsift.profile import (
 )
 from bitsift.report import profile_dict, profile_text, render_report
 from bitsift.selection import CRITERIA, REPORT_CANDIDATES, select_for_runs
+from bitsift.session import Session
 from bitsift.sqlstatements import DEFAULT_MAX_VALUES
 
 
@@ -41,16 +49,14 @@ def progress_printer(quiet: bool, stream: IO[str] | None = None) -> Progress | N
 
 
 def _after_run(run: ProfiledRun, quiet: bool) -> None:
-    if _DEBUG["on"]:
-        for statement in run.ranking.statements:
-            click.echo(f"-- sent to {run.ranking.dialect}:\n{statement};", err=True)
+    print_statements(run.ranking.dialect, run.ranking.statements)
     if not quiet:
         for note in run.notes:
             click.echo(f"note: {one_line(note)}", err=True)
 
 
 _sensitive_option = click.option(
-    "--sensitive", multiple=True, callback=_comma_list,
+    "--sensitive", multiple=True, callback=comma_list,
     help="Columns that describe people (comma-separated): marked in every output.",
 )
 _max_values_option = click.option(
@@ -87,17 +93,22 @@ def report_command(source: str, out: str, top: int, max_values: int,
     if top < 0:
         raise click.BadParameter("must be 0 (all) or more", param_hint="--top")
     say = progress_printer(quiet)
-    options = _library_options(kwargs)
+    options = library_options(kwargs)
     by = options.pop("by", ())
-    if by:
-        runs = rank_and_profile_segments(source, by=by, top=top or None, max_values=max_values,
-                                         sensitive=sensitive, progress=say, **options)
-    else:
-        runs = [rank_and_profile(source, top=top or None, max_values=max_values,
-                                 sensitive=sensitive, progress=say, **options)]
-    if select_k:
-        select_for_runs(source, runs, k=select_k, criterion=criterion, by=by, progress=say,
-                        **options)
+    table = options.pop("table", None)
+    make_options(by=by, **options)  # bad options are reported before the source is opened
+    # One session: the ranking, the drill-down and --select share the opened source and spec.
+    with Session.open(source, table) as session:
+        if by:
+            runs = rank_and_profile_segments(session, by=by, top=top or None,
+                                             max_values=max_values, sensitive=sensitive,
+                                             progress=say, **options)
+        else:
+            runs = [rank_and_profile(session, top=top or None, max_values=max_values,
+                                     sensitive=sensitive, progress=say, **options)]
+        if select_k:
+            select_for_runs(session, runs, k=select_k, criterion=criterion, by=by,
+                            progress=say, **options)
     run = runs[0]  # the segments share one connection: same statements and notes
     _after_run(run, quiet)
     if say:
@@ -119,7 +130,7 @@ def report_command(source: str, out: str, top: int, max_values: int,
 @click.argument("source")
 @rank_options
 @click.option("--attribute", "profile_attributes", multiple=True, required=True,
-              callback=_comma_list, help="The attribute(s) to drill into (comma-separated).")
+              callback=comma_list, help="The attribute(s) to drill into (comma-separated).")
 @click.option("--format", "-f", "fmt", type=click.Choice(("table", "json")), default="table",
               show_default=True)
 @_max_values_option
@@ -128,7 +139,7 @@ def report_command(source: str, out: str, top: int, max_values: int,
 def profile_command(source: str, profile_attributes: tuple[str, ...], fmt: str, max_values: int,
                     sensitive: tuple[str, ...], quiet: bool, **kwargs: Any) -> None:
     """Show, value by value, why an attribute tells about --target (counted in the database)."""
-    options = _library_options(kwargs)
+    options = library_options(kwargs)
     if options.pop("attributes", None):
         raise click.UsageError("profile drills into --attribute; --attributes is for rank/report")
     run = profile(source, attributes=profile_attributes, max_values=max_values,

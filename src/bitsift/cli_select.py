@@ -1,6 +1,6 @@
 """The ``redundancy`` and ``select`` commands: options in, library call, output out.
 
-Registered on the ``bitsift`` group at the bottom of :mod:`bitsift.cli`.
+Registered on the ``bitsift`` group by :mod:`bitsift.cli`.
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ from typing import Any
 import click
 
 from bitsift import jsonout
-from bitsift.cli import _DEBUG, _library_options, _notes, rank_options
+from bitsift.cli_options import library_options, print_notes, print_statements, rank_options
 from bitsift.names import escape_text
 from bitsift.redundancy import (
     DEFAULT_BATCH_PAIRS,
@@ -22,7 +22,6 @@ from bitsift.redundancy import (
     Redundancy,
     redundancy,
 )
-from bitsift.result import Ranking
 from bitsift.selection import CRITERIA, STEP_KEYS, Selection, select_attributes
 
 OUTPUTS: tuple[str, ...] = ("table", "csv", "json")
@@ -60,12 +59,6 @@ def _csv(keys: Sequence[str], records: Sequence[dict[str, Any]]) -> str:
     for record in records:
         writer.writerow(["" if record[k] is None else record[k] for k in keys])
     return buffer.getvalue()
-
-
-def _debug(ranking: Ranking, statements: Sequence[str]) -> None:
-    if _DEBUG["on"]:
-        for statement in statements:
-            click.echo(f"-- sent to {ranking.dialect}:\n{statement};", err=True)
 
 
 def redundancy_table(result: Redundancy, top: int, by: str) -> str:
@@ -136,9 +129,9 @@ def redundancy_command(source: str, fmt: str, top: int, by: str, batch_pairs: in
     Computed in the database on the ranking's rows and bins; with --limit N only the top N
     ranked attributes are paired.
     """
-    result = redundancy(source, batch_pairs=batch_pairs, **_library_options(kwargs))
-    _debug(result.ranking, result.statements)
-    _notes(result.notes)
+    result = redundancy(source, batch_pairs=batch_pairs, **library_options(kwargs))
+    print_statements(result.ranking.dialect, result.statements)
+    print_notes(result.notes)
     if fmt == "json":
         click.echo(jsonout.dumps(result.to_dict(by), indent=2))
     elif fmt == "csv":
@@ -166,9 +159,9 @@ def select_command(source: str, k: int, criterion: str, fmt: str, batch_pairs: i
     with the best relevance to --target against its mean redundancy with those already chosen.
     """
     selection = select_attributes(source, k=k, criterion=criterion, batch_pairs=batch_pairs,
-                                  **_library_options(kwargs))
-    _debug(selection.ranking, selection.statements)
-    _notes(selection.notes)
+                                  **library_options(kwargs))
+    print_statements(selection.ranking.dialect, selection.statements)
+    print_notes(selection.notes)
     if fmt == "json":
         click.echo(jsonout.dumps(selection.to_dict(), indent=2))
     elif fmt == "csv":

@@ -25,16 +25,13 @@ from collections.abc import Iterator, Sequence
 from concurrent.futures import FIRST_EXCEPTION, Future, ThreadPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
-from typing import Any
 
 from bitsift import quantile_counts, quantiles
+from bitsift.cuts import fetch_cuts
 from bitsift.engines.base import Engine
-from bitsift.engines.duckdb_engine import DuckDBEngine
-from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
+from bitsift.parts import Record, merge_parts
 from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.sqlbuild import rank_statement
-
-Record = dict[str, Any]
 
 #: Seconds between two cancels of the sessions still running after a failure or Ctrl-C.
 CANCEL_RETRY = 0.25
@@ -47,34 +44,9 @@ _WEIGHT = {"numeric": 4, "categorical": 1}
 
 def sessions_for(engine: Engine, spec: RankSpec) -> int:
     """How many sessions the ranking of ``spec`` runs on (1: one statement, as usual)."""
-    if len(spec.attributes) < 2 or not getattr(engine, "owned", False):
-        return 1
-    if not isinstance(engine, DuckDBEngine | SqlAlchemyEngine):
+    if len(spec.attributes) < 2 or not engine.can_open_siblings():
         return 1
     return max(1, min(engine.caps.run_sessions, len(spec.attributes)))
-
-
-def open_sibling(engine: Engine, timeout: float | None) -> Engine:
-    """Another session on the same database, with the same capabilities and timeout.
-
-    Its session statements and every statement it sends are logged in ``engine.statements``,
-    so ``--debug`` and :attr:`~bitsift.result.Ranking.statements` show them all.
-    """
-    sibling: Engine
-    if isinstance(engine, DuckDBEngine):
-        # cursor(): a new connection to the same database instance, read-only if it is.
-        sibling = DuckDBEngine(caps=engine.caps, connection=engine.con.cursor(), owned=True)
-    elif isinstance(engine, SqlAlchemyEngine):
-        # A new connection from the same SQLAlchemy engine, prepared like the first one.
-        sibling = SqlAlchemyEngine.wrap(engine.con.engine)
-        sibling.caps = engine.caps
-        sibling.secret = engine.secret
-    else:  # pragma: no cover - sessions_for() lets no other engine through
-        raise TypeError(f"no second session for {type(engine).__name__}")
-    engine.statements.extend(sibling.statements)
-    sibling.statements = engine.statements
-    sibling.set_timeout(timeout)
-    return sibling
 
 
 @dataclass(frozen=True)
@@ -97,7 +69,7 @@ def session_pool(engine: Engine, size: int, timeout: float | None) -> Iterator[S
     siblings: list[Engine] = []
     try:
         for _ in range(size - 1):
-            siblings.append(open_sibling(engine, timeout))
+            siblings.append(engine.open_sibling(timeout))
         idle: queue.Queue[Engine] = queue.Queue()
         for member in [engine, *siblings]:
             idle.put(member)
@@ -144,8 +116,6 @@ def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
     """The statements of one part on one session: the boundaries pre-pass and the ranking
     statement, or, where the dialect's ``run_quantile`` is "counted", the attributes binned
     by quantile ranked from bucket counts (:mod:`bitsift.quantile_counts`)."""
-    from bitsift.api import fetch_cuts  # api imports this module: import at call time
-
     if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         records, cuts = quantile_counts.rank_counted(engine, spec)
         return PartResult(cuts=cuts, records=records)
@@ -230,23 +200,13 @@ def _stop(futures: list[Future[PartResult]], pool: SessionPool) -> None:
         pool.cancel()
         if not wait(futures, timeout=CANCEL_RETRY).not_done:
             return
-
-
 def _merge(groups: list[list[int]], results: list[PartResult],
            ) -> tuple[list[Record], dict[str, list[float]]]:
-    """One statement's rows from the parts': attribute rows renumbered to the whole spec.
-
-    The target's rows (``attribute_index`` 0, and NULL for a segment without a target) are
-    the same in every part: the first part's are kept.
-    """
-    records: list[Record] = []
+    """One statement's rows and cut points from the parts' (``groups``: each part's attribute
+    positions in the whole spec, from 0)."""
     cuts: dict[str, list[float]] = {}
-    for number, (group, result) in enumerate(zip(groups, results, strict=True)):
+    for result in results:
         cuts.update(result.cuts)
-        for record in result.records:
-            index = record["attribute_index"]
-            if index is not None and int(index) > 0:
-                records.append({**record, "attribute_index": group[int(index) - 1] + 1})
-            elif number == 0:
-                records.append(record)
+    records = merge_parts(([i + 1 for i in group], result.records)
+                          for group, result in zip(groups, results, strict=True))
     return records, cuts

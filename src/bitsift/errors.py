@@ -12,6 +12,19 @@ from collections.abc import Iterable
 from bitsift.names import ambiguity_note
 
 
+def first_line(error: BaseException) -> str:
+    """The first line of ``error``'s message (a driver's may run to many), or its class name
+    when it has none.
+
+    >>> first_line(ValueError("bad value\\nLINE 1: SELECT ..."))
+    'bad value'
+    >>> first_line(KeyError())
+    'KeyError'
+    """
+    text = str(error).strip()
+    return text.splitlines()[0] if text else type(error).__name__
+
+
 class BitsiftError(Exception):
     """Base class of every error bitsift reports to its user."""
 

@@ -35,7 +35,7 @@ from sqlglot import exp
 from bitsift import jsonout
 from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
-from bitsift.errors import BitsiftError, SpecError
+from bitsift.errors import BitsiftError, SpecError, first_line
 from bitsift.masking import (
     environment_secrets,
     mask_text,
@@ -445,17 +445,19 @@ def _connect_duckdb(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection
             opened.append(duckdb.connect(str(path), read_only=read_only))
         except duckdb.IOException as error:
             if "lock" not in str(error).lower():
-                raise HistoryError(f"cannot open results file {path}: {_line(error)}") from None
+                message = f"cannot open results file {path}: {first_line(error)}"
+                raise HistoryError(message) from None
             conflicts.append(error)
             return False
         except duckdb.Error as error:
-            raise HistoryError(f"cannot open results file {path}: {_line(error)}") from None
+            message = f"cannot open results file {path}: {first_line(error)}"
+            raise HistoryError(message) from None
         return True
 
     if not _wait_until(attempt, WRITE_WAIT_SECONDS):
         raise HistoryError(
             f"results file {path} was held by another process for more than "
-            f"{WRITE_WAIT_SECONDS:g} s, so nothing was written to it: {_line(conflicts[-1])}"
+            f"{WRITE_WAIT_SECONDS:g} s, so nothing was written to it: {first_line(conflicts[-1])}"
         )
     return opened[0]
 
@@ -558,7 +560,7 @@ class DuckDBStore(HistoryStore):
             if isinstance(error, duckdb.Error):
                 raise HistoryError(
                     f"writing to {self.destination.table} in {self.destination.display} failed, "
-                    f"nothing was written: {_line(error)}"
+                    f"nothing was written: {first_line(error)}"
                 ) from None
             raise
         return len(rows)
@@ -615,7 +617,7 @@ class SqlAlchemyStore(HistoryStore):
                                            connect_args=connect_args)
         except (ImportError, sa.exc.NoSuchModuleError) as error:
             raise HistoryError(
-                f"the driver for {url.drivername} is not installed ({_line(error)})"
+                f"the driver for {url.drivername} is not installed ({first_line(error)})"
             ) from None
         self.schema = self.table.db or None
         self.sa_table = sa.Table(
@@ -701,7 +703,7 @@ class SqlAlchemyStore(HistoryStore):
         return self._key(column) == self._key_value(text)
 
     def _scrub(self, error: BaseException) -> str:
-        return mask_text(_line(error), (*self._secrets, *environment_secrets()))
+        return mask_text(first_line(error), (*self._secrets, *environment_secrets()))
 
     def _existing(self, connection: sa.Connection) -> dict[str, str] | None:
         inspector = sa.inspect(connection)
@@ -805,8 +807,3 @@ def open_store(destination: Destination, *, write: bool = False) -> HistoryStore
     if destination.is_url:
         return SqlAlchemyStore(destination)
     return DuckDBStore(destination, write=write)
-
-
-def _line(error: BaseException) -> str:
-    text = str(error).strip()
-    return text.splitlines()[0] if text else type(error).__name__

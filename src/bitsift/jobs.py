@@ -24,7 +24,8 @@ from __future__ import annotations
 import datetime as _dt
 import re
 import tomllib
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -54,9 +55,9 @@ from bitsift.history import (
 from bitsift.names import one_line
 from bitsift.predicate import parse_predicate
 from bitsift.result import Ranking, SegmentedRanking
-from bitsift.schema import Column
-from bitsift.sources import open_source, parse_table_name
-from bitsift.spec import RankOptions, RankSpec, Thresholds, resolve
+from bitsift.session import Session
+from bitsift.sources import parse_table_name
+from bitsift.spec import RankOptions, RankSpec, Thresholds
 
 TOP_KEYS: tuple[str, ...] = ("job", "source", "results", "defaults", "ranking")
 RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
@@ -487,11 +488,14 @@ def load_job(path: str | Path) -> Job:
 # --- checks against the source and the destination --------------------------------------------
 
 
-def preflight(job: Job, *, destination: bool = True, run_id: str | None = None) -> None:
+def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
+              sessions: dict[int, Session] | None = None) -> None:
     """Check every ranking against the source's catalog and (with ``destination``) the results
     table: its layout, and that every name the run would write fits its columns.
 
-    Nothing is ranked and nothing is written; every problem is reported at once.
+    Nothing is ranked and nothing is written; every problem is reported at once. With
+    ``sessions``, each ranking's session is kept open there (by its position in the job) for
+    :func:`run_job` to rank on, its request already resolved; the caller closes them.
     """
     problems: list[Problem] = []
     source_line = job.lines.of("", 0, "source")
@@ -499,33 +503,22 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None) 
     written: dict[str, set[str]] = {"job": {job.name}, "run_id": {run_id} if run_id else set(),
                                     "ranking": set(), "source_table": set(), "target": set(),
                                     "attribute": set()}
-    for ranking in job.rankings:
+    for number, ranking in enumerate(job.rankings):
         where = f"ranking {ranking.name!r}: "
         try:
-            opened = open_source(job.source, ranking.table)
+            session = Session.open(job.source, ranking.table)
         except SourceError as error:
             problems.append(Problem(source_line, str(error)))
             break
         except BitsiftError as error:
             problems.append(Problem(ranking.line_of("table"), where + str(error)))
             continue
-        with opened.engine as engine:
-            try:
-                columns = engine.columns(opened.table, opened.display)
-            except TableNotFoundError as error:
-                problems.append(Problem(ranking.line_of("table"), where + str(error)))
-                continue
-            except BitsiftError as error:
-                problems.append(Problem(source_line, where + str(error)))
-                continue
-            found, spec = _ranking_problems(ranking, columns, opened.table, opened.display,
-                                            engine.caps.sqlglot_dialect)
-            problems += found
-            if spec is not None:
-                written["ranking"].add(ranking.name)
-                written["source_table"].add(spec.source_name)
-                written["target"].add(spec.target)
-                written["attribute"].update(a.name for a in spec.attributes)
+        if sessions is not None:
+            sessions[number] = session
+            problems += _check_on_session(job, ranking, session, written)
+        else:
+            with session:
+                problems += _check_on_session(job, ranking, session, written)
     if destination:
         results_line = job.lines.of("results", 0)
         try:
@@ -538,12 +531,47 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None) 
         raise JobError(job.path, problems)
 
 
-def _ranking_problems(ranking: JobRanking, columns: Sequence[Column], table: Any,
-                      display: str, dialect: str) -> tuple[list[Problem], RankSpec | None]:
+@contextmanager
+def checked_sessions(job: Job, *, destination: bool = True,
+                     run_id: str | None = None) -> Iterator[dict[int, Session]]:
+    """:func:`preflight`, then each ranking's open session (by its position in the job) for
+    what follows: the source is not opened again. Closed afterwards."""
+    sessions: dict[int, Session] = {}
+    try:
+        preflight(job, destination=destination, run_id=run_id, sessions=sessions)
+        yield sessions
+    finally:
+        for session in sessions.values():
+            session.close()
+
+
+def _check_on_session(job: Job, ranking: JobRanking, session: Session,
+                      written: dict[str, set[str]]) -> list[Problem]:
+    """One ranking's problems against its open source; the names it would write are added
+    to ``written`` when it has none."""
+    where = f"ranking {ranking.name!r}: "
+    try:
+        session.columns  # noqa: B018 - read here to tell a missing table from other failures
+    except TableNotFoundError as error:
+        return [Problem(ranking.line_of("table"), where + str(error))]
+    except BitsiftError as error:
+        return [Problem(job.lines.of("", 0, "source"), where + str(error))]
+    found, spec = _ranking_problems(ranking, session)
+    if spec is not None:
+        written["ranking"].add(ranking.name)
+        written["source_table"].add(spec.source_name)
+        written["target"].add(spec.target)
+        written["attribute"].update(a.name for a in spec.attributes)
+    return found
+
+
+def _ranking_problems(ranking: JobRanking, session: Session,
+                      ) -> tuple[list[Problem], RankSpec | None]:
     """The ranking's problems against the source's columns, and its checked request when it
     has none."""
     where = f"ranking {ranking.name!r}: "
     options = api.make_options(ranking.target, **ranking.options)
+    columns, display = session.columns, session.display
     names = [c.name for c in columns]
     problems = []
     for key in ("target", "weight", *NAME_LISTS):
@@ -557,13 +585,13 @@ def _ranking_problems(ranking: JobRanking, columns: Sequence[Column], table: Any
             problems.append(Problem(ranking.line_of(key), f"{where}{key}: {message} in {display}"))
     if options.where:
         try:
-            parse_predicate(options.where, {c.name: c for c in columns}, dialect)
+            parse_predicate(options.where, {c.name: c for c in columns}, session.dialect)
         except PredicateError as error:
             problems.append(Problem(ranking.line_of("where"), where + str(error)))
     spec = None
     if not problems:
         try:
-            spec = resolve(options, columns, table, display, dialect)
+            spec = session.resolve(options)
         except BitsiftError as error:
             problems.append(Problem(ranking.line, where + str(error)))
     return problems, spec
@@ -596,6 +624,17 @@ def check_run_id(run_id: str) -> str:
     return run_id
 
 
+def _run_ranking(job: Job, ranking: JobRanking, session: Session,
+                 run_id: str) -> Ranking | SegmentedRanking:
+    try:
+        return api.rank(session, ranking.target, **ranking.options)
+    except BitsiftError as error:
+        raise RunError(
+            f"job {job.name!r}, ranking {ranking.name!r} ({job.path.name} line "
+            f"{ranking.line}) failed, so run {run_id} wrote nothing: {error}"
+        ) from error
+
+
 def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = None) -> RunResult:
     """Rank every ranking of ``job``, then write all rows in one transaction.
 
@@ -604,17 +643,10 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
     """
     run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
     run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
-    preflight(job, run_id=run_id)
-    done: list[tuple[JobRanking, Ranking | SegmentedRanking]] = []
-    for ranking in job.rankings:
-        try:
-            result = api.rank(job.source, ranking.target, ranking.table, **ranking.options)
-        except BitsiftError as error:
-            raise RunError(
-                f"job {job.name!r}, ranking {ranking.name!r} ({job.path.name} line "
-                f"{ranking.line}) failed, so run {run_id} wrote nothing: {error}"
-            ) from error
-        done.append((ranking, result))
+    # Each ranking's source is opened and its request resolved once: by the checks.
+    with checked_sessions(job, run_id=run_id) as sessions:
+        done = [(ranking, _run_ranking(job, ranking, sessions[number], run_id))
+                for number, ranking in enumerate(job.rankings)]
     # One history row per attribute, and per segment for a ranking with `by`.
     rows = [
         row

@@ -17,7 +17,8 @@ from pathlib import Path
 
 from bitsift import api
 from bitsift.errors import BitsiftError, SpecError
-from bitsift.jobs import Job, JobRanking, preflight
+from bitsift.jobs import Job, JobRanking, checked_sessions, preflight
+from bitsift.session import Session
 from bitsift.version import __version__
 
 
@@ -43,10 +44,13 @@ def model_name(job: Job, ranking: JobRanking) -> str:
     return f"{slug(job.name)}__{slug(ranking.name)}"
 
 
-def model_text(job: Job, ranking: JobRanking, dialect: str | None = None) -> str:
-    """The content of one model file: header comment, then one SELECT (no semicolon)."""
+def model_text(job: Job, ranking: JobRanking, dialect: str | None = None,
+               session: Session | None = None) -> str:
+    """The content of one model file: header comment, then one SELECT (no semicolon).
+    ``session``: the ranking's source already open (default: the job's source is opened)."""
     options = {k: v for k, v in ranking.options.items() if k not in ("limit", "timeout")}
-    statement = api.statement(job.source, ranking.target, ranking.table, dialect=dialect,
+    source = session if session is not None else job.source
+    statement = api.statement(source, ranking.target, ranking.table, dialect=dialect,
                               **options)
     header = [
         f"bitsift {__version__} model: job {job.name}, ranking {ranking.name}",
@@ -86,9 +90,10 @@ def write_models(job: Job, out_dir: str | Path, dialect: str | None = None) -> l
     if clashes:
         raise SpecError("ranking names give the same model file name: " + ", ".join(clashes)
                         + ": rename the rankings")
-    preflight_rankings(job)
-    texts = [(r, name, model_text(job, r, dialect)) for r, name in zip(job.rankings, names,
-                                                                      strict=True)]
+    # Each ranking's source is opened once: by the checks, then kept for its statement.
+    with checked_sessions(job, destination=False) as sessions:
+        texts = [(r, name, model_text(job, r, dialect, sessions[number]))
+                 for number, (r, name) in enumerate(zip(job.rankings, names, strict=True))]
     out = Path(out_dir)
     try:
         out.mkdir(parents=True, exist_ok=True)

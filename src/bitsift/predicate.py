@@ -16,7 +16,7 @@ import sqlglot
 from sqlglot import Token, TokenType, exp
 from sqlglot.dialects.dialect import Dialect
 
-from bitsift.errors import PredicateError, unknown_names_message
+from bitsift.errors import PredicateError, first_line, unknown_names_message
 from bitsift.names import resolve_name
 from bitsift.schema import Column
 
@@ -84,12 +84,12 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     try:
         tokens = Dialect.get_or_raise(dialect).tokenize(text)
     except sqlglot.errors.SqlglotError as error:
-        raise PredicateError(f"--where does not parse: {_first_line(error)}") from None
+        raise PredicateError(f"--where does not parse: {first_line(error)}") from None
     _check_tokens(tokens)
     try:
         statements = sqlglot.parse(text, read=dialect)
     except sqlglot.errors.SqlglotError as error:
-        raise PredicateError(f"--where does not parse: {_first_line(error)}") from None
+        raise PredicateError(f"--where does not parse: {first_line(error)}") from None
     except RecursionError:
         raise PredicateError(_too_deep()) from None
     statements = [s for s in statements if s is not None]
@@ -123,7 +123,7 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
         # The statement is generated this strictly later: refuse here, with the reason.
         tree.sql(dialect, unsupported_level=sqlglot.ErrorLevel.RAISE)
     except sqlglot.errors.UnsupportedError as error:
-        raise PredicateError(f"--where uses what {dialect} cannot run: {_first_line(error)}"
+        raise PredicateError(f"--where uses what {dialect} cannot run: {first_line(error)}"
                              ) from None
     return Predicate(text=text, expression=tree)
 
@@ -160,7 +160,3 @@ def _nesting(tree: exp.Expression) -> int:
 def _too_deep() -> str:
     return (f"--where nests more than {MAX_NESTING} levels (parentheses, NOT, function calls):"
             " write it flatter, e.g. with IN (...) or AND/OR chains")
-
-
-def _first_line(error: Exception) -> str:
-    return str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__

@@ -23,8 +23,8 @@ from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column, hashable_value
-from bitsift.sources import open_source
-from bitsift.spec import RankSpec, resolve
+from bitsift.session import session_for
+from bitsift.spec import RankSpec
 from bitsift.sqlstatements import DEFAULT_MAX_VALUES, profile_statement, segment_predicate
 
 MISSING_LABEL = "(missing)"
@@ -368,6 +368,8 @@ def rank_and_profile(
 
     Both run on one connection: the ranking's statements, then one more statement for the
     value x class counts of the profiled attributes. ``progress`` gets a message per step.
+    ``source``: as :func:`bitsift.rank` takes it, or an open :class:`~bitsift.session.Session`
+    (left open, e.g. for :func:`bitsift.selection.select_for_runs` to go on with).
 
     >>> import duckdb
     >>> con = duckdb.connect()
@@ -381,14 +383,11 @@ def rank_and_profile(
     _no_weight(options)
     say = progress or (lambda _message: None)
     spec_options = make_options(target, **options)
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        say(f"reading the columns of {opened.display}")
-        columns = engine.columns(opened.table, opened.display)
-        marked = resolve_sensitive(_names(sensitive), columns)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
+    with session_for(source, table) as session:
+        engine, mark = session.engine, session.mark()
+        say(f"reading the columns of {session.display}")
+        marked = resolve_sensitive(_names(sensitive), session.columns)
+        spec = session.prepare(spec_options)
         say(f"ranking {len(spec.attributes)} attribute(s) against {spec.target!r}")
         ranking = run_ranking(engine, spec)
         chosen = [s.attribute for s in ranking.attributes][: top or None]
@@ -399,8 +398,8 @@ def rank_and_profile(
             say(f"counting values x classes of {len(chosen)} attribute(s)")
             subset = replace(spec, attributes=tuple(by_name[n] for n in chosen))
             profiles = fetch_profiles(engine, subset, cuts, max_values=max_values)
-        ranking.statements = list(engine.statements)
-        notes = list(engine.notes)
+        ranking.statements = session.statements_since(mark)
+        notes = session.notes
     parameters = {
         "source": spec.source_name,
         "target": spec.target,
@@ -488,15 +487,12 @@ def rank_and_profile_segments(
     spec_options = make_options(target, by=by, **options)
     if not spec_options.by:
         raise SpecError("name the segment column(s) with by")
-    opened = open_source(source, table)
     runs = []
-    with opened.engine as engine:
-        say(f"reading the columns of {opened.display}")
-        columns = engine.columns(opened.table, opened.display)
-        marked = resolve_sensitive(_names(sensitive), columns)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
+    with session_for(source, table) as session:
+        engine, mark = session.engine, session.mark()
+        say(f"reading the columns of {session.display}")
+        marked = resolve_sensitive(_names(sensitive), session.columns)
+        spec = session.prepare(spec_options)
         say(f"ranking {len(spec.attributes)} attribute(s) in each segment of "
             f"{', '.join(s.name for s in spec.by)}")
         segmented = run_segmented(engine, spec)
@@ -513,8 +509,8 @@ def rank_and_profile_segments(
                                  where=segment_predicate(spec, ranking.segment or {}))
                 profiles = fetch_profiles(engine, subset, cuts, max_values=max_values)
             runs.append((ranking, profiles))
-        statements = list(engine.statements)
-        notes = list(engine.notes)
+        statements = session.statements_since(mark)
+        notes = session.notes
     out = []
     for ranking, profiles in runs:
         ranking.statements = statements

@@ -24,7 +24,7 @@ A bin's count per class is then the difference of two such counts: the counts th
 statement finds with ``CASE WHEN value < c ...``, to the row.
 
 Where step 2 shows an infinite or NaN value, or step 3 a bucket whose rows changed (the table
-changed in between), the attribute is ranked the usual way (:func:`bitsift.api.fetch_cuts`,
+changed in between), the attribute is ranked the usual way (:func:`bitsift.cuts.fetch_cuts`,
 then the ranking statement). Segments (``--by``) and weights take the usual way too.
 """
 
@@ -36,14 +36,15 @@ from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+from bitsift.cuts import fetch_cuts
 from bitsift.engines.base import Engine
 from bitsift.metrics import table_row
+from bitsift.parts import Record, merge_parts
 from bitsift.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
 from bitsift.spec import RankSpec
 from bitsift.sqlbuild import rank_statement
 from bitsift.sqlstatements import quantile_cells_statement, quantile_splits_statement
 
-Record = dict[str, Any]
 #: A class as Python sees it (NaN made equal to NaN, as the engines group it); None: NULL.
 ClassKey = Hashable
 PerClass = dict[ClassKey, int]
@@ -221,27 +222,12 @@ def _counted_records(spec: RankSpec, indexes: Sequence[int], cells: Mapping[int,
     return records
 
 
-def _renumbered(records: Sequence[Record], positions: Sequence[int],
-                keep_target: bool) -> list[Record]:
-    """Records of a narrowed spec, attribute_index mapped back to ``positions`` (from 1)."""
-    out = []
-    for record in records:
-        index = record["attribute_index"]
-        if index is not None and int(index) > 0:
-            out.append({**record, "attribute_index": positions[int(index) - 1]})
-        elif keep_target:
-            out.append(record)
-    return out
-
-
 def rank_counted(engine: Engine, spec: RankSpec,
                  buckets: int | None = None) -> tuple[list[Record], dict[str, list[float]]]:
     """Result rows (as the ranking statement returns them, ``attribute_index`` numbering
     ``spec.attributes``, the target's row included) and cut points of every attribute of
     ``spec``: those binned by quantile from counts, any other the usual way. ``buckets``: as
     many as :func:`bitsift.quantiles.bucket_count` gives for the source's rows, unless given."""
-    from bitsift.api import fetch_cuts  # api imports this module: import at call time
-
     indexes = quantile_indexes(spec) if counts_apply(spec) else []
     plans = fetch_plans(engine, spec, indexes, buckets) if indexes else {}
     cells = _cells(engine, spec, plans) if plans else {}
@@ -257,11 +243,10 @@ def rank_counted(engine: Engine, spec: RankSpec,
             if result is not None:
                 binned[i] = result
     counted = [i for i in indexes if i in binned]
-    records: list[Record] = []
+    parts: list[tuple[list[int], list[Record]]] = []
     cuts: dict[str, list[float]] = {}
     if counted:
-        records += _renumbered(_counted_records(spec, counted, cells, binned), counted,
-                               keep_target=True)
+        parts.append((counted, _counted_records(spec, counted, cells, binned)))
         cuts.update({spec.attributes[i - 1].name: binned[i][0] for i in counted})
     rest = [i for i in range(1, len(spec.attributes) + 1) if i not in counted]
     if rest:
@@ -269,10 +254,9 @@ def rank_counted(engine: Engine, spec: RankSpec,
         known = {spec.attributes[i - 1].name: binned[i][0] for i in rest if i in binned}
         found_cuts = {**fetch_cuts(engine, _without(narrowed, known)), **known}
         statement = rank_statement(narrowed, engine.caps, found_cuts)
-        records += _renumbered(engine.fetch(statement.sql).records(), rest,
-                               keep_target=not counted)
+        parts.append((rest, engine.fetch(statement.sql).records()))
         cuts.update(found_cuts)
-    return records, cuts
+    return merge_parts(parts), cuts
 
 
 def _without(spec: RankSpec, known: Mapping[str, object]) -> RankSpec:

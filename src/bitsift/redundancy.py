@@ -27,8 +27,8 @@ from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
 from bitsift.metrics import snap
 from bitsift.result import Ranking
-from bitsift.sources import open_source
-from bitsift.spec import RankSpec, resolve
+from bitsift.session import Session, session_for
+from bitsift.spec import RankSpec
 from bitsift.sqlstatements import pairs_statement, refuse_segments_and_weights
 
 #: Pairs per statement: one grouping set each. Engines cap the number of grouping sets
@@ -255,26 +255,13 @@ class Redundancy:
         }
 
 
-def open_and_rank(source: Any, target: str, table: str | None,
-                  options: dict[str, Any]) -> tuple[Engine, RankSpec, Ranking]:
-    """Open ``source``, resolve the options and rank: the start of redundancy and selection.
-
-    Returns the open engine (the caller closes it: ``with engine:``), the spec and the ranking.
-    """
-    spec_options = make_options(target, **options)
-    opened = open_source(source, table)
-    engine = opened.engine
-    try:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        refuse_segments_and_weights(spec)
-        engine.set_timeout(spec_options.timeout)
-        ranking = run_ranking(engine, spec)
-    except BaseException:
-        engine.close()
-        raise
-    return engine, spec, ranking
+def rank_on_session(session: Session, target: str, options: dict[str, Any],
+                    ) -> tuple[RankSpec, Ranking]:
+    """Resolve the options on ``session`` and rank: the start of redundancy and selection."""
+    spec = session.resolve(make_options(target, **options))
+    refuse_segments_and_weights(spec)
+    session.set_timeout(spec.options.timeout)
+    return spec, run_ranking(session.engine, spec)
 
 
 def redundancy(source: Any, target: str, table: str | None = None, *,
@@ -292,10 +279,11 @@ def redundancy(source: Any, target: str, table: str | None = None, *,
     >>> [(p.first, p.second, round(p.mutual_information, 6)) for p in r.matrix.ordered()]
     [('a', 'b', 1.0), ('a', 'c', 0.0), ('b', 'c', 0.0)]
     """
-    engine, spec, ranking = open_and_rank(source, target, table, options)
-    with engine:
-        matrix = measure_matrix(engine, spec, ranking, batch_pairs=batch_pairs)
-        statements, notes = list(engine.statements), list(engine.notes)
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec, ranking = rank_on_session(session, target, options)
+        matrix = measure_matrix(session.engine, spec, ranking, batch_pairs=batch_pairs)
+        statements, notes = session.statements_since(mark), session.notes
     flagged = flagged_candidates_note(ranking, matrix.attributes)
     if flagged:
         notes.append(flagged)

@@ -39,12 +39,12 @@ from bitsift.redundancy import (
     fetch_pairs,
     flagged_candidates_note,
     measure_matrix,
-    open_and_rank,
+    rank_on_session,
     ranking_cuts,
 )
 from bitsift.result import Ranking
-from bitsift.sources import open_source
-from bitsift.spec import RankSpec, resolve
+from bitsift.session import session_for
+from bitsift.spec import RankSpec
 from bitsift.sqlstatements import segment_predicate
 
 Criterion = Literal["mid", "miq"]
@@ -279,12 +279,13 @@ def select_attributes(source: Any, target: str, table: str | None = None, *, k: 
         raise SpecError(f"--criterion must be one of {', '.join(CRITERIA)}, not {criterion!r}")
     if k < 1:
         raise SpecError(f"--k must be at least 1, not {k}")
-    engine, spec, ranking = open_and_rank(source, target, table, options)
-    with engine:
-        selection = select_on_engine(engine, spec, ranking, k, criterion=criterion,
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec, ranking = rank_on_session(session, target, options)
+        selection = select_on_engine(session.engine, spec, ranking, k, criterion=criterion,
                                      batch_pairs=batch_pairs)
-        selection.statements = list(engine.statements)
-        selection.notes = list(engine.notes) + selection.notes
+        selection.statements = session.statements_since(mark)
+        selection.notes = session.notes + selection.notes
     ranking.statements = list(selection.statements)
     return selection
 
@@ -307,6 +308,8 @@ def select_for_runs(
     top ``max(k, candidates)`` attributes (the report's heatmap), measured on the run's rows
     (its segment's, with ``by``) and bins.
 
+    ``source``: the runs' own :class:`~bitsift.session.Session` where there is one (a report
+    reuses it: no second open, no second resolve), else the source to open again.
     ``target``, ``table``, ``by`` and ``options`` are those the runs were ranked with; runs
     whose segment had nothing to rank keep ``selection = None``. The statements sent are
     appended to each run's ``ranking.statements``.
@@ -319,12 +322,12 @@ def select_for_runs(
         return
     say = progress or (lambda _message: None)
     spec_options = make_options(target, by=by, **options)
-    opened = open_source(source, table)
-    with opened.engine as engine:
-        columns = engine.columns(opened.table, opened.display)
-        spec = resolve(spec_options, columns, opened.table, opened.display,
-                       engine.caps.sqlglot_dialect)
-        engine.set_timeout(spec_options.timeout)
+    with session_for(source, table) as session:
+        engine = session.engine
+        # Only this step's statements are added: a session shared with the ranking (report)
+        # has already given the runs the ones before.
+        mark = session.mark()
+        spec = session.prepare(spec_options)
         for run in runs:
             ranking = run.ranking
             if getattr(ranking, "status", "ok") != "ok" or not ranking.attributes:
@@ -340,7 +343,7 @@ def select_for_runs(
             matrix = measure_matrix(engine, run_spec, ranking, names, batch_pairs=batch_pairs)
             run.selection = select_on_engine(engine, run_spec, ranking, k, criterion=criterion,
                                              candidates=names, matrix=matrix)
-        statements = list(engine.statements)
+        statements = session.statements_since(mark)
     for run in runs:
         run.ranking.statements = [*run.ranking.statements, *statements]
         if run.selection is not None:

@@ -7,7 +7,7 @@ import weakref
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
-from typing import Any
+from typing import Any, ClassVar
 
 from sqlglot import exp
 
@@ -40,6 +40,11 @@ class Engine(ABC):
     #: Set by :meth:`cancel`: the session sends no further statement.
     cancelled: threading.Event = field(default_factory=threading.Event, repr=False,
                                        compare=False)
+    #: bitsift opened this session itself (it closes it, and may open siblings of it); False
+    #: for a connection the caller passed in, which stays as the caller left it.
+    owned: bool = True
+    #: Whether :meth:`open_sibling` can open another session on the same database.
+    has_siblings: ClassVar[bool] = False
 
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
         """The table's columns in catalog order, or :class:`TableNotFoundError`; those the
@@ -104,6 +109,29 @@ class Engine(ABC):
         where the engine has a cancel) and refuse the next ones. Engines that can stop a
         running statement extend this."""
         self.cancelled.set()
+
+    def can_open_siblings(self) -> bool:
+        """Whether run mode may spread statements over sibling sessions: only on sessions
+        bitsift opened itself (a caller's connection may hold temporary tables, an open
+        transaction or a DataFrame registered by name, none of which a sibling would see)."""
+        return self.owned and self.has_siblings
+
+    def open_sibling(self, timeout: float | None) -> Engine:
+        """Another session on the same database, with the same capabilities and timeout.
+
+        Its session statements and every statement it sends are logged in this engine's
+        :attr:`statements`, so ``--debug`` and :attr:`~bitsift.result.Ranking.statements`
+        show them all. The caller closes it.
+        """
+        sibling = self._new_session()
+        self.statements.extend(sibling.statements)
+        sibling.statements = self.statements
+        sibling.set_timeout(timeout)
+        return sibling
+
+    def _new_session(self) -> Engine:
+        """A new session on the same database (engines with :attr:`has_siblings` extend this)."""
+        raise TypeError(f"no second session for {type(self).__name__}")
 
     def refuse_if_cancelled(self) -> None:
         """:class:`QueryCancelledError` once :meth:`cancel` has run: a statement sent after

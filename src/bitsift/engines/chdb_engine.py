@@ -26,6 +26,7 @@ from bitsift.errors import (
     SourceError,
     SpecError,
     TableNotFoundError,
+    first_line,
     unknown_names_message,
 )
 from bitsift.schema import Column, Family, family_of
@@ -87,7 +88,6 @@ class ChdbEngine(Engine):
     """Runs bitsift's statements in an embedded ClickHouse session."""
 
     session: Any = None
-    owned: bool = True
     timeout: float | None = None
     #: The ``tmp/`` folder chdb made in a database directory on opening it, removed on close:
     #: bitsift leaves the directory as it found it.
@@ -124,7 +124,8 @@ class ChdbEngine(Engine):
             raise
         except Exception as error:  # noqa: BLE001 - chdb raises RuntimeError subclasses
             _remove_empty(made_tmp)
-            raise SourceError(f"cannot open {path} as a chdb database: {_line(error)}") from None
+            message = f"cannot open {path} as a chdb database: {first_line(error)}"
+            raise SourceError(message) from None
         return cls(caps=capabilities("clickhouse"), session=session, made_tmp=made_tmp)
 
     def read_parquet(self, path: str) -> exp.Table:
@@ -145,7 +146,7 @@ class ChdbEngine(Engine):
         try:
             self._query(statement)
         except Exception as error:  # noqa: BLE001 - chdb raises RuntimeError subclasses
-            raise SourceError(f"ClickHouse cannot read {path}: {_line(error)}") from None
+            raise SourceError(f"ClickHouse cannot read {path}: {first_line(error)}") from None
         return view
 
     def _query(self, sql: str) -> Any:
@@ -159,7 +160,7 @@ class ChdbEngine(Engine):
         except Exception as error:  # noqa: BLE001
             if _code(error) in _UNKNOWN_TABLE_CODES:
                 raise TableNotFoundError(self._missing_table_message(display)) from None
-            raise SourceError(f"cannot read {display}: {_line(error)}") from None
+            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
         return [
             Column(name=row["name"], family=clickhouse_family(row["type"]),
                    type_name=row["type"])
@@ -192,7 +193,7 @@ class ChdbEngine(Engine):
                 raise QueryTimeoutError(
                     f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
                 ) from None
-            raise QueryError(f"ClickHouse error: {_line(error)}") from None
+            raise QueryError(f"ClickHouse error: {first_line(error)}") from None
         names = list(result.column_names)
         columns = [result.column(i).to_pylist() for i in range(result.num_columns)]
         rows = list(zip(*columns, strict=True)) if columns else []
@@ -245,8 +246,3 @@ def _remove_empty(folder: Path | None) -> None:
 def _code(error: BaseException) -> int | None:
     match = _CODE.search(str(error))
     return int(match.group(1)) if match else None
-
-
-def _line(error: BaseException) -> str:
-    text = str(error).strip()
-    return text.splitlines()[0] if text else type(error).__name__

@@ -6,6 +6,7 @@ import contextlib
 import threading
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import ClassVar
 
 import duckdb
 from sqlglot import exp
@@ -18,6 +19,7 @@ from bitsift.errors import (
     QueryTimeoutError,
     SourceError,
     TableNotFoundError,
+    first_line,
     unknown_names_message,
 )
 from bitsift.schema import Column, family_of
@@ -53,7 +55,6 @@ def file_table(path: str) -> exp.Expression:
 @dataclass
 class DuckDBEngine(Engine):
     connection: duckdb.DuckDBPyConnection | None = None
-    owned: bool = True
     timeout: float | None = field(default=None)
 
     def __post_init__(self) -> None:
@@ -62,6 +63,12 @@ class DuckDBEngine(Engine):
             # DuckDB draws a progress bar on stdout once a statement has run 2 s, into a pipe
             # too, mixed into bitsift's output. A connection setting: only on bitsift's own.
             self.connection.execute("SET enable_progress_bar = false")
+
+    has_siblings: ClassVar[bool] = True
+
+    def _new_session(self) -> DuckDBEngine:
+        # cursor(): a new connection to the same database instance, read-only if it is.
+        return DuckDBEngine(caps=self.caps, connection=self.con.cursor(), owned=True)
 
     @classmethod
     def open_file(cls, path: str) -> DuckDBEngine:
@@ -76,7 +83,8 @@ class DuckDBEngine(Engine):
         try:
             connection = duckdb.connect(path, read_only=True)
         except duckdb.Error as error:
-            raise SourceError(f"cannot open {path} as a DuckDB database: {_line(error)}") from None
+            message = f"cannot open {path} as a DuckDB database: {first_line(error)}"
+            raise SourceError(message) from None
         return cls(caps=caps, connection=connection)
 
     @classmethod
@@ -97,9 +105,9 @@ class DuckDBEngine(Engine):
         except duckdb.CatalogException:
             raise TableNotFoundError(self._missing_table_message(table, display)) from None
         except duckdb.IOException as error:
-            raise SourceError(f"cannot read {display}: {_line(error)}") from None
+            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
         except duckdb.Error as error:
-            raise SourceError(f"cannot read {display}: {_line(error)}") from None
+            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
         self._qualify(table)
         return [
             Column(name=n, family=family_of(str(t), "duckdb"), type_name=str(t))
@@ -169,7 +177,7 @@ class DuckDBEngine(Engine):
             return self._timeout_error()
         if self.cancelled.is_set():
             return QueryCancelledError("the query was cancelled")
-        return QueryError(f"DuckDB error: {_line(error)}")
+        return QueryError(f"DuckDB error: {first_line(error)}")
 
     def _timeout_error(self) -> QueryTimeoutError:
         return QueryTimeoutError(
@@ -189,8 +197,3 @@ class DuckDBEngine(Engine):
         if self.owned and self.connection is not None:
             self.connection.close()
         self.connection = None
-
-
-def _line(error: BaseException) -> str:
-    text = str(error).strip()
-    return text.splitlines()[0] if text else type(error).__name__

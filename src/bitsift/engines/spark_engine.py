@@ -39,6 +39,7 @@ from bitsift.errors import (
     SourceError,
     SpecError,
     TableNotFoundError,
+    first_line,
     unknown_names_message,
 )
 from bitsift.masking import mask_text
@@ -149,7 +150,7 @@ class SparkEngine(Engine):
                 session = builder.getOrCreate()
         except Exception as error:  # noqa: BLE001 - Java missing, bad master, ...
             # Spark's message may quote the master URL, and with it its credentials.
-            raise SourceError(f"cannot start a Spark session: {mask_text(_line(error))}"
+            raise SourceError(f"cannot start a Spark session: {mask_text(first_line(error))}"
                               ) from None
         # Every Spark error reaches the user as a bitsift message; the JVM's log lines
         # (a JSON record per failed analysis) would repeat it on stderr.
@@ -179,7 +180,7 @@ class SparkEngine(Engine):
         try:
             frame = self.spark.read.parquet(path)
         except Exception as error:  # noqa: BLE001 - AnalysisException and friends
-            raise SourceError(f"Spark cannot read {path} as Parquet: {_line(error)}") from None
+            raise SourceError(f"Spark cannot read {path} as Parquet: {first_line(error)}") from None
         return self.register(frame)
 
     def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
@@ -189,7 +190,7 @@ class SparkEngine(Engine):
         except Exception as error:  # noqa: BLE001
             if _condition(error) == "TABLE_OR_VIEW_NOT_FOUND":
                 raise TableNotFoundError(self._missing_table_message(display)) from None
-            raise SourceError(f"cannot read {display}: {_line(error)}") from None
+            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
         return [
             Column(name=f.name, family=spark_family(f.dataType),
                    type_name=f.dataType.simpleString())
@@ -229,7 +230,7 @@ class SparkEngine(Engine):
         except Exception as error:  # noqa: BLE001 - pyspark and py4j errors alike
             if fired.is_set():
                 raise self._timeout_error() from None
-            raise QueryError(f"Spark error: {_line(error)}") from None
+            raise QueryError(f"Spark error: {first_line(error)}") from None
         finally:
             done.set()
             restore()
@@ -342,8 +343,3 @@ def _condition(error: BaseException) -> str | None:
             except Exception:  # noqa: BLE001
                 return None
     return None
-
-
-def _line(error: BaseException) -> str:
-    text = str(error).strip()
-    return text.splitlines()[0] if text else type(error).__name__

@@ -9,7 +9,7 @@ import warnings
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, ClassVar
 
 import sqlalchemy as sa
 from sqlalchemy.engine import URL, make_url
@@ -25,6 +25,7 @@ from bitsift.errors import (
     QueryTimeoutError,
     SourceError,
     TableNotFoundError,
+    first_line,
     suggest,
 )
 from bitsift.masking import (
@@ -64,7 +65,7 @@ _CANCEL_PATTERNS = re.compile(
 
 def missing_driver_message(drivername: str, backend: str, error: BaseException) -> str:
     """One line naming the missing module and the extra that brings a working driver."""
-    module = getattr(error, "name", None) or _line(error)
+    module = getattr(error, "name", None) or first_line(error)
     line = f"no driver for {drivername}:// (module {module!r} is not installed)"
     if backend in DRIVER_EXTRAS:
         extra, scheme = DRIVER_EXTRAS[backend]
@@ -111,7 +112,6 @@ class SqlAlchemyEngine(Engine):
 
     connection: sa.Connection | None = None
     engine: sa.Engine | None = None
-    owned: bool = True
     #: The URL's password and secret query values, masked in every driver message.
     secret: tuple[str, ...] = field(default=(), repr=False)
     timeout: float | None = None
@@ -120,6 +120,15 @@ class SqlAlchemyEngine(Engine):
     _session_read_only: bool = False
     #: Stops the statement now running on this connection (see :meth:`_server_cancel`).
     _cancel_running: Callable[[], None] = field(default=lambda: None, repr=False)
+
+    has_siblings: ClassVar[bool] = True
+
+    def _new_session(self) -> SqlAlchemyEngine:
+        # A new connection from the same SQLAlchemy engine, prepared like the first one.
+        sibling = SqlAlchemyEngine.wrap(self.con.engine)
+        sibling.caps = self.caps
+        sibling.secret = self.secret
+        return sibling
 
     @classmethod
     def open_url(cls, url: str) -> SqlAlchemyEngine:
@@ -173,7 +182,7 @@ class SqlAlchemyEngine(Engine):
         try:
             connection = engine.connect()
         except Exception as error:  # noqa: BLE001 - any driver error
-            message = _scrub(_line(getattr(error, "orig", None) or error), secret)
+            message = _scrub(first_line(getattr(error, "orig", None) or error), secret)
             raise SourceError(
                 f"cannot connect to {safe_url(engine.url)}: {message}"
             ) from None
@@ -260,7 +269,7 @@ class SqlAlchemyEngine(Engine):
         except sa.exc.DBAPIError as error:  # unknown schema and friends
             raise TableNotFoundError(
                 f"cannot list tables of schema {schema!r}: "
-                f"{_scrub(_line(error.orig or error), self.secret)}"
+                f"{_scrub(first_line(error.orig or error), self.secret)}"
             ) from None
         finally:
             self._end()
@@ -338,7 +347,7 @@ class SqlAlchemyEngine(Engine):
                     self._cancel_running()
                     raise
                 except sa.exc.DBAPIError as error:
-                    raise self._failure(_scrub(_line(error.orig or error), self.secret),
+                    raise self._failure(_scrub(first_line(error.orig or error), self.secret),
                                         timed_out=fired()) from None
         finally:
             self._end()
@@ -461,8 +470,3 @@ def _timeout_text(template: str, seconds: float) -> str:
 def _scrub(text: str, secrets: tuple[str, ...]) -> str:
     """A driver's message without the URL's secrets nor those from the environment."""
     return mask_text(text, (*secrets, *environment_secrets()))
-
-
-def _line(error: BaseException) -> str:
-    text = str(error).strip()
-    return text.splitlines()[0] if text else type(error).__name__
