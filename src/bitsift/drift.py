@@ -16,6 +16,8 @@ from typing import Any
 from bitsift import jsonout
 from bitsift.errors import BitsiftError, SpecError
 from bitsift.history import Destination, RunInfo, open_store
+from bitsift.numformat import format_bits
+from bitsift.texttable import aligned
 
 #: Exit code of ``bitsift drift`` when something drifted, so schedulers can alert.
 DRIFT_EXIT_CODE = 3
@@ -259,16 +261,20 @@ _LABELS = {
 }
 
 
+def _place_and_gain(when: str, score: Mapping[str, Any]) -> str:
+    return f"{when} #{score['position']}, IG {format_bits(score['information_gain'])}"
+
+
 def _describe(change: Change) -> str:
     if change.kind == "information_gain":
         delta = change.after - change.before
-        return f"{change.before:.4f} -> {change.after:.4f} bits ({delta:+.4f})"
+        return f"{format_bits(change.before)} -> {format_bits(change.after)} bits ({delta:+.4f})"
     if change.kind == "rank":
         return f"#{change.before} -> #{change.after}"
     if change.kind == "appeared":
-        return f"now #{change.after['position']}, IG {change.after['information_gain']:.4f}"
+        return _place_and_gain("now", change.after)
     if change.kind == "disappeared":
-        return f"was #{change.before['position']}, IG {change.before['information_gain']:.4f}"
+        return _place_and_gain("was", change.before)
     if change.kind == "flag_gained":
         return str(change.after)
     if change.kind == "flag_lost":
@@ -292,12 +298,7 @@ def render_text(report: DriftReport) -> str:
             for c in report.changes
         ]
         header = ("ranking", "attribute", "change", "detail")
-        widths = [max(len(r[i]) for r in [header, *rows]) for i in range(3)]
-        lines.append("")
-        for row in [header, *rows]:
-            lines.append("  ".join(v.ljust(w) for v, w in zip(row[:3], widths, strict=True))
-                         + "  " + row[3])
-        lines.append("")
+        lines += ["", *aligned([header, *rows], left=range(len(header))), ""]
     lines += [f"note: {n}" for n in report.notes]
     count = len(report.changes)
     if report.drifted:

@@ -24,6 +24,7 @@ from bitsift.engines.base import Engine
 from bitsift.errors import ColumnError, SpecError, unknown_names_message
 from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
+from bitsift.numformat import cut_labels
 from bitsift.predicate import Predicate
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column, hashable_value
@@ -265,24 +266,6 @@ def class_label(value: Any) -> str:
     return str(value)
 
 
-def format_cut(value: float, digits: int = 6) -> str:
-    """A cut point with ``digits`` significant digits.
-
-    >>> format_cut(12.3456789)
-    '12.3457'
-    """
-    return f"{value:.{digits}g}"
-
-
-def _cut_digits(cuts: Sequence[float]) -> int:
-    """Enough significant digits that neighbouring cut points read differently."""
-    for digits in (6, 9, 12, 17):
-        labels = [format_cut(c, digits) for c in cuts]
-        if len(set(labels)) == len(labels):
-            return digits
-    return 17
-
-
 def bin_label(index: int, cuts: Sequence[float]) -> tuple[str, float | None, float | None]:
     """Label and bounds of bin ``index``: bin j holds cuts[j-1] <= value < cuts[j].
 
@@ -295,13 +278,12 @@ def bin_label(index: int, cuts: Sequence[float]) -> tuple[str, float | None, flo
     """
     if not cuts:
         return "all values", None, None
-    digits = _cut_digits(cuts)
+    labels = cut_labels([float(c) for c in cuts])
     if index <= 0:
-        return f"< {format_cut(cuts[0], digits)}", None, float(cuts[0])
+        return f"< {labels[0]}", None, float(cuts[0])
     if index >= len(cuts):
-        return f">= {format_cut(cuts[-1], digits)}", float(cuts[-1]), None
-    low, high = float(cuts[index - 1]), float(cuts[index])
-    return f"[{format_cut(low, digits)}, {format_cut(high, digits)})", low, high
+        return f">= {labels[-1]}", float(cuts[-1]), None
+    return f"[{labels[index - 1]}, {labels[index]})", float(cuts[index - 1]), float(cuts[index])
 
 
 def _value_sort_key(kind: str, raw: Any, rows: int, rank: int) -> tuple[Any, ...]:
