@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 from bitsift import jsonout
-from bitsift.errors import BitsiftError, SpecError
+from bitsift.errors import BitsiftError, Option, Problem, SpecError
 from bitsift.history import Destination, RunInfo, open_store
 from bitsift.numformat import format_bits
 from bitsift.texttable import aligned
@@ -39,9 +39,9 @@ class DriftThresholds:
 
     def __post_init__(self) -> None:
         if self.ig_change < 0:
-            raise SpecError(f"--ig-change must be at least 0, not {self.ig_change}")
+            raise SpecError.option("ig_change", f" must be at least 0, not {self.ig_change}")
         if self.rank_change < 0:
-            raise SpecError(f"--rank-change must be at least 0, not {self.rank_change}")
+            raise SpecError.option("rank_change", f" must be at least 0, not {self.rank_change}")
 
 
 @dataclass(frozen=True)
@@ -211,7 +211,9 @@ def _pick_runs(runs: Sequence[RunInfo], old: str | None, new: str | None,
             known = ", ".join(r.run_id for r in runs[:5]) or "none"
             raise BitsiftError(f"job {job!r} has no run {wanted!r} (newest runs: {known})")
     if old is not None and new is None:
-        raise SpecError("--old needs --new: name both runs, or only --new, or neither")
+        raise SpecError(problems=[Problem("old", (
+            Option("old"), " needs ", Option("new"), ": name both runs, or only ", Option("new"),
+            ", or neither"))])
     if new is None:
         return (runs[1] if len(runs) > 1 else None), (runs[0] if runs else None)
     newer = by_id[new]

@@ -21,7 +21,7 @@ from sqlglot import exp
 from bitsift.api import make_options, run_ranking, run_segmented
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
-from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
 from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
 from bitsift.numformat import cut_labels
@@ -211,7 +211,7 @@ def profile_statement(
     list their ``max_values`` most frequent values and merge the rest.
     """
     if max_values < 1:
-        raise SpecError(f"--max-values must be at least 1, not {max_values}")
+        raise SpecError.option("max_values", f" must be at least 1, not {max_values}")
 
     def exact(family: str) -> bool:
         # Same rule as the ranking: text under a collation that may merge 'a' and 'A'.
@@ -393,7 +393,8 @@ def resolve_sensitive(names: Iterable[str], columns: Sequence[Column]) -> tuple[
         else:
             found.append(spelled)
     if unknown:
-        raise ColumnError(unknown_names_message("column", unknown, catalog) + " (--sensitive)")
+        raise ColumnError(problems=[Problem("sensitive", (
+            unknown_names_message("column", unknown, catalog) + " (", Option("sensitive"), ")"))])
     return tuple(dict.fromkeys(found))
 
 
@@ -429,7 +430,7 @@ def rank_and_profile(
     [('0', 20, (10, 10)), ('1', 20, (10, 10)), ('2', 20, (10, 10))]
     """
     if top is not None and top < 1:
-        raise SpecError(f"--top must be at least 1, not {top}")
+        raise SpecError.option("top", f" must be at least 1, not {top}")
     _no_weight(options)
     say = progress or (lambda _message: None)
     spec_options = make_options(target, **options)
@@ -506,8 +507,9 @@ def profile(
 
 def _no_weight(options: Mapping[str, Any]) -> None:
     if options.get("weight"):
-        raise SpecError("the drill-down counts rows: --weight is not supported by report "
-                        "and profile (use `bitsift rank --weight`)")
+        raise SpecError(problems=[Problem("weight", (
+            "the drill-down counts rows: ", Option("weight"), " is not supported by report "
+            "and profile (use `bitsift rank --weight`)"))])
 
 
 def segment_predicate(spec: RankSpec, segment: Mapping[str, Any]) -> Predicate:
@@ -556,7 +558,7 @@ def rank_and_profile_segments(
     [('s = 0', 20), ('s = 1', 20)]
     """
     if top is not None and top < 1:
-        raise SpecError(f"--top must be at least 1, not {top}")
+        raise SpecError.option("top", f" must be at least 1, not {top}")
     _no_weight(options)
     say = progress or (lambda _message: None)
     spec_options = make_options(target, by=by, **options)

@@ -25,7 +25,7 @@ from typing import Any
 from bitsift.api import make_options, run_ranking
 from bitsift.dialects import Capabilities
 from bitsift.engines.base import Engine
-from bitsift.errors import SpecError
+from bitsift.errors import Option, Problem, SpecError
 from bitsift.metrics import snap
 from bitsift.result import Ranking
 from bitsift.sources import open_source
@@ -98,7 +98,7 @@ def batches(pairs: Sequence[tuple[str, str]], size: int) -> Iterator[list[tuple[
     [8, 8, 5]
     """
     if size < 1:
-        raise SpecError(f"--batch-pairs must be at least 1, not {size}")
+        raise SpecError.option("batch_pairs", f" must be at least 1, not {size}")
     for start in range(0, len(pairs), size):
         yield list(pairs[start:start + size])
 
@@ -147,12 +147,15 @@ class RedundancyMatrix:
 
 def refuse_segments_and_weights(spec: RankSpec) -> None:
     """Redundancy and selection measure one table by row counts: no --by, no --weight."""
-    refused = [name for name, used in (("--by", spec.by), ("--weight", spec.weight)) if used]
+    refused = [Option(name) for name, used in (("by", spec.by), ("weight", spec.weight))
+               if used]
     if refused:
-        raise SpecError(
-            f"redundancy and selection do not take {' or '.join(refused)}: they count rows of "
-            "the whole table (for one segment, give its condition with --where)"
-        )
+        listed: list[str | Option] = [refused[0]]
+        for option in refused[1:]:
+            listed += [" or ", option]
+        raise SpecError(problems=[Problem(refused[0].name, (
+            "redundancy and selection do not take ", *listed, ": they count rows of the whole "
+            "table (for one segment, give its condition with ", Option("where"), ")"))])
 
 
 def pairs_statement(
