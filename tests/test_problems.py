@@ -14,6 +14,7 @@ import pytest
 import bitsift
 from bitsift.cli import main
 from bitsift.errors import ColumnError, Option, Problem, SpecError, flag_name
+from bitsift.history import Destination
 from bitsift.jobs import JobError, load_job, preflight
 
 
@@ -126,3 +127,10 @@ def test_job_preflight_places_table_problems_at_their_key(tiny_db: Path) -> None
         (13, "ranking 'first': 'label' cannot be both a segment (by) and the weight"),
         (13, "ranking 'first': weight needs a number column; 'label' is VARCHAR"),
     ]
+
+
+def test_destination_problems_spell_the_table_option_as_the_results_table(tmp_path: Path) -> None:
+    # The table name's problem comes from the library (about "table"); here it is the
+    # results table's, spelled so whatever the reader.
+    destination = Destination(str(tmp_path / "history.duckdb"), "a.b.c.d")
+    assert destination.problems() == ["results table must be [schema.]table, not 'a.b.c.d'"]

@@ -35,7 +35,7 @@ from sqlglot import exp
 from bitsift import jsonout
 from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
-from bitsift.errors import BitsiftError, SpecError
+from bitsift.errors import BitsiftError, Option, Problem, SpecError, parameter_name
 from bitsift.masking import (
     environment_secrets,
     mask_text,
@@ -190,8 +190,13 @@ class Destination:
         try:
             self.table_name()
         except SpecError as error:
-            found.append(str(error).replace("--table", "results table"))
+            found += error.lines(_results_table_spelling)
         return found
+
+
+def _results_table_spelling(option: Option) -> str:
+    """The table option, in a destination's problems, is the results table."""
+    return "results table" if option.name == "table" else parameter_name(option)
 
 
 @dataclass(frozen=True)
@@ -801,7 +806,7 @@ def open_store(destination: Destination, *, write: bool = False) -> HistoryStore
     history; writing creates it."""
     problems = destination.problems()
     if problems:
-        raise HistoryError("; ".join(problems))
+        raise HistoryError(problems=[Problem.of(p) for p in problems])
     if destination.is_url:
         return SqlAlchemyStore(destination)
     return DuckDBStore(destination, write=write)
