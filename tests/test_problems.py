@@ -134,3 +134,20 @@ def test_destination_problems_spell_the_table_option_as_the_results_table(tmp_pa
     # results table's, spelled so whatever the reader.
     destination = Destination(str(tmp_path / "history.duckdb"), "a.b.c.d")
     assert destination.problems() == ["results table must be [schema.]table, not 'a.b.c.d'"]
+
+
+def test_results_problems_are_placed_at_their_key_not_by_words_in_the_message(
+        tiny_db: Path) -> None:
+    # The database is named "timetables": its URL holds the word "table", which once sent
+    # the destination's problem to the table key's line.
+    path = tiny_db.parent / "job.toml"
+    path.write_text(JOB.replace(
+        'destination = "history.duckdb"\n',
+        'destination = "postgresql+psycopg://u:p@ss@127.0.0.1/timetables"\ntable = "a.b.c"\n'),
+        encoding="utf-8")
+    with pytest.raises(JobError) as caught:
+        load_job(path)
+    found = [(p.line, p.message) for p in caught.value.problems if p.line in (5, 6)]
+    assert [line for line, _ in found] == [5, 6], found
+    assert "contains '@'" in found[0][1]
+    assert found[1][1] == "results table must be [schema.]table, not 'a.b.c'"

@@ -349,9 +349,8 @@ class _Reader:
         if text is None:
             return None
         destination = Destination(self.location(text), table)
-        for message in destination.problems():
-            key = "table" if "table" in message else "destination"
-            self.problem(self.lines.of("results", 0, key), message)
+        for problem in destination.keyed_problems():
+            self.problem(self.lines.of("results", 0, problem.key or ""), problem.message)
         return destination
 
     def rankings(self, source: str | None) -> list[JobRanking]:
