@@ -93,7 +93,9 @@ class BitsiftError(Exception):
     """
 
     def __init__(self, message: str | None = None, *, problems: Sequence[Problem] = ()) -> None:
-        self.problems: list[Problem] = list(problems) or [Problem.of(message or "")]
+        # A message alone is one problem about no single option (str(): drivers' messages
+        # are passed on as they come).
+        self.problems: list[Problem] = list(problems) or [Problem.of(str(message or ""))]
         super().__init__(message if message is not None else self.render())
 
     @classmethod
