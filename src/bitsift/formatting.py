@@ -7,7 +7,7 @@ from collections.abc import Callable
 from bitsift import jsonout
 from bitsift.metrics import FLAG_DESCRIPTIONS
 from bitsift.names import escape_text
-from bitsift.numformat import format_cuts, format_metric
+from bitsift.numformat import format_bits, format_cuts, format_metric
 from bitsift.result import (
     ATTRIBUTE_KEYS,
     SEGMENT_STATUS,
@@ -61,12 +61,12 @@ def _summary(ranking: Ranking) -> str:
             f" {ranking.weight!r} (total {ranking.weight_total or 0:,.6g}), {ranking.rows:,} rows"
             f" ({ranking.rows_excluded:,} excluded: NULL target;"
             f" {ranking.rows_without_weight:,} without weight), {ranking.classes} classes,"
-            f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
+            f" H(Y) = {format_bits(ranking.target_entropy)} bits; sorted by {ranking.sort}"
         )
     return (
         f"{escape_text(ranking.table)}: target {ranking.target!r}, {ranking.rows:,} rows"
         f" ({ranking.rows_excluded:,} excluded: NULL target), {ranking.classes} classes,"
-        f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
+        f" H(Y) = {format_bits(ranking.target_entropy)} bits; sorted by {ranking.sort}"
     )
 
 
