@@ -15,6 +15,7 @@ import pytest
 from click.testing import CliRunner
 
 from bitsift.cli import cli
+from bitsift.drift import Change, DriftReport, DriftThresholds, render_text
 from bitsift.numformat import cut_labels, format_cuts, format_metric, format_p_value
 from bitsift.profile import bin_label, profile
 from bitsift.report import profile_text, render_report
@@ -131,3 +132,15 @@ def test_csv_keeps_exact_text_and_empty_none() -> None:
     text = csv_text(["name", "value"], [["a,\nb", None], ["c", 0.1]])
     assert list(csv.reader(io.StringIO(text))) == [["name", "value"], ["a,\nb", ""],
                                                    ["c", "0.1"]]
+
+
+def test_drift_text_escapes_names_and_aligns_like_every_table() -> None:
+    # An attribute name from the history table holding a terminal escape: shown, not obeyed.
+    report = DriftReport(job="nightly", old=None, new=None, thresholds=DriftThresholds(),
+                         changes=[Change("rank", "r", "", "a\x1b[2Jb", 1, 5),
+                                  Change("information_gain", "r", "", "c", 0.5, 0.25)])
+    lines = render_text(report).splitlines()
+    assert all(line.isprintable() for line in lines), lines
+    assert lines[2:5] == ["ranking  attribute  change            detail",
+                          "r        a\\x1b[2Jb  rank              #1 -> #5",
+                          "r        c          information gain  0.5000 -> 0.2500 bits (-0.2500)"]
