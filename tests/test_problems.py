@@ -114,6 +114,7 @@ def test_job_loader_renders_problems_with_keys_at_their_lines(tiny_db: Path) -> 
     ]
     assert f"{path}:14: ranking 1: columns named both categorical and numeric: a" in (
         str(caught.value))
+    assert [p.key for p in caught.value.problems] == ["bins", "categorical", "limit"]
 
 
 def test_job_preflight_places_table_problems_at_their_key(tiny_db: Path) -> None:

@@ -445,7 +445,8 @@ def _keyed(problems: Sequence[Problem], where: str,
     """The library's problems in a job file: each at the line setting the key it is about
     (the file's keys are the library's parameter names, and so is its spelling of them),
     prefixed with ``where`` (the ranking)."""
-    return [_at(line_of(p.key or ""), where + p.message) for p in problems]
+    return [Problem.of(where + p.message, key=p.key, line=line_of(p.key or ""))
+            for p in problems]
 
 
 def _type_problem(key: str, value: Any) -> str | None:
