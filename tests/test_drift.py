@@ -67,7 +67,7 @@ def test_compare_thresholds_are_strict_and_ignore_rounding() -> None:
         ("rank", "a"), ("information_gain", "b"), ("rank", "b")]
     _, notes = compare(old, [row("a", 1, 0.5, options='{"bins":4}'), row("b", 2, 0.25)])
     assert notes and "settings of ranking 'r' changed" in notes[0]
-    with pytest.raises(SpecError, match="--ig-change must be at least 0"):
+    with pytest.raises(SpecError, match="^ig_change must be at least 0"):
         DriftThresholds(ig_change=-1)
 
 

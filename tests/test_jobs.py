@@ -289,7 +289,7 @@ def test_cli_run_and_dry_run(tmp_path: Path) -> None:
     assert "wrote 7 rows to history in" in result.output
     assert "  all: t, target y, 1,500 rows, 3 attributes; top IG: a " in result.output
     bad = runner.invoke(cli, ["run", str(path), "--run-id", ""])
-    assert bad.exit_code == 1 and "--run-id must be 1 to 100 printable" in str(bad.exception)
+    assert bad.exit_code == 1 and "run_id must be 1 to 100 printable" in str(bad.exception)
 
 
 @pytest.mark.slow

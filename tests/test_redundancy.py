@@ -333,9 +333,9 @@ def test_statement_rejects_bad_pairs() -> None:
 
 
 def test_segments_and_weights_are_refused(shapes: duckdb.DuckDBPyConnection) -> None:
-    with pytest.raises(SpecError, match="do not take --by: they count rows"):
+    with pytest.raises(SpecError, match="do not take by: they count rows"):
         redundancy(shapes, target="y", table="t", by="third")
-    with pytest.raises(SpecError, match="do not take --weight"):
+    with pytest.raises(SpecError, match="do not take weight"):
         redundancy(shapes, target="y", table="t", weight="half")
 
 

@@ -203,7 +203,7 @@ EXPECTED_WORDS = {
     "wrong password": "Access denied", "no such database": "Access denied",
     "refused connection": "cannot connect", "unknown table": "unknown table",
     "unknown column": "unknown column", "bad predicate": "sleep",
-    "timeout": "--timeout", "no table": "--table is required",
+    "timeout": "--timeout", "no table": "table is required",
 }
 
 

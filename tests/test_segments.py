@@ -189,7 +189,7 @@ def test_segment_columns_are_checked() -> None:
         bitsift.rank(connection, target="y", table="t", by="regoin")
     with pytest.raises(SpecError, match="target 'y' cannot also be a segment"):
         bitsift.rank(connection, target="y", table="t", by="y")
-    with pytest.raises(SpecError, match="both in --attributes and as a segment"):
+    with pytest.raises(SpecError, match="both in attributes and as a segment"):
         bitsift.rank(connection, target="y", table="t", by="a", attributes="a,b")
     with pytest.raises(SpecError, match="twice"):
         bitsift.rank(connection, target="y", table="t", by="a,a")

@@ -100,7 +100,7 @@ def test_inf_is_no_limit(small_db: Path) -> None:
 
 @pytest.mark.parametrize("value", [math.nan, -1.0, 0, "5", True])
 def test_python_api_rejects_bad_timeouts(small_db: Path, value: object) -> None:
-    with pytest.raises(SpecError, match="--timeout must be a"):
+    with pytest.raises(SpecError, match="^timeout must be a"):
         bitsift.rank(str(small_db), table="t", target="y", timeout=value)  # type: ignore[arg-type]
 
 

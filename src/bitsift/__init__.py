@@ -7,7 +7,7 @@ computed inside the database.
 """
 
 from bitsift.api import CheckReport, check, rank, statement
-from bitsift.errors import BitsiftError
+from bitsift.errors import BitsiftError, Problem
 from bitsift.result import AttributeScore, Ranking, SegmentedRanking
 from bitsift.spec import Thresholds
 from bitsift.version import __version__
@@ -16,6 +16,7 @@ __all__ = [
     "AttributeScore",
     "BitsiftError",
     "CheckReport",
+    "Problem",
     "Ranking",
     "SegmentedRanking",
     "Thresholds",

@@ -16,7 +16,7 @@ from bitsift import concurrent, reference
 from bitsift.cuts import fetch_cuts, fetch_mdl_cuts  # noqa: F401 - re-exported for callers
 from bitsift.dialects import Capabilities, capabilities
 from bitsift.engines.base import Engine
-from bitsift.errors import SpecError
+from bitsift.errors import Option, Problem, SpecError
 from bitsift.readout import read_ranking, read_segments
 from bitsift.result import Ranking, SegmentedRanking
 from bitsift.schema import Column, hashable_value
@@ -130,8 +130,9 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
     """Compute a :class:`Ranking` for a resolved, unsegmented spec on an open engine."""
     if spec.by:
-        raise SpecError("a segmented spec (--by) gives one ranking per segment: "
-                        "use run_segmented()")
+        raise SpecError(problems=[Problem("by", (
+            "a segmented spec (", Option("by"), ") gives one ranking per segment: "
+            "use run_segmented()"))])
     records, cuts = fetch_records(engine, spec)
     ranking = read_ranking(records, spec, cuts, dialect=engine.caps.name)
     _label_binning(ranking, spec)
@@ -179,9 +180,11 @@ def statement(
             text = _unshadowed(paste_statement(spec, caps, cuts=cuts), spec, caps)
             return _with_notes(text, session.notes)
     if not table:
-        raise SpecError("--table is required without a SOURCE")
+        raise SpecError.option("table", " is required without a SOURCE")
     if not spec_options.attributes and not spec_options.numeric:
-        raise SpecError("without a SOURCE, name the columns with --attributes and/or --numeric")
+        raise SpecError(problems=[Problem(None, (
+            "without a SOURCE, name the columns with ", Option("attributes"), " and/or ",
+            Option("numeric")))])
     caps = capabilities(dialect or "duckdb")
     columns = _declared_columns(spec_options)
     attribute_names = tuple(dict.fromkeys((spec_options.attributes or ()) + spec_options.numeric))
@@ -216,9 +219,10 @@ def _unshadowed(text: str, spec: RankSpec, caps: Capabilities) -> str:
         return text
     steps = {cte.alias.lower() for cte in tree.find_all(exp.CTE)}
     if table.name.lower() in steps:
-        raise SpecError(f"table {table.name!r} has the name of a step of the ranking statement, "
-                        f"which would be read instead: write it with its schema, e.g. "
-                        f"--table public.{table.name}")
+        raise SpecError(problems=[Problem("table", (
+            f"table {table.name!r} has the name of a step of the ranking statement, which would "
+            "be read instead: write it with its schema, e.g. ", Option("table"),
+            f" public.{table.name}"))])
     return text
 
 
@@ -276,11 +280,12 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
     and the differences are reported for information only.
     """
     if sample_rows < 1:
-        raise SpecError(f"--sample-rows must be at least 1, not {sample_rows}")
+        raise SpecError.option("sample_rows", f" must be at least 1, not {sample_rows}")
     spec_options = make_options(target, **options)
     if spec_options.by or spec_options.weight:
-        raise SpecError("check compares an unsegmented, unweighted ranking with the reference: "
-                        "check one segment with --where instead of by, and leave out weight")
+        raise SpecError(problems=[Problem(None, (
+            "check compares an unsegmented, unweighted ranking with the reference: check one "
+            "segment with ", Option("where"), " instead of by, and leave out weight"))])
     with session_for(source, table) as session:
         mark = session.mark()
         spec = session.prepare(spec_options)

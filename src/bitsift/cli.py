@@ -24,12 +24,13 @@ from bitsift.cli_options import (
 from bitsift.cli_report import profile_command, report_command
 from bitsift.cli_select import SELECT_COMMANDS
 from bitsift.dialects import CAPABILITIES
-from bitsift.errors import BitsiftError, Terminated
+from bitsift.errors import BitsiftError, Terminated, flag_name
 from bitsift.formatting import FORMATS, render
 from bitsift.jobs import JobError
 from bitsift.masking import environment_secrets, mask_text
 from bitsift.names import one_line
 from bitsift.spec import timeout_seconds
+from bitsift.texttable import aligned
 from bitsift.version import __version__
 
 
@@ -99,9 +100,10 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
     scope = "whole table" if report.whole_table else f"sample of {report.sample_rows:,} rows"
     click.echo(f"{one_line(report.ranking.table)}: {len(report.ranking.attributes)} attributes,"
                f" database vs NumPy reference on the {scope}")
-    width = max(len(k) for k in report.differences)
-    for metric, difference in report.differences.items():
-        click.echo(f"  {metric.ljust(width)}  max |difference| = {difference:.3e}")
+    rows = [[metric, f"max |difference| = {difference:.3e}"]
+            for metric, difference in report.differences.items()]
+    for line in aligned(rows, left={0, 1}):
+        click.echo(f"  {line}")
     if report.whole_table:
         verdict = "agree" if report.ok else "DISAGREE"
         click.echo(f"result: database and reference {verdict} (tolerance {report.tolerance:g})")
@@ -112,11 +114,12 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
 
 
 def error_text(error: BitsiftError) -> str:
-    """The message of ``error`` as one line with control characters escaped, so that a column
-    name cannot forge lines or act on the terminal; a job file's problems keep one line each."""
+    """The message of ``error`` as one line, its problems joined with ``"; "`` and options
+    spelled as flags (``--bins``), control characters escaped so that a column name cannot
+    forge lines or act on the terminal; a job file's problems keep one line each."""
     if isinstance(error, JobError):
         return "\n".join(one_line(line) for line in str(error).split("\n"))
-    return one_line(str(error))
+    return one_line(error.render(flag_name))
 
 
 def _interrupted(error: BaseException) -> NoReturn:

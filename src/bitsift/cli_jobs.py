@@ -17,6 +17,7 @@ from bitsift.history import DEFAULT_TABLE, Destination
 from bitsift.jobs import check_run_id, load_job, preflight, run_job
 from bitsift.models import write_models
 from bitsift.names import one_line
+from bitsift.numformat import format_bits
 from bitsift.result import SEGMENT_STATUS, Ranking, SegmentedRanking, segment_label
 
 
@@ -59,7 +60,8 @@ def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
 def _ranked_line(ranked: Ranking) -> str:
     if ranked.status != "ok":
         return f"{ranked.rows:,} rows, {SEGMENT_STATUS[ranked.status]}"
-    top = ", ".join(f"{s.attribute} {s.information_gain:.4f}" for s in ranked.attributes[:3])
+    top = ", ".join(f"{s.attribute} {format_bits(s.information_gain)}"
+                    for s in ranked.attributes[:3])
     return f"{ranked.rows:,} rows, {len(ranked.attributes)} attributes; top IG: {top}"
 
 

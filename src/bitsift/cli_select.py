@@ -5,8 +5,6 @@ Registered on the ``bitsift`` group by :mod:`bitsift.cli`.
 
 from __future__ import annotations
 
-import csv
-import io
 from collections.abc import Sequence
 from typing import Any
 
@@ -15,6 +13,7 @@ import click
 from bitsift import jsonout
 from bitsift.cli_options import library_options, print_notes, print_statements, rank_options
 from bitsift.names import escape_text
+from bitsift.numformat import format_bits, format_selection_score
 from bitsift.redundancy import (
     DEFAULT_BATCH_PAIRS,
     PAIR_KEYS,
@@ -23,6 +22,7 @@ from bitsift.redundancy import (
     redundancy,
 )
 from bitsift.selection import CRITERIA, STEP_KEYS, Selection, select_attributes
+from bitsift.texttable import aligned, csv_text
 
 OUTPUTS: tuple[str, ...] = ("table", "csv", "json")
 
@@ -38,27 +38,8 @@ _format_option = click.option(
 )
 
 
-def _aligned(rows: Sequence[Sequence[str]], left: set[int]) -> list[str]:
-    """Rows as aligned text: the ``left`` columns (names) left-aligned, numbers right-aligned;
-    a rule under the first row."""
-    rows = [[escape_text(c) for c in row] for row in rows]  # names may hold control characters
-    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
-    lines = [
-        "  ".join(c.ljust(w) if i in left else c.rjust(w)
-                  for i, (c, w) in enumerate(zip(row, widths, strict=True))).rstrip()
-        for row in rows
-    ]
-    lines.insert(1, "  ".join("-" * w for w in widths))
-    return lines
-
-
 def _csv(keys: Sequence[str], records: Sequence[dict[str, Any]]) -> str:
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(keys)
-    for record in records:
-        writer.writerow(["" if record[k] is None else record[k] for k in keys])
-    return buffer.getvalue()
+    return csv_text(keys, ([record[k] for k in keys] for record in records))
 
 
 def redundancy_table(result: Redundancy, top: int, by: str) -> str:
@@ -77,10 +58,10 @@ def redundancy_table(result: Redundancy, top: int, by: str) -> str:
     if shown:
         rows = [["first", "second", "I (bits)", "sym unc", "H(first)", "H(second)", "rows"]]
         for p in shown:
-            rows.append([p.first, p.second, f"{p.mutual_information:.4f}",
-                         f"{p.symmetric_uncertainty:.4f}", f"{p.first_entropy:.4f}",
-                         f"{p.second_entropy:.4f}", f"{p.rows:,}"])
-        out += _aligned(rows, left={0, 1})
+            rows.append([p.first, p.second, format_bits(p.mutual_information),
+                         format_bits(p.symmetric_uncertainty), format_bits(p.first_entropy),
+                         format_bits(p.second_entropy), f"{p.rows:,}"])
+        out += aligned(rows, left={0, 1}, rule=True)
     else:
         out.append("(a single attribute: no pairs)")
     out += ["", "I: mutual information between the two attributes; sym unc: 2·I / (H(first) +"
@@ -101,11 +82,12 @@ def selection_table(selection: Selection) -> str:
     rows = [["#", "attribute", "relevance", "redundancy", name.lower(), "most redundant with",
              "I (bits)"]]
     for s in selection.steps:
-        rows.append([str(s.position), s.attribute, f"{s.relevance:.4f}", f"{s.redundancy:.4f}",
-                     f"{s.score:.4g}" if selection.criterion == "miq" else f"{s.score:.4f}",
+        rows.append([str(s.position), s.attribute, format_bits(s.relevance),
+                     format_bits(s.redundancy),
+                     format_selection_score(s.score, selection.criterion),
                      s.most_redundant_with or "-",
-                     f"{s.max_redundancy:.4f}" if s.most_redundant_with else "-"])
-    out += _aligned(rows, left={1, 5})
+                     format_bits(s.max_redundancy) if s.most_redundant_with else "-"])
+    out += aligned(rows, left={1, 5}, rule=True)
     formula = ("relevance − redundancy" if selection.criterion == "mid"
                else "relevance / redundancy")
     out += ["", "relevance: I(attribute; target) = information gain, bits; redundancy: mean I with"

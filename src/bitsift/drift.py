@@ -14,8 +14,10 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 from bitsift import jsonout
-from bitsift.errors import BitsiftError, SpecError
+from bitsift.errors import BitsiftError, Option, Problem, SpecError
 from bitsift.history import Destination, RunInfo, open_store
+from bitsift.numformat import format_bits
+from bitsift.texttable import aligned
 
 #: Exit code of ``bitsift drift`` when something drifted, so schedulers can alert.
 DRIFT_EXIT_CODE = 3
@@ -37,9 +39,9 @@ class DriftThresholds:
 
     def __post_init__(self) -> None:
         if self.ig_change < 0:
-            raise SpecError(f"--ig-change must be at least 0, not {self.ig_change}")
+            raise SpecError.option("ig_change", f" must be at least 0, not {self.ig_change}")
         if self.rank_change < 0:
-            raise SpecError(f"--rank-change must be at least 0, not {self.rank_change}")
+            raise SpecError.option("rank_change", f" must be at least 0, not {self.rank_change}")
 
 
 @dataclass(frozen=True)
@@ -209,7 +211,9 @@ def _pick_runs(runs: Sequence[RunInfo], old: str | None, new: str | None,
             known = ", ".join(r.run_id for r in runs[:5]) or "none"
             raise BitsiftError(f"job {job!r} has no run {wanted!r} (newest runs: {known})")
     if old is not None and new is None:
-        raise SpecError("--old needs --new: name both runs, or only --new, or neither")
+        raise SpecError(problems=[Problem("old", (
+            Option("old"), " needs ", Option("new"), ": name both runs, or only ", Option("new"),
+            ", or neither"))])
     if new is None:
         return (runs[1] if len(runs) > 1 else None), (runs[0] if runs else None)
     newer = by_id[new]
@@ -259,16 +263,20 @@ _LABELS = {
 }
 
 
+def _place_and_gain(when: str, score: Mapping[str, Any]) -> str:
+    return f"{when} #{score['position']}, IG {format_bits(score['information_gain'])}"
+
+
 def _describe(change: Change) -> str:
     if change.kind == "information_gain":
         delta = change.after - change.before
-        return f"{change.before:.4f} -> {change.after:.4f} bits ({delta:+.4f})"
+        return f"{format_bits(change.before)} -> {format_bits(change.after)} bits ({delta:+.4f})"
     if change.kind == "rank":
         return f"#{change.before} -> #{change.after}"
     if change.kind == "appeared":
-        return f"now #{change.after['position']}, IG {change.after['information_gain']:.4f}"
+        return _place_and_gain("now", change.after)
     if change.kind == "disappeared":
-        return f"was #{change.before['position']}, IG {change.before['information_gain']:.4f}"
+        return _place_and_gain("was", change.before)
     if change.kind == "flag_gained":
         return str(change.after)
     if change.kind == "flag_lost":
@@ -292,12 +300,7 @@ def render_text(report: DriftReport) -> str:
             for c in report.changes
         ]
         header = ("ranking", "attribute", "change", "detail")
-        widths = [max(len(r[i]) for r in [header, *rows]) for i in range(3)]
-        lines.append("")
-        for row in [header, *rows]:
-            lines.append("  ".join(v.ljust(w) for v, w in zip(row[:3], widths, strict=True))
-                         + "  " + row[3])
-        lines.append("")
+        lines += ["", *aligned([header, *rows], left=range(len(header))), ""]
     lines += [f"note: {n}" for n in report.notes]
     count = len(report.changes)
     if report.drifted:

@@ -7,9 +7,80 @@ Messages name every offending item and, where it helps, suggest close matches.
 from __future__ import annotations
 
 import difflib
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass, replace
+from typing import Self
 
 from bitsift.names import ambiguity_note
+
+#: How an option is spelled for one reader: the library's parameter name (``binning_for``),
+#: the CLI's flag (``--binning-for``) or the job file's TOML key (the parameter name).
+Spelling = Callable[["Option"], str]
+
+
+@dataclass(frozen=True)
+class Option:
+    """An option named in a problem's message, spelled for whoever reads it (see
+    :data:`Spelling`). ``flag`` is given only where the CLI's flag is not ``--`` and the
+    parameter name with dashes (``k`` is ``--select`` in ``bitsift report``)."""
+
+    name: str
+    flag: str | None = None
+
+
+def parameter_name(option: Option) -> str:
+    """The library's (and the job file's) spelling: ``binning_for``."""
+    return option.name
+
+
+def flag_name(option: Option) -> str:
+    """The CLI's spelling: ``--binning-for``."""
+    return option.flag or "--" + option.name.replace("_", "-")
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One thing wrong with a request: the option (parameter name) or job-file key it is about
+    (``None``: no single one), its message as text and :class:`Option` parts, and for a job
+    file the line that sets it."""
+
+    key: str | None
+    parts: tuple[str | Option, ...]
+    line: int | None = None
+
+    @classmethod
+    def of(cls, text: str, key: str | None = None, line: int | None = None) -> Problem:
+        """A problem whose message names no option (or names it the same for every reader)."""
+        return cls(key, (text,), line)
+
+    @classmethod
+    def option(cls, key: str, text: str, flag: str | None = None) -> Problem:
+        """A problem about option ``key``, its message the option's name then ``text``.
+
+        >>> Problem.option("bins", " must be between 2 and 1000, not 1").message
+        'bins must be between 2 and 1000, not 1'
+        """
+        return cls(key, (Option(key, flag), text))
+
+    def render(self, spell: Spelling = parameter_name) -> str:
+        """The message with every option spelled by ``spell``.
+
+        >>> p = Problem("by", ("the target 'y' cannot also be a segment (", Option("by"), ")"))
+        >>> p.render()
+        "the target 'y' cannot also be a segment (by)"
+        >>> p.render(flag_name)
+        "the target 'y' cannot also be a segment (--by)"
+        """
+        return "".join(p if isinstance(p, str) else spell(p) for p in self.parts)
+
+    @property
+    def message(self) -> str:
+        """The message as the library shows it (parameter names)."""
+        return self.render()
+
+    def at(self, line: int | None) -> Problem:
+        """This problem at ``line`` of a job file."""
+        return replace(self, line=line)
 
 
 def first_line(error: BaseException) -> str:
@@ -26,7 +97,32 @@ def first_line(error: BaseException) -> str:
 
 
 class BitsiftError(Exception):
-    """Base class of every error bitsift reports to its user."""
+    """Base class of every error bitsift reports to its user.
+
+    :attr:`problems` lists what is wrong, each naming the option it is about; ``str()`` is one
+    readable line with the library's parameter names (problems joined with ``"; "``); the CLI
+    renders the same line with its flag names (``render(flag_name)``), the job loader one line
+    per problem at the line setting its key.
+    """
+
+    def __init__(self, message: str | None = None, *, problems: Sequence[Problem] = ()) -> None:
+        # A message alone is one problem about no single option (str(): drivers' messages
+        # are passed on as they come).
+        self.problems: list[Problem] = list(problems) or [Problem.of(str(message or ""))]
+        super().__init__(message if message is not None else self.render())
+
+    @classmethod
+    def option(cls, key: str, text: str, flag: str | None = None) -> Self:
+        """An error with one problem about option ``key`` (see :meth:`Problem.option`)."""
+        return cls(problems=[Problem.option(key, text, flag)])
+
+    def lines(self, spell: Spelling = parameter_name) -> list[str]:
+        """One line per problem, options spelled by ``spell``."""
+        return [p.render(spell) for p in self.problems]
+
+    def render(self, spell: Spelling = parameter_name) -> str:
+        """Every problem on one line, joined with ``"; "``."""
+        return "; ".join(self.lines(spell))
 
 
 class SpecError(BitsiftError):

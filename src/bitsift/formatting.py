@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-import csv
-import io
 from collections.abc import Callable
 
 from bitsift import jsonout
 from bitsift.metrics import FLAG_DESCRIPTIONS
 from bitsift.names import escape_text
+from bitsift.numformat import format_bits, format_cuts, format_metric
 from bitsift.result import (
     ATTRIBUTE_KEYS,
     SEGMENT_STATUS,
@@ -17,6 +16,7 @@ from bitsift.result import (
     SegmentedRanking,
     segment_label,
 )
+from bitsift.texttable import aligned, csv_text
 
 FORMATS: tuple[str, ...] = ("table", "json", "csv", "markdown")
 
@@ -34,18 +34,8 @@ _TABLE_COLUMNS: tuple[tuple[str, str], ...] = (
     ("p_value", "p"),
     ("flags", "flags"),
 )
-
-
-def format_p_value(p: float) -> str:
-    """A p-value as the tables show it: three decimals, small ones in scientific notation, and
-    one below the smallest double (the chi-square tail underflows to 0) as an upper bound.
-
-    >>> format_p_value(0.04321), format_p_value(2.5e-9), format_p_value(0.0)
-    ('0.043', '2.50e-09', '<1e-300')
-    """
-    if p == 0:
-        return "<1e-300"
-    return f"{p:.2e}" if p < 1e-3 else f"{p:.3f}"
+#: Attribute, kind and flags: left-aligned text; the numbers between them right-aligned.
+_TEXT_COLUMNS = frozenset({0, 1, len(_TABLE_COLUMNS) - 1})
 
 
 def _cell(key: str, value: object) -> str:
@@ -55,12 +45,8 @@ def _cell(key: str, value: object) -> str:
         return "-"
     if key == "flags":
         return ",".join(value) if isinstance(value, list) else str(value)
-    if key == "p_value" and isinstance(value, float):
-        return format_p_value(value)
-    if key == "g_statistic" and isinstance(value, float):
-        return f"{value:.1f}"
     if isinstance(value, float):
-        return f"{value:.4f}"
+        return format_metric(key, value, grouped=False)
     return escape_text(str(value))
 
 
@@ -75,12 +61,12 @@ def _summary(ranking: Ranking) -> str:
             f" {ranking.weight!r} (total {ranking.weight_total or 0:,.6g}), {ranking.rows:,} rows"
             f" ({ranking.rows_excluded:,} excluded: NULL target;"
             f" {ranking.rows_without_weight:,} without weight), {ranking.classes} classes,"
-            f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
+            f" H(Y) = {format_bits(ranking.target_entropy)} bits; sorted by {ranking.sort}"
         )
     return (
         f"{escape_text(ranking.table)}: target {ranking.target!r}, {ranking.rows:,} rows"
         f" ({ranking.rows_excluded:,} excluded: NULL target), {ranking.classes} classes,"
-        f" H(Y) = {ranking.target_entropy:.4f} bits; sorted by {ranking.sort}"
+        f" H(Y) = {format_bits(ranking.target_entropy)} bits; sorted by {ranking.sort}"
     )
 
 
@@ -92,19 +78,8 @@ def _legend(ranking: Ranking) -> list[str]:
 def as_table(ranking: Ranking) -> str:
     """An aligned terminal table: text left, numbers right."""
     header = [h for _, h in _TABLE_COLUMNS]
-    rows = _rows(ranking)
-    widths = [max(len(r[i]) for r in [header, *rows]) for i in range(len(header))]
-    left = {0, 1, len(header) - 1}
-
-    def line(cells: list[str]) -> str:
-        parts = [
-            c.ljust(w) if i in left else c.rjust(w)
-            for i, (c, w) in enumerate(zip(cells, widths, strict=True))
-        ]
-        return "  ".join(parts).rstrip()
-
-    out = [_summary(ranking), "", line(header), line(["-" * w for w in widths])]
-    out += [line(r) for r in rows]
+    out = [_summary(ranking), "",
+           *aligned([header, *_rows(ranking)], left=_TEXT_COLUMNS, rule=True)]
     out += _cut_lines(ranking)
     legend = _legend(ranking)
     if legend:
@@ -112,44 +87,24 @@ def as_table(ranking: Ranking) -> str:
     return "\n".join(out) + "\n"
 
 
-def format_cuts(cuts: list[float]) -> str:
-    """Cut points compactly: the fewest significant digits (4 to 12) that keep them apart.
-
-    >>> format_cuts([2.45, 4.75]), format_cuts([1.00001, 1.00002]), format_cuts([])
-    ('2.45 | 4.75', '1.00001 | 1.00002', '(none: one bin)')
-    """
-    if not cuts:
-        return "(none: one bin)"
-    # At least the integer digits: epoch seconds read 1741824000, not 1.742e+09.
-    whole = max(len(str(int(abs(c)))) if abs(c) < 1e15 else 0 for c in cuts)
-    for digits in range(min(max(4, whole), 12), 13):
-        labels = [f"{c:.{digits}g}" for c in cuts]
-        if len(set(labels)) == len(labels):
-            break
-    return " | ".join(labels)
-
-
 def _cut_lines(ranking: Ranking) -> list[str]:
     """One line per numeric attribute: its binning, bin count and cut points."""
     binned = [a for a in ranking.attributes if a.cuts is not None]
     if not binned:
         return []
-    names = {a.attribute: escape_text(a.attribute) for a in binned}
-    width = max(len(n) for n in names.values())
-    lines = ["", "cut points (bin k holds cut[k-1] <= x < cut[k]):"]
-    for a in binned:
-        bins = f"{a.bins} bin" + ("s" if a.bins != 1 else "")
-        lines.append(f"  {names[a.attribute].ljust(width)}  {a.binning or 'quantile'}, {bins}: "
-                     f"{format_cuts(list(a.cuts or []))}")
-    return lines
+    rows = [[a.attribute, f"{a.binning or 'quantile'}, {a.bins} bin{'s' if a.bins != 1 else ''}:"
+             f" {format_cuts(a.cuts or [])}"] for a in binned]
+    return ["", "cut points (bin k holds cut[k-1] <= x < cut[k]):",
+            *("  " + line for line in aligned(rows, left={0, 1}))]
 
 
-def _csv_record(score: AttributeScore) -> dict[str, object]:
-    """An attribute's CSV cells: flags and cut points joined with ``;``."""
+def _csv_row(score: AttributeScore) -> list[object]:
+    """An attribute's CSV cells in :data:`ATTRIBUTE_KEYS` order: flags and cut points joined
+    with ``;``, cut points in full (``repr``: a program reads them back)."""
     record = score.to_dict()
     record["flags"] = ";".join(score.flags)
     record["cuts"] = ";".join(repr(c) for c in score.cuts) if score.cuts is not None else None
-    return record
+    return [record[k] for k in ATTRIBUTE_KEYS]
 
 
 def as_json(ranking: Ranking) -> str:
@@ -159,13 +114,7 @@ def as_json(ranking: Ranking) -> str:
 
 def as_csv(ranking: Ranking) -> str:
     """One row per attribute; flags and cut points joined with ``;``."""
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow(ATTRIBUTE_KEYS)
-    for a in ranking.attributes:
-        record = _csv_record(a)
-        writer.writerow([record[k] for k in ATTRIBUTE_KEYS])
-    return buffer.getvalue()
+    return csv_text(ATTRIBUTE_KEYS, (_csv_row(a) for a in ranking.attributes))
 
 
 def _markdown_escape(text: str) -> str:
@@ -177,8 +126,7 @@ def as_markdown(ranking: Ranking) -> str:
     header = [h for _, h in _TABLE_COLUMNS]
     # "H(Y|X)" holds a pipe: unescaped, it would split the header into one cell too many.
     lines = [_summary(ranking), "", "| " + " | ".join(map(_markdown_escape, header)) + " |"]
-    text_columns = {0, 1, len(header) - 1}  # attribute, kind, flags: left; numbers: right
-    lines.append("|" + "|".join("---" if i in text_columns else "---:"
+    lines.append("|" + "|".join("---" if i in _TEXT_COLUMNS else "---:"
                                 for i in range(len(header))) + "|")
     for row in _rows(ranking):
         lines.append("| " + " | ".join(_markdown_escape(c) for c in row) + " |")
@@ -252,16 +200,9 @@ def segmented_csv(segmented: SegmentedRanking) -> str:
     """One row per segment and attribute: the segment columns (renamed ``segment_<name>``
     where they clash with an attribute key), then the attribute keys."""
     heads = [f"segment_{b}" if b in ATTRIBUTE_KEYS else b for b in segmented.by]
-    buffer = io.StringIO()
-    writer = csv.writer(buffer, lineterminator="\n")
-    writer.writerow([*heads, *ATTRIBUTE_KEYS])
-    for ranking in segmented.segments:
-        values = [(ranking.segment or {}).get(b) for b in segmented.by]
-        for a in ranking.attributes:
-            record = _csv_record(a)
-            writer.writerow([*("" if v is None else v for v in values),
-                             *(record[k] for k in ATTRIBUTE_KEYS)])
-    return buffer.getvalue()
+    rows = [[*((ranking.segment or {}).get(b) for b in segmented.by), *_csv_row(a)]
+            for ranking in segmented.segments for a in ranking.attributes]
+    return csv_text([*heads, *ATTRIBUTE_KEYS], rows)
 
 
 SEGMENTED_FORMATTERS: dict[str, Callable[[SegmentedRanking], str]] = {

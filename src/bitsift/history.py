@@ -35,7 +35,7 @@ from sqlglot import exp
 from bitsift import jsonout
 from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
-from bitsift.errors import BitsiftError, SpecError, first_line
+from bitsift.errors import BitsiftError, Option, Problem, SpecError, first_line, parameter_name
 from bitsift.masking import (
     environment_secrets,
     mask_text,
@@ -176,22 +176,35 @@ class Destination:
 
     def problems(self) -> list[str]:
         """Everything wrong with the destination that can be told without connecting."""
+        return [p.message for p in self.keyed_problems()]
+
+    def keyed_problems(self) -> list[Problem]:
+        """:meth:`problems`, each about its key of a job's [results]: destination or table."""
         found = []
         if self.is_url and raw_at_in_password(self.location):
             # SQLAlchemy would read the rest of the password as the host: refuse it unsent.
-            found.append(f"the password in {self.display} contains '@': write it as %40")
+            found.append(Problem.of(f"the password in {self.display} contains '@': write it "
+                                    "as %40", key="destination"))
         elif self.is_url:
             try:
                 sa.engine.make_url(self.location)
             except Exception:  # noqa: BLE001 - any parse failure
-                found.append(f"not a valid database URL: {self.display}")
+                found.append(Problem.of(f"not a valid database URL: {self.display}",
+                                        key="destination"))
         elif not self.path.parent.is_dir():
-            found.append(f"folder of the results file does not exist: {self.path.parent}")
+            found.append(Problem.of(f"folder of the results file does not exist: "
+                                    f"{self.path.parent}", key="destination"))
         try:
             self.table_name()
         except SpecError as error:
-            found.append(str(error).replace("--table", "results table"))
+            found += [Problem.of(line, key="table") for line in
+                      error.lines(_results_table_spelling)]
         return found
+
+
+def _results_table_spelling(option: Option) -> str:
+    """The table option, in a destination's problems, is the results table."""
+    return "results table" if option.name == "table" else parameter_name(option)
 
 
 @dataclass(frozen=True)
@@ -801,9 +814,9 @@ def _newest_first(runs: Iterable[RunInfo]) -> list[RunInfo]:
 def open_store(destination: Destination, *, write: bool = False) -> HistoryStore:
     """Open the results destination. Reading a DuckDB file that does not exist gives an empty
     history; writing creates it."""
-    problems = destination.problems()
+    problems = destination.keyed_problems()
     if problems:
-        raise HistoryError("; ".join(problems))
+        raise HistoryError(problems=problems)
     if destination.is_url:
         return SqlAlchemyStore(destination)
     return DuckDBStore(destination, write=write)

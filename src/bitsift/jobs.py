@@ -24,7 +24,7 @@ from __future__ import annotations
 import datetime as _dt
 import re
 import tomllib
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -38,6 +38,7 @@ from bitsift.engines.duckdb_engine import file_reader
 from bitsift.errors import (
     BitsiftError,
     PredicateError,
+    Problem,
     SourceError,
     SpecError,
     TableNotFoundError,
@@ -80,26 +81,24 @@ MAX_RUN_ID = 100
 # --- problems ---------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class Problem:
-    """One thing wrong with a job file, at a line (``None``: the file as a whole)."""
-
-    line: int | None
-    message: str
+def _at(line: int | None, message: str) -> Problem:
+    """A problem of the job file at ``line`` (``None``: the file as a whole)."""
+    return Problem.of(message, line=line)
 
 
 class JobError(SpecError):
-    """The job file is invalid; :attr:`problems` lists every problem found."""
+    """The job file is invalid; :attr:`problems` lists every problem found, each at its line,
+    options spelled as the file's keys."""
 
     def __init__(self, path: Path, problems: Sequence[Problem]) -> None:
         self.path = path
-        self.problems = sorted(problems, key=lambda p: (p.line or 0))
-        count = len(self.problems)
+        found = sorted(problems, key=lambda p: (p.line or 0))
+        count = len(found)
         # One line per problem, whatever a name in it holds (see names.one_line).
         lines = [one_line(f"{path}:{p.line}: {p.message}" if p.line else f"{path}: {p.message}")
-                 for p in self.problems]
+                 for p in found]
         super().__init__(f"{count} problem{'s' if count > 1 else ''} in job file {path}:\n  "
-                         + "\n  ".join(lines))
+                         + "\n  ".join(lines), problems=found)
 
 
 class RunError(BitsiftError):
@@ -215,7 +214,7 @@ def _toml_problem(error: tomllib.TOMLDecodeError) -> Problem:
     text = str(error)
     match = re.search(r"\(at line (\d+), column \d+\)", text)
     message = re.sub(r"\s*\(at (line \d+, column \d+|end of document)\)", "", text)
-    return Problem(int(match.group(1)) if match else None, f"not valid TOML: {message}")
+    return _at(int(match.group(1)) if match else None, f"not valid TOML: {message}")
 
 
 # --- the job ----------------------------------------------------------------------------------
@@ -275,7 +274,7 @@ class _Reader:
         self.names: list[tuple[str, int | None]] = []
 
     def problem(self, line: int | None, message: str) -> None:
-        self.problems.append(Problem(line, message))
+        self.problems.append(_at(line, message))
 
     def unknown_keys(self, table: Mapping[str, Any], allowed: Sequence[str], section: str,
                      index: int, where: str) -> None:
@@ -351,9 +350,8 @@ class _Reader:
         if text is None:
             return None
         destination = Destination(self.location(text), table)
-        for message in destination.problems():
-            key = "table" if "table" in message else "destination"
-            self.problem(self.lines.of("results", 0, key), message)
+        for problem in destination.keyed_problems():
+            self.problem(self.lines.of("results", 0, problem.key or ""), problem.message)
         return destination
 
     def rankings(self, source: str | None) -> list[JobRanking]:
@@ -417,12 +415,8 @@ class _Reader:
             # The library's own checks of option values, so the job file and the CLI agree.
             api.make_options(target or "", **options)
         except SpecError as error:
-            for part in str(error).split("; "):
-                option = re.search(r"--([a-z-]+)", part)
-                key = option.group(1).replace("-", "_") if option else ""
-                if key in key_lines:
-                    part = part.replace(option.group(0), key, 1)  # type: ignore[union-attr]
-                self.problem(key_lines.get(key) or header, where + part)
+            self.problems += _keyed(error.problems, where,
+                                    lambda key: key_lines.get(key) or header)
         name = typed.get("name") or (f"{table}.{target}" if table else str(target))
         self.names.append((name, key_lines.get("name") or header))
         if len(self.problems) > before or target is None:
@@ -445,6 +439,15 @@ class _Reader:
                 parse_table_name(table, "")
             except SpecError:
                 self.problem(line, where + f"table must be [schema.]table, not {table!r}")
+
+
+def _keyed(problems: Sequence[Problem], where: str,
+           line_of: Callable[[str], int | None]) -> list[Problem]:
+    """The library's problems in a job file: each at the line setting the key it is about
+    (the file's keys are the library's parameter names, and so is its spelling of them),
+    prefixed with ``where`` (the ranking)."""
+    return [Problem.of(where + p.message, key=p.key, line=line_of(p.key or ""))
+            for p in problems]
 
 
 def _type_problem(key: str, value: Any) -> str | None:
@@ -474,10 +477,10 @@ def load_job(path: str | Path) -> Job:
     try:
         text = path.read_text(encoding="utf-8")
     except OSError as error:
-        raise JobError(path, [Problem(None, f"cannot read the job file: {error.strerror}")]
+        raise JobError(path, [_at(None, f"cannot read the job file: {error.strerror}")]
                        ) from None
     except UnicodeDecodeError:
-        raise JobError(path, [Problem(None, "the job file is not UTF-8 text")]) from None
+        raise JobError(path, [_at(None, "the job file is not UTF-8 text")]) from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
@@ -508,10 +511,10 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
         try:
             session = Session.open(job.source, ranking.table)
         except SourceError as error:
-            problems.append(Problem(source_line, str(error)))
+            problems.append(_at(source_line, str(error)))
             break
         except BitsiftError as error:
-            problems.append(Problem(ranking.line_of("table"), where + str(error)))
+            problems.append(_at(ranking.line_of("table"), where + str(error)))
             continue
         if sessions is not None:
             sessions[number] = session
@@ -524,9 +527,9 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
         try:
             with open_store(job.destination) as store:
                 store.check()
-                problems += [Problem(results_line, p) for p in store.width_problems(written)]
+                problems += [_at(results_line, p) for p in store.width_problems(written)]
         except HistoryError as error:
-            problems.append(Problem(results_line, str(error)))
+            problems.append(_at(results_line, str(error)))
     if problems:
         raise JobError(job.path, problems)
 
@@ -553,9 +556,9 @@ def _check_on_session(job: Job, ranking: JobRanking, session: Session,
     try:
         session.columns  # noqa: B018 - read here to tell a missing table from other failures
     except TableNotFoundError as error:
-        return [Problem(ranking.line_of("table"), where + str(error))]
+        return [_at(ranking.line_of("table"), where + str(error))]
     except BitsiftError as error:
-        return [Problem(job.lines.of("", 0, "source"), where + str(error))]
+        return [_at(job.lines.of("", 0, "source"), where + str(error))]
     found, spec = _ranking_problems(ranking, session)
     if spec is not None:
         written["ranking"].add(ranking.name)
@@ -582,18 +585,18 @@ def _ranking_problems(ranking: JobRanking, session: Session,
         unknown = [n for n in wanted if resolve_name(n, names) is None]
         if unknown:
             message = unknown_names_message("column", unknown, names)
-            problems.append(Problem(ranking.line_of(key), f"{where}{key}: {message} in {display}"))
+            problems.append(_at(ranking.line_of(key), f"{where}{key}: {message} in {display}"))
     if options.where:
         try:
             parse_predicate(options.where, {c.name: c for c in columns}, session.dialect)
         except PredicateError as error:
-            problems.append(Problem(ranking.line_of("where"), where + str(error)))
+            problems.append(_at(ranking.line_of("where"), where + str(error)))
     spec = None
     if not problems:
         try:
             spec = session.resolve(options)
         except BitsiftError as error:
-            problems.append(Problem(ranking.line, where + str(error)))
+            problems += _keyed(error.problems, where, ranking.line_of)
     return problems, spec
 
 
@@ -620,7 +623,8 @@ def default_run_id(run_at: _dt.datetime) -> str:
 def check_run_id(run_id: str) -> str:
     """``run_id`` if it is usable (1 to 100 printable characters), else :class:`SpecError`."""
     if not run_id.strip() or len(run_id) > MAX_RUN_ID or not run_id.isprintable():
-        raise SpecError(f"--run-id must be 1 to {MAX_RUN_ID} printable characters, not {run_id!r}")
+        raise SpecError.option(
+            "run_id", f" must be 1 to {MAX_RUN_ID} printable characters, not {run_id!r}")
     return run_id
 
 

@@ -84,47 +84,52 @@ def parse_predicate(text: str, columns: Mapping[str, Column], dialect: str) -> P
     try:
         tokens = Dialect.get_or_raise(dialect).tokenize(text)
     except sqlglot.errors.SqlglotError as error:
-        raise PredicateError(f"--where does not parse: {first_line(error)}") from None
+        raise PredicateError.option("where", f" does not parse: {first_line(error)}") from None
     _check_tokens(tokens)
     try:
         statements = sqlglot.parse(text, read=dialect)
     except sqlglot.errors.SqlglotError as error:
-        raise PredicateError(f"--where does not parse: {first_line(error)}") from None
+        raise PredicateError.option("where", f" does not parse: {first_line(error)}") from None
     except RecursionError:
-        raise PredicateError(_too_deep()) from None
+        raise _too_deep() from None
     statements = [s for s in statements if s is not None]
     # Even a trailing ';' is refused: a separator has no place in one condition.
     if len(statements) != 1 or any(t.token_type == TokenType.SEMICOLON for t in tokens):
-        raise PredicateError("--where must be one expression (no ';' and no second statement)")
+        raise PredicateError.option(
+            "where", " must be one expression (no ';' and no second statement)")
     # parse() is typed with sqlglot's Expr base; every node it builds is an exp.Expression.
     tree = cast(exp.Expression, statements[0])
     for node in tree.walk():
         if isinstance(node, _FORBIDDEN):
             what = (f"function {node.name}()" if isinstance(node, exp.Anonymous)
                     else _DESCRIPTIONS.get(node.key, node.key))
-            raise PredicateError(f"--where may not contain {what}: only conditions on columns")
+            raise PredicateError.option(
+                "where", f" may not contain {what}: only conditions on columns")
     if _nesting(tree) > MAX_NESTING:
-        raise PredicateError(_too_deep())
+        raise _too_deep()
     if not isinstance(_root(tree), _BOOLEAN_ROOTS):
-        raise PredicateError("--where must be a condition (true or false per row), e.g. x > 3")
+        raise PredicateError.option(
+            "where", " must be a condition (true or false per row), e.g. x > 3")
     catalog = list(columns)
     unknown: list[str] = []
     for column in list(tree.find_all(exp.Column)):
         if column.table:
-            raise PredicateError(f"--where must use bare column names, not {column.sql(dialect)}")
+            raise PredicateError.option(
+                "where", f" must use bare column names, not {column.sql(dialect)}")
         name = resolve_name(column.name, catalog)
         if name is None:
             unknown.append(column.name)
             continue
         column.replace(exp.column(exp.to_identifier(name, quoted=True)))
     if unknown:
-        raise PredicateError("--where uses " + unknown_names_message("column", unknown, columns))
+        raise PredicateError.option("where",
+                                    " uses " + unknown_names_message("column", unknown, columns))
     try:
         # The statement is generated this strictly later: refuse here, with the reason.
         tree.sql(dialect, unsupported_level=sqlglot.ErrorLevel.RAISE)
     except sqlglot.errors.UnsupportedError as error:
-        raise PredicateError(f"--where uses what {dialect} cannot run: {first_line(error)}"
-                             ) from None
+        raise PredicateError.option(
+            "where", f" uses what {dialect} cannot run: {first_line(error)}") from None
     return Predicate(text=text, expression=tree)
 
 
@@ -134,12 +139,13 @@ def _check_tokens(tokens: list[Token]) -> None:
     depth = 0
     for token in tokens:
         if token.token_type in _FORBIDDEN_TOKENS:
-            raise PredicateError(f"--where may not contain {_FORBIDDEN_TOKENS[token.token_type]}:"
-                                 " only conditions on columns")
+            raise PredicateError.option(
+                "where", f" may not contain {_FORBIDDEN_TOKENS[token.token_type]}:"
+                " only conditions on columns")
         if token.token_type == TokenType.L_PAREN:
             depth += 1
             if depth > MAX_NESTING:
-                raise PredicateError(_too_deep())
+                raise _too_deep()
         elif token.token_type == TokenType.R_PAREN:
             depth -= 1
 
@@ -157,6 +163,7 @@ def _nesting(tree: exp.Expression) -> int:
     return deepest
 
 
-def _too_deep() -> str:
-    return (f"--where nests more than {MAX_NESTING} levels (parentheses, NOT, function calls):"
-            " write it flatter, e.g. with IN (...) or AND/OR chains")
+def _too_deep() -> PredicateError:
+    return PredicateError.option(
+        "where", f" nests more than {MAX_NESTING} levels (parentheses, NOT, function calls):"
+        " write it flatter, e.g. with IN (...) or AND/OR chains")

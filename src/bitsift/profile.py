@@ -18,9 +18,10 @@ from typing import Any, Literal
 
 from bitsift.api import make_options, run_ranking, run_segmented
 from bitsift.engines.base import Engine
-from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
 from bitsift.metrics import snap_total
 from bitsift.names import resolve_name
+from bitsift.numformat import cut_labels
 from bitsift.result import SEGMENT_STATUS, AttributeScore, Ranking, segment_label
 from bitsift.schema import Column, hashable_value
 from bitsift.session import session_for
@@ -195,24 +196,6 @@ def class_label(value: Any) -> str:
     return str(value)
 
 
-def format_cut(value: float, digits: int = 6) -> str:
-    """A cut point with ``digits`` significant digits.
-
-    >>> format_cut(12.3456789)
-    '12.3457'
-    """
-    return f"{value:.{digits}g}"
-
-
-def _cut_digits(cuts: Sequence[float]) -> int:
-    """Enough significant digits that neighbouring cut points read differently."""
-    for digits in (6, 9, 12, 17):
-        labels = [format_cut(c, digits) for c in cuts]
-        if len(set(labels)) == len(labels):
-            return digits
-    return 17
-
-
 def bin_label(index: int, cuts: Sequence[float]) -> tuple[str, float | None, float | None]:
     """Label and bounds of bin ``index``: bin j holds cuts[j-1] <= value < cuts[j].
 
@@ -225,13 +208,12 @@ def bin_label(index: int, cuts: Sequence[float]) -> tuple[str, float | None, flo
     """
     if not cuts:
         return "all values", None, None
-    digits = _cut_digits(cuts)
+    labels = cut_labels([float(c) for c in cuts])
     if index <= 0:
-        return f"< {format_cut(cuts[0], digits)}", None, float(cuts[0])
+        return f"< {labels[0]}", None, float(cuts[0])
     if index >= len(cuts):
-        return f">= {format_cut(cuts[-1], digits)}", float(cuts[-1]), None
-    low, high = float(cuts[index - 1]), float(cuts[index])
-    return f"[{format_cut(low, digits)}, {format_cut(high, digits)})", low, high
+        return f">= {labels[-1]}", float(cuts[-1]), None
+    return f"[{labels[index - 1]}, {labels[index]})", float(cuts[index - 1]), float(cuts[index])
 
 
 def _value_sort_key(kind: str, raw: Any, rows: int, rank: int) -> tuple[Any, ...]:
@@ -341,7 +323,8 @@ def resolve_sensitive(names: Iterable[str], columns: Sequence[Column]) -> tuple[
         else:
             found.append(spelled)
     if unknown:
-        raise ColumnError(unknown_names_message("column", unknown, catalog) + " (--sensitive)")
+        raise ColumnError(problems=[Problem("sensitive", (
+            unknown_names_message("column", unknown, catalog) + " (", Option("sensitive"), ")"))])
     return tuple(dict.fromkeys(found))
 
 
@@ -379,7 +362,7 @@ def rank_and_profile(
     [('0', 20, (10, 10)), ('1', 20, (10, 10)), ('2', 20, (10, 10))]
     """
     if top is not None and top < 1:
-        raise SpecError(f"--top must be at least 1, not {top}")
+        raise SpecError.option("top", f" must be at least 1, not {top}")
     _no_weight(options)
     say = progress or (lambda _message: None)
     spec_options = make_options(target, **options)
@@ -453,8 +436,9 @@ def profile(
 
 def _no_weight(options: Mapping[str, Any]) -> None:
     if options.get("weight"):
-        raise SpecError("the drill-down counts rows: --weight is not supported by report "
-                        "and profile (use `bitsift rank --weight`)")
+        raise SpecError(problems=[Problem("weight", (
+            "the drill-down counts rows: ", Option("weight"), " is not supported by report "
+            "and profile (use `bitsift rank --weight`)"))])
 
 
 def rank_and_profile_segments(
@@ -481,7 +465,7 @@ def rank_and_profile_segments(
     [('s = 0', 20), ('s = 1', 20)]
     """
     if top is not None and top < 1:
-        raise SpecError(f"--top must be at least 1, not {top}")
+        raise SpecError.option("top", f" must be at least 1, not {top}")
     _no_weight(options)
     say = progress or (lambda _message: None)
     spec_options = make_options(target, by=by, **options)

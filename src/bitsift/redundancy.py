@@ -86,7 +86,7 @@ def batches(pairs: Sequence[tuple[str, str]], size: int) -> Iterator[list[tuple[
     [8, 8, 5]
     """
     if size < 1:
-        raise SpecError(f"--batch-pairs must be at least 1, not {size}")
+        raise SpecError.option("batch_pairs", f" must be at least 1, not {size}")
     for start in range(0, len(pairs), size):
         yield list(pairs[start:start + size])
 

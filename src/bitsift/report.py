@@ -14,13 +14,20 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
-from bitsift.formatting import format_p_value
 from bitsift.metrics import FLAG_DESCRIPTIONS
 from bitsift.names import escape_text
+from bitsift.numformat import (
+    cut_labels,
+    format_bits,
+    format_cuts,
+    format_metric,
+    format_share,
+)
 from bitsift.profile import AttributeProfile, ProfiledRun, ValueProfile
 from bitsift.report_redundancy import redundancy_context
 from bitsift.result import AttributeScore
 from bitsift.templates import render
+from bitsift.texttable import aligned
 from bitsift.version import __version__
 
 #: Class colours: the Okabe-Ito palette (Okabe & Ito, "Color Universal Design", 2008) without
@@ -114,44 +121,6 @@ _CHART_TOP = 30
 _NAME_CHARS = 30
 
 
-def format_metric(key: str, value: Any) -> str:
-    """A metric as the report shows it: 4 decimals, G with 1, small p-values in e-notation.
-
-    >>> format_metric("information_gain", 0.123456), format_metric("p_value", 2.5e-9)
-    ('0.1235', '2.50e-09')
-    >>> format_metric("p_value", 0.0)  # below the smallest double
-    '<1e-300'
-    >>> format_metric("distinct", 19816)
-    '19,816'
-    """
-    if isinstance(value, bool) or value is None:
-        return str(value)
-    if isinstance(value, int):
-        return f"{value:,}"
-    if not isinstance(value, float):
-        return str(value)
-    if key == "p_value":
-        return format_p_value(value)
-    if key == "g_statistic":
-        return f"{value:,.1f}"
-    return f"{value:.4f}"
-
-
-def format_share(share: float) -> str:
-    """A share of rows in percent.
-
-    >>> format_share(0.0861), format_share(0.0004), format_share(0.0)
-    ('8.6 %', '< 0.1 %', '0 %')
-    """
-    if share <= 0:
-        return "0 %"
-    if share >= 1:
-        return "100 %"
-    if share < 0.001:
-        return "< 0.1 %"
-    return f"{share * 100:.1f} %"
-
-
 def class_colour(index: int) -> str:
     return CLASS_COLOURS[index] if index < len(CLASS_COLOURS) else OTHER_CLASS_COLOUR
 
@@ -243,7 +212,7 @@ def _chart(run: ProfiledRun, anchors: dict[str, str]) -> dict[str, Any]:
         "bottom": height - 10,
         "ticks": [{"x": x_of(t), "text": f"{t:g}"} for t in ticks],
         "bound": (
-            {"x": x_of(bound), "text": f"H(Y) = {bound:.4f}"}
+            {"x": x_of(bound), "text": f"H(Y) = {format_bits(bound)}"}
             if metric == "information_gain" and 0 < bound <= scale_top
             else None
         ),
@@ -273,9 +242,9 @@ def _value_row(value: ValueProfile, classes: Sequence[str]) -> dict[str, Any]:
         "share": format_share(value.share),
         "share_value": repr(value.share),
         "segments": _segments(value.counts, classes),
-        "entropy": f"{value.entropy:.4f}",
+        "entropy": format_bits(value.entropy),
         "entropy_value": repr(value.entropy),
-        "contribution": f"{value.contribution:.4f}",
+        "contribution": format_bits(value.contribution),
         "contribution_value": repr(value.contribution),
         "merged": value.merged_values,
     }
@@ -285,7 +254,7 @@ def _drilldown(scored: AttributeScore, profile: AttributeProfile, anchor: str,
                sensitive: bool) -> dict[str, Any]:
     cuts = None
     if profile.cuts is not None:
-        cuts = [f"{c:.6g}" for c in profile.cuts] or ["(none: a single bin)"]
+        cuts = cut_labels(profile.cuts) or ["(none: a single bin)"]
     return {
         "attribute": scored.attribute,
         "anchor": anchor,
@@ -305,10 +274,10 @@ def _drilldown(scored: AttributeScore, profile: AttributeProfile, anchor: str,
         "total": {
             "rows": f"{profile.rows:,}",
             "segments": _segments(profile.class_counts, profile.classes),
-            "target_entropy": f"{profile.target_entropy:.4f}",
-            "conditional_entropy": f"{profile.conditional_entropy:.4f}",
+            "target_entropy": format_bits(profile.target_entropy),
+            "conditional_entropy": format_bits(profile.conditional_entropy),
             "conditional_entropy_value": repr(profile.conditional_entropy),
-            "information_gain": f"{profile.information_gain:.4f}",
+            "information_gain": format_bits(profile.information_gain),
         },
     }
 
@@ -334,7 +303,7 @@ def _parameters(run: ProfiledRun) -> list[tuple[str, str]]:
         ("rows used", f"{ranking.rows:,}"),
         ("rows left out (NULL target)", f"{ranking.rows_excluded:,}"),
         ("classes", f"{ranking.classes:,}"),
-        ("H(Y)", f"{ranking.target_entropy:.4f} bits"),
+        ("H(Y)", f"{format_bits(ranking.target_entropy)} bits"),
         ("attributes ranked", f"{p.get('attributes', len(ranking.attributes)):,}"),
         ("sorted by", METRIC_LABELS.get(ranking.sort, ranking.sort)),
         ("missing values", {"category": "their own value", "drop": "dropped per attribute"}.get(
@@ -433,16 +402,6 @@ def _clip(text: str, limit: int) -> str:
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
-def _aligned(rows: Sequence[Sequence[str]], left: int = 1) -> list[str]:
-    rows = [[escape_text(c) for c in row] for row in rows]  # values may hold control characters
-    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
-    return [
-        "  ".join(c.ljust(w) if i < left else c.rjust(w)
-                  for i, (c, w) in enumerate(zip(row, widths, strict=True))).rstrip()
-        for row in rows
-    ]
-
-
 def _class_shares(counts: Sequence[int], shown: int) -> list[str]:
     total = sum(counts)
     cells = [format_share(n / total) if total else "" for n in counts[:shown]]
@@ -475,25 +434,28 @@ def profile_text(run: ProfiledRun) -> str:
             f"{scored.attribute} ({scored.kind}, {profile.distinct:,}"
             f" value{'' if profile.distinct == 1 else 's'})"
             + (f"  [{', '.join(marks)}]" if marks else ""),
-            f"information gain {scored.information_gain:.4f} bits"
-            f" = H(Y) {profile.target_entropy:.4f} - H(Y|X) {profile.conditional_entropy:.4f};"
-            f" gain ratio {scored.gain_ratio:.4f}; p {format_metric('p_value', scored.p_value)}",
+            f"information gain {format_bits(scored.information_gain)} bits"
+            f" = H(Y) {format_bits(profile.target_entropy)}"
+            f" - H(Y|X) {format_bits(profile.conditional_entropy)};"
+            f" gain ratio {format_bits(scored.gain_ratio)};"
+            f" p {format_metric('p_value', scored.p_value)}",
         ]
         if profile.cuts is not None:
-            cuts = ", ".join(f"{c:.6g}" for c in profile.cuts) or "none (a single bin)"
+            cuts = format_cuts(profile.cuts, min_digits=6, separator=", ",
+                               none="none (a single bin)")
             out.append(f"cut points: {cuts}")
         table = [["value", "rows", "share", *class_heads, "H(Y|X=x)", "contribution"]]
         for value in profile.values:
             table.append([
                 _clip(value.label, _LABEL_CHARS), f"{value.rows:,}", format_share(value.share),
                 *_class_shares(value.counts, shown),
-                f"{value.entropy:.4f}", f"{value.contribution:.4f}",
+                format_bits(value.entropy), format_bits(value.contribution),
             ])
         table.append([
             "all rows", f"{profile.rows:,}", "100 %", *_class_shares(profile.class_counts, shown),
-            f"{profile.target_entropy:.4f}", f"{profile.conditional_entropy:.4f}",
+            format_bits(profile.target_entropy), format_bits(profile.conditional_entropy),
         ])
-        lines = _aligned(table)
+        lines = aligned(table)
         width = max(len(line) for line in lines)
         out += [lines[0], "-" * width, *lines[1:-1], "-" * width, lines[-1]]
     out += ["", "Class columns: share of the value's rows. H(Y|X=x): the value's own entropy;"

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from bitsift.numformat import format_bits, format_selection_score
 from bitsift.profile import ProfiledRun
 from bitsift.redundancy import RedundancyMatrix
 
@@ -106,8 +107,8 @@ def _heatmap(order: list[str], matrix: RedundancyMatrix, chosen: int,
                 "text": _cell_text(su) if cell >= _CELL_TEXT_MIN else "",
                 "first": order[i], "second": order[j],
                 "su": repr(su), "mi": repr(mi),
-                "title": f"{order[i]} × {order[j]}: I = {mi:.4f} bits, SU = {su:.4f},"
-                         f" {pair.rows:,} rows",
+                "title": f"{order[i]} × {order[j]}: I = {format_bits(mi)} bits,"
+                         f" SU = {format_bits(su)}, {pair.rows:,} rows",
                 "chosen": i < chosen and j < chosen,
             })
     for j in range(n - 1):
@@ -164,14 +165,14 @@ def redundancy_context(run: ProfiledRun, prefix: str) -> dict[str, Any] | None:
             "position": step.position,
             "attribute": step.attribute,
             "sensitive": step.attribute in run.sensitive,
-            "relevance": f"{step.relevance:.4f}",
+            "relevance": format_bits(step.relevance),
             "relevance_value": repr(step.relevance),
-            "redundancy": f"{step.redundancy:.4f}" if step.position > 1 else "–",
+            "redundancy": format_bits(step.redundancy) if step.position > 1 else "–",
             "redundancy_value": repr(step.redundancy),
-            "score": f"{step.score:.4g}" if selection.criterion == "miq" else f"{step.score:.4f}",
+            "score": format_selection_score(step.score, selection.criterion),
             "score_value": repr(step.score),
             "closest": step.most_redundant_with,
-            "closest_mi": f"{step.max_redundancy:.4f}",
+            "closest_mi": format_bits(step.max_redundancy),
             "relevance_bar": bar(step.relevance),
             "redundancy_bar": bar(step.redundancy),
         })

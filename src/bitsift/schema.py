@@ -9,7 +9,7 @@ from typing import Any, Literal
 import sqlglot
 from sqlglot import exp
 
-from bitsift.errors import ColumnError
+from bitsift.errors import ColumnError, Option, Problem
 
 #: Coarse type families; the only thing bitsift needs to know about a column's type.
 Family = Literal["integer", "float", "decimal", "text", "boolean", "date", "timestamp", "other"]
@@ -54,14 +54,21 @@ class Column:
 def refuse_ungroupable(by_name: Mapping[str, Column],
                        roles: Mapping[str, Sequence[str]]) -> None:
     """Raise :class:`ColumnError` naming every column the user named in a role (target,
-    --attributes, --by, --weight) whose type the database cannot group, with its type."""
-    named = [f"{name!r} ({by_name[name].type_name or 'unknown type'}, as {role})"
-             for role, names in roles.items() for name in dict.fromkeys(names)
-             if not by_name[name].groupable]
-    if named:
-        raise ColumnError("the database cannot group the values of column"
-                          + ("s " if len(named) > 1 else " ") + ", ".join(named)
-                          + ": they cannot be ranked nor used as target, segment or weight")
+    attributes, by, weight: parameter names) whose type the database cannot group, with its
+    type."""
+    ungroupable = [(name, role) for role, names in roles.items()
+                   for name in dict.fromkeys(names) if not by_name[name].groupable]
+    if not ungroupable:
+        return
+    parts: list[str | Option] = ["the database cannot group the values of column"
+                                 + ("s " if len(ungroupable) > 1 else " ")]
+    for index, (name, role) in enumerate(ungroupable):
+        # "as target": the target is a role in every spelling, not only an option.
+        parts += [", " if index else "",
+                  f"{name!r} ({by_name[name].type_name or 'unknown type'}, as ",
+                  "target" if role == "target" else Option(role), ")"]
+    parts.append(": they cannot be ranked nor used as target, segment or weight")
+    raise ColumnError(problems=[Problem(None, tuple(parts))])
 
 
 class FrozenValue(tuple):  # type: ignore[type-arg]

@@ -104,7 +104,12 @@ def criterion_score(relevance: float, redundancy: float, criterion: str, first: 
         return relevance - redundancy
     if criterion == "miq":
         return relevance / max(redundancy, MIQ_FLOOR)
-    raise SpecError(f"--criterion must be one of {', '.join(CRITERIA)}, not {criterion!r}")
+    raise _criterion_error(criterion)
+
+
+def _criterion_error(criterion: str) -> SpecError:
+    return SpecError.option("criterion",
+                            f" must be one of {', '.join(CRITERIA)}, not {criterion!r}")
 
 
 def greedy_mrmr(
@@ -129,9 +134,9 @@ def greedy_mrmr(
     ['city', 'age']
     """
     if criterion not in CRITERIA:
-        raise SpecError(f"--criterion must be one of {', '.join(CRITERIA)}, not {criterion!r}")
+        raise _criterion_error(criterion)
     if k < 1:
-        raise SpecError(f"--k must be at least 1, not {k}")
+        raise SpecError.option("k", f" must be at least 1, not {k}")
     candidates = list(order if order is not None else relevance)
     missing = [c for c in candidates if c not in relevance]
     if missing:
@@ -276,9 +281,9 @@ def select_attributes(source: Any, target: str, table: str | None = None, *, k: 
     [('a', 3.0, 0.0), ('b', 1.0, 0.0)]
     """
     if criterion not in CRITERIA:
-        raise SpecError(f"--criterion must be one of {', '.join(CRITERIA)}, not {criterion!r}")
+        raise _criterion_error(criterion)
     if k < 1:
-        raise SpecError(f"--k must be at least 1, not {k}")
+        raise SpecError.option("k", f" must be at least 1, not {k}")
     with session_for(source, table) as session:
         mark = session.mark()
         spec, ranking = rank_on_session(session, target, options)
@@ -315,9 +320,9 @@ def select_for_runs(
     appended to each run's ``ranking.statements``.
     """
     if criterion not in CRITERIA:
-        raise SpecError(f"--criterion must be one of {', '.join(CRITERIA)}, not {criterion!r}")
+        raise _criterion_error(criterion)
     if k < 1:
-        raise SpecError(f"--select must be at least 1, not {k}")
+        raise SpecError.option("k", f" must be at least 1, not {k}", flag="--select")
     if not runs:
         return
     say = progress or (lambda _message: None)

@@ -59,10 +59,10 @@ def parse_table_name(name: str, dialect: str) -> exp.Table:
     except sqlglot.errors.SqlglotError:
         table = None
     if not isinstance(table, exp.Table) or not table.name:
-        raise SpecError(f"--table must be [schema.]table, not {name!r}")
+        raise SpecError.option("table", f" must be [schema.]table, not {name!r}")
     parts = [p for p in (table.args.get("catalog"), table.args.get("db"), table.this) if p]
     if not all(isinstance(p, exp.Identifier) for p in parts):
-        raise SpecError(f"--table must be [schema.]table, not {name!r}")
+        raise SpecError.option("table", f" must be [schema.]table, not {name!r}")
     return exp.Table(
         this=exp.to_identifier(table.name, quoted=True),
         db=exp.to_identifier(table.db, quoted=True) if table.db else None,
@@ -121,7 +121,7 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         return _with_table(engine, table, mask_url(text))
     if file_reader(text) is not None:
         if table:
-            raise SpecError(f"--table is not used with a data file ({Path(text).name})")
+            raise SpecError.option("table", f" is not used with a data file ({Path(text).name})")
         engine = DuckDBEngine.open_file(text)
         try:
             refuse_renamed_columns(engine, text)
@@ -157,7 +157,7 @@ def _open_with_engine(source: EngineSource, table: str | None) -> OpenSource:
 def _with_table(engine: Engine, table: str | None, where: str) -> OpenSource:
     if not table:
         engine.close()
-        raise SpecError(f"--table is required to read from {where}")
+        raise SpecError.option("table", f" is required to read from {where}")
     try:
         expression = parse_table_name(table, engine.caps.sqlglot_dialect)
     except SpecError:

@@ -9,7 +9,7 @@ from typing import Literal
 
 from sqlglot import exp
 
-from bitsift.errors import ColumnError, SpecError, unknown_names_message
+from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
 from bitsift.names import resolve_name
 from bitsift.predicate import Predicate, parse_predicate
 from bitsift.schema import NUMERIC_FAMILIES, Column, Kind, refuse_ungroupable
@@ -50,7 +50,8 @@ def split_outside_quotes(text: str, separator: str = ",") -> list[str]:
 
 def _name_and_setting(item: str, what: str) -> tuple[str, str, bool]:
     """``COLUMN=VALUE`` -> (column, value, had '='). A column holding ``=`` (or ``,``) is written
-    in double quotes, a quote in it doubled: ``"p=q"=mdl``."""
+    in double quotes, a quote in it doubled: ``"p=q"=mdl``. ``what``: the option's parameter
+    name, for the error."""
     text = item.strip()
     if not text.startswith('"'):
         name, sep, setting = text.partition("=")
@@ -60,7 +61,7 @@ def _name_and_setting(item: str, what: str) -> tuple[str, str, bool]:
     while True:
         end = text.find('"', position)
         if end < 0:
-            raise SpecError(f"{what}: a closing double quote is missing in {item!r}")
+            raise SpecError.option(what, f": a closing double quote is missing in {item!r}")
         pieces.append(text[position:end])
         if text[end + 1:end + 2] != '"':
             break
@@ -68,7 +69,7 @@ def _name_and_setting(item: str, what: str) -> tuple[str, str, bool]:
         position = end + 2
     rest = text[end + 1:].strip()
     if rest and not rest.startswith("="):
-        raise SpecError(f"{what} takes COLUMN=VALUE or \"COLUMN\"=VALUE, not {item!r}")
+        raise SpecError.option(what, f" takes COLUMN=VALUE or \"COLUMN\"=VALUE, not {item!r}")
     return "".join(pieces), rest[1:].strip(), bool(rest)
 
 
@@ -87,14 +88,14 @@ def _pairs(value: object, what: str) -> list[tuple[str, str]]:
     for item in items:
         if isinstance(item, str):
             name, setting, had_sep = _name_and_setting(item, what)
-            if not had_sep and what == "--date-part":
+            if not had_sep and what == "date_part":
                 name, setting = "", name  # a bare part applies to every date column
             elif not had_sep or not name.strip():
-                raise SpecError(f"{what} takes COLUMN=VALUE, not {item!r}")
+                raise SpecError.option(what, f" takes COLUMN=VALUE, not {item!r}")
             elif "=" in setting:
-                raise SpecError(f"{what} {name}={setting}: a column name holding '=' is written "
-                                f"in double quotes, e.g. \"{name}={setting.split('=')[0]}\"="
-                                f"{setting.split('=', 1)[1]}")
+                raise SpecError.option(
+                    what, f" {name}={setting}: a column name holding '=' is written in double "
+                    f"quotes, e.g. \"{name}={setting.split('=')[0]}\"={setting.split('=', 1)[1]}")
             pairs.append((name, setting))
         else:
             name, setting, *_ = item  # type: ignore[misc]
@@ -113,13 +114,13 @@ def parse_binning_for(value: object) -> tuple[ColumnBinning, ...]:
     if isinstance(value, tuple) and all(isinstance(v, tuple) and len(v) == 3 for v in value):
         return value  # already parsed
     parsed = []
-    for name, setting in _pairs(value, "--binning-for"):
+    for name, setting in _pairs(value, "binning_for"):
         method, sep, bins = setting.partition(":")
         try:
             count = int(bins) if sep else None
         except ValueError:
-            raise SpecError(f"--binning-for {name}: bins must be a whole number, "
-                            f"not {bins!r}") from None
+            raise SpecError.option("binning_for", f" {name}: bins must be a whole number, "
+                                   f"not {bins!r}") from None
         parsed.append((name, method.strip().lower(), count))
     return tuple(parsed)
 
@@ -131,7 +132,7 @@ def parse_date_parts(value: object) -> tuple[tuple[str, str], ...]:
     >>> parse_date_parts("sown_on=month,dow")
     (('sown_on', 'month'), ('', 'dow'))
     """
-    return tuple((name, part.lower()) for name, part in _pairs(value, "--date-part"))
+    return tuple((name, part.lower()) for name, part in _pairs(value, "date_part"))
 
 
 @dataclass(frozen=True)
@@ -155,16 +156,17 @@ def timeout_seconds(value: object) -> float | None:
     (2.0, None)
     >>> timeout_seconds(float("nan"))
     Traceback (most recent call last):
-    bitsift.errors.SpecError: --timeout must be a positive number of seconds, not nan
+    bitsift.errors.SpecError: timeout must be a positive number of seconds, not nan
     """
     if value is None:
         return None
     if isinstance(value, bool) or not isinstance(value, int | float):
-        raise SpecError(f"--timeout must be a number of seconds, not {value!r}")
+        raise SpecError.option("timeout", f" must be a number of seconds, not {value!r}")
     if value == math.inf:
         return None
     if math.isnan(value) or value <= 0:
-        raise SpecError(f"--timeout must be a positive number of seconds, not {value:.15g}")
+        raise SpecError.option("timeout",
+                               f" must be a positive number of seconds, not {value:.15g}")
     return float(value)
 
 
@@ -196,47 +198,69 @@ class RankOptions:
     weight: str | None = None
 
     def __post_init__(self) -> None:
+        try:
+            object.__setattr__(self, "timeout", timeout_seconds(self.timeout))
+            timeout_problems: list[Problem] = []
+        except SpecError as error:
+            timeout_problems = error.problems
+        problems = [*self._value_problems(), *timeout_problems, *self._conflict_problems()]
+        if problems:
+            raise SpecError(problems=problems)
+
+    def _value_problems(self) -> list[Problem]:
+        """Option values out of their range or list (every one, in the order of the options)."""
         problems = []
         if self.missing not in MISSING_MODES:
             modes = ", ".join(MISSING_MODES)
-            problems.append(f"--missing must be one of {modes}, not {self.missing!r}")
+            problems.append(Problem.option("missing",
+                                           f" must be one of {modes}, not {self.missing!r}"))
         if self.sort not in SORT_METRICS:
-            problems.append(f"--sort must be one of {', '.join(SORT_METRICS)}, not {self.sort!r}")
+            problems.append(Problem.option(
+                "sort", f" must be one of {', '.join(SORT_METRICS)}, not {self.sort!r}"))
         if not 2 <= self.bins <= 1000:
-            problems.append(f"--bins must be between 2 and 1000, not {self.bins}")
+            problems.append(Problem.option("bins",
+                                           f" must be between 2 and 1000, not {self.bins}"))
         methods = ", ".join(BINNING_METHODS)
         if self.binning not in BINNING_METHODS:
-            problems.append(f"--binning must be one of {methods}, not {self.binning!r}")
+            problems.append(Problem.option("binning",
+                                           f" must be one of {methods}, not {self.binning!r}"))
         for name, method, bins in self.binning_for:
             if method not in BINNING_METHODS:
-                problems.append(f"--binning-for {name}: the method must be one of {methods}, "
-                                f"not {method!r}")
+                problems.append(Problem.option(
+                    "binning_for", f" {name}: the method must be one of {methods}, "
+                    f"not {method!r}"))
             if bins is not None and not 2 <= bins <= 1000:
-                problems.append(f"--binning-for {name}: bins must be between 2 and 1000, "
-                                f"not {bins}")
+                problems.append(Problem.option(
+                    "binning_for", f" {name}: bins must be between 2 and 1000, not {bins}"))
         for name, part in self.date_part:
             if part not in DATE_PARTS:
-                problems.append(f"--date-part {name or '(all dates)'}: the part must be one of "
-                                f"{', '.join(DATE_PARTS)}, not {part!r}")
+                problems.append(Problem.option(
+                    "date_part", f" {name or '(all dates)'}: the part must be one of "
+                    f"{', '.join(DATE_PARTS)}, not {part!r}"))
         date_numeric = sorted({n for n, _ in self.date_part if n} & set(self.numeric))
         if date_numeric:
-            problems.append("columns named both --date-part and --numeric: "
-                            + ", ".join(date_numeric))
+            problems.append(_named_both("date_part", "numeric", date_numeric))
         if self.limit is not None and self.limit < 1:
-            problems.append(f"--limit must be at least 1, not {self.limit}")
-        try:
-            object.__setattr__(self, "timeout", timeout_seconds(self.timeout))
-        except SpecError as error:
-            problems.append(str(error))
+            problems.append(Problem.option("limit", f" must be at least 1, not {self.limit}"))
+        return problems
+
+    def _conflict_problems(self) -> list[Problem]:
+        """Options that contradict each other, or name a column twice."""
+        problems = []
         both = sorted(set(self.categorical) & set(self.numeric))
         if both:
-            problems.append("columns named both --categorical and --numeric: " + ", ".join(both))
+            problems.append(_named_both("categorical", "numeric", both))
         if len(set(self.by)) != len(self.by):
-            problems.append("--by names a column twice: " + ", ".join(self.by))
+            problems.append(Problem.option("by", " names a column twice: " + ", ".join(self.by)))
         if self.weight is not None and not self.weight.strip():
-            problems.append("--weight needs a column name")
-        if problems:
-            raise SpecError("; ".join(problems))
+            problems.append(Problem.option("weight", " needs a column name"))
+        return problems
+
+
+def _named_both(first: str, second: str, names: Sequence[str]) -> Problem:
+    """Columns named in two options that exclude each other; about the first option."""
+    return Problem(first, ("columns named both ", Option(first), " and ", Option(second), ": "
+                           + ", ".join(names)))
 
 
 @dataclass(frozen=True)
@@ -332,8 +356,8 @@ def resolve(
     target = target_found[0]
     weight = weight_found[0] if weight_found else None
     _check_segments_and_weight(target, segment_names, weight, picked, by_name)
-    refuse_ungroupable(by_name, {"target": [target], "--attributes": picked,
-                                 "--by": segment_names, "--weight": [weight] if weight else []})
+    refuse_ungroupable(by_name, {"target": [target], "attributes": picked,
+                                 "by": segment_names, "weight": [weight] if weight else []})
     # Segment and weight columns are never ranked: within a segment, its columns are constant.
     roles = {*segment_names, *([weight] if weight else [])}
     if options.attributes:
@@ -348,18 +372,14 @@ def resolve(
     binnable = NUMERIC_FAMILIES | TEMPORAL_FAMILIES
     not_numeric = [n for n in forced_num if by_name[n].family not in binnable]
     if not_numeric:
-        raise ColumnError(
-            "--numeric needs number columns (or dates and timestamps, binned as epoch "
-            "seconds); not those: "
-            + ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in not_numeric)
-        )
+        raise ColumnError.option(
+            "numeric", " needs number columns (or dates and timestamps, binned as epoch "
+            "seconds); not those: " + _typed_names(not_numeric, by_name))
     # "other": a column described without a connection (`bitsift sql` with no SOURCE).
     not_dates = [n for n in dated if by_name[n].family not in TEMPORAL_FAMILIES | {"other"}]
     if not_dates:
-        raise ColumnError(
-            "--date-part needs date or timestamp columns; not those: "
-            + ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in not_dates)
-        )
+        raise ColumnError.option("date_part", " needs date or timestamp columns; not those: "
+                                 + _typed_names(not_dates, by_name))
     part_of = dict(zip(dated, [p for n, p in options.date_part if n], strict=True))
     every_date_part = next((p for n, p in options.date_part if not n), None)
     binning_of = {found: (method, bins) for found, (_, method, bins)
@@ -385,9 +405,10 @@ def resolve(
         attributes.append(AttributeSpec(name=n, kind=kind, family=col.family, date_part=part))
     unbinned = [a.name for a in attributes if a.name in binning_of and a.kind != "numeric"]
     if unbinned:
-        raise SpecError("--binning-for names columns that are not binned (integers, dates and "
-                        "--categorical columns are categories unless named in --numeric): "
-                        + ", ".join(unbinned))
+        raise SpecError(problems=[Problem("binning_for", (
+            Option("binning_for"), " names columns that are not binned (integers, dates and ",
+            Option("categorical"), " columns are categories unless named in ", Option("numeric"),
+            "): " + ", ".join(unbinned)))])
     where = parse_predicate(options.where, by_name, dialect) if options.where else None
     return RankSpec(
         source=source,
@@ -403,25 +424,34 @@ def resolve(
     )
 
 
+def _typed_names(names: Sequence[str], by_name: dict[str, Column]) -> str:
+    """``'a' (VARCHAR), 'b' (text)``: names with their database type, for an error."""
+    return ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in names)
+
+
 def _check_segments_and_weight(target: str, segments: Sequence[str], weight: str | None,
                                picked: Sequence[str], by_name: dict[str, Column]) -> None:
     """Every conflict between --by, --weight, the target and --attributes, reported at once."""
+    by = Option("by")
     problems = []
     if target in segments:
-        problems.append(f"the target {target!r} cannot also be a segment (--by)")
+        problems.append(Problem("by", (f"the target {target!r} cannot also be a segment (", by,
+                                       ")")))
     if weight is not None:
         if weight == target:
-            problems.append(f"the target {target!r} cannot also be the weight")
+            problems.append(Problem.of(f"the target {target!r} cannot also be the weight",
+                                       "weight"))
         if weight in segments:
-            problems.append(f"{weight!r} cannot be both a segment (--by) and the weight")
+            problems.append(Problem("weight", (f"{weight!r} cannot be both a segment (", by,
+                                               ") and the weight")))
         family = by_name[weight].family
         # "other": paste mode without a connection does not know the type.
         if family not in NUMERIC_FAMILIES and family != "other":
-            problems.append(f"--weight needs a number column; {weight!r} is "
-                            f"{by_name[weight].type_name or family}")
+            problems.append(Problem.option("weight", f" needs a number column; {weight!r} is "
+                                           f"{by_name[weight].type_name or family}"))
     both = [n for n in dict.fromkeys(picked) if n in segments or n == weight]
     if both:
-        problems.append("columns named both in --attributes and as a segment or weight: "
-                        + ", ".join(both))
+        problems.append(Problem("attributes", ("columns named both in ", Option("attributes"),
+                                               " and as a segment or weight: ", ", ".join(both))))
     if problems:
-        raise SpecError("; ".join(problems))
+        raise SpecError(problems=problems)

@@ -14,7 +14,7 @@ from typing import Any, cast
 from sqlglot import exp
 
 from bitsift.dialects import Capabilities
-from bitsift.errors import SpecError
+from bitsift.errors import Option, Problem, SpecError
 from bitsift.predicate import Predicate
 from bitsift.spec import AttributeSpec, RankSpec
 from bitsift.sqlbuild import (
@@ -158,7 +158,7 @@ def profile_statement(
     categorical ones list their ``max_values`` most frequent values and merge the rest.
     """
     if max_values < 1:
-        raise SpecError(f"--max-values must be at least 1, not {max_values}")
+        raise SpecError.option("max_values", f" must be at least 1, not {max_values}")
     attributes = []
     for index, attribute in enumerate(spec.attributes, start=1):
         entry = measured_entry(index, attribute, caps, cuts)
@@ -180,12 +180,15 @@ def profile_statement(
 
 def refuse_segments_and_weights(spec: RankSpec) -> None:
     """Redundancy and selection measure one table by row counts: no --by, no --weight."""
-    refused = [name for name, used in (("--by", spec.by), ("--weight", spec.weight)) if used]
+    refused = [Option(name) for name, used in (("by", spec.by), ("weight", spec.weight))
+               if used]
     if refused:
-        raise SpecError(
-            f"redundancy and selection do not take {' or '.join(refused)}: they count rows of "
-            "the whole table (for one segment, give its condition with --where)"
-        )
+        listed: list[str | Option] = [refused[0]]
+        for option in refused[1:]:
+            listed += [" or ", option]
+        raise SpecError(problems=[Problem(refused[0].name, (
+            "redundancy and selection do not take ", *listed, ": they count rows of the whole "
+            "table (for one segment, give its condition with ", Option("where"), ")"))])
 
 
 def _checked_pairs(spec: RankSpec, pairs: Sequence[tuple[str, str]]) -> None:
