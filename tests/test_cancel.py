@@ -114,14 +114,24 @@ def _one_line(err: str) -> str:
 ])
 def test_signal_cancels_both_postgres_sessions(slow_pg: str, postgres_engine: sa.Engine,
                                                sent: int, code: int, line: str) -> None:
-    process = start_cli("rank", POSTGRES_URL, "--table", f"{slow_pg}.slow", "--target", "y")
-    _started(process, lambda: running_queries(postgres_engine, slow_pg), 2)
+    _signal_stops_every_statement(POSTGRES_URL, slow_pg,
+                                  lambda: running_queries(postgres_engine, slow_pg), 2,
+                                  (sent, code, line),
+                                  "both sessions' statements to leave pg_stat_activity")
+
+
+def _signal_stops_every_statement(url: str, schema: str, running: Any, sessions: int,
+                                  signal_code_line: tuple[int, int, str], what: str) -> None:
+    """``bitsift rank`` on the slow view gets the signal once its ``sessions`` statements
+    run: it exits with the code and one line, and ``running`` empties soon after."""
+    sent, code, line = signal_code_line
+    process = start_cli("rank", url, "--table", f"{schema}.slow", "--target", "y")
+    _started(process, running, sessions)
     process.send_signal(sent)
     returned, out, err = _finish_quickly(process)
     assert (returned, out) == (code, "")
     assert _one_line(err) in ((line, "Aborted.") if sent == signal.SIGINT else (line,))
-    wait_for(lambda: not running_queries(postgres_engine, slow_pg), GONE_WITHIN,
-             "both sessions' statements to leave pg_stat_activity")
+    wait_for(lambda: not running(), GONE_WITHIN, what)
 
 
 @pytest.mark.postgres
@@ -148,14 +158,9 @@ def test_terminated_backend_cancels_the_sibling_session(slow_pg: str,
 ])
 def test_signal_kills_the_mariadb_query(slow_mariadb: str, mariadb_engine: sa.Engine,
                                         sent: int, code: int, line: str) -> None:
-    process = start_cli("rank", MARIADB_URL, "--table", f"{slow_mariadb}.slow", "--target", "y")
-    _started(process, lambda: mariadb_running(mariadb_engine, slow_mariadb), 1)
-    process.send_signal(sent)
-    returned, out, err = _finish_quickly(process)
-    assert (returned, out) == (code, "")
-    assert _one_line(err) in ((line, "Aborted.") if sent == signal.SIGINT else (line,))
-    wait_for(lambda: not mariadb_running(mariadb_engine, slow_mariadb), GONE_WITHIN,
-             "the statement to leave the processlist")
+    _signal_stops_every_statement(MARIADB_URL, slow_mariadb,
+                                  lambda: mariadb_running(mariadb_engine, slow_mariadb), 1,
+                                  (sent, code, line), "the statement to leave the processlist")
 
 
 @pytest.mark.mariadb

@@ -60,7 +60,7 @@ def error_line(capsys: pytest.CaptureFixture[str], *args: object) -> str:
     assert out == ""
     lines = err.splitlines()
     assert len(lines) == 1, err
-    assert lines[0].startswith("Error: ")
+    assert lines[0].startswith("Error: ") and "unexpected" not in lines[0], err
     assert "Traceback" not in err
     return lines[0]
 

@@ -19,9 +19,9 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
 import sqlalchemy as sa
+from test_errors import error_line, run_main
 
 import bitsift
-from bitsift.cli import main
 from bitsift.errors import BitsiftError, ColumnError, PredicateError, SourceError
 from bitsift.jobs import JobError, load_job, run_job
 from bitsift.predicate import MAX_NESTING, parse_predicate
@@ -32,26 +32,6 @@ NFD_E = unicodedata.normalize("NFD", NFC_E)  # e + combining acute accent
 
 # Two twins that carry different information: "Y" follows "k" exactly, "y" does not at all.
 TWIN_ROWS = {"Y": ["a", "a", "b", "b"], "y": ["p", "q", "p", "q"], "k": ["u", "u", "v", "v"]}
-
-
-def run_main(capsys: pytest.CaptureFixture[str], *args: object) -> tuple[int, str, str]:
-    """Exit code, stdout and stderr of the console entry point."""
-    code: int | str | None = 0
-    try:
-        main([str(a) for a in args])
-    except SystemExit as exited:
-        code = exited.code
-    out, err = capsys.readouterr()
-    return (code if isinstance(code, int) else 1), out, err
-
-
-def error_line(capsys: pytest.CaptureFixture[str], *args: object) -> str:
-    """The one error line of a failing command (exit 1, nothing on stdout, no traceback)."""
-    code, out, err = run_main(capsys, *args)
-    assert code == 1, err
-    assert out == ""
-    assert err.count("\n") == 1 and err.startswith("Error: ") and "unexpected" not in err, err
-    return err
 
 
 def gains(ranking: bitsift.Ranking) -> dict[str, float]:
