@@ -49,6 +49,7 @@ class Session:
         self._columns: list[Column] | None = None
         self._resolved: list[tuple[spec.RankOptions, spec.RankSpec]] = []
         self._timeout: tuple[float | None] | None = None
+        self._marked = False
 
     @classmethod
     def open(cls, source: Any, table: str | None = None) -> Session:
@@ -98,7 +99,12 @@ class Session:
         return list(self.engine.statements)
 
     def mark(self) -> int:
-        """A bookmark in the statement log, for :meth:`statements_since`."""
+        """A bookmark in the statement log, for :meth:`statements_since`. The first result of
+        a session starts at the beginning: the statements that opened it (read-only settings,
+        the catalog) were sent for it."""
+        if not self._marked:
+            self._marked = True
+            return 0
         return len(self.engine.statements)
 
     def statements_since(self, mark: int) -> list[str]:
