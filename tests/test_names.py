@@ -23,7 +23,8 @@ from test_errors import error_line, run_main
 
 import bitsift
 from bitsift.errors import BitsiftError, ColumnError, PredicateError, SourceError
-from bitsift.jobs import JobError, load_job, run_job
+from bitsift.job_run import run_job
+from bitsift.jobs import JobError, load_job
 from bitsift.predicate import MAX_NESTING, parse_predicate
 from bitsift.schema import Column
 

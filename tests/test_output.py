@@ -17,7 +17,8 @@ from click.testing import CliRunner
 from bitsift.cli import cli
 from bitsift.drift import Change, DriftReport, DriftThresholds, render_text
 from bitsift.numformat import cut_labels, format_cuts, format_metric, format_p_value
-from bitsift.profile import bin_label, profile
+from bitsift.profile import profile
+from bitsift.profile_read import bin_label
 from bitsift.report import profile_text, render_report
 from bitsift.texttable import aligned, csv_text
 

@@ -15,7 +15,8 @@ import bitsift
 from bitsift.cli import main
 from bitsift.errors import ColumnError, Option, Problem, SpecError, flag_name
 from bitsift.history import Destination
-from bitsift.jobs import JobError, load_job, preflight
+from bitsift.job_run import preflight
+from bitsift.jobs import JobError, load_job
 
 
 @pytest.fixture

@@ -35,20 +35,13 @@ from bitsift.cli_report import progress_printer
 from bitsift.dialects import capabilities
 from bitsift.engines.duckdb_engine import DuckDBEngine
 from bitsift.errors import ColumnError, SpecError
-from bitsift.profile import (
-    MISSING_LABEL,
-    AttributeProfile,
-    ProfiledRun,
-    bin_label,
-    class_label,
-    fetch_profiles,
-    profile,
-    profile_statement,
-    rank_and_profile,
-)
+from bitsift.profile import profile, rank_and_profile
+from bitsift.profile_model import MISSING_LABEL, AttributeProfile, ProfiledRun
+from bitsift.profile_read import bin_label, class_label, fetch_profiles
 from bitsift.schema import Column
 from bitsift.sources import parse_table_name
 from bitsift.spec import resolve
+from bitsift.sqlstatements import profile_statement
 
 ATTRIBUTES = "word,level,score,noise"
 

@@ -18,7 +18,8 @@ from click.testing import CliRunner
 import bitsift.profile
 import bitsift.report
 from bitsift.cli import cli
-from bitsift.profile import ProfiledRun, rank_and_profile
+from bitsift.profile import rank_and_profile
+from bitsift.profile_model import ProfiledRun
 from bitsift.report import (
     CAUTIONS,
     CLASS_COLOURS,

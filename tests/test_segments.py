@@ -36,8 +36,10 @@ from bitsift.cli import cli
 from bitsift.dialects import capabilities
 from bitsift.drift import drift
 from bitsift.errors import DataError, SpecError
-from bitsift.history import Destination, open_store
-from bitsift.jobs import load_job, run_job
+from bitsift.history import Destination
+from bitsift.history_open import open_store
+from bitsift.job_run import run_job
+from bitsift.jobs import load_job
 from bitsift.profile import rank_and_profile_segments
 from bitsift.readout import plain_value
 from bitsift.report import render_report

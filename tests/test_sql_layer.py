@@ -25,6 +25,7 @@ OWN_STATEMENTS = {
     "sqlstatements.py": "the SQL layer itself",
     "sources.py": "opening a source: table names and DuckDB's file readers on its own session",
     "history.py": "the history store's own tables, written (the SQL layer sends one SELECT)",
+    "history_duckdb.py": "the history store's own tables in a DuckDB file, written and read",
     "predicate.py": "re-quotes the column names of the user's --where it parses",
 }
 

@@ -24,8 +24,10 @@ import bitsift
 from bitsift import reference
 from bitsift.cli import cli, main
 from bitsift.errors import DataError, SpecError
-from bitsift.history import Destination, open_store
-from bitsift.jobs import load_job, run_job
+from bitsift.history import Destination
+from bitsift.history_open import open_store
+from bitsift.job_run import run_job
+from bitsift.jobs import load_job
 from bitsift.result import Ranking, SegmentedRanking
 
 

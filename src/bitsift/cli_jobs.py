@@ -14,7 +14,8 @@ from bitsift import drift as drift_lib
 from bitsift.cli_options import print_notes
 from bitsift.dialects import CAPABILITIES
 from bitsift.history import DEFAULT_TABLE, Destination
-from bitsift.jobs import check_run_id, load_job, preflight, run_job
+from bitsift.job_run import check_run_id, preflight, run_job
+from bitsift.jobs import load_job
 from bitsift.models import write_models
 from bitsift.names import one_line
 from bitsift.numformat import format_bits

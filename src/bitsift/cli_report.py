@@ -21,13 +21,8 @@ from bitsift.cli_options import (
     rank_options,
 )
 from bitsift.names import one_line
-from bitsift.profile import (
-    ProfiledRun,
-    Progress,
-    profile,
-    rank_and_profile,
-    rank_and_profile_segments,
-)
+from bitsift.profile import profile, rank_and_profile, rank_and_profile_segments
+from bitsift.profile_model import ProfiledRun, Progress
 from bitsift.report import profile_dict, profile_text, render_report
 from bitsift.selection import CRITERIA, REPORT_CANDIDATES, select_for_runs
 from bitsift.session import Session

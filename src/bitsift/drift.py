@@ -15,7 +15,8 @@ from typing import Any
 
 from bitsift import jsonout
 from bitsift.errors import BitsiftError, Option, Problem, SpecError
-from bitsift.history import Destination, RunInfo, open_store
+from bitsift.history import Destination, RunInfo
+from bitsift.history_open import open_store
 from bitsift.numformat import format_bits
 from bitsift.texttable import aligned
 

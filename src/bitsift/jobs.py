@@ -21,11 +21,8 @@ the text. The format is documented in docs/scheduled-runs.md::
 
 from __future__ import annotations
 
-import datetime as _dt
-import re
 import tomllib
-from collections.abc import Callable, Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -33,32 +30,21 @@ from typing import Any
 import sqlalchemy as sa
 
 from bitsift import api
-from bitsift.engines.base import resolve_name
 from bitsift.engines.duckdb_engine import file_reader
 from bitsift.errors import (
     BitsiftError,
-    PredicateError,
     Problem,
-    SourceError,
     SpecError,
-    TableNotFoundError,
     suggest,
-    unknown_names_message,
 )
 from bitsift.history import (
     DEFAULT_TABLE,
     Destination,
-    HistoryError,
-    open_store,
-    ranking_rows,
-    segment_json,
 )
+from bitsift.job_lines import LineMap, _at, _toml_problem, scan_lines
 from bitsift.names import one_line
-from bitsift.predicate import parse_predicate
-from bitsift.result import Ranking, SegmentedRanking
-from bitsift.session import Session
 from bitsift.sources import parse_table_name
-from bitsift.spec import RankOptions, RankSpec, Thresholds
+from bitsift.spec import RankOptions, Thresholds
 
 TOP_KEYS: tuple[str, ...] = ("job", "source", "results", "defaults", "ranking")
 RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
@@ -76,14 +62,6 @@ _INTEGERS = ("bins", "limit", "high_cardinality")
 _NUMBERS = ("timeout",)
 MAX_NAME = 200
 MAX_RUN_ID = 100
-
-
-# --- problems ---------------------------------------------------------------------------------
-
-
-def _at(line: int | None, message: str) -> Problem:
-    """A problem of the job file at ``line`` (``None``: the file as a whole)."""
-    return Problem.of(message, line=line)
 
 
 class JobError(SpecError):
@@ -106,118 +84,6 @@ class RunError(BitsiftError):
 
 
 # --- where each key is written ----------------------------------------------------------------
-
-
-_BARE_KEY = r"[A-Za-z0-9_-]+"
-_QUOTED_KEY = r'"(?:[^"\\]|\\.)*"|\'[^\']*\''
-_KEY_PART = rf"(?:{_BARE_KEY}|{_QUOTED_KEY})"
-_KEY_LINE = re.compile(rf"^\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*=")
-_HEADER_LINE = re.compile(rf"^\s*(\[\[?)\s*({_KEY_PART}(?:\s*\.\s*{_KEY_PART})*)\s*\]\]?")
-
-
-@dataclass
-class LineMap:
-    """Line numbers of tables (``("ranking", 2)`` is the third ``[[ranking]]``) and their keys."""
-
-    sections: dict[tuple[str, int], int] = field(default_factory=dict)
-    keys: dict[tuple[str, int, str], int] = field(default_factory=dict)
-
-    def of(self, section: str, index: int = 0, key: str | None = None) -> int | None:
-        """The line of ``key`` in a table, else the table's header line, else ``None``."""
-        if key is not None and (section, index, key) in self.keys:
-            return self.keys[section, index, key]
-        return self.sections.get((section, index))
-
-
-def _unquote(key: str) -> str:
-    parts = re.findall(_KEY_PART, key)
-    return ".".join(p[1:-1] if p[:1] in "\"'" else p for p in parts)
-
-
-def _value_state(text: str, mode: str | None, depth: int) -> tuple[str | None, int]:
-    """Follow a value through one line: open multi-line strings and bracket depth after it."""
-    i = 0
-    while i < len(text):
-        if mode is not None:
-            if mode == '"""' and text[i] == "\\":
-                i += 2
-                continue
-            if text.startswith(mode, i):
-                mode = None
-                i += 3
-                continue
-            i += 1
-            continue
-        ch = text[i]
-        if ch == "#":
-            break
-        if text.startswith('"""', i) or text.startswith("'''", i):
-            mode = text[i:i + 3]
-            i += 3
-            continue
-        if ch == '"':
-            i += 1
-            while i < len(text) and text[i] != '"':
-                i += 2 if text[i] == "\\" else 1
-        elif ch == "'":
-            end = text.find("'", i + 1)
-            i = len(text) if end < 0 else end
-        elif ch in "[{":
-            depth += 1
-        elif ch in "]}":
-            depth -= 1
-        i += 1
-    return mode, depth
-
-
-def scan_lines(text: str) -> LineMap:
-    """Find the line (1-based) of every table header and key of a TOML document.
-
-    Approximate by design (the document has already been parsed by tomllib): it follows
-    strings and brackets so that text inside multi-line values is not taken for keys.
-
-    >>> m = scan_lines('job = "j"\\n[[ranking]]\\ntarget = "y"\\n[[ranking]]\\nbins = 4\\n')
-    >>> m.of("", 0, "job"), m.of("ranking", 1), m.of("ranking", 1, "bins")
-    (1, 4, 5)
-    """
-    found = LineMap()
-    section: tuple[str, int] = ("", 0)
-    arrays: dict[str, int] = {}
-    mode: str | None = None
-    depth = 0
-    for number, line in enumerate(text.splitlines(), start=1):
-        if mode is not None or depth > 0:
-            mode, depth = _value_state(line, mode, depth)
-            continue
-        header = _HEADER_LINE.match(line)
-        if header:
-            name = _unquote(header.group(2))
-            index = 0
-            if header.group(1) == "[[":
-                index = arrays.get(name, -1) + 1
-                arrays[name] = index
-            section = (name, index)
-            found.sections.setdefault(section, number)
-            parent, _, child = name.rpartition(".")
-            if parent:
-                # [ranking.extra] is key "extra" of the current [[ranking]]: report it there.
-                found.keys.setdefault((parent, arrays.get(parent, 0), child), number)
-            continue
-        key = _KEY_LINE.match(line)
-        if key:
-            found.keys.setdefault((*section, _unquote(key.group(1))), number)
-            mode, depth = _value_state(line[key.end():], None, 0)
-    return found
-
-
-def _toml_problem(error: tomllib.TOMLDecodeError) -> Problem:
-    text = str(error)
-    match = re.search(r"\(at line (\d+), column \d+\)", text)
-    message = re.sub(r"\s*\(at (line \d+, column \d+|end of document)\)", "", text)
-    return _at(int(match.group(1)) if match else None, f"not valid TOML: {message}")
-
-
-# --- the job ----------------------------------------------------------------------------------
 
 
 @dataclass(frozen=True)
@@ -489,177 +355,3 @@ def load_job(path: str | Path) -> Job:
 
 
 # --- checks against the source and the destination --------------------------------------------
-
-
-def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
-              sessions: dict[int, Session] | None = None) -> None:
-    """Check every ranking against the source's catalog and (with ``destination``) the results
-    table: its layout, and that every name the run would write fits its columns.
-
-    Nothing is ranked and nothing is written; every problem is reported at once. With
-    ``sessions``, each ranking's session is kept open there (by its position in the job) for
-    :func:`run_job` to rank on, its request already resolved; the caller closes them.
-    """
-    problems: list[Problem] = []
-    source_line = job.lines.of("", 0, "source")
-    # The names each text column of the history will receive (attributes: every candidate).
-    written: dict[str, set[str]] = {"job": {job.name}, "run_id": {run_id} if run_id else set(),
-                                    "ranking": set(), "source_table": set(), "target": set(),
-                                    "attribute": set()}
-    for number, ranking in enumerate(job.rankings):
-        where = f"ranking {ranking.name!r}: "
-        try:
-            session = Session.open(job.source, ranking.table)
-        except SourceError as error:
-            problems.append(_at(source_line, str(error)))
-            break
-        except BitsiftError as error:
-            problems.append(_at(ranking.line_of("table"), where + str(error)))
-            continue
-        if sessions is not None:
-            sessions[number] = session
-            problems += _check_on_session(job, ranking, session, written)
-        else:
-            with session:
-                problems += _check_on_session(job, ranking, session, written)
-    if destination:
-        results_line = job.lines.of("results", 0)
-        try:
-            with open_store(job.destination) as store:
-                store.check()
-                problems += [_at(results_line, p) for p in store.width_problems(written)]
-        except HistoryError as error:
-            problems.append(_at(results_line, str(error)))
-    if problems:
-        raise JobError(job.path, problems)
-
-
-@contextmanager
-def checked_sessions(job: Job, *, destination: bool = True,
-                     run_id: str | None = None) -> Iterator[dict[int, Session]]:
-    """:func:`preflight`, then each ranking's open session (by its position in the job) for
-    what follows: the source is not opened again. Closed afterwards."""
-    sessions: dict[int, Session] = {}
-    try:
-        preflight(job, destination=destination, run_id=run_id, sessions=sessions)
-        yield sessions
-    finally:
-        for session in sessions.values():
-            session.close()
-
-
-def _check_on_session(job: Job, ranking: JobRanking, session: Session,
-                      written: dict[str, set[str]]) -> list[Problem]:
-    """One ranking's problems against its open source; the names it would write are added
-    to ``written`` when it has none."""
-    where = f"ranking {ranking.name!r}: "
-    try:
-        session.columns  # noqa: B018 - read here to tell a missing table from other failures
-    except TableNotFoundError as error:
-        return [_at(ranking.line_of("table"), where + str(error))]
-    except BitsiftError as error:
-        return [_at(job.lines.of("", 0, "source"), where + str(error))]
-    found, spec = _ranking_problems(ranking, session)
-    if spec is not None:
-        written["ranking"].add(ranking.name)
-        written["source_table"].add(spec.source_name)
-        written["target"].add(spec.target)
-        written["attribute"].update(a.name for a in spec.attributes)
-    return found
-
-
-def _ranking_problems(ranking: JobRanking, session: Session,
-                      ) -> tuple[list[Problem], RankSpec | None]:
-    """The ranking's problems against the source's columns, and its checked request when it
-    has none."""
-    where = f"ranking {ranking.name!r}: "
-    options = api.make_options(ranking.target, **ranking.options)
-    columns, display = session.columns, session.display
-    names = [c.name for c in columns]
-    problems = []
-    for key in ("target", "weight", *NAME_LISTS):
-        if key in ("target", "weight"):
-            wanted: tuple[str, ...] = tuple(n for n in [getattr(options, key)] if n)
-        else:
-            wanted = getattr(options, key) or ()
-        unknown = [n for n in wanted if resolve_name(n, names) is None]
-        if unknown:
-            message = unknown_names_message("column", unknown, names)
-            problems.append(_at(ranking.line_of(key), f"{where}{key}: {message} in {display}"))
-    if options.where:
-        try:
-            parse_predicate(options.where, {c.name: c for c in columns}, session.dialect)
-        except PredicateError as error:
-            problems.append(_at(ranking.line_of("where"), where + str(error)))
-    spec = None
-    if not problems:
-        try:
-            spec = session.resolve(options)
-        except BitsiftError as error:
-            problems += _keyed(error.problems, where, ranking.line_of)
-    return problems, spec
-
-
-# --- running ------------------------------------------------------------------------------------
-
-
-@dataclass
-class RunResult:
-    """What a run did: its id, when it started, each ranking, and the rows written."""
-
-    job: Job
-    run_id: str
-    run_at: _dt.datetime
-    #: Each ranking's result: one :class:`Ranking`, or one per segment when it has ``by``.
-    rankings: list[tuple[JobRanking, Ranking | SegmentedRanking]]
-    rows_written: int
-
-
-def default_run_id(run_at: _dt.datetime) -> str:
-    """A run id from the start time, sortable: ``2026-01-02T03:04:05.123456Z``."""
-    return run_at.astimezone(_dt.UTC).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-
-
-def check_run_id(run_id: str) -> str:
-    """``run_id`` if it is usable (1 to 100 printable characters), else :class:`SpecError`."""
-    if not run_id.strip() or len(run_id) > MAX_RUN_ID or not run_id.isprintable():
-        raise SpecError.option(
-            "run_id", f" must be 1 to {MAX_RUN_ID} printable characters, not {run_id!r}")
-    return run_id
-
-
-def _run_ranking(job: Job, ranking: JobRanking, session: Session,
-                 run_id: str) -> Ranking | SegmentedRanking:
-    try:
-        return api.rank(session, ranking.target, **ranking.options)
-    except BitsiftError as error:
-        raise RunError(
-            f"job {job.name!r}, ranking {ranking.name!r} ({job.path.name} line "
-            f"{ranking.line}) failed, so run {run_id} wrote nothing: {error}"
-        ) from error
-
-
-def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = None) -> RunResult:
-    """Rank every ranking of ``job``, then write all rows in one transaction.
-
-    A ranking that fails raises :class:`RunError` and nothing is written. Running again with
-    the same ``run_id`` replaces that run's rows.
-    """
-    run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
-    run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
-    # Each ranking's source is opened and its request resolved once: by the checks.
-    with checked_sessions(job, run_id=run_id) as sessions:
-        done = [(ranking, _run_ranking(job, ranking, sessions[number], run_id))
-                for number, ranking in enumerate(job.rankings)]
-    # One history row per attribute, and per segment for a ranking with `by`.
-    rows = [
-        row
-        for ranking, result in done
-        for part in (result.segments if isinstance(result, SegmentedRanking) else [result])
-        for row in ranking_rows(part, run_id=run_id, run_at=run_at, job=job.name,
-                                ranking_name=ranking.name, options=ranking.settings,
-                                segment=segment_json(part.segment))
-    ]
-    with open_store(job.destination, write=True) as store:
-        written = store.replace_run(job.name, run_id, rows)
-    return RunResult(job=job, run_id=run_id, run_at=run_at, rankings=done, rows_written=written)

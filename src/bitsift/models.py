@@ -17,7 +17,8 @@ from pathlib import Path
 
 from bitsift import api
 from bitsift.errors import BitsiftError, SpecError
-from bitsift.jobs import Job, JobRanking, checked_sessions, preflight
+from bitsift.job_run import checked_sessions, preflight
+from bitsift.jobs import Job, JobRanking
 from bitsift.session import Session
 from bitsift.version import __version__
 

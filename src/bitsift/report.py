@@ -1,7 +1,7 @@
 """The HTML report: one self-contained file (inline SVG and CSS, nothing fetched) that people read.
 
-:func:`report_context` turns one or more :class:`~bitsift.profile.ProfiledRun` (one per segment,
-once segmented runs exist) into plain dictionaries of display-ready text and geometry;
+:func:`report_context` turns one or more :class:`~bitsift.profile_model.ProfiledRun` (one per
+segment, once segmented runs exist) into plain dictionaries of display-ready text and geometry;
 ``templates/report.html.j2`` only lays them out. Every number shown also sits in a
 ``data-value`` attribute with full precision, so tests can compare it with the JSON output.
 """
@@ -23,7 +23,7 @@ from bitsift.numformat import (
     format_metric,
     format_share,
 )
-from bitsift.profile import AttributeProfile, ProfiledRun, ValueProfile
+from bitsift.profile_model import AttributeProfile, ProfiledRun, ValueProfile
 from bitsift.report_redundancy import redundancy_context
 from bitsift.result import AttributeScore
 from bitsift.templates import render

@@ -14,7 +14,7 @@ from __future__ import annotations
 from typing import Any
 
 from bitsift.numformat import format_bits, format_selection_score
-from bitsift.profile import ProfiledRun
+from bitsift.profile_model import ProfiledRun
 from bitsift.redundancy import RedundancyMatrix
 
 #: Sequential single-hue ramp, light (shares nothing) to dark (each determines the other):

@@ -32,7 +32,7 @@ from typing import Any, Literal
 from bitsift.api import make_options
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
-from bitsift.profile import ProfiledRun, Progress
+from bitsift.profile_model import ProfiledRun, Progress
 from bitsift.redundancy import (
     DEFAULT_BATCH_PAIRS,
     RedundancyMatrix,
