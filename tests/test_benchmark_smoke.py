@@ -64,8 +64,8 @@ def test_duckdb_side_by_side(tmp_path: Path) -> None:
 @pytest.mark.slow
 def test_duckdb_concurrent_strategies_agree(tmp_path: Path) -> None:
     # The one-statement strategies are checked against each other by the parity tests; here
-    # the per-attribute and split runs over two sessions (bitsift.concurrent), and the quantile
-    # bins counted from cells (bitsift.quantile_counts).
+    # the per-attribute and split runs over two sessions (bitsift.run.concurrent), and the quantile
+    # bins counted from cells (bitsift.run.quantile_counts).
     strategies = {"per_attribute_concurrent", "split_concurrent", "counted_concurrent"}
     _, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "5",
                             "--mode", "strategies", "--strategies", ",".join(sorted(strategies)))

@@ -28,10 +28,10 @@ from test_faults import _default_sigint, finish, wait_for
 from test_jobs import POSTGRES_URL, duckdb_source, history_count, random_rows, two_rankings
 
 import bitsift
-import bitsift.api
-from bitsift import history_duckdb
-from bitsift.drift import drift
-from bitsift.history import (
+import bitsift.run.api
+from bitsift.jobs import history_duckdb
+from bitsift.jobs.drift import drift
+from bitsift.jobs.history import (
     COLUMN_NAMES,
     COLUMNS,
     SCHEMA_VERSION,
@@ -39,9 +39,9 @@ from bitsift.history import (
     HistoryError,
     ranking_rows,
 )
-from bitsift.history_open import open_store
-from bitsift.job_run import preflight, run_job
-from bitsift.jobs import JobError, load_job
+from bitsift.jobs.history_open import open_store
+from bitsift.jobs.job_run import preflight, run_job
+from bitsift.jobs.jobfile import JobError, load_job
 
 ROOT = Path(__file__).resolve().parents[1]
 RUN_AT = _dt.datetime(2026, 3, 1, 4, 5, 6, 789000, tzinfo=_dt.UTC)
@@ -213,7 +213,8 @@ WRITERS = 4
 RACING_CHILD = textwrap.dedent("""\
     import os, sys, time
     from pathlib import Path
-    from bitsift import history_sqlalchemy, job_run
+    from bitsift.jobs import history_sqlalchemy
+    from bitsift.jobs import job_run
 
     barrier, count = Path(sys.argv[1]), int(sys.argv[2])
     open_store = job_run.open_store
@@ -297,7 +298,7 @@ def test_a_results_file_held_too_long_fails_before_ranking(tmp_path: Path,
         assert holder.stdout is not None and holder.stdout.readline() == "held\n"
         monkeypatch.setattr(history_duckdb, "WRITE_WAIT_SECONDS", 0.5)
         ranked: list[object] = []
-        monkeypatch.setattr(bitsift.api, "rank", lambda *a, **k: ranked.append(a))
+        monkeypatch.setattr(bitsift.run.api, "rank", lambda *a, **k: ranked.append(a))
         with pytest.raises(JobError) as caught:
             run_job(job, "late")
     finally:
@@ -497,7 +498,7 @@ def test_ctrl_c_during_a_duckdb_history_write_exits_130(tmp_path: Path) -> None:
     script = textwrap.dedent("""\
         import sys
         from pathlib import Path
-        from bitsift import history_duckdb
+        from bitsift.jobs import history_duckdb
 
         store = history_duckdb.DuckDBStore
         replace_run, check = store.replace_run, store.check
