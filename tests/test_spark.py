@@ -250,5 +250,5 @@ def test_map_columns_are_left_out_or_refused(spark: Any, tmp_path: Path) -> None
                for note in ranking.notes), ranking.notes
     checked = bitsift.check(frame, target="y")
     assert checked.ok and checked.whole_table
-    with pytest.raises(ColumnError, match=r"'m' \(map<int,bigint>, as --attributes\)"):
+    with pytest.raises(ColumnError, match=r"'m' \(map<int,bigint>, as attributes\)"):
         bitsift.rank(frame, target="y", attributes="k,m")
