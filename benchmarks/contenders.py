@@ -79,7 +79,7 @@ def _dbapi_cursor(dataset: Dataset) -> Iterator[Any]:
 
 def _metrics_from_table(table: np.ndarray) -> dict[str, float]:
     """The metrics of one attribute from its value × class count table (NumPy reference)."""
-    from bitsift import reference
+    from bitsift.run import reference
 
     values = reference.metrics(table)
     return {
@@ -347,18 +347,18 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
 
     Every strategy but the last finds the quantile cut points first and bins the rows in the
     ranking statement (``run_quantile`` "buckets"): ``grouping_sets``, ``union_all``,
-    ``cross_join``: one boundaries pre-pass, one statement (:func:`bitsift.api.run_ranking`).
+    ``cross_join``: one boundaries pre-pass, one statement (:func:`bitsift.run.api.run_ranking`).
     ``per_attribute_*``: one job per attribute (its boundaries, then its statement) on one
     session, or on ``workers`` sessions at once; ``split_concurrent``: the attributes cut into
-    ``workers`` jobs run at once (:func:`bitsift.concurrent.fetch_records_in_parts`).
+    ``workers`` jobs run at once (:func:`bitsift.run.concurrent.fetch_records_in_parts`).
     ``counted_concurrent``: the quantile-binned attributes counted from (bucket, class) cells
-    on one session, the others ranked on the other (:mod:`bitsift.quantile_counts`).
+    on one session, the others ranked on the other (:mod:`bitsift.run.quantile_counts`).
     """
-    from bitsift import concurrent
-    from bitsift.api import MAX_ATTRIBUTES_PER_STATEMENT, make_options, run_ranking
-    from bitsift.readout import read_ranking
-    from bitsift.sources import open_source
-    from bitsift.spec import resolve
+    from bitsift.engines.sources import open_source
+    from bitsift.run import concurrent
+    from bitsift.run.api import MAX_ATTRIBUTES_PER_STATEMENT, make_options, run_ranking
+    from bitsift.run.readout import read_ranking
+    from bitsift.spec.rankspec import resolve
 
     opened = open_source(_bitsift_source(dataset), dataset.table)
     with opened.engine as engine:
@@ -384,7 +384,7 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
 
 def _one_statement() -> dict[str, Any]:
     """The capability override that keeps bitsift's run mode to one statement."""
-    from bitsift.dialects import Capabilities
+    from bitsift.sql.dialects import Capabilities
 
     fields = Capabilities.__dataclass_fields__
     return {"run_sessions": 1} if "run_sessions" in fields else {}

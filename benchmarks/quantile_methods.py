@@ -1,5 +1,6 @@
-"""How run mode finds quantile bins, per engine: the dialect's one-statement quantile, bucket cut
-points (bitsift.quantiles) and bins counted from cells (bitsift.quantile_counts), side by side.
+"""How run mode finds quantile bins, per engine: the dialect's one-statement quantile, bucket
+cut points (bitsift.run.quantiles) and bins counted from cells (bitsift.run.quantile_counts),
+side by side.
 
     python benchmarks/quantile_methods.py --engine sqlite --rows 500000
     python benchmarks/quantile_methods.py --engine mariadb --rows 500000
@@ -8,7 +9,7 @@ The table (a 3-class target, 3 categorical and 4 numeric attributes of invented,
 values) is written to a scratch SQLite file or MariaDB database and removed afterwards. Each
 method ranks it ``--repeats`` times in this process, interleaved; the medians are printed with
 the largest difference in information gain between the methods (rounding only). The numbers
-behind the SQLite and MariaDB choices in src/bitsift/dialects.py; see RESULTS.md.
+behind the SQLite and MariaDB choices in src/bitsift/sql/dialects.py; see RESULTS.md.
 """
 
 from __future__ import annotations
@@ -28,7 +29,7 @@ from pathlib import Path
 import sqlalchemy as sa
 
 import bitsift
-from bitsift import dialects
+from bitsift.sql import dialects
 
 MARIADB_URL = "mysql+pymysql://root@127.0.0.1:3306/test"
 COLUMNS = "y INTEGER, c1 INTEGER, c2 VARCHAR(8), c3 INTEGER, n1 DOUBLE PRECISION, " \

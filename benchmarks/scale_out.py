@@ -32,11 +32,11 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from datagen import TARGET, create_table_sql  # noqa: E402
 
 import bitsift  # noqa: E402
-from bitsift.api import make_options, run_ranking  # noqa: E402
 from bitsift.engines.base import Engine, FetchResult  # noqa: E402
-from bitsift.result import Ranking  # noqa: E402
-from bitsift.sources import EngineSource, open_source  # noqa: E402
-from bitsift.spec import resolve  # noqa: E402
+from bitsift.engines.sources import EngineSource, open_source  # noqa: E402
+from bitsift.run.api import make_options, run_ranking  # noqa: E402
+from bitsift.run.result import Ranking  # noqa: E402
+from bitsift.spec.rankspec import resolve  # noqa: E402
 
 
 def write_parquet(rows: int, k: int, seed: int, path: Path) -> float:

@@ -20,12 +20,12 @@ from datagen import Dataset  # noqa: E402
 
 #: Modules each contender needs, imported before the clock starts (its driver comes per engine).
 PRELOAD: dict[str, tuple[str, ...]] = {
-    "bitsift": ("bitsift", "bitsift.api", "sqlalchemy"),
-    "export": ("pandas", "sqlalchemy", "bitsift.reference"),
-    "handwritten": ("bitsift.reference",),
+    "bitsift": ("bitsift", "bitsift.run.api", "sqlalchemy"),
+    "export": ("pandas", "sqlalchemy", "bitsift.run.reference"),
+    "handwritten": ("bitsift.run.reference",),
     "floor": (),
-    "bound": ("bitsift.reference",),
-    "strategy": ("bitsift", "bitsift.api", "sqlalchemy", "bitsift.concurrent"),
+    "bound": ("bitsift.run.reference",),
+    "strategy": ("bitsift", "bitsift.run.api", "sqlalchemy", "bitsift.run.concurrent"),
 }
 #: Per engine: its driver, and the sqlglot dialect module bitsift writes for (sqlglot imports
 #: a dialect's module on first use: 0.07 s, an import like the others, not ranking work).

@@ -3,7 +3,7 @@
 The warehouse, parity, safety and golden tests all compare engines on identical rows. A
 :class:`Dataset` is plain Python rows plus a logical type per column; :func:`load` writes it
 with plain DDL and ``executemany`` bind parameters (never values pasted into SQL), and
-:func:`expected_metrics` computes what every engine must return with :mod:`bitsift.reference`.
+:func:`expected_metrics` computes what every engine must return with :mod:`bitsift.run.reference`.
 """
 
 from __future__ import annotations
@@ -28,11 +28,11 @@ from conftest import MARIADB_URL, POSTGRES_URL
 from sqlglot import exp
 
 import bitsift
-from bitsift import reference
 from bitsift.cli import main
-from bitsift.dialects import CAPABILITIES, capabilities
-from bitsift.result import Ranking
-from bitsift.session import Session
+from bitsift.run import reference
+from bitsift.run.result import Ranking
+from bitsift.run.session import Session
+from bitsift.sql.dialects import CAPABILITIES, capabilities
 
 #: Engines the test suite executes SQL on.
 ENGINES: tuple[str, ...] = ("duckdb", "sqlite", "postgres", "mariadb")

@@ -25,12 +25,12 @@ from sklearn.datasets import load_iris
 from test_discretize import paper_mdl
 
 import bitsift
-from bitsift import reference
-from bitsift.api import fetch_mdl_cuts, make_options
 from bitsift.cli import cli, main
-from bitsift.discretize import MDL_RESOLUTION
 from bitsift.errors import ColumnError, SpecError
-from bitsift.session import Session
+from bitsift.run import reference
+from bitsift.run.api import fetch_mdl_cuts, make_options
+from bitsift.run.discretize import MDL_RESOLUTION
+from bitsift.run.session import Session
 
 IRIS_FEATURES = ("sepal_length", "sepal_width", "petal_length", "petal_width")
 

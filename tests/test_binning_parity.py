@@ -30,7 +30,7 @@ from test_binning import (
 from test_discretize import paper_mdl
 
 import bitsift
-from bitsift import reference
+from bitsift.run import reference
 
 METHODS = ("quantile", "equal-width", "best-split", "mdl")
 BINS = 5

@@ -22,7 +22,7 @@ from click.testing import CliRunner, Result
 from sqlglot import exp
 
 from bitsift.cli import cli
-from bitsift.result import ATTRIBUTE_KEYS
+from bitsift.run.result import ATTRIBUTE_KEYS
 
 TOP_KEYS = ["target", "table", "rows", "rows_excluded", "target_entropy", "classes", "attributes"]
 #: Keys the table and Markdown formats show as columns; the binning (method, bin count, cut

@@ -1,5 +1,5 @@
 """ClickHouse, executed on embedded chdb: the same Parquet rows ranked by ClickHouse and DuckDB
-match each other and the NumPy reference (bitsift.reference) to 1e-9.
+match each other and the NumPy reference (bitsift.run.reference) to 1e-9.
 
 Besides Parquet read in place (Nullable columns), a MergeTree table with non-Nullable String
 and Int64 attributes holding '' and 0: ClickHouse fills the columns a grouping set does not
@@ -35,6 +35,7 @@ from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
+from bitsift.engines.sources import EngineSource
 from bitsift.errors import (
     QueryError,
     QueryTimeoutError,
@@ -42,7 +43,6 @@ from bitsift.errors import (
     SpecError,
     TableNotFoundError,
 )
-from bitsift.sources import EngineSource
 
 pytestmark = pytest.mark.clickhouse
 

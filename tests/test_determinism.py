@@ -21,11 +21,11 @@ from click.testing import CliRunner
 from conftest import MARIADB_URL, POSTGRES_URL
 from helpers import quoted
 
+from bitsift.analysis.redundancy import read_pairs
 from bitsift.cli import cli
-from bitsift.drift import DriftThresholds, compare
-from bitsift.metrics import RESOLUTION_DIGITS, score, snap, sort_scores
-from bitsift.redundancy import read_pairs
-from bitsift.spec import Thresholds
+from bitsift.jobs.drift import DriftThresholds, compare
+from bitsift.run.metrics import RESOLUTION_DIGITS, score, snap, sort_scores
+from bitsift.spec.rankspec import Thresholds
 
 RUNS = 5
 FORMATS = ("json", "csv", "table", "markdown")

@@ -3,7 +3,7 @@
 :data:`EXPECTED` holds, per dialect, the capability fields the entry must have, why, and the
 text its paste-ready statement (golden variant ``default``) must and must not contain; the same
 two tests read every entry. Adding a dialect: one ``Capabilities`` entry in
-``src/bitsift/dialects.py`` and one :class:`Expected` here (DEVELOPERS.md, "How to add a
+``src/bitsift/sql/dialects.py`` and one :class:`Expected` here (DEVELOPERS.md, "How to add a
 dialect"). At the end, what only a running engine shows (timeouts, read-only statements), on
 the engines that run here.
 """
@@ -26,9 +26,9 @@ from helpers import fill_sqlalchemy, invalid_constructs, paste_sql, random_datas
 from sqlglot import exp
 
 import bitsift
-from bitsift import dialects
-from bitsift.dialects import capabilities
 from bitsift.errors import QueryTimeoutError
+from bitsift.sql import dialects
+from bitsift.sql.dialects import capabilities
 
 
 @dataclass(frozen=True)

@@ -3,7 +3,7 @@
 MDL: Fayyad & Irani (1993), "Multi-interval discretization of continuous-valued attributes for
 classification learning", Proc. 13th IJCAI, pp. 1022-1027. The reference below is written
 straight from the paper's formulas (a loop over candidate cuts, entropies from scipy), a
-different code path from bitsift.discretize's vectorised one.
+different code path from bitsift.run.discretize's vectorised one.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import pytest
 from scipy.stats import entropy
 from sklearn.datasets import load_iris
 
-from bitsift.discretize import best_split_cut, mdl_cut_indices, mdl_cuts
+from bitsift.run.discretize import best_split_cut, mdl_cut_indices, mdl_cuts
 
 
 def _ent(labels: np.ndarray) -> float:

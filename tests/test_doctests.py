@@ -14,9 +14,10 @@ MODULES = sorted(
     info.name for info in pkgutil.walk_packages(bitsift.__path__, prefix="bitsift.")
 )
 #: Modules whose public functions must carry runnable examples.
-WITH_EXAMPLES = ("bitsift", "bitsift.api", "bitsift.reference", "bitsift.metrics",
-                 "bitsift.schema", "bitsift.predicate", "bitsift.sqlbuild", "bitsift.sqlstatements",
-                 "bitsift.sources")
+WITH_EXAMPLES = ("bitsift", "bitsift.run.api", "bitsift.run.reference", "bitsift.run.metrics",
+                 "bitsift.spec.schema", "bitsift.spec.predicate", "bitsift.sql.sqlbuild",
+                 "bitsift.sql.sqlstatements",
+                 "bitsift.engines.sources")
 
 
 @pytest.mark.parametrize("name", ["bitsift", *MODULES])
@@ -29,5 +30,5 @@ def test_module_doctests(name: str) -> None:
 
 
 def test_every_module_is_collected() -> None:
-    assert {"bitsift.api", "bitsift.cli", "bitsift.reference", "bitsift.engines.duckdb_engine"} \
-        <= set(MODULES)
+    assert {"bitsift.run.api", "bitsift.cli", "bitsift.run.reference",
+            "bitsift.engines.duckdb_engine"} <= set(MODULES)

@@ -20,9 +20,10 @@ from test_jobs import (
 )
 
 from bitsift.cli import cli
-from bitsift.drift import DriftThresholds, compare, drift
 from bitsift.errors import SpecError
-from bitsift.jobs import load_job, run_job
+from bitsift.jobs.drift import DriftThresholds, compare, drift
+from bitsift.jobs.job_run import run_job
+from bitsift.jobs.jobfile import load_job
 
 
 def row(attribute: str, position: int, ig: float, flags: str = "", ranking: str = "r",

@@ -4,7 +4,7 @@ Each example creates a uniquely named table whose table and column names mix quo
 backticks, spaces, unicode, reserved words, bitsift's own SQL aliases and long names; whose
 values are empty strings, unicode, NULLs, the extreme 64-bit integers, subnormal and huge
 floats and, where the engine stores them, NaN and infinities; and whose target has random
-class skews. bitsift must then either rank every attribute exactly as :mod:`bitsift.reference`
+class skews. bitsift must then either rank every attribute exactly as :mod:`bitsift.run.reference`
 does on the rows the engine really stored (to 1e-9), or refuse with one clear one-line
 :class:`~bitsift.errors.DataError` when the target has fewer than two classes. Every statement
 that reaches the database is recorded (a SQLAlchemy ``before_cursor_execute`` hook; DuckDB's
@@ -48,9 +48,9 @@ from scipy import stats
 from sqlglot import exp
 
 import bitsift
-from bitsift import reference
 from bitsift.engines.duckdb_engine import DuckDBEngine
 from bitsift.errors import BitsiftError, ColumnError, DataError, SpecError, TableNotFoundError
+from bitsift.run import reference
 
 # --- what may reach the database ----------------------------------------------------------------
 

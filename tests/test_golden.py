@@ -29,7 +29,7 @@ from sqlglot import exp
 
 import bitsift
 from bitsift.cli import cli
-from bitsift.dialects import capabilities
+from bitsift.sql.dialects import capabilities
 
 REGENERATE = os.environ.get("BITSIFT_REGENERATE_GOLDEN") == "1"
 CASES = [(d, v) for d in PASTE_DIALECTS for v in GOLDEN_VARIANTS]

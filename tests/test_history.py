@@ -28,19 +28,20 @@ from test_faults import _default_sigint, finish, wait_for
 from test_jobs import POSTGRES_URL, duckdb_source, history_count, random_rows, two_rankings
 
 import bitsift
-import bitsift.api
-from bitsift import history
-from bitsift.drift import drift
-from bitsift.history import (
+import bitsift.run.api
+from bitsift.jobs import history_duckdb
+from bitsift.jobs.drift import drift
+from bitsift.jobs.history import (
     COLUMN_NAMES,
     COLUMNS,
     SCHEMA_VERSION,
     Destination,
     HistoryError,
-    open_store,
     ranking_rows,
 )
-from bitsift.jobs import JobError, load_job, preflight, run_job
+from bitsift.jobs.history_open import open_store
+from bitsift.jobs.job_run import preflight, run_job
+from bitsift.jobs.jobfile import JobError, load_job
 
 ROOT = Path(__file__).resolve().parents[1]
 RUN_AT = _dt.datetime(2026, 3, 1, 4, 5, 6, 789000, tzinfo=_dt.UTC)
@@ -212,10 +213,11 @@ WRITERS = 4
 RACING_CHILD = textwrap.dedent("""\
     import os, sys, time
     from pathlib import Path
-    from bitsift import history, jobs
+    from bitsift.jobs import history_sqlalchemy
+    from bitsift.jobs import job_run
 
     barrier, count = Path(sys.argv[1]), int(sys.argv[2])
-    open_store = jobs.open_store
+    open_store = job_run.open_store
 
     def open_at_the_barrier(destination, *, write=False):
         if write:
@@ -225,15 +227,15 @@ RACING_CHILD = textwrap.dedent("""\
                 time.sleep(0.01)
         return open_store(destination, write=write)
 
-    existing = history.SqlAlchemyStore._existing
+    existing = history_sqlalchemy.SqlAlchemyStore._existing
 
     def slow_existing(self, connection):
         found = existing(self, connection)
         time.sleep(0.3)
         return found
 
-    jobs.open_store = open_at_the_barrier
-    history.SqlAlchemyStore._existing = slow_existing
+    job_run.open_store = open_at_the_barrier
+    history_sqlalchemy.SqlAlchemyStore._existing = slow_existing
     from bitsift.cli import main
     main(sys.argv[3:])
 """)
@@ -294,9 +296,9 @@ def test_a_results_file_held_too_long_fails_before_ranking(tmp_path: Path,
                     "print('held', flush=True)\ntime.sleep(30)\n", str(destination.path))
     try:
         assert holder.stdout is not None and holder.stdout.readline() == "held\n"
-        monkeypatch.setattr(history, "WRITE_WAIT_SECONDS", 0.5)
+        monkeypatch.setattr(history_duckdb, "WRITE_WAIT_SECONDS", 0.5)
         ranked: list[object] = []
-        monkeypatch.setattr(bitsift.api, "rank", lambda *a, **k: ranked.append(a))
+        monkeypatch.setattr(bitsift.run.api, "rank", lambda *a, **k: ranked.append(a))
         with pytest.raises(JobError) as caught:
             run_job(job, "late")
     finally:
@@ -496,9 +498,10 @@ def test_ctrl_c_during_a_duckdb_history_write_exits_130(tmp_path: Path) -> None:
     script = textwrap.dedent("""\
         import sys
         from pathlib import Path
-        from bitsift import history
+        from bitsift.jobs import history_duckdb
 
-        replace_run, check = history.DuckDBStore.replace_run, history.DuckDBStore.check
+        store = history_duckdb.DuckDBStore
+        replace_run, check = store.replace_run, store.check
         writing = []
 
         def marked_replace_run(self, *args):
@@ -514,8 +517,8 @@ def test_ctrl_c_during_a_duckdb_history_write_exits_130(tmp_path: Path) -> None:
                 self.connection.execute("SELECT sum(hash(range)) FROM range(20000000000)")
             return check(self)
 
-        history.DuckDBStore.replace_run = marked_replace_run
-        history.DuckDBStore.check = slow_check
+        store.replace_run = marked_replace_run
+        store.check = slow_check
         from bitsift.cli import main
         main(sys.argv[2:])
     """)

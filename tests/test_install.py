@@ -80,7 +80,7 @@ def test_wheel_ships_templates_and_type_marker(wheel: Path) -> None:
 INSPECT = """
 import json, sys
 import bitsift
-from bitsift.templates import templates_dir
+from bitsift.sql.templates import templates_dir
 ranking = bitsift.rank(sys.argv[1], target="growth")
 print(json.dumps({
     "module": bitsift.__file__,

@@ -17,8 +17,11 @@ import sqlalchemy as sa
 from click.testing import CliRunner
 
 from bitsift.cli import cli
-from bitsift.history import Destination, open_store
-from bitsift.jobs import JobError, RunError, load_job, preflight, run_job, scan_lines
+from bitsift.jobs.history import Destination
+from bitsift.jobs.history_open import open_store
+from bitsift.jobs.job_lines import scan_lines
+from bitsift.jobs.job_run import preflight, run_job
+from bitsift.jobs.jobfile import JobError, RunError, load_job
 
 ROOT = Path(__file__).resolve().parents[1]
 POSTGRES_URL = "postgresql+psycopg://postgres@127.0.0.1:5432/test"

@@ -85,14 +85,50 @@ def test_find_cycle_sees_a_circle_and_a_clean_graph() -> None:
 
 def test_the_import_graph_covers_the_modules_it_should() -> None:
     graph = import_graph()
-    assert "bitsift.api" in graph and "bitsift.engines.base" in graph
-    assert "bitsift.concurrent" in graph["bitsift.api"] or any(
-        "bitsift.concurrent" in deps for deps in graph.values())
+    assert "bitsift.run.api" in graph and "bitsift.engines.base" in graph
+    assert "bitsift.run.concurrent" in graph["bitsift.run.api"] or any(
+        "bitsift.run.concurrent" in deps for deps in graph.values())
 
 
 def test_no_import_circle_between_bitsift_modules() -> None:
     cycle = find_cycle(import_graph())
     assert cycle is None, "import circle: " + " -> ".join(cycle or [])
+
+
+#: The subpackages in pipeline order: a module may import from its own stage or an earlier one,
+#: never a later one (the CLI sits on top of everything, the spec at the bottom).
+PIPELINE = ("spec", "sql", "engines", "run", "analysis", "output", "jobs", "cli")
+#: Small shared modules at the package's top level, below every stage: they import only each
+#: other.
+LEAVES = ("errors", "version", "names", "jsonout", "numformat")
+
+
+def stage(module: str) -> int:
+    """``module``'s place in the pipeline: -1 for a top-level leaf, else its stage's index."""
+    parts = module.split(".")
+    if len(parts) == 2 and parts[1] in LEAVES:
+        return -1
+    assert len(parts) >= 2 and parts[1] in PIPELINE, f"{module} is in no pipeline stage"
+    return PIPELINE.index(parts[1])
+
+
+def upward_imports(graph: dict[str, set[str]]) -> list[str]:
+    """Every import of ``graph`` that goes up the pipeline (to a later stage), sorted."""
+    return sorted(f"{module} -> {imported}" for module, deps in graph.items()
+                  for imported in deps if stage(imported) > stage(module))
+
+
+def test_upward_imports_sees_a_stage_importing_a_later_one() -> None:
+    graph = {"bitsift.spec.x": {"bitsift.cli.y", "bitsift.errors"},
+             "bitsift.errors": {"bitsift.names"}, "bitsift.names": set(),
+             "bitsift.cli.y": {"bitsift.spec.x"}}
+    assert upward_imports(graph) == ["bitsift.spec.x -> bitsift.cli.y"]
+    assert upward_imports({"bitsift.errors": {"bitsift.run.api"}}) == [
+        "bitsift.errors -> bitsift.run.api"]
+
+
+def test_imports_only_go_down_the_pipeline() -> None:
+    assert upward_imports(import_graph()) == []
 
 
 def test_every_module_imports_on_its_own() -> None:

@@ -32,8 +32,8 @@ from helpers import (
 )
 
 import bitsift
-from bitsift import api, reference
-from bitsift.dialects import capabilities
+from bitsift.run import api, reference
+from bitsift.sql.dialects import capabilities
 
 # --- a million distinct values -----------------------------------------------------------------
 
@@ -170,7 +170,7 @@ def test_500_columns_rank_in_batches(engine: str, request: pytest.FixtureRequest
     assert_matches_reference(ranking, dataset, "y", numeric=numeric, context=engine)
     # Run mode splits the attributes: no ranking statement holds more than the batch size, and
     # together they hold each attribute once. Where quantile bins are counted from cells
-    # (bitsift.quantile_counts), those attributes' metrics are computed in the client from
+    # (bitsift.run.quantile_counts), those attributes' metrics are computed in the client from
     # the cells: no ranking statement holds them.
     sizes = []
     for statement in (s for s in ranking.statements if "information_gain" in s):

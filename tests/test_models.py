@@ -16,8 +16,8 @@ from test_jobs import POSTGRES_URL, duckdb_source, postgres_source, random_rows,
 import bitsift
 from bitsift.cli import cli
 from bitsift.errors import SpecError
-from bitsift.jobs import Job, load_job
-from bitsift.models import write_models
+from bitsift.jobs.jobfile import Job, load_job
+from bitsift.jobs.models import write_models
 
 METRICS = ("information_gain", "gain_ratio", "symmetric_uncertainty", "conditional_entropy",
            "attribute_entropy", "g_statistic")

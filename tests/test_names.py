@@ -23,9 +23,10 @@ from test_errors import error_line, run_main
 
 import bitsift
 from bitsift.errors import BitsiftError, ColumnError, PredicateError, SourceError
-from bitsift.jobs import JobError, load_job, run_job
-from bitsift.predicate import MAX_NESTING, parse_predicate
-from bitsift.schema import Column
+from bitsift.jobs.job_run import run_job
+from bitsift.jobs.jobfile import JobError, load_job
+from bitsift.spec.predicate import MAX_NESTING, parse_predicate
+from bitsift.spec.schema import Column
 
 NFC_E = "\u00e9"  # é as one code point
 NFD_E = unicodedata.normalize("NFD", NFC_E)  # e + combining acute accent
@@ -341,7 +342,7 @@ def test_where_at_the_nesting_limit_runs_end_to_end(tmp_path: Path, by: str | No
 
 
 def _nesting_of(text: str) -> int:
-    from bitsift.predicate import _nesting
+    from bitsift.spec.predicate import _nesting
 
     return _nesting(parse_predicate(text, {"a": Column("a", "integer")}, "duckdb").expression)
 
@@ -466,7 +467,7 @@ class _Terminal(io.StringIO):
 
 
 def test_progress_lines_escape_control_characters() -> None:
-    from bitsift.cli_report import progress_printer
+    from bitsift.cli.cli_report import progress_printer
 
     stream = _Terminal()
     say = progress_printer(False, stream)

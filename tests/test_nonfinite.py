@@ -18,10 +18,10 @@ from helpers import Dataset, loaded
 
 import bitsift
 from bitsift import jsonout
+from bitsift.analysis.profile import rank_and_profile_segments
 from bitsift.cli import cli
-from bitsift.profile import rank_and_profile_segments
-from bitsift.readout import plain_value
-from bitsift.sqlbuild import literal, value_literal
+from bitsift.run.readout import plain_value
+from bitsift.sql.sqlbuild import literal, value_literal
 
 SEGMENT_VALUES = (math.nan, math.inf, -math.inf, 1.5)
 #: How the segments come out: ascending, NaN after +inf (DuckDB's and PostgreSQL's order).

@@ -14,12 +14,13 @@ import duckdb
 import pytest
 from click.testing import CliRunner
 
+from bitsift.analysis.profile import profile
+from bitsift.analysis.profile_read import bin_label
 from bitsift.cli import cli
-from bitsift.drift import Change, DriftReport, DriftThresholds, render_text
+from bitsift.jobs.drift import Change, DriftReport, DriftThresholds, render_text
 from bitsift.numformat import cut_labels, format_cuts, format_metric, format_p_value
-from bitsift.profile import bin_label, profile
-from bitsift.report import profile_text, render_report
-from bitsift.texttable import aligned, csv_text
+from bitsift.output.report import profile_text, render_report
+from bitsift.output.texttable import aligned, csv_text
 
 # Four values 1.000000 .. 1.000003; the first two rows in four are class a, the others b.
 CLOSE_VALUES_SQL = """

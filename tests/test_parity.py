@@ -1,5 +1,5 @@
 """Parity: every engine and every count strategy / quantile method it can run gives the NumPy
-reference's metrics (bitsift.reference) to 1e-9 on the same random table.
+reference's metrics (bitsift.run.reference) to 1e-9 on the same random table.
 
 The table (tests/helpers.py, random_dataset) has NULLs in the target and the attributes, skewed
 classes, text that differs only by case, a trailing space or an accent (MariaDB's default

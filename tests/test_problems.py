@@ -14,8 +14,9 @@ import pytest
 import bitsift
 from bitsift.cli import main
 from bitsift.errors import ColumnError, Option, Problem, SpecError, flag_name
-from bitsift.history import Destination
-from bitsift.jobs import JobError, load_job, preflight
+from bitsift.jobs.history import Destination
+from bitsift.jobs.job_run import preflight
+from bitsift.jobs.jobfile import JobError, load_job
 
 
 @pytest.fixture

@@ -28,27 +28,20 @@ from helpers import (
     random_dataset,
 )
 
-from bitsift import reference
-from bitsift.api import make_options, run_ranking
+from bitsift.analysis.profile import profile, rank_and_profile
+from bitsift.analysis.profile_model import MISSING_LABEL, AttributeProfile, ProfiledRun
+from bitsift.analysis.profile_read import bin_label, class_label, fetch_profiles
 from bitsift.cli import cli, main
-from bitsift.cli_report import progress_printer
-from bitsift.dialects import capabilities
+from bitsift.cli.cli_report import progress_printer
 from bitsift.engines.duckdb_engine import DuckDBEngine
+from bitsift.engines.sources import parse_table_name
 from bitsift.errors import ColumnError, SpecError
-from bitsift.profile import (
-    MISSING_LABEL,
-    AttributeProfile,
-    ProfiledRun,
-    bin_label,
-    class_label,
-    fetch_profiles,
-    profile,
-    profile_statement,
-    rank_and_profile,
-)
-from bitsift.schema import Column
-from bitsift.sources import parse_table_name
-from bitsift.spec import resolve
+from bitsift.run import reference
+from bitsift.run.api import make_options, run_ranking
+from bitsift.spec.rankspec import resolve
+from bitsift.spec.schema import Column
+from bitsift.sql.dialects import capabilities
+from bitsift.sql.sqlstatements import profile_statement
 
 ATTRIBUTES = "word,level,score,noise"
 

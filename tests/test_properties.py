@@ -1,7 +1,7 @@
 """Property tests (hypothesis): the SQL path against the NumPy reference, and invariants.
 
 Random tables with NULLs, skewed classes and 1-50 attribute values; each example ranks a
-fresh in-memory DuckDB table and compares with :mod:`bitsift.reference` (p·log p form) to
+fresh in-memory DuckDB table and compares with :mod:`bitsift.run.reference` (p·log p form) to
 1e-9, absolute for entropies and relative for the G statistic.
 """
 
@@ -18,7 +18,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import bitsift
-from bitsift import reference
+from bitsift.run import reference
 
 TOLERANCE = 1e-9
 PROPERTY_SETTINGS = settings(

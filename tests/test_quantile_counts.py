@@ -1,4 +1,4 @@
-"""Quantile bins counted from (bucket, class) cells (bitsift.quantile_counts) in run mode.
+"""Quantile bins counted from (bucket, class) cells (bitsift.run.quantile_counts) in run mode.
 
 Two independent checks: the NumPy reference (numpy.quantile's cut points, rows binned one by
 one in Python, metrics by the p log p formulas), and bitsift's own row-by-row binning (the
@@ -20,9 +20,9 @@ from helpers import Dataset, assert_matches_reference, assert_same_ranking, load
 from test_quantiles import SHAPES, non_finite_dataset, shaped_dataset
 
 import bitsift
-from bitsift import quantile_counts
-from bitsift.dialects import capabilities
-from bitsift.result import Ranking
+from bitsift.run import quantile_counts
+from bitsift.run.result import Ranking
+from bitsift.sql.dialects import capabilities
 
 COUNTED = {"run_quantile": "counted"}
 ROW_BY_ROW = {"run_quantile": "buckets"}
@@ -250,7 +250,7 @@ def test_segments_and_weights_keep_the_row_by_row_binning(
 def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None:
     # Step 3 numbers the rows of a few buckets in memory: their size stays near
     # ROWS_PER_BUCKET as the table grows (here 1 row per bucket, capped at MAX_BUCKETS).
-    from bitsift import quantiles
+    from bitsift.run import quantiles
 
     monkeypatch.setattr(quantiles, "ROWS_PER_BUCKET", 1)
     monkeypatch.setattr(quantiles, "MAX_BUCKETS", 2000)

@@ -1,4 +1,4 @@
-"""Exact quantile cut points from bucket counts (bitsift.quantiles) against numpy.quantile.
+"""Exact quantile cut points from bucket counts (bitsift.run.quantiles) against numpy.quantile.
 
 The reference is numpy's default ("linear") quantile of the values in the rows the ranking
 reads (target present, --where true), computed here from the rows themselves; the method
@@ -19,10 +19,10 @@ import numpy as np
 import pytest
 from helpers import Dataset, loaded, numpy_cuts
 
-from bitsift import quantiles
-from bitsift.api import fetch_cuts, make_options
-from bitsift.session import Session
-from bitsift.sqlbuild import quantile_levels
+from bitsift.run import quantiles
+from bitsift.run.api import fetch_cuts, make_options
+from bitsift.run.session import Session
+from bitsift.sql.sqlbuild import quantile_levels
 
 SHAPES = ("normal", "heavy_tail", "point_mass", "ties", "narrow", "negative", "mostly_null",
           "constant", "empty")

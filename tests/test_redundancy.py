@@ -1,6 +1,6 @@
 """Pairwise redundancy (``bitsift redundancy``): mutual information between attributes, in SQL.
 
-Oracles, independent of bitsift's SQL and of :mod:`bitsift.reference`:
+Oracles, independent of bitsift's SQL and of :mod:`bitsift.run.reference`:
 - ``sklearn.metrics.mutual_info_score`` (scikit-learn; natural logs, converted to bits) on the
   same rows, with numeric columns binned at the ranking's cut points;
 - ``scipy.stats.entropy(counts, base=2)`` for H(Xi) and H(Xj), hence the symmetric uncertainty
@@ -34,12 +34,7 @@ from helpers import (
 from scipy.stats import entropy
 from sklearn.metrics import mutual_info_score
 
-from bitsift import reference
-from bitsift.api import make_options, run_ranking
-from bitsift.cli import cli
-from bitsift.dialects import capabilities
-from bitsift.errors import SpecError
-from bitsift.redundancy import (
+from bitsift.analysis.redundancy import (
     PAIR_KEYS,
     RedundancyMatrix,
     all_pairs,
@@ -47,11 +42,16 @@ from bitsift.redundancy import (
     pairs_statement,
     redundancy,
 )
-from bitsift.result import Ranking
-from bitsift.schema import Column
-from bitsift.session import Session
-from bitsift.sources import parse_table_name
-from bitsift.spec import resolve
+from bitsift.cli import cli
+from bitsift.engines.sources import parse_table_name
+from bitsift.errors import SpecError
+from bitsift.run import reference
+from bitsift.run.api import make_options, run_ranking
+from bitsift.run.result import Ranking
+from bitsift.run.session import Session
+from bitsift.spec.rankspec import resolve
+from bitsift.spec.schema import Column
+from bitsift.sql.dialects import capabilities
 
 ATTRIBUTES = ("word", "level", "score", "ratio", "noise", "price")
 #: Count strategies each executed engine can run (no GROUPING SETS on SQLite and MariaDB).

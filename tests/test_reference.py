@@ -12,11 +12,11 @@ from scipy import stats
 from sklearn.metrics import mutual_info_score
 
 import bitsift
-from bitsift import reference
-from bitsift.api import _compare, make_options
-from bitsift.schema import Column
-from bitsift.sources import parse_table_name
-from bitsift.spec import resolve
+from bitsift.engines.sources import parse_table_name
+from bitsift.run import reference
+from bitsift.run.api import _compare, make_options
+from bitsift.spec.rankspec import resolve
+from bitsift.spec.schema import Column
 
 
 def test_entropy_bits_by_hand() -> None:
@@ -115,7 +115,7 @@ def test_check_agrees_on_the_whole_table(con: duckdb.DuckDBPyConnection, missing
     report = bitsift.check(con, target="c", table="t", missing=missing)
     assert report.whole_table and report.sample_rows == 3000
     assert report.ok
-    assert set(report.differences) == set(bitsift.api.METRICS_CHECKED)
+    assert set(report.differences) == set(bitsift.run.api.METRICS_CHECKED)
     assert max(report.differences.values()) <= 1e-9
     assert {a.attribute for a in report.ranking.attributes} == {"a", "b", "v"}
     assert report.ranking["v"].kind == "numeric"

@@ -15,11 +15,12 @@ import duckdb
 import pytest
 from click.testing import CliRunner
 
-import bitsift.profile
-import bitsift.report
+import bitsift.analysis.profile
+import bitsift.output.report
+from bitsift.analysis.profile import rank_and_profile
+from bitsift.analysis.profile_model import ProfiledRun
 from bitsift.cli import cli
-from bitsift.profile import ProfiledRun, rank_and_profile
-from bitsift.report import (
+from bitsift.output.report import (
     CAUTIONS,
     CLASS_COLOURS,
     format_metric,
@@ -86,7 +87,7 @@ def run(connection: Any) -> ProfiledRun:
 
 @pytest.mark.slow
 def test_module_examples_hold() -> None:
-    for module in (bitsift.report, bitsift.profile):
+    for module in (bitsift.output.report, bitsift.analysis.profile):
         outcome = doctest.testmod(module)
         assert outcome.attempted > 0 and outcome.failed == 0, module.__name__
 

@@ -22,7 +22,7 @@ from click.testing import CliRunner
 from conftest import IN_CI
 
 from bitsift.cli import cli
-from bitsift.report import format_metric
+from bitsift.output.report import format_metric
 
 WINDOW = (1280, 2200)
 #: Metric columns of the report's table, all of them keys of the JSON contract.

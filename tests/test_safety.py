@@ -27,12 +27,12 @@ from helpers import (
 )
 
 import bitsift
+from bitsift.engines.masking import mask_text, mask_url
+from bitsift.engines.sources import open_source
 from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine, safe_url
 from bitsift.errors import PredicateError, QueryError, QueryTimeoutError, SourceError
-from bitsift.masking import mask_text, mask_url
-from bitsift.predicate import parse_predicate
-from bitsift.schema import Column
-from bitsift.sources import open_source
+from bitsift.spec.predicate import parse_predicate
+from bitsift.spec.schema import Column
 
 # --- hostile identifiers ------------------------------------------------------------------------
 

@@ -31,19 +31,21 @@ from helpers import (
 from sqlglot import exp
 
 import bitsift
-from bitsift.api import make_options, run_segmented
+from bitsift.analysis.profile import rank_and_profile_segments
 from bitsift.cli import cli
-from bitsift.dialects import capabilities
-from bitsift.drift import drift
+from bitsift.engines.sources import open_source
 from bitsift.errors import DataError, SpecError
-from bitsift.history import Destination, open_store
-from bitsift.jobs import load_job, run_job
-from bitsift.profile import rank_and_profile_segments
-from bitsift.readout import plain_value
-from bitsift.report import render_report
-from bitsift.result import Ranking, SegmentedRanking
-from bitsift.sources import open_source
-from bitsift.spec import resolve
+from bitsift.jobs.drift import drift
+from bitsift.jobs.history import Destination
+from bitsift.jobs.history_open import open_store
+from bitsift.jobs.job_run import run_job
+from bitsift.jobs.jobfile import load_job
+from bitsift.output.report import render_report
+from bitsift.run.api import make_options, run_segmented
+from bitsift.run.readout import plain_value
+from bitsift.run.result import Ranking, SegmentedRanking
+from bitsift.spec.rankspec import resolve
+from bitsift.sql.dialects import capabilities
 
 REGIONS: tuple[str | None, ...] = ("north", "south", "east", None)
 #: Metrics a paste-mode row carries, compared with the run-mode ranking.

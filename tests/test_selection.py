@@ -27,14 +27,9 @@ from helpers import Dataset, fill_duckdb, loaded
 from sklearn.datasets import load_wine
 from sklearn.metrics import mutual_info_score
 
-from bitsift import reference
-from bitsift.cli import cli
-from bitsift.errors import SpecError
-from bitsift.profile import rank_and_profile, rank_and_profile_segments
-from bitsift.redundancy import RedundancyMatrix, redundancy
-from bitsift.report import render_report
-from bitsift.result import Ranking
-from bitsift.selection import (
+from bitsift.analysis.profile import rank_and_profile, rank_and_profile_segments
+from bitsift.analysis.redundancy import RedundancyMatrix, redundancy
+from bitsift.analysis.selection import (
     MIQ_FLOOR,
     STEP_KEYS,
     Selection,
@@ -43,6 +38,11 @@ from bitsift.selection import (
     select_attributes,
     select_for_runs,
 )
+from bitsift.cli import cli
+from bitsift.errors import SpecError
+from bitsift.output.report import render_report
+from bitsift.run import reference
+from bitsift.run.result import Ranking
 
 TOLERANCE = 1e-9
 

@@ -14,7 +14,7 @@ import pytest
 
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine
-from bitsift.sources import open_source
+from bitsift.engines.sources import open_source
 
 ROOT = Path(__file__).resolve().parents[1]
 PACKAGE = ROOT / "src" / "bitsift"
@@ -45,7 +45,7 @@ def _bitsift_imports(path: Path) -> set[str]:
 
 
 def test_run_mode_knows_no_concrete_engine() -> None:
-    engines = {m for m in _bitsift_imports(PACKAGE / "concurrent.py")
+    engines = {m for m in _bitsift_imports(PACKAGE / "run" / "concurrent.py")
                if m.startswith("bitsift.engines")}
     assert engines == {"bitsift.engines.base"}
 
@@ -104,7 +104,7 @@ def test_parts_are_renumbered_in_one_place() -> None:
                 continue
             if any(_renumbers(n) for n in ast.walk(node)):
                 renumbering.append(f"{path.relative_to(PACKAGE)}:{node.name}")
-    assert renumbering == ["parts.py:merge_parts"]
+    assert renumbering == ["run/parts.py:merge_parts"]
 
 
 def test_one_session_runs_the_parts_serially(small_db: Path, monkeypatch: pytest.MonkeyPatch,
@@ -112,7 +112,7 @@ def test_one_session_runs_the_parts_serially(small_db: Path, monkeypatch: pytest
     """On one session (a caller's connection) a table wider than a statement's share is ranked
     in parts one after another, with the numbers of the one-statement ranking."""
     import bitsift
-    from bitsift import api
+    from bitsift.run import api
 
     con = duckdb.connect(str(small_db), read_only=True)
     whole = bitsift.rank(con, target="y", table="t")
@@ -137,7 +137,8 @@ class Calls:
     def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
         import sys
 
-        from bitsift import sources, spec
+        from bitsift.engines import sources
+        from bitsift.spec import rankspec as spec
 
         self.opened = 0
         self.resolved = 0
@@ -214,9 +215,9 @@ def test_each_command_opens_and_resolves_its_source_once(
 def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
                                                       monkeypatch: pytest.MonkeyPatch) -> None:
     import bitsift
-    from bitsift.profile import rank_and_profile
-    from bitsift.selection import select_for_runs
-    from bitsift.session import Session
+    from bitsift.analysis.profile import rank_and_profile
+    from bitsift.analysis.selection import select_for_runs
+    from bitsift.run.session import Session
 
     calls = Calls(monkeypatch)
     with Session.open(str(small_db), "t") as session:

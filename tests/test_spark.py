@@ -1,5 +1,5 @@
 """Apache Spark SQL, executed: a local[2] session ranks the same Parquet rows as DuckDB, and both
-match the NumPy reference (bitsift.reference) to 1e-9.
+match the NumPy reference (bitsift.run.reference) to 1e-9.
 
 The table (tests/helpers.py, random_dataset) has NULL targets, NULL attribute values, text that
 differs only by case or a trailing space, integers with ties, and floats and a DECIMAL(10, 2)
@@ -36,8 +36,8 @@ from parquet_helpers import AWKWARD_NAMES, write_parquet
 
 import bitsift
 from bitsift.cli import cli
+from bitsift.engines.sources import EngineSource
 from bitsift.errors import ColumnError, QueryTimeoutError, SpecError, TableNotFoundError
-from bitsift.sources import EngineSource
 
 pytestmark = pytest.mark.spark
 

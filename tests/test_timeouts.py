@@ -19,9 +19,9 @@ from conftest import MARIADB_URL, POSTGRES_URL
 
 import bitsift
 from bitsift.cli import main
-from bitsift.dialects import CAPABILITIES
 from bitsift.errors import QueryTimeoutError, SpecError
-from bitsift.jobs import JobError, load_job
+from bitsift.jobs.jobfile import JobError, load_job
+from bitsift.sql.dialects import CAPABILITIES
 
 BAD = ["nan", "-1", "0", "-inf"]
 
@@ -95,7 +95,7 @@ def test_timeout_longer_than_python_timers_is_one_line_on_duckdb(
 def test_inf_is_no_limit(small_db: Path) -> None:
     ranking = bitsift.rank(str(small_db), table="t", target="y", timeout=math.inf)
     assert len(ranking.attributes) == 2
-    assert bitsift.api.make_options("y", timeout=math.inf).timeout is None
+    assert bitsift.run.api.make_options("y", timeout=math.inf).timeout is None
 
 
 @pytest.mark.parametrize("value", [math.nan, -1.0, 0, "5", True])

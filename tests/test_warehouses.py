@@ -19,8 +19,8 @@ from helpers import ENGINES, assert_same_ranking, loaded, random_dataset
 import bitsift
 from bitsift.cli import cli
 from bitsift.engines import sqlite_support
+from bitsift.engines.sources import open_source
 from bitsift.errors import MissingDriverError, SourceError, TableNotFoundError
-from bitsift.sources import open_source
 
 DATASET = random_dataset(seed=31, rows=1000)
 

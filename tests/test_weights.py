@@ -21,12 +21,14 @@ from helpers import COMPARED_METRICS, ENGINES, Dataset, fill_duckdb, loaded
 from test_segments import CATEGORICAL, segmented_dataset, segmented_with
 
 import bitsift
-from bitsift import reference
 from bitsift.cli import cli, main
 from bitsift.errors import DataError, SpecError
-from bitsift.history import Destination, open_store
-from bitsift.jobs import load_job, run_job
-from bitsift.result import Ranking, SegmentedRanking
+from bitsift.jobs.history import Destination
+from bitsift.jobs.history_open import open_store
+from bitsift.jobs.job_run import run_job
+from bitsift.jobs.jobfile import load_job
+from bitsift.run import reference
+from bitsift.run.result import Ranking, SegmentedRanking
 
 
 def duplicated(dataset: Dataset, weight: str = "weight") -> Dataset:
@@ -126,7 +128,7 @@ def test_fractional_weights_keep_the_entropies_and_drop_the_p_value() -> None:
         assert scored.p_value is None
     assert ranking.weight_total == pytest.approx(sum(row[2] for row in data), rel=1e-12)
     assert any("not all whole numbers" in note for note in ranking.notes)
-    payload = json.loads(bitsift.formatting.render(ranking, "json"))
+    payload = json.loads(bitsift.output.formatting.render(ranking, "json"))
     assert payload["weight"] == "w" and payload["weight_total"] == ranking.weight_total
     assert all(a["p_value"] is None for a in payload["attributes"])
     assert list(payload)[:7] == ["target", "table", "weight", "rows", "rows_excluded",

@@ -155,7 +155,7 @@ def test_book_gains_through_cli_json(weather: duckdb.DuckDBPyConnection, tmp_pat
 def test_to_pandas_and_to_dict(weather: duckdb.DuckDBPyConnection) -> None:
     ranking = bitsift.rank(weather, target="PlayTennis", table="weather", exclude="Day")
     frame = ranking.to_pandas()
-    assert list(frame.columns) == list(bitsift.result.ATTRIBUTE_KEYS)
+    assert list(frame.columns) == list(bitsift.run.result.ATTRIBUTE_KEYS)
     assert list(frame["attribute"]) == ["Outlook", "Humidity", "Wind", "Temperature"]
     assert frame["information_gain"].tolist() == [
         a["information_gain"] for a in ranking.to_dict()["attributes"]

@@ -6,10 +6,10 @@ computed inside the database.
 '0.1.0'
 """
 
-from bitsift.api import CheckReport, check, rank, statement
 from bitsift.errors import BitsiftError, Problem
-from bitsift.result import AttributeScore, Ranking, SegmentedRanking
-from bitsift.spec import Thresholds
+from bitsift.run.api import CheckReport, check, rank, statement
+from bitsift.run.result import AttributeScore, Ranking, SegmentedRanking
+from bitsift.spec.rankspec import Thresholds
 from bitsift.version import __version__
 
 __all__ = [

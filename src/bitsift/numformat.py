@@ -41,7 +41,7 @@ def format_p_value(p: float) -> str:
 
 
 def format_metric(key: str, value: object, *, grouped: bool = True) -> str:
-    """A metric of an attribute score (``key`` as in :data:`bitsift.result.ATTRIBUTE_KEYS`):
+    """A metric of an attribute score (``key`` as in :data:`bitsift.run.result.ATTRIBUTE_KEYS`):
     4 decimals, G with 1, p-values by :func:`format_p_value`; ``grouped`` puts thousands
     separators in whole numbers and G (the report does, the terminal table does not).
 

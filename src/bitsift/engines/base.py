@@ -11,10 +11,10 @@ from typing import Any, ClassVar
 
 from sqlglot import exp
 
-from bitsift.dialects import Capabilities
 from bitsift.errors import QueryCancelledError, QueryError, SpecError
 from bitsift.names import resolve_name as resolve_name  # re-exported: engines, jobs use it
-from bitsift.schema import Column
+from bitsift.spec.schema import Column
+from bitsift.sql.dialects import Capabilities
 
 
 @dataclass(frozen=True)
@@ -120,7 +120,7 @@ class Engine(ABC):
         """Another session on the same database, with the same capabilities and timeout.
 
         Its session statements and every statement it sends are logged in this engine's
-        :attr:`statements`, so ``--debug`` and :attr:`~bitsift.result.Ranking.statements`
+        :attr:`statements`, so ``--debug`` and :attr:`~bitsift.run.result.Ranking.statements`
         show them all. The caller closes it.
         """
         sibling = self._new_session()

@@ -17,7 +17,6 @@ from typing import Any
 
 from sqlglot import exp
 
-from bitsift.dialects import Capabilities, capabilities
 from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
 from bitsift.errors import (
     MissingDriverError,
@@ -29,7 +28,8 @@ from bitsift.errors import (
     first_line,
     unknown_names_message,
 )
-from bitsift.schema import Column, Family, family_of
+from bitsift.spec.schema import Column, Family, family_of
+from bitsift.sql.dialects import Capabilities, capabilities
 
 #: ClickHouse error codes bitsift tells apart (``Code: N. DB::Exception ...``).
 _UNKNOWN_TABLE_CODES = frozenset({60, 81})  # UNKNOWN_TABLE, UNKNOWN_DATABASE

@@ -11,7 +11,6 @@ from typing import ClassVar
 import duckdb
 from sqlglot import exp
 
-from bitsift.dialects import capabilities
 from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
 from bitsift.errors import (
     QueryCancelledError,
@@ -22,7 +21,8 @@ from bitsift.errors import (
     first_line,
     unknown_names_message,
 )
-from bitsift.schema import Column, family_of
+from bitsift.spec.schema import Column, family_of
+from bitsift.sql.dialects import capabilities
 
 FILE_READERS: dict[str, str] = {
     ".parquet": "read_parquet",

@@ -30,8 +30,8 @@ from typing import TYPE_CHECKING, Any
 
 from sqlglot import exp
 
-from bitsift.dialects import capabilities
 from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
+from bitsift.engines.masking import mask_text
 from bitsift.errors import (
     MissingDriverError,
     QueryError,
@@ -42,8 +42,8 @@ from bitsift.errors import (
     first_line,
     unknown_names_message,
 )
-from bitsift.masking import mask_text
-from bitsift.schema import Column, Family
+from bitsift.spec.schema import Column, Family
+from bitsift.sql.dialects import capabilities
 
 if TYPE_CHECKING:  # pragma: no cover - typing only; pyspark is an optional extra
     from pyspark.sql import DataFrame, SparkSession

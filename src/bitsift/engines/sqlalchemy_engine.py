@@ -15,9 +15,15 @@ import sqlalchemy as sa
 from sqlalchemy.engine import URL, make_url
 from sqlglot import exp
 
-from bitsift.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.engines import sqlite_support
 from bitsift.engines.base import Engine, FetchResult, check_timeout_limit, resolve_name
+from bitsift.engines.masking import (
+    environment_secrets,
+    mask_text,
+    mask_url,
+    raw_at_in_password,
+    url_secrets,
+)
 from bitsift.errors import (
     MissingDriverError,
     QueryCancelledError,
@@ -28,14 +34,8 @@ from bitsift.errors import (
     first_line,
     suggest,
 )
-from bitsift.masking import (
-    environment_secrets,
-    mask_text,
-    mask_url,
-    raw_at_in_password,
-    url_secrets,
-)
-from bitsift.schema import Column, Family
+from bitsift.spec.schema import Column, Family
+from bitsift.sql.dialects import SQLALCHEMY_DIALECTS, capabilities
 
 #: Which pip extra brings a driver for a SQLAlchemy backend, and the URL scheme it serves.
 DRIVER_EXTRAS: dict[str, tuple[str, str]] = {

@@ -1,0 +1,1 @@
+"""Beyond the ranking: drill-down profiles, redundancy between attributes, selection."""

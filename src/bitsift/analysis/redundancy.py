@@ -1,0 +1,292 @@
+"""Redundancy between attributes: pairwise mutual information, computed in the database.
+
+Two attributes that tell the same thing about the target (a city and its postcode, an amount and
+its band) are redundant. For each pair (Xi, Xj) the database counts the joint table n(xi, xj)
+(templates/pairs.sql.j2) and returns I(Xi; Xj) in bits and the symmetric uncertainty
+2·I / (H(Xi) + H(Xj)); only one row per pair leaves it.
+
+The pairs are measured on the rows the ranking used (the target present, ``--where`` true),
+with the ranking's binning: numeric attributes are cut at the ranking's literal cut points.
+Missing values follow ``--missing``: with ``category`` NULL is one more value of each attribute;
+with ``drop`` a pair is measured on the rows where both attributes are present (so H(Xi) in the
+pair may differ from the ranking's H(Xi), which used the rows where Xi alone is present).
+
+Many pairs are split into batches of at most :data:`DEFAULT_BATCH_PAIRS` (one statement each):
+with grouping sets a batch is one scan with one set per pair.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from bitsift.engines.base import Engine
+from bitsift.errors import SpecError
+from bitsift.run.api import make_options, run_ranking
+from bitsift.run.metrics import snap
+from bitsift.run.result import Ranking
+from bitsift.run.session import Session, session_for
+from bitsift.spec.rankspec import RankSpec
+from bitsift.sql.sqlstatements import pairs_statement, refuse_segments_and_weights
+
+#: Pairs per statement: one grouping set each. Engines cap the number of grouping sets
+#: (PostgreSQL at 4096) and a wide GROUP BY costs memory, so large matrices go in batches.
+DEFAULT_BATCH_PAIRS = 64
+
+#: The metrics a pair can be ordered by.
+PAIR_METRICS: tuple[str, ...] = ("mutual_information", "symmetric_uncertainty")
+
+#: Keys of one pair in the JSON and CSV outputs, in order.
+PAIR_KEYS: tuple[str, ...] = (
+    "first",
+    "second",
+    "mutual_information",
+    "symmetric_uncertainty",
+    "first_entropy",
+    "second_entropy",
+    "rows",
+)
+
+
+@dataclass(frozen=True)
+class PairScore:
+    """What two attributes share, on the rows where the pair was measured. Entropies in bits."""
+
+    first: str
+    second: str
+    #: I(first; second) in bits: 0 for independent attributes, at most min(H(first), H(second)).
+    mutual_information: float
+    #: 2·I / (H(first) + H(second)): 0 (independent) to 1 (each determines the other).
+    symmetric_uncertainty: float
+    #: H(first) and H(second) over the pair's rows.
+    first_entropy: float
+    second_entropy: float
+    #: Rows counted for the pair (fewer than the ranking's with --missing drop).
+    rows: int
+
+    def to_dict(self) -> dict[str, Any]:
+        return {key: getattr(self, key) for key in PAIR_KEYS}
+
+
+def all_pairs(names: Sequence[str]) -> list[tuple[str, str]]:
+    """Every unordered pair of ``names``, in the order of ``names``.
+
+    >>> all_pairs(["a", "b", "c"])
+    [('a', 'b'), ('a', 'c'), ('b', 'c')]
+    """
+    return [(a, b) for i, a in enumerate(names) for b in names[i + 1:]]
+
+
+def batches(pairs: Sequence[tuple[str, str]], size: int) -> Iterator[list[tuple[str, str]]]:
+    """``pairs`` in consecutive chunks of at most ``size``.
+
+    >>> [len(b) for b in batches(all_pairs("abcdefg"), 8)]
+    [8, 8, 5]
+    """
+    if size < 1:
+        raise SpecError.option("batch_pairs", f" must be at least 1, not {size}")
+    for start in range(0, len(pairs), size):
+        yield list(pairs[start:start + size])
+
+
+@dataclass
+class RedundancyMatrix:
+    """Pairwise mutual information among ``attributes`` (every pair, or those measured)."""
+
+    attributes: tuple[str, ...]
+    pairs: dict[frozenset[str], PairScore] = field(default_factory=dict)
+
+    def pair(self, first: str, second: str) -> PairScore:
+        """The score of a pair, in either order; KeyError when it was not measured."""
+        return self.pairs[frozenset((first, second))]
+
+    def mutual_information(self, first: str, second: str) -> float:
+        """I(first; second) in bits."""
+        return self.pair(first, second).mutual_information
+
+    def matrix(self, metric: str = "mutual_information") -> list[list[float | None]]:
+        """A square, symmetric table in the order of :attr:`attributes`; None on the diagonal
+        and for pairs not measured."""
+        if metric not in PAIR_METRICS:
+            raise SpecError(f"unknown pair metric {metric!r}; one of {', '.join(PAIR_METRICS)}")
+        rows: list[list[float | None]] = []
+        for a in self.attributes:
+            row: list[float | None] = []
+            for b in self.attributes:
+                found = self.pairs.get(frozenset((a, b))) if a != b else None
+                row.append(getattr(found, metric) if found is not None else None)
+            rows.append(row)
+        return rows
+
+    def ordered(self, by: str = "mutual_information") -> list[PairScore]:
+        """Every measured pair, most redundant first (ties by the attributes' order)."""
+        if by not in PAIR_METRICS:
+            raise SpecError(f"unknown pair metric {by!r}; one of {', '.join(PAIR_METRICS)}")
+        position = {name: i for i, name in enumerate(self.attributes)}
+        return sorted(self.pairs.values(),
+                      key=lambda p: (-getattr(p, by), position[p.first], position[p.second]))
+
+    def add(self, scores: Iterable[PairScore]) -> None:
+        for score in scores:
+            self.pairs[frozenset((score.first, score.second))] = score
+
+
+def _float(value: Any) -> float:
+    number = float(value or 0.0)
+    return number if math.isfinite(number) else 0.0
+
+
+def read_pairs(records: Sequence[Mapping[str, Any]],
+               pairs: Sequence[tuple[str, str]]) -> list[PairScore]:
+    """Turn the rows of :func:`pairs_statement` into one :class:`PairScore` per pair.
+
+    A pair without rows (no row has both values under --missing drop) shares nothing.
+    """
+    by_index = {int(r["pair_index"]): r for r in records}
+    scores = []
+    for index, (first, second) in enumerate(pairs, start=1):
+        row = by_index.get(index)
+        if row is None:
+            scores.append(PairScore(first, second, 0.0, 0.0, 0.0, 0.0, 0))
+            continue
+        # Snapped as the ranking's metrics are (metrics.snap): residue of a pair sharing
+        # nothing is 0 in both fields, and ties between pairs are exact.
+        mutual = snap(_float(row["mutual_information"]))
+        scores.append(PairScore(
+            first=first,
+            second=second,
+            mutual_information=mutual,
+            symmetric_uncertainty=snap(_float(row["symmetric_uncertainty"])) if mutual else 0.0,
+            first_entropy=snap(_float(row["left_entropy"])),
+            second_entropy=snap(_float(row["right_entropy"])),
+            rows=int(row["rows_used"] or 0),
+        ))
+    return scores
+
+
+#: Flags that make an attribute a poor candidate for pairing and selection, and why.
+_CANDIDATE_FLAGS: dict[str, str] = {
+    "id_like": "an identifier shares all of every other attribute's entropy",
+    "constant": "a constant shares nothing with anything",
+    "near_perfect": "a possible target leak is the most relevant of all",
+}
+
+
+def flagged_candidates_note(ranking: Ranking, names: Sequence[str]) -> str | None:
+    """A note naming the candidates the ranking flagged id_like, constant or near_perfect."""
+    wanted = set(names)
+    found = {flag: [s.attribute for s in ranking.attributes
+                    if s.attribute in wanted and flag in s.flags] for flag in _CANDIDATE_FLAGS}
+    parts = [f"{flag} {', '.join(found[flag])} ({why})"
+             for flag, why in _CANDIDATE_FLAGS.items() if found[flag]]
+    if not parts:
+        return None
+    return "flagged candidates: " + "; ".join(parts) + ". Consider --exclude."
+
+
+def ranking_cuts(ranking: Ranking) -> dict[str, list[float]]:
+    """The cut points of the ranking's numeric attributes, by name."""
+    return {s.attribute: list(s.cuts) for s in ranking.attributes if s.cuts is not None}
+
+
+def fetch_pairs(
+    engine: Engine,
+    spec: RankSpec,
+    cuts: Mapping[str, Sequence[float]],
+    pairs: Sequence[tuple[str, str]],
+    *,
+    batch_pairs: int = DEFAULT_BATCH_PAIRS,
+) -> list[PairScore]:
+    """Measure ``pairs`` on an open engine, at most ``batch_pairs`` per statement."""
+    scores: list[PairScore] = []
+    for batch in batches(pairs, batch_pairs):
+        statement = pairs_statement(spec, engine.caps, cuts, batch)
+        scores += read_pairs(engine.fetch(statement.sql).records(), batch)
+    return scores
+
+
+def measure_matrix(
+    engine: Engine,
+    spec: RankSpec,
+    ranking: Ranking,
+    attributes: Sequence[str] | None = None,
+    *,
+    batch_pairs: int = DEFAULT_BATCH_PAIRS,
+) -> RedundancyMatrix:
+    """Every pair among ``attributes`` (default: the ranking's, in its order), binned as ranked."""
+    names = tuple(attributes if attributes is not None else
+                  [s.attribute for s in ranking.attributes])
+    matrix = RedundancyMatrix(attributes=names)
+    pairs = all_pairs(names)
+    if pairs:
+        matrix.add(fetch_pairs(engine, spec, ranking_cuts(ranking), pairs,
+                               batch_pairs=batch_pairs))
+    return matrix
+
+
+@dataclass
+class Redundancy:
+    """The pairwise redundancy of a table's attributes, beside their ranking."""
+
+    ranking: Ranking
+    matrix: RedundancyMatrix
+    missing: str
+    #: Every statement sent (the ranking's and the pairs'), for --debug.
+    statements: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+
+    def to_dict(self, by: str = "mutual_information") -> dict[str, Any]:
+        """One JSON-ready object: the attributes with their relevance, and every pair."""
+        ranking = self.ranking
+        return {
+            "target": ranking.target,
+            "table": ranking.table,
+            "rows": ranking.rows,
+            "missing": self.missing,
+            "attributes": [
+                {"attribute": s.attribute, "kind": s.kind,
+                 "information_gain": s.information_gain,
+                 "attribute_entropy": s.attribute_entropy}
+                for s in ranking.attributes
+            ],
+            "pairs": [p.to_dict() for p in self.matrix.ordered(by)],
+        }
+
+
+def rank_on_session(session: Session, target: str, options: dict[str, Any],
+                    ) -> tuple[RankSpec, Ranking]:
+    """Resolve the options on ``session`` and rank: the start of redundancy and selection."""
+    spec = session.resolve(make_options(target, **options))
+    refuse_segments_and_weights(spec)
+    session.set_timeout(spec.options.timeout)
+    return spec, run_ranking(session.engine, spec)
+
+
+def redundancy(source: Any, target: str, table: str | None = None, *,
+               batch_pairs: int = DEFAULT_BATCH_PAIRS, **options: Any) -> Redundancy:
+    """Rank like :func:`bitsift.rank`, then measure every pair of the ranked attributes.
+
+    With ``limit``, only the top ``limit`` attributes (by ``sort``) are paired. Takes the
+    options of :func:`bitsift.rank`.
+
+    >>> import duckdb
+    >>> con = duckdb.connect()
+    >>> _ = con.execute("CREATE TABLE t AS SELECT i % 4 AS a, i % 2 AS b, i % 3 AS c, "
+    ...                 "i % 2 = 0 AS y FROM range(120) r(i)")
+    >>> r = redundancy(con, target="y", table="t")
+    >>> [(p.first, p.second, round(p.mutual_information, 6)) for p in r.matrix.ordered()]
+    [('a', 'b', 1.0), ('a', 'c', 0.0), ('b', 'c', 0.0)]
+    """
+    with session_for(source, table) as session:
+        mark = session.mark()
+        spec, ranking = rank_on_session(session, target, options)
+        matrix = measure_matrix(session.engine, spec, ranking, batch_pairs=batch_pairs)
+        statements, notes = session.statements_since(mark), session.notes
+    flagged = flagged_candidates_note(ranking, matrix.attributes)
+    if flagged:
+        notes.append(flagged)
+    ranking.statements = statements
+    return Redundancy(ranking=ranking, matrix=matrix, missing=spec.options.missing,
+                      statements=statements, notes=notes)

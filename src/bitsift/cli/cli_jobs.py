@@ -1,0 +1,122 @@
+"""The scheduled-run commands: ``bitsift run``, ``bitsift drift`` and ``bitsift models``.
+
+Registered on the ``bitsift`` group by cli.py. Like the rest of the CLI they only parse options,
+call the library and print.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from bitsift.cli.cli_options import print_notes
+from bitsift.jobs import drift as drift_lib
+from bitsift.jobs.history import DEFAULT_TABLE, Destination
+from bitsift.jobs.job_run import check_run_id, preflight, run_job
+from bitsift.jobs.jobfile import load_job
+from bitsift.jobs.models import write_models
+from bitsift.names import one_line
+from bitsift.numformat import format_bits
+from bitsift.run.result import SEGMENT_STATUS, Ranking, SegmentedRanking, segment_label
+from bitsift.sql.dialects import CAPABILITIES
+
+
+@click.command("run")
+@click.argument("job_file", type=click.Path(dir_okay=False))
+@click.option("--run-id", help="Id of this run (default: the start time, UTC). Running again "
+              "with the same id replaces that run's rows.")
+@click.option("--dry-run", is_flag=True,
+              help="Check the job against its source and results table; rank and write nothing.")
+def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
+    """Run every ranking of JOB_FILE and append the results to its history table.
+
+    All rows of a run are written in one transaction: a run that fails writes nothing.
+    """
+    job = load_job(job_file)
+    where = f"{job.destination.table} in {job.destination.display}"
+    if dry_run:
+        preflight(job, run_id=check_run_id(run_id) if run_id is not None else None)
+        click.echo(f"job {job.name}: {len(job.rankings)} ranking(s) checked, results table {where}"
+                   " is usable; nothing was ranked or written")
+        return
+    result = run_job(job, run_id)
+    # Each ranking's notes (columns left out...), once each, as rank prints them.
+    print_notes(list(dict.fromkeys(n for _, ranked in result.rankings for n in ranked.notes)))
+    stamp = result.run_at.strftime("%Y-%m-%d %H:%M:%S UTC")
+    click.echo(f"job {job.name}, run {result.run_id} ({stamp})")
+    for ranking, ranked in result.rankings:
+        if isinstance(ranked, SegmentedRanking):
+            # Table and column names may hold control characters: one line each, escaped.
+            click.echo(one_line(f"  {ranking.name}: {ranked.table}, target {ranked.target}, by "
+                                f"{', '.join(ranked.by)}: {len(ranked.segments)} segments"))
+            for part in ranked.segments:
+                click.echo(one_line(f"    {segment_label(part.segment)}: {_ranked_line(part)}"))
+            continue
+        click.echo(one_line(f"  {ranking.name}: {ranked.table}, target {ranked.target}, "
+                            f"{_ranked_line(ranked)}"))
+    click.echo(f"wrote {result.rows_written} rows to {where}")
+
+
+def _ranked_line(ranked: Ranking) -> str:
+    if ranked.status != "ok":
+        return f"{ranked.rows:,} rows, {SEGMENT_STATUS[ranked.status]}"
+    top = ", ".join(f"{s.attribute} {format_bits(s.information_gain)}"
+                    for s in ranked.attributes[:3])
+    return f"{ranked.rows:,} rows, {len(ranked.attributes)} attributes; top IG: {top}"
+
+
+@click.command("drift")
+@click.argument("job_file", required=False, type=click.Path(dir_okay=False))
+@click.option("--results", help="Results destination (DuckDB file or URL), instead of JOB_FILE.")
+@click.option("--results-table", default=DEFAULT_TABLE, show_default=True,
+              help="History table, with --results.")
+@click.option("--job", "job_name", help="Job name (default: the job file's).")
+@click.option("--old", help="Run id of the older run (needs --new).")
+@click.option("--new", help="Run id of the newer run (default: the newest).")
+@click.option("--ig-change", type=float, default=0.01, show_default=True,
+              help="Information gain move, in bits, that counts as drift.")
+@click.option("--rank-change", type=int, default=3, show_default=True,
+              help="Move in the ranking, in places, that counts as drift.")
+@click.option("--format", "-f", "fmt", type=click.Choice(["text", "json"]), default="text",
+              show_default=True)
+def drift_command(job_file: str | None, results: str | None, results_table: str,
+                  job_name: str | None, old: str | None, new: str | None, ig_change: float,
+                  rank_change: int, fmt: str) -> None:
+    """Compare the two newest runs of a job (or --old and --new) in its history table.
+
+    Exits 3 when an attribute's information gain or rank moved beyond the thresholds, or an
+    attribute appeared, disappeared, gained or lost a flag; 0 otherwise.
+    """
+    if job_file:
+        job = load_job(job_file)
+        destination = job.destination
+        name = job_name or job.name
+    elif results and job_name:
+        destination = Destination(results, results_table)
+        name = job_name
+    else:
+        raise click.UsageError("give a JOB_FILE, or --results and --job")
+    thresholds = drift_lib.DriftThresholds(ig_change=ig_change, rank_change=rank_change)
+    report = drift_lib.drift(destination, name, old=old, new=new, thresholds=thresholds)
+    render = drift_lib.render_json if fmt == "json" else drift_lib.render_text
+    click.echo(render(report), nl=False)
+    if report.drifted:
+        sys.exit(drift_lib.DRIFT_EXIT_CODE)
+
+
+@click.command("models")
+@click.argument("job_file", type=click.Path(dir_okay=False))
+@click.option("--dialect", "-d", type=click.Choice(sorted(CAPABILITIES), case_sensitive=False),
+              help="SQL dialect to write (default: the source's).")
+@click.option("--out", "-o", "out_dir", required=True, type=click.Path(file_okay=False),
+              help="Folder for the .sql files (created if missing).")
+def models_command(job_file: str, dialect: str | None, out_dir: str) -> None:
+    """Write one plain-SELECT .sql file per ranking of JOB_FILE, for SQL schedulers."""
+    job = load_job(job_file)
+    for model in write_models(job, out_dir, dialect.lower() if dialect else None):
+        click.echo(f"{model.path}  (ranking {model.ranking})")
+
+
+#: Added to the ``bitsift`` group by cli.py.
+JOB_COMMANDS: tuple[click.Command, ...] = (run_command, drift_command, models_command)

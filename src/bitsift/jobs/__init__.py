@@ -1,0 +1,1 @@
+"""Scheduled runs: job files, the results history, drift between runs, model cards."""

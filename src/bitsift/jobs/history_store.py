@@ -1,0 +1,183 @@
+"""The open results destination's common part: the store interface, its schema checks, and
+the waiting and Ctrl-C handling every engine family's store shares."""
+
+from __future__ import annotations
+
+import time
+from abc import ABC, abstractmethod
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from typing import Any
+
+import duckdb
+
+from bitsift.jobs.history import (
+    COLUMN_NAMES,
+    SCHEMA_VERSION,
+    Destination,
+    HistoryError,
+    RunInfo,
+    compatibility_problems,
+)
+from bitsift.version import __version__
+
+#: How long a run waits for another run writing the same history table (or holding the DuckDB
+#: file) before it gives up with one line. A write itself takes well under a second.
+WRITE_WAIT_SECONDS = 60.0
+
+
+class HistoryStore(ABC):
+    """A results destination, open. Use :func:`open_store`."""
+
+    def __init__(self, destination: Destination) -> None:
+        self.destination = destination
+        self.table = destination.table_name()
+
+    @abstractmethod
+    def existing_columns(self) -> dict[str, str] | None:
+        """Column name -> type family of the existing table, or None when there is none."""
+
+    @abstractmethod
+    def newest_schema_version(self) -> int | None:
+        """The highest schema_version stored, or None for an empty table."""
+
+    @abstractmethod
+    def replace_run(self, job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> int:
+        """In one transaction, with the table's other writers waiting: create the table if
+        missing, delete the run, insert ``rows``."""
+
+    @abstractmethod
+    def runs(self, job: str) -> list[RunInfo]:
+        """The job's runs, newest first."""
+
+    @abstractmethod
+    def read(self, job: str, run_ids: Iterable[str]) -> list[dict[str, Any]]:
+        """Every row of the given runs of ``job``."""
+
+    def close(self) -> None:  # noqa: B027 - optional hook
+        """Release the connection."""
+
+    def __enter__(self) -> HistoryStore:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def check(self) -> bool:
+        """Raise :class:`HistoryError` if the table exists and is incompatible.
+
+        Returns whether the table exists.
+        """
+        existing = self.existing_columns()
+        if existing is None:
+            # The write would create the table there: a missing schema would fail it after
+            # the ranking work.
+            if not self.schema_exists():
+                raise HistoryError(
+                    f"results table {self.destination.table} in {self.destination.display}: "
+                    f"schema {self.table.db} does not exist; create it, or choose another "
+                    "results table"
+                )
+            return False
+        self._verify(existing, self.newest_schema_version)
+        return True
+
+    def schema_exists(self) -> bool:
+        """Whether the table's schema exists (True for an unqualified table)."""
+        return True
+
+    def column_widths(self) -> dict[str, int]:
+        """Column name -> the most characters it holds, for the columns that have a limit."""
+        return {}
+
+    @staticmethod
+    def _check_keys(job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> None:
+        """Refuse rows of another job or run: they would not replace the run being deleted
+        but sit beside it, and be doubled by the next rerun."""
+        for row in rows:
+            if row["job"] != job or row["run_id"] != run_id:
+                raise HistoryError(
+                    f"rows of job {row['job']!r}, run {row['run_id']!r} cannot be written as "
+                    f"job {job!r}, run {run_id!r}; nothing was written"
+                )
+
+    def width_problems(self, values: Mapping[str, Iterable[str]]) -> list[str]:
+        """One line per column that a value to be written does not fit (checked before the
+        ranking work, which such a write would throw away); empty when everything fits."""
+        widths = self.column_widths()
+        problems = []
+        for name in COLUMN_NAMES:
+            limit = widths.get(name)
+            if limit is None or name not in values:
+                continue
+            # sorted first: of equally long values, always the same one is named.
+            longest = max(sorted(values[name]), key=len, default="")
+            if len(longest) > limit:
+                shown = longest if len(longest) <= 40 else longest[:40] + "..."
+                problems.append(
+                    f"results table {self.destination.table} in {self.destination.display}: "
+                    f"column {name} holds at most {limit} characters, but {shown!r} has "
+                    f"{len(longest)}; widen the column (for example to TEXT) or choose "
+                    "another results table"
+                )
+        return problems
+
+    def _verify(self, existing: Mapping[str, str], newest_version: Callable[[], int | None]
+                ) -> None:
+        problems = compatibility_problems(existing)
+        where = f"{self.destination.table} in {self.destination.display}"
+        if problems:
+            raise HistoryError(
+                f"results table {where} is not a bitsift history table of schema version "
+                f"{SCHEMA_VERSION}: " + "; ".join(problems)
+                + ". bitsift never alters an existing table: choose another results table, "
+                "or migrate this one yourself (the schema is in docs/scheduled-runs.md)"
+            )
+        newest = newest_version()
+        if newest is not None and newest > SCHEMA_VERSION:
+            raise HistoryError(
+                f"results table {where} holds rows of schema version {newest}, written by a "
+                f"newer bitsift; this is bitsift {__version__} (schema version {SCHEMA_VERSION})"
+            )
+
+
+def _rows_to_dicts(names: Sequence[str], rows: Iterable[Sequence[Any]]) -> list[dict[str, Any]]:
+    return [dict(zip(names, row, strict=True)) for row in rows]
+
+
+def _wait_until(attempt: Callable[[], bool], seconds: float) -> bool:
+    """Call ``attempt`` until it returns True (then True), pausing a little longer each time,
+    or until ``seconds`` have passed (then False)."""
+    deadline = time.monotonic() + seconds
+    pause = 0.01
+    while not attempt():
+        if time.monotonic() >= deadline:
+            return False
+        time.sleep(pause)
+        pause = min(pause * 2, 0.25)
+    return True
+
+
+def _interrupted(error: BaseException) -> bool:
+    """Whether ``error`` is DuckDB reporting Ctrl-C during a statement: it raises
+    ``RuntimeError("Query interrupted")`` (or InterruptException), not KeyboardInterrupt."""
+    return isinstance(error, duckdb.InterruptException) or (
+        isinstance(error, RuntimeError) and "interrupted" in str(error).lower()
+    )
+
+
+@contextmanager
+def _ctrl_c_as_interrupt() -> Iterator[None]:
+    """Turn DuckDB's report of Ctrl-C into KeyboardInterrupt, which the CLI reports as
+    "Interrupted." with exit code 130."""
+    try:
+        yield
+    except (duckdb.Error, RuntimeError) as error:
+        if _interrupted(error):
+            raise KeyboardInterrupt from None
+        raise
+
+
+def _newest_first(runs: Iterable[RunInfo]) -> list[RunInfo]:
+    # Ties on run_at (coarse clocks) fall back to the run id, which is time-based by default.
+    return sorted(runs, key=lambda r: (r.run_at, r.run_id), reverse=True)

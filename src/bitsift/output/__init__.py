@@ -1,0 +1,1 @@
+"""Rendering results: text tables, JSON/CSV/markdown, the HTML report."""

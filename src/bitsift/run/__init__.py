@@ -1,0 +1,1 @@
+"""Running a ranking on a session: cuts, parts, counts read out into scores."""

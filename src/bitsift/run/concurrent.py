@@ -1,0 +1,212 @@
+"""Run mode over a small pool of sessions: the attributes cut into parts, the parts in parallel.
+
+Each part is a spec narrowed to some of the attributes; its job is bitsift's usual statements
+for that spec (the quantile boundaries of its numeric attributes, then the ranking statement;
+where the dialect counts quantile bins from cells, those attributes make a part of their own,
+:mod:`bitsift.run.quantile_counts`), run on one session of the pool. The parts run on
+``sessions`` sessions at once, so the engine works on several statements together: on DuckDB
+they share its thread pool (and one part's round trips overlap another's statements); on
+PostgreSQL each session is a server process. The numbers are those of the one-statement
+ranking; only the cutting of the work differs.
+
+Only run mode uses this (``bitsift sql`` prints one statement), and only on sessions bitsift
+opened itself: a caller's connection may hold temporary tables, an open transaction or a
+DataFrame scanned by name, none of which a second session would see.
+
+The ``run_sessions`` field of the capability table turns it on per dialect; the measurements
+behind each choice are in benchmarks/RESULTS.md.
+"""
+
+from __future__ import annotations
+
+import queue
+import time
+from collections.abc import Iterator, Sequence
+from concurrent.futures import FIRST_EXCEPTION, Future, ThreadPoolExecutor, wait
+from contextlib import contextmanager
+from dataclasses import dataclass, replace
+
+from bitsift.engines.base import Engine
+from bitsift.run import quantile_counts, quantiles
+from bitsift.run.cuts import fetch_cuts
+from bitsift.run.parts import Record, merge_parts
+from bitsift.spec.rankspec import AttributeSpec, RankSpec
+from bitsift.sql.sqlbuild import rank_statement
+
+#: Seconds between two cancels of the sessions still running after a failure or Ctrl-C.
+CANCEL_RETRY = 0.25
+#: How long bitsift keeps cancelling before it leaves the sessions to end on their own.
+STOP_WITHIN = 30.0
+
+#: Relative cost of an attribute in a part: a numeric one adds a quantile pre-pass and binning.
+_WEIGHT = {"numeric": 4, "categorical": 1}
+
+
+def sessions_for(engine: Engine, spec: RankSpec) -> int:
+    """How many sessions the ranking of ``spec`` runs on (1: one statement, as usual)."""
+    if len(spec.attributes) < 2 or not engine.can_open_siblings():
+        return 1
+    return max(1, min(engine.caps.run_sessions, len(spec.attributes)))
+
+
+@dataclass(frozen=True)
+class SessionPool:
+    """The sessions of one ranking, and a queue of the idle ones."""
+
+    members: list[Engine]
+    idle: queue.Queue[Engine]
+
+    def cancel(self) -> None:
+        """Cancel every session's running statement (DuckDB ``interrupt()``, PostgreSQL's
+        cancel request, MariaDB ``KILL QUERY``) and make each refuse its next one."""
+        for member in self.members:
+            member.cancel()
+
+
+@contextmanager
+def session_pool(engine: Engine, size: int, timeout: float | None) -> Iterator[SessionPool]:
+    """``engine`` and ``size - 1`` sibling sessions; the siblings close afterwards."""
+    siblings: list[Engine] = []
+    try:
+        for _ in range(size - 1):
+            siblings.append(engine.open_sibling(timeout))
+        idle: queue.Queue[Engine] = queue.Queue()
+        for member in [engine, *siblings]:
+            idle.put(member)
+        yield SessionPool(members=[engine, *siblings], idle=idle)
+    finally:
+        for sibling in siblings:
+            sibling.close()
+
+
+def split(attributes: Sequence[AttributeSpec], parts: int,
+          max_size: int | None = None) -> list[list[int]]:
+    """Attribute positions cut into at most ``parts`` groups of about equal cost.
+
+    Heaviest first onto the lightest group that has room (the LPT rule); no group gets more
+    than ``max_size`` attributes (give enough ``parts`` for them all); each keeps table order.
+
+    >>> from bitsift.spec.rankspec import AttributeSpec
+    >>> kinds = ["numeric", "categorical", "categorical", "numeric", "categorical"]
+    >>> split([AttributeSpec(f"a{i}", k, "") for i, k in enumerate(kinds)], 2)
+    [[0, 1, 4], [2, 3]]
+    """
+    count = max(1, min(parts, len(attributes)))
+    if max_size is not None and count * max_size < len(attributes):
+        raise ValueError(f"{len(attributes)} attributes do not fit in {count} x {max_size}")
+    groups: list[list[int]] = [[] for _ in range(count)]
+    loads = [0] * count
+    for i in sorted(range(len(attributes)), key=lambda i: -_WEIGHT[attributes[i].kind]):
+        room = [g for g in range(count) if max_size is None or len(groups[g]) < max_size]
+        lightest = min(room, key=lambda g: loads[g])
+        groups[lightest].append(i)
+        loads[lightest] += _WEIGHT[attributes[i].kind]
+    return [sorted(group) for group in groups if group]
+
+
+@dataclass(frozen=True)
+class PartResult:
+    """One part's boundaries and result rows (``attribute_index`` local to the part)."""
+
+    cuts: dict[str, list[float]]
+    records: list[Record]
+
+
+def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
+    """The statements of one part on one session: the boundaries pre-pass and the ranking
+    statement, or, where the dialect's ``run_quantile`` is "counted", the attributes binned
+    by quantile ranked from bucket counts (:mod:`bitsift.run.quantile_counts`)."""
+    if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
+        records, cuts = quantile_counts.rank_counted(engine, spec)
+        return PartResult(cuts=cuts, records=records)
+    cuts = fetch_cuts(engine, spec)
+    records = engine.fetch(rank_statement(spec, engine.caps, cuts).sql).records()
+    return PartResult(cuts=cuts, records=records)
+
+
+def _run_on_pool(pool: SessionPool, spec: RankSpec) -> PartResult:
+    member = pool.idle.get()
+    try:
+        return rank_part(member, spec)
+    finally:
+        pool.idle.put(member)
+
+
+def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> list[list[int]]:
+    """The parts' attribute positions. Where attributes binned by quantile are ranked from
+    bucket counts, they make parts of their own (their statements read only their columns),
+    the other attributes share the other sessions."""
+    counted: list[int] = []
+    if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
+        counted = [i - 1 for i in quantiles.quantile_indexes(spec)]
+    others = [i for i in range(len(spec.attributes)) if i not in counted]
+    if not counted or not others:
+        parts = max(sessions, -(-len(spec.attributes) // max_size))
+        return split(spec.attributes, parts, max_size)
+    parts = max(sessions - 1, -(-len(others) // max_size))
+    shared = split([spec.attributes[i] for i in others], parts, max_size)
+    own = [counted[at:at + max_size] for at in range(0, len(counted), max_size)]
+    return [[others[i] for i in group] for group in shared] + own
+
+
+def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_size: int,
+                           ) -> tuple[list[Record], dict[str, list[float]]]:
+    """Result rows and cut points of the ranking, as :func:`bitsift.run.api.fetch_records` returns
+    them, computed in parts run at once on ``sessions`` sessions.
+
+    The attributes are cut into ``sessions`` parts of about equal cost (more if one part would
+    hold more than ``max_size`` attributes; see :func:`_groups`); each part is ranked by
+    :func:`rank_part` on the spec narrowed to it.
+    """
+    groups = _groups(engine, spec, sessions, max_size)
+    narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
+    size = max(1, min(sessions, len(narrowed)))
+    if size == 1:
+        return _merge(groups, [rank_part(engine, part) for part in narrowed])
+    with session_pool(engine, size, spec.options.timeout) as pool, ThreadPoolExecutor(
+        max_workers=size, thread_name_prefix="bitsift"
+    ) as executor:
+        futures = [executor.submit(_run_on_pool, pool, part) for part in narrowed]
+        results = _results(futures, pool)
+    return _merge(groups, results)
+
+
+def _results(futures: list[Future[PartResult]], pool: SessionPool) -> list[PartResult]:
+    """The parts' results in order, or the first part's failure once every other session's
+    statement is stopped; on Ctrl-C or SIGTERM too (a KeyboardInterrupt in this thread).
+
+    Waits for the first failure, not for the parts in order: a failed second session must not
+    wait for the first one's statement to run to its end.
+    """
+    try:
+        wait(futures, return_when=FIRST_EXCEPTION)
+    except BaseException:
+        _stop(futures, pool)
+        raise
+    failed = [f for f in futures if f.done() and not f.cancelled() and f.exception() is not None]
+    if failed:
+        _stop(futures, pool)
+        raise failed[0].exception()  # type: ignore[misc]  # checked above: not None
+    return [future.result() for future in futures]
+
+
+def _stop(futures: list[Future[PartResult]], pool: SessionPool) -> None:
+    """Drop the parts not started and cancel the running ones, again until they have ended:
+    a cancel that lands while a session is between two statements stops neither."""
+    for future in futures:
+        future.cancel()
+    deadline = time.monotonic() + STOP_WITHIN
+    while time.monotonic() < deadline:
+        pool.cancel()
+        if not wait(futures, timeout=CANCEL_RETRY).not_done:
+            return
+def _merge(groups: list[list[int]], results: list[PartResult],
+           ) -> tuple[list[Record], dict[str, list[float]]]:
+    """One statement's rows and cut points from the parts' (``groups``: each part's attribute
+    positions in the whole spec, from 0)."""
+    cuts: dict[str, list[float]] = {}
+    for result in results:
+        cuts.update(result.cuts)
+    records = merge_parts(([i + 1 for i in group], result.records)
+                          for group, result in zip(groups, results, strict=True))
+    return records, cuts

@@ -1,0 +1,165 @@
+"""The Python post-pass: p-values, trust flags and sorting, from the database's aggregate rows."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any
+
+import numpy as np
+from numpy.typing import ArrayLike
+from scipy import stats
+
+from bitsift.run.result import AttributeScore
+from bitsift.spec.rankspec import Thresholds
+
+FLAG_DESCRIPTIONS: dict[str, str] = {
+    "id_like": "distinct values close to the row count: an identifier, its IG is an artefact",
+    "constant": "one value only: tells nothing (gain ratio reported as 0)",
+    "near_perfect": "IG >= 95% of H(Y): possible target leakage, check how it is recorded",
+    "high_cardinality": "more values than the cap: IG is inflated, read the gain ratio",
+}
+
+
+#: Every metric in bits, and every ratio of them, is rounded to this many decimal places
+#: (1e-12). The ranking statement sums exactly (templates/sums.sql.j2), so one engine gives
+#: the same floats for the same counts on every run; rounding also removes what is left of
+#: floating-point residue (an IG of 4e-15 for a column that tells nothing is 0) and of
+#: engines' LN differing in the last bit, and it makes ties exact ties (ordered by name).
+RESOLUTION_DIGITS = 12
+#: Unbounded values (the G statistic, weight totals) keep this many significant digits.
+SIGNIFICANT_DIGITS = 13
+
+
+def snap(value: float) -> float:
+    """``value`` rounded to :data:`RESOLUTION_DIGITS` decimal places, -0.0 as 0.0.
+
+    >>> snap(3.99e-15), snap(0.19292975178524840), snap(0.19292975178525296), snap(-1e-16)
+    (0.0, 0.192929751785, 0.192929751785, 0.0)
+    """
+    return round(float(value), RESOLUTION_DIGITS) + 0.0
+
+
+def snap_total(value: float) -> float:
+    """An unbounded value rounded to :data:`SIGNIFICANT_DIGITS` significant digits.
+
+    >>> snap_total(1234.5678901234567), snap_total(-0.0)
+    (1234.567890123, 0.0)
+    """
+    return float(f"{float(value):.{SIGNIFICANT_DIGITS}g}") + 0.0
+
+
+def p_value(g_statistic: float, dof: int) -> float:
+    """Chi-square survival function of the G statistic; 1.0 when there is no freedom.
+
+    >>> round(p_value(3.841458820694124, 1), 6)
+    0.05
+    """
+    if dof <= 0 or not math.isfinite(g_statistic):
+        return 1.0
+    return float(stats.chi2.sf(max(g_statistic, 0.0), dof))
+
+
+def flags_for(distinct: int, rows: int, information_gain: float, target_entropy: float,
+              thresholds: Thresholds) -> list[str]:
+    """The trust flags of one attribute (see :data:`FLAG_DESCRIPTIONS`)."""
+    flags = []
+    if distinct > thresholds.id_min_values and distinct >= thresholds.id_like_ratio * rows:
+        flags.append("id_like")
+    if distinct <= 1:
+        flags.append("constant")
+    if target_entropy > 0 and information_gain >= thresholds.near_perfect_ratio * target_entropy:
+        flags.append("near_perfect")
+    if distinct > thresholds.high_cardinality:
+        flags.append("high_cardinality")
+    return flags
+
+
+def _n_ln_n(counts: np.ndarray) -> float:
+    """The sum of n ln n over the positive counts, exactly rounded (so in any order the same)."""
+    positive = counts[counts > 0]
+    return math.fsum((positive * np.log(positive)).tolist())
+
+
+def table_row(table: ArrayLike) -> dict[str, Any] | None:
+    """The fields the ranking statement computes for one attribute, from its value x class
+    counts counted beforehand (rows: values, columns: classes; rows without a target and, with
+    ``--missing drop``, the NULL value left out). None when no row is counted, where the
+    statement returns no row either.
+
+    The same formulas as templates/rank.sql.j2 (sums of n ln n, exactly summed) rather than
+    the reference's p log p form, so both paths agree to the last bits before :func:`score`
+    snaps them. The target's own row is the table of its classes alone (one value: IG 0).
+
+    >>> row = table_row([[2, 3], [4, 0], [3, 2]])  # a 3-valued attribute, 9/5 classes
+    >>> row["distinct_values"], row["dof"], round(row["information_gain"], 3)
+    (3, 2, 0.247)
+    """
+    t = np.atleast_2d(np.asarray(table, dtype=float))
+    n_x, n_y = t.sum(axis=1), t.sum(axis=0)
+    n_total = math.fsum(n_x.tolist())
+    if n_total <= 0:
+        return None
+    n_values, n_classes = int((n_x > 0).sum()), int((n_y > 0).sum())
+    s_xy, s_x, s_y = _n_ln_n(t.ravel()), _n_ln_n(n_x), _n_ln_n(n_y)
+    ln_n, ln_2 = math.log(n_total), math.log(2)
+    h_y = (ln_n - s_y / n_total) / ln_2 if n_classes > 1 else 0.0
+    h_x = (ln_n - s_x / n_total) / ln_2 if n_values > 1 else 0.0
+    gain = h_y - (s_x - s_xy) / n_total / ln_2
+    ig = gain if n_values > 1 and gain > 0 else 0.0
+    return {
+        "rows_used": int(n_total),
+        "distinct_values": n_values,
+        "classes": n_classes,
+        "target_entropy": h_y,
+        "attribute_entropy": h_x,
+        "conditional_entropy": h_y - ig,
+        "information_gain": ig,
+        "gain_ratio": ig / h_x if n_values > 1 else 0.0,
+        "symmetric_uncertainty": 2 * ig / (h_x + h_y) if h_x + h_y > 0 else 0.0,
+        "g_statistic": 2 * n_total * ln_2 * ig,
+        "dof": (n_values - 1) * (n_classes - 1),
+    }
+
+
+def score(row: Mapping[str, Any], name: str, kind: str, thresholds: Thresholds,
+          cuts: Sequence[float] | None = None) -> AttributeScore:
+    """Build one :class:`AttributeScore` from a result row of the ranking statement.
+
+    Every metric is snapped (:func:`snap`; G by :func:`snap_total`) before anything sorts,
+    flags or stores it, and the p-value is computed from the snapped G. An IG that snaps to 0
+    zeroes the gain ratio, SU and G with it, so no field keeps the residue the others lost.
+    """
+    distinct = int(row["distinct_values"])
+    rows = int(row["rows_used"])
+    dof = int(row["dof"])
+    ig = snap(row["information_gain"])
+    h_y = snap(row["target_entropy"])
+    informative = ig > 0
+
+    def derived(key: str, rounding: Callable[[float], float] = snap) -> float:
+        return rounding(row[key]) if informative else 0.0
+
+    g = derived("g_statistic", snap_total)
+    return AttributeScore(
+        attribute=name,
+        kind=kind,
+        distinct=distinct,
+        information_gain=ig,
+        gain_ratio=derived("gain_ratio"),
+        symmetric_uncertainty=derived("symmetric_uncertainty"),
+        conditional_entropy=snap(row["conditional_entropy"]) if informative else h_y,
+        attribute_entropy=snap(row["attribute_entropy"]),
+        g_statistic=g,
+        dof=dof,
+        p_value=p_value(g, dof),
+        flags=flags_for(distinct, rows, ig, h_y, thresholds),
+        rows=rows,
+        target_entropy=h_y,
+        cuts=list(cuts) if cuts is not None else None,
+    )
+
+
+def sort_scores(scores: list[AttributeScore], metric: str) -> list[AttributeScore]:
+    """Descending by ``metric``, ties broken by attribute name for a stable order."""
+    return sorted(scores, key=lambda s: (-getattr(s, metric), s.attribute))

@@ -1,0 +1,265 @@
+"""Quantile-binned attributes ranked in run mode from bucket counts, never binned row by row.
+
+:mod:`bitsift.run.quantiles` finds exact quantile cut points without sorting a column; the ranking
+statement then bins every row with a CASE over those cut points, which on DuckDB costs as
+much as the counting itself (benchmarks/RESULTS.md). Here one scan counts each attribute's
+rows per (equal-width bucket, class), and that serves both the search for the cut points and
+the bins' counts:
+
+1. ``quantile_ranges.sql.j2``: the lowest and highest value (free on DuckDB);
+2. ``quantile_cells.sql.j2``: rows per (bucket, class), NULL values and NULL targets included;
+3. ``quantile_splits.sql.j2``: in the few buckets holding a wanted rank, that rank's value
+   ``v`` and, per class, the bucket's rows below ``v`` and equal to it;
+4. the ranking statement's own formulas, computed here from the counts already in the client
+   (:func:`bitsift.run.metrics.table_row`): no statement sends them back to the database, so
+   their number is not capped and every dialect that runs steps 1-3 can count this way.
+
+Why it is exact: the bucket ``FLOOR((value - lo) * scale)`` never decreases as the value
+grows, so every row of an earlier bucket lies below a later bucket's values, and equal values
+share a bucket. A cut point ``c`` interpolated between the order statistics ``v[k]`` and
+``v[k + 1]`` (:func:`bitsift.run.quantiles.interpolate`, ``v[k] <= c <= v[k + 1]``) has below it
+the buckets before ``v[k]``'s, the rows of that bucket below ``v[k]``, and the rows equal to
+``v[k]`` when ``v[k] < c`` (no value lies strictly between two consecutive order statistics).
+A bin's count per class is then the difference of two such counts: the counts the ranking
+statement finds with ``CASE WHEN value < c ...``, to the row.
+
+Where step 2 shows an infinite or NaN value, or step 3 a bucket whose rows changed (the table
+changed in between), the attribute is ranked the usual way (:func:`bitsift.run.cuts.fetch_cuts`,
+then the ranking statement). Segments (``--by``) and weights take the usual way too.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import defaultdict
+from collections.abc import Hashable, Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+from bitsift.engines.base import Engine
+from bitsift.run.cuts import fetch_cuts
+from bitsift.run.metrics import table_row
+from bitsift.run.parts import Record, merge_parts
+from bitsift.run.quantiles import Plan, fetch_plans, interpolate, quantile_indexes
+from bitsift.spec.rankspec import RankSpec
+from bitsift.sql.sqlbuild import rank_statement
+from bitsift.sql.sqlstatements import quantile_cells_statement, quantile_splits_statement
+
+#: A class as Python sees it (NaN made equal to NaN, as the engines group it); None: NULL.
+ClassKey = Hashable
+PerClass = dict[ClassKey, int]
+
+class _NaN:
+    """The one key of every NaN class value (NaN never equals itself in Python)."""
+
+    def __repr__(self) -> str:
+        return "NaN"
+
+
+_NAN = _NaN()
+
+
+def class_key(value: Any) -> ClassKey:
+    return _NAN if isinstance(value, float) and math.isnan(value) else value
+
+
+def counts_apply(spec: RankSpec) -> bool:
+    """Whether the attributes binned by quantile can be ranked from bucket counts."""
+    return not spec.by and not spec.weight and bool(quantile_indexes(spec))
+
+
+@dataclass
+class Cells:
+    """Step 2's counts of one attribute (rows with a target only, except ``all_rows``)."""
+
+    plan: Plan
+    #: bucket -> class -> rows, for rows with a value.
+    buckets: dict[int, PerClass] = field(default_factory=lambda: defaultdict(dict))
+    #: class -> rows without a value.
+    missing: PerClass = field(default_factory=dict)
+    #: class (None included) -> rows, every row: the target's own counts.
+    all_rows: PerClass = field(default_factory=dict)
+
+    def totals(self) -> PerClass:
+        found: PerClass = defaultdict(int)
+        for per_class in self.buckets.values():
+            for key, n in per_class.items():
+                found[key] += n
+        return found
+
+    def before(self, bucket: int) -> PerClass:
+        """Rows per class in the buckets before ``bucket``."""
+        found: PerClass = defaultdict(int)
+        for b, per_class in self.buckets.items():
+            if b < bucket:
+                for key, n in per_class.items():
+                    found[key] += n
+        return found
+
+
+@dataclass(frozen=True)
+class Split:
+    """Step 3's row for one wanted (bucket, position)."""
+
+    value: float
+    bucket_rows: int
+    less: PerClass
+    equal: PerClass
+
+
+def _add(into: PerClass, key: ClassKey, n: int) -> None:
+    into[key] = into.get(key, 0) + n
+
+
+def _cells(engine: Engine, spec: RankSpec, plans: Mapping[int, Plan]) -> dict[int, Cells]:
+    """Step 2, read; an attribute showing a bucket that is not a finite number is unusable."""
+    shapes = {i: (p.low, p.scale) for i, p in plans.items()}
+    cells = {i: Cells(plan=p) for i, p in plans.items()}
+    for record in engine.fetch(quantile_cells_statement(spec, engine.caps, shapes).sql).records():
+        found = cells[int(record["attribute_index"])]
+        key, bucket, n = class_key(record["y"]), record["bucket"], int(record["n"])
+        _add(found.all_rows, key, n)
+        if bucket is not None and not (isinstance(bucket, int | float) and math.isfinite(bucket)):
+            found.plan.usable = False
+        elif key is None:
+            continue
+        elif bucket is None:
+            _add(found.missing, key, n)
+        else:
+            _add(found.buckets[int(bucket)], key, n)
+    for found in cells.values():
+        found.plan.bucket_rows = {b: sum(c.values()) for b, c in found.buckets.items()}
+    return cells
+
+
+def _splits(engine: Engine, spec: RankSpec, searched: Mapping[int, Plan],
+            ) -> dict[tuple[int, int, int], Split]:
+    """Step 3, read: (attribute, bucket, position) -> its value and its bucket's split."""
+    shapes = {i: (p.low, p.scale) for i, p in searched.items()}
+    picks = {i: plan.picks() for i, plan in searched.items()}
+    statement = quantile_splits_statement(spec, engine.caps, shapes, picks)
+    found: dict[tuple[int, int, int], Split] = {}
+    for record in engine.fetch(statement.sql).records():
+        where = (int(record["attribute_index"]), int(record["bucket"]), int(record["position"]))
+        split = found.setdefault(where, Split(float(record["v"]), int(record["bucket_rows"]),
+                                              {}, {}))
+        key = class_key(record["y"])
+        _add(split.less, key, int(record["n_less"]))
+        _add(split.equal, key, int(record["n_equal"]))
+    return found
+
+
+def _bins(cells: Cells, splits: Mapping[tuple[int, int, int], Split],
+          ) -> tuple[list[float], list[PerClass]] | None:
+    """Cut points and rows per class of each bin (bin j: the values from cut j - 1 up to
+    cut j), or None when step 3 does not match step 2. The plan's levels are planned
+    (:meth:`~bitsift.run.quantiles.Plan.plan_levels`) unless it has one value or none."""
+    plan = cells.plan
+    totals = cells.totals()
+    if plan.count == 0:
+        return [], [dict(totals)]
+    if plan.low == plan.high:  # one value: every quantile is that value, no row below it
+        return [plan.low], [{}, dict(totals)]
+    below: dict[float, PerClass] = {}
+    for h, k, k1 in plan.wanted:
+        low_at, high_at = plan.locate(k), plan.locate(k1)
+        low, high = splits.get((plan.index, *low_at)), splits.get((plan.index, *high_at))
+        if low is None or high is None:
+            return None
+        for at, split in ((low_at, low), (high_at, high)):
+            if split.bucket_rows != plan.bucket_rows.get(at[0]):
+                return None  # the table changed between steps 2 and 3
+        cut = interpolate(low.value, high.value, h - k)
+        if cut in below:
+            continue
+        counted = cells.before(low_at[0])
+        for key, n in low.less.items():
+            _add(counted, key, n)
+        if low.value < cut:
+            for key, n in low.equal.items():
+                _add(counted, key, n)
+        below[cut] = counted
+    cuts = sorted(below)
+    bounds = [below[c] for c in cuts] + [totals]
+    counts: list[PerClass] = []
+    previous: PerClass = {}
+    for bound in bounds:
+        counts.append({k: bound.get(k, 0) - previous.get(k, 0)
+                       for k in set(bound) | set(previous)})
+        previous = bound
+    if any(n < 0 for per_class in counts for n in per_class.values()):
+        return None  # cannot happen with consistent steps: never trust it silently
+    return cuts, counts
+
+
+def _table(per_value: Sequence[PerClass], classes: Sequence[ClassKey]) -> list[list[int]]:
+    """Value x class counts: one row per value, one column per class of ``classes``."""
+    return [[per_class.get(key, 0) for key in classes] for per_class in per_value]
+
+
+def _counted_records(spec: RankSpec, indexes: Sequence[int], cells: Mapping[int, Cells],
+                     binned: Mapping[int, tuple[list[float], list[PerClass]]]) -> list[Record]:
+    """The ranking statement's rows (the target's, then each attribute's, numbered 1..K in
+    ``indexes`` order) computed here from the counts, by the statement's own formulas
+    (:func:`bitsift.run.metrics.table_row`): the counts are already in the client."""
+    all_rows = cells[indexes[0]].all_rows
+    classes = [key for key in all_rows if key is not None]
+    shared = {"rows_excluded": all_rows.get(None, 0)}
+    tables: list[tuple[int, str, str, list[PerClass]]] = [
+        (0, spec.target, "target", [{k: n for k, n in all_rows.items() if k is not None}])]
+    for position, i in enumerate(indexes, start=1):
+        attribute = spec.attributes[i - 1]
+        per_value = list(binned[i][1])
+        if spec.options.missing != "drop":
+            per_value.append(cells[i].missing)  # NULL: one more value
+        tables.append((position, attribute.name, attribute.kind, per_value))
+    records = []
+    for position, name, kind, per_value in tables:
+        row = table_row(_table(per_value, classes))
+        if row is not None:  # no row counted: the statement has no row for it either
+            records.append({"attribute_index": position, "attribute": name, "kind": kind,
+                            **shared, **row})
+    return records
+
+
+def rank_counted(engine: Engine, spec: RankSpec,
+                 buckets: int | None = None) -> tuple[list[Record], dict[str, list[float]]]:
+    """Result rows (as the ranking statement returns them, ``attribute_index`` numbering
+    ``spec.attributes``, the target's row included) and cut points of every attribute of
+    ``spec``: those binned by quantile from counts, any other the usual way. ``buckets``: as
+    many as :func:`bitsift.run.quantiles.bucket_count` gives for the source's rows, unless given."""
+    indexes = quantile_indexes(spec) if counts_apply(spec) else []
+    plans = fetch_plans(engine, spec, indexes, buckets) if indexes else {}
+    cells = _cells(engine, spec, plans) if plans else {}
+    searched = {i: c.plan for i, c in cells.items()
+                if c.plan.usable and c.plan.count > 0 and c.plan.low != c.plan.high}
+    for i, plan in searched.items():
+        plan.plan_levels(spec.attributes[i - 1].bins or 2)
+    splits = _splits(engine, spec, searched) if searched else {}
+    binned: dict[int, tuple[list[float], list[PerClass]]] = {}
+    for i, found in cells.items():
+        if found.plan.usable:
+            result = _bins(found, splits)
+            if result is not None:
+                binned[i] = result
+    counted = [i for i in indexes if i in binned]
+    parts: list[tuple[list[int], list[Record]]] = []
+    cuts: dict[str, list[float]] = {}
+    if counted:
+        parts.append((counted, _counted_records(spec, counted, cells, binned)))
+        cuts.update({spec.attributes[i - 1].name: binned[i][0] for i in counted})
+    rest = [i for i in range(1, len(spec.attributes) + 1) if i not in counted]
+    if rest:
+        narrowed = replace(spec, attributes=tuple(spec.attributes[i - 1] for i in rest))
+        known = {spec.attributes[i - 1].name: binned[i][0] for i in rest if i in binned}
+        found_cuts = {**fetch_cuts(engine, _without(narrowed, known)), **known}
+        statement = rank_statement(narrowed, engine.caps, found_cuts)
+        parts.append((rest, engine.fetch(statement.sql).records()))
+        cuts.update(found_cuts)
+    return merge_parts(parts), cuts
+
+
+def _without(spec: RankSpec, known: Mapping[str, object]) -> RankSpec:
+    """``spec`` without the attributes whose cut points are ``known`` (none left to find)."""
+    return replace(spec, attributes=tuple(a for a in spec.attributes if a.name not in known))
+

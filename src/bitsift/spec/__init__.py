@@ -1,0 +1,1 @@
+"""What the user asked, checked: options, names, the --where predicate, column types."""

@@ -1,0 +1,457 @@
+"""The ranking request: options as the user gives them, and the spec resolved against a table."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Literal
+
+from sqlglot import exp
+
+from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
+from bitsift.names import resolve_name
+from bitsift.spec.predicate import Predicate, parse_predicate
+from bitsift.spec.schema import NUMERIC_FAMILIES, Column, Kind, refuse_ungroupable
+
+Missing = Literal["category", "drop"]
+SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty")
+MISSING_MODES: tuple[str, ...] = ("category", "drop")
+#: How numeric attributes are cut into bins (see DEVELOPERS.md, "Binning").
+BINNING_METHODS: tuple[str, ...] = ("quantile", "equal-width", "best-split", "mdl")
+#: Parts of a date or timestamp that ``--date-part`` turns into categories.
+DATE_PARTS: tuple[str, ...] = ("year", "month", "dow", "hour")
+#: Column type families holding dates and times (numeric as epoch seconds with --numeric).
+TEMPORAL_FAMILIES: frozenset[str] = frozenset({"date", "timestamp"})
+#: One column's binning override: (column, method, bins or None for the run's --bins).
+ColumnBinning = tuple[str, str, int | None]
+
+
+def split_outside_quotes(text: str, separator: str = ",") -> list[str]:
+    """``text`` cut at every ``separator`` that is not inside double quotes (quotes kept).
+
+    >>> split_outside_quotes('"a,b"=mdl, c=quantile:4')
+    ['"a,b"=mdl', ' c=quantile:4']
+    """
+    parts: list[str] = []
+    current: list[str] = []
+    quoted = False
+    for ch in text:
+        if ch == '"':
+            quoted = not quoted  # a doubled quote toggles twice: still inside
+        if ch == separator and not quoted:
+            parts.append("".join(current))
+            current = []
+        else:
+            current.append(ch)
+    parts.append("".join(current))
+    return parts
+
+
+def _name_and_setting(item: str, what: str) -> tuple[str, str, bool]:
+    """``COLUMN=VALUE`` -> (column, value, had '='). A column holding ``=`` (or ``,``) is written
+    in double quotes, a quote in it doubled: ``"p=q"=mdl``. ``what``: the option's parameter
+    name, for the error."""
+    text = item.strip()
+    if not text.startswith('"'):
+        name, sep, setting = text.partition("=")
+        return name.strip(), setting.strip(), bool(sep)
+    pieces: list[str] = []
+    position = 1
+    while True:
+        end = text.find('"', position)
+        if end < 0:
+            raise SpecError.option(what, f": a closing double quote is missing in {item!r}")
+        pieces.append(text[position:end])
+        if text[end + 1:end + 2] != '"':
+            break
+        pieces.append('"')  # "" inside quotes is one quote
+        position = end + 2
+    rest = text[end + 1:].strip()
+    if rest and not rest.startswith("="):
+        raise SpecError.option(what, f" takes COLUMN=VALUE or \"COLUMN\"=VALUE, not {item!r}")
+    return "".join(pieces), rest[1:].strip(), bool(rest)
+
+
+def _pairs(value: object, what: str) -> list[tuple[str, str]]:
+    """``"a=x,b=y"``, a mapping, or an iterable of ``"a=x"`` strings / ``(a, x)`` pairs.
+    Names holding ``=`` or ``,`` are double-quoted (see :func:`_name_and_setting`)."""
+    if value is None:
+        return []
+    if isinstance(value, str):
+        items: list[object] = [v for v in split_outside_quotes(value) if v.strip()]
+    elif isinstance(value, dict):
+        items = list(value.items())
+    else:
+        items = list(value)  # type: ignore[call-overload]
+    pairs = []
+    for item in items:
+        if isinstance(item, str):
+            name, setting, had_sep = _name_and_setting(item, what)
+            if not had_sep and what == "date_part":
+                name, setting = "", name  # a bare part applies to every date column
+            elif not had_sep or not name.strip():
+                raise SpecError.option(what, f" takes COLUMN=VALUE, not {item!r}")
+            elif "=" in setting:
+                raise SpecError.option(
+                    what, f" {name}={setting}: a column name holding '=' is written in double "
+                    f"quotes, e.g. \"{name}={setting.split('=')[0]}\"={setting.split('=', 1)[1]}")
+            pairs.append((name, setting))
+        else:
+            name, setting, *_ = item  # type: ignore[misc]
+            pairs.append((str(name), str(setting)))
+    return pairs
+
+
+def parse_binning_for(value: object) -> tuple[ColumnBinning, ...]:
+    """Per-column binning overrides: ``"price=mdl,score=quantile:4"`` (METHOD[:BINS]).
+
+    >>> parse_binning_for("price=mdl, score=equal-width:4")
+    (('price', 'mdl', None), ('score', 'equal-width', 4))
+    >>> parse_binning_for({"score": "best-split"})
+    (('score', 'best-split', None),)
+    """
+    if isinstance(value, tuple) and all(isinstance(v, tuple) and len(v) == 3 for v in value):
+        return value  # already parsed
+    parsed = []
+    for name, setting in _pairs(value, "binning_for"):
+        method, sep, bins = setting.partition(":")
+        try:
+            count = int(bins) if sep else None
+        except ValueError:
+            raise SpecError.option("binning_for", f" {name}: bins must be a whole number, "
+                                   f"not {bins!r}") from None
+        parsed.append((name, method.strip().lower(), count))
+    return tuple(parsed)
+
+
+def parse_date_parts(value: object) -> tuple[tuple[str, str], ...]:
+    """Date parts to rank as categories: ``"sown_on=month"``; a bare ``"month"`` applies to
+    every date/timestamp attribute not named otherwise (column ``""``).
+
+    >>> parse_date_parts("sown_on=month,dow")
+    (('sown_on', 'month'), ('', 'dow'))
+    """
+    return tuple((name, part.lower()) for name, part in _pairs(value, "date_part"))
+
+
+@dataclass(frozen=True)
+class Thresholds:
+    """Where the trust flags switch on. Documented in the README's "Flags" section."""
+
+    #: ``id_like`` when distinct values >= this share of the rows (and more than ``id_min_values``).
+    id_like_ratio: float = 0.9
+    id_min_values: int = 10
+    #: ``near_perfect`` when IG >= this share of H(Y): a possible target leak.
+    near_perfect_ratio: float = 0.95
+    #: ``high_cardinality`` when distinct values exceed this cap.
+    high_cardinality: int = 1000
+
+
+def timeout_seconds(value: object) -> float | None:
+    """``--timeout`` checked: a finite, positive number of seconds, or None for no limit
+    (``inf`` too). Each engine checks its own upper limit (:attr:`Capabilities.timeout_max`).
+
+    >>> timeout_seconds(2), timeout_seconds(float("inf"))
+    (2.0, None)
+    >>> timeout_seconds(float("nan"))
+    Traceback (most recent call last):
+    bitsift.errors.SpecError: timeout must be a positive number of seconds, not nan
+    """
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise SpecError.option("timeout", f" must be a number of seconds, not {value!r}")
+    if value == math.inf:
+        return None
+    if math.isnan(value) or value <= 0:
+        raise SpecError.option("timeout",
+                               f" must be a positive number of seconds, not {value:.15g}")
+    return float(value)
+
+
+@dataclass(frozen=True)
+class RankOptions:
+    """What the user asked for, before it is checked against the table's columns."""
+
+    target: str
+    attributes: tuple[str, ...] | None = None
+    exclude: tuple[str, ...] = ()
+    categorical: tuple[str, ...] = ()
+    numeric: tuple[str, ...] = ()
+    missing: Missing = "category"
+    bins: int = 10
+    #: Default binning method of numeric attributes, one of :data:`BINNING_METHODS`.
+    binning: str = "quantile"
+    #: Per-column overrides of the method and bin count (see :func:`parse_binning_for`).
+    binning_for: tuple[ColumnBinning, ...] = ()
+    #: Dates ranked as categories of one part (see :func:`parse_date_parts`).
+    date_part: tuple[tuple[str, str], ...] = ()
+    where: str | None = None
+    sort: str = "information_gain"
+    limit: int | None = None
+    timeout: float | None = None
+    thresholds: Thresholds = field(default_factory=Thresholds)
+    #: Segment columns (``--by``): the ranking is computed within each combination of values.
+    by: tuple[str, ...] = ()
+    #: A non-negative weight column (``--weight``): sums of weights instead of row counts.
+    weight: str | None = None
+
+    def __post_init__(self) -> None:
+        try:
+            object.__setattr__(self, "timeout", timeout_seconds(self.timeout))
+            timeout_problems: list[Problem] = []
+        except SpecError as error:
+            timeout_problems = error.problems
+        problems = [*self._value_problems(), *timeout_problems, *self._conflict_problems()]
+        if problems:
+            raise SpecError(problems=problems)
+
+    def _value_problems(self) -> list[Problem]:
+        """Option values out of their range or list (every one, in the order of the options)."""
+        problems = []
+        if self.missing not in MISSING_MODES:
+            modes = ", ".join(MISSING_MODES)
+            problems.append(Problem.option("missing",
+                                           f" must be one of {modes}, not {self.missing!r}"))
+        if self.sort not in SORT_METRICS:
+            problems.append(Problem.option(
+                "sort", f" must be one of {', '.join(SORT_METRICS)}, not {self.sort!r}"))
+        if not 2 <= self.bins <= 1000:
+            problems.append(Problem.option("bins",
+                                           f" must be between 2 and 1000, not {self.bins}"))
+        methods = ", ".join(BINNING_METHODS)
+        if self.binning not in BINNING_METHODS:
+            problems.append(Problem.option("binning",
+                                           f" must be one of {methods}, not {self.binning!r}"))
+        for name, method, bins in self.binning_for:
+            if method not in BINNING_METHODS:
+                problems.append(Problem.option(
+                    "binning_for", f" {name}: the method must be one of {methods}, "
+                    f"not {method!r}"))
+            if bins is not None and not 2 <= bins <= 1000:
+                problems.append(Problem.option(
+                    "binning_for", f" {name}: bins must be between 2 and 1000, not {bins}"))
+        for name, part in self.date_part:
+            if part not in DATE_PARTS:
+                problems.append(Problem.option(
+                    "date_part", f" {name or '(all dates)'}: the part must be one of "
+                    f"{', '.join(DATE_PARTS)}, not {part!r}"))
+        date_numeric = sorted({n for n, _ in self.date_part if n} & set(self.numeric))
+        if date_numeric:
+            problems.append(_named_both("date_part", "numeric", date_numeric))
+        if self.limit is not None and self.limit < 1:
+            problems.append(Problem.option("limit", f" must be at least 1, not {self.limit}"))
+        return problems
+
+    def _conflict_problems(self) -> list[Problem]:
+        """Options that contradict each other, or name a column twice."""
+        problems = []
+        both = sorted(set(self.categorical) & set(self.numeric))
+        if both:
+            problems.append(_named_both("categorical", "numeric", both))
+        if len(set(self.by)) != len(self.by):
+            problems.append(Problem.option("by", " names a column twice: " + ", ".join(self.by)))
+        if self.weight is not None and not self.weight.strip():
+            problems.append(Problem.option("weight", " needs a column name"))
+        return problems
+
+
+def _named_both(first: str, second: str, names: Sequence[str]) -> Problem:
+    """Columns named in two options that exclude each other; about the first option."""
+    return Problem(first, ("columns named both ", Option(first), " and ", Option(second), ": "
+                           + ", ".join(names)))
+
+
+@dataclass(frozen=True)
+class AttributeSpec:
+    """One attribute to rank: its catalog name, its kind, and its position in the SQL (1-based)."""
+
+    name: str
+    kind: Kind
+    family: str
+    #: Numeric attributes: the binning method (:data:`BINNING_METHODS`) and the bins asked
+    #: for (quantile, equal-width; best-split always cuts once, mdl decides).
+    binning: str | None = None
+    bins: int | None = None
+    #: Date/timestamp attributes ranked as categories of this part (:data:`DATE_PARTS`).
+    date_part: str | None = None
+
+    @property
+    def epoch(self) -> bool:
+        """A date or timestamp binned as a number: its epoch seconds."""
+        return self.kind == "numeric" and self.family in TEMPORAL_FAMILIES
+
+
+@dataclass(frozen=True)
+class RankSpec:
+    """A request checked against the table: every name exists, every kind is decided."""
+
+    source: exp.Expression
+    source_name: str
+    target: str
+    attributes: tuple[AttributeSpec, ...]
+    options: RankOptions
+    where: Predicate | None = None
+    #: Type family of the target column (decides byte-exact grouping, see dialects.py).
+    target_family: str = "other"
+    #: Segment columns (``--by``), catalog spelling; their kind is unused (values are grouped).
+    by: tuple[AttributeSpec, ...] = ()
+    #: The weight column (``--weight``), catalog spelling.
+    weight: str | None = None
+
+    @property
+    def numeric(self) -> tuple[AttributeSpec, ...]:
+        return tuple(a for a in self.attributes if a.kind == "numeric")
+
+
+def _match(names: Sequence[str], columns: dict[str, Column]) -> tuple[list[str], list[str]]:
+    """Resolve user spellings to catalog spellings (see :func:`bitsift.names.resolve_name`)."""
+    catalog = list(columns)
+    found, unknown = [], []
+    for n in names:
+        spelled = resolve_name(n, catalog)
+        if spelled is None:
+            unknown.append(n)
+        else:
+            found.append(spelled)
+    return found, unknown
+
+
+def resolve(
+    options: RankOptions,
+    columns: Sequence[Column],
+    source: exp.Expression,
+    source_name: str,
+    dialect: str,
+) -> RankSpec:
+    """Check ``options`` against the table's ``columns`` and decide each attribute's kind.
+
+    Every unknown name is reported at once, each with a close match when there is one.
+    """
+    by_name = {c.name: c for c in columns}
+    unknown: list[str] = []
+    target_found, target_unknown = _match([options.target], by_name)
+    unknown += target_unknown
+    picked, bad = _match(options.attributes or (), by_name)
+    unknown += bad
+    excluded, bad = _match(options.exclude, by_name)
+    unknown += bad
+    forced_cat, bad = _match(options.categorical, by_name)
+    unknown += bad
+    forced_num, bad = _match(options.numeric, by_name)
+    unknown += bad
+    segment_names, bad = _match(options.by, by_name)
+    unknown += bad
+    weight_found, bad = _match([options.weight] if options.weight else [], by_name)
+    unknown += bad
+    binned, bad = _match([name for name, _, _ in options.binning_for], by_name)
+    unknown += bad
+    dated, bad = _match([name for name, _ in options.date_part if name], by_name)
+    unknown += bad
+    if unknown:
+        raise ColumnError(
+            unknown_names_message("column", unknown, by_name) + f" in {source_name}"
+        )
+    target = target_found[0]
+    weight = weight_found[0] if weight_found else None
+    _check_segments_and_weight(target, segment_names, weight, picked, by_name)
+    refuse_ungroupable(by_name, {"target": [target], "attributes": picked,
+                                 "by": segment_names, "weight": [weight] if weight else []})
+    # Segment and weight columns are never ranked: within a segment, its columns are constant.
+    roles = {*segment_names, *([weight] if weight else [])}
+    if options.attributes:
+        names = [n for n in dict.fromkeys(picked)
+                 if n != target and n not in excluded and n not in roles]
+    else:
+        # An ungroupable column is left out (the engine's note names it and its type).
+        names = [c.name for c in columns if c.groupable
+                 and c.name != target and c.name not in excluded and c.name not in roles]
+    if not names:
+        raise SpecError(f"no attributes left to rank in {source_name} (only the target remains)")
+    binnable = NUMERIC_FAMILIES | TEMPORAL_FAMILIES
+    not_numeric = [n for n in forced_num if by_name[n].family not in binnable]
+    if not_numeric:
+        raise ColumnError.option(
+            "numeric", " needs number columns (or dates and timestamps, binned as epoch "
+            "seconds); not those: " + _typed_names(not_numeric, by_name))
+    # "other": a column described without a connection (`bitsift sql` with no SOURCE).
+    not_dates = [n for n in dated if by_name[n].family not in TEMPORAL_FAMILIES | {"other"}]
+    if not_dates:
+        raise ColumnError.option("date_part", " needs date or timestamp columns; not those: "
+                                 + _typed_names(not_dates, by_name))
+    part_of = dict(zip(dated, [p for n, p in options.date_part if n], strict=True))
+    every_date_part = next((p for n, p in options.date_part if not n), None)
+    binning_of = {found: (method, bins) for found, (_, method, bins)
+                  in zip(binned, options.binning_for, strict=True)}
+    attributes = []
+    for n in names:
+        col = by_name[n]
+        kind: Kind
+        if n in forced_num:
+            kind = "numeric"
+        elif n in forced_cat:
+            kind = "categorical"
+        else:
+            kind = col.default_kind
+        if kind == "numeric":
+            method, bins = binning_of.get(n, (options.binning, None))
+            attributes.append(AttributeSpec(name=n, kind=kind, family=col.family,
+                                            binning=method, bins=bins or options.bins))
+            continue
+        part = part_of.get(n)
+        if part is None and n not in forced_cat and col.family in TEMPORAL_FAMILIES:
+            part = every_date_part  # a bare --date-part PART: every date column not named
+        attributes.append(AttributeSpec(name=n, kind=kind, family=col.family, date_part=part))
+    unbinned = [a.name for a in attributes if a.name in binning_of and a.kind != "numeric"]
+    if unbinned:
+        raise SpecError(problems=[Problem("binning_for", (
+            Option("binning_for"), " names columns that are not binned (integers, dates and ",
+            Option("categorical"), " columns are categories unless named in ", Option("numeric"),
+            "): " + ", ".join(unbinned)))])
+    where = parse_predicate(options.where, by_name, dialect) if options.where else None
+    return RankSpec(
+        source=source,
+        source_name=source_name,
+        target=target,
+        attributes=tuple(attributes),
+        options=options,
+        where=where,
+        target_family=by_name[target].family,
+        by=tuple(AttributeSpec(name=n, kind="categorical", family=by_name[n].family)
+                 for n in dict.fromkeys(segment_names)),
+        weight=weight,
+    )
+
+
+def _typed_names(names: Sequence[str], by_name: dict[str, Column]) -> str:
+    """``'a' (VARCHAR), 'b' (text)``: names with their database type, for an error."""
+    return ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in names)
+
+
+def _check_segments_and_weight(target: str, segments: Sequence[str], weight: str | None,
+                               picked: Sequence[str], by_name: dict[str, Column]) -> None:
+    """Every conflict between --by, --weight, the target and --attributes, reported at once."""
+    by = Option("by")
+    problems = []
+    if target in segments:
+        problems.append(Problem("by", (f"the target {target!r} cannot also be a segment (", by,
+                                       ")")))
+    if weight is not None:
+        if weight == target:
+            problems.append(Problem.of(f"the target {target!r} cannot also be the weight",
+                                       "weight"))
+        if weight in segments:
+            problems.append(Problem("weight", (f"{weight!r} cannot be both a segment (", by,
+                                               ") and the weight")))
+        family = by_name[weight].family
+        # "other": paste mode without a connection does not know the type.
+        if family not in NUMERIC_FAMILIES and family != "other":
+            problems.append(Problem.option("weight", f" needs a number column; {weight!r} is "
+                                           f"{by_name[weight].type_name or family}"))
+    both = [n for n in dict.fromkeys(picked) if n in segments or n == weight]
+    if both:
+        problems.append(Problem("attributes", ("columns named both in ", Option("attributes"),
+                                               " and as a segment or weight: ", ", ".join(both))))
+    if problems:
+        raise SpecError(problems=problems)

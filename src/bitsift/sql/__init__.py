@@ -1,0 +1,1 @@
+"""The SQL layer: dialect traits, the statement builder and every statement the package sends."""
