@@ -39,6 +39,36 @@ def resolve_name(name: str, names: Sequence[str]) -> str | None:
     return folded[0] if len(folded) == 1 else None
 
 
+
+def resolve_names(names: Iterable[str], catalog: Sequence[str]) -> tuple[list[str], list[str]]:
+    """(catalog spellings of the names that resolve, the names that do not), each in order.
+
+    >>> resolve_names(["y", "nope", "K"], ["Y", "y", "k"])
+    (['y', 'k'], ['nope'])
+    """
+    found: list[str] = []
+    unknown: list[str] = []
+    for name in names:
+        spelled = resolve_name(name, catalog)
+        if spelled is None:
+            unknown.append(name)
+        else:
+            found.append(spelled)
+    return found, unknown
+
+
+def split_names(value: str | Iterable[str] | None) -> tuple[str, ...]:
+    """Names given as a comma-separated string or as a sequence.
+
+    >>> split_names("a, b,,c"), split_names(["x y"]), split_names(None)
+    (('a', 'b', 'c'), ('x y',), ())
+    """
+    if value is None:
+        return ()
+    if isinstance(value, str):
+        return tuple(v.strip() for v in value.split(",") if v.strip())
+    return tuple(value)
+
 def ambiguity_note(name: str, names: Iterable[str]) -> str:
     """``" (ambiguous: 'Y', 'y')"`` when ``name`` loosely matches more than one catalog name."""
     folded = loose_matches(name, names)

@@ -20,7 +20,7 @@ from bitsift.analysis.profile_model import (
 )
 from bitsift.analysis.profile_read import fetch_profiles
 from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
-from bitsift.names import resolve_name
+from bitsift.names import resolve_names, split_names
 from bitsift.run.api import make_options, run_ranking, run_segmented
 from bitsift.run.result import SEGMENT_STATUS, segment_label
 from bitsift.run.session import session_for
@@ -31,26 +31,11 @@ from bitsift.sql.sqlstatements import DEFAULT_MAX_VALUES, segment_predicate
 def resolve_sensitive(names: Iterable[str], columns: Sequence[Column]) -> tuple[str, ...]:
     """Catalog spellings of the ``--sensitive`` columns; every unknown name is reported."""
     catalog = [c.name for c in columns]
-    found: list[str] = []
-    unknown: list[str] = []
-    for name in names:
-        spelled = resolve_name(name, catalog)
-        if spelled is None:
-            unknown.append(name)
-        else:
-            found.append(spelled)
+    found, unknown = resolve_names(names, catalog)
     if unknown:
         raise ColumnError(problems=[Problem("sensitive", (
             unknown_names_message("column", unknown, catalog) + " (", Option("sensitive"), ")"))])
     return tuple(dict.fromkeys(found))
-
-
-def _names(value: str | Iterable[str] | None) -> tuple[str, ...]:
-    if value is None:
-        return ()
-    if isinstance(value, str):
-        return tuple(v.strip() for v in value.split(",") if v.strip())
-    return tuple(value)
 
 
 def rank_and_profile(
@@ -86,7 +71,7 @@ def rank_and_profile(
     with session_for(source, table) as session:
         engine, mark = session.engine, session.mark()
         say(f"reading the columns of {session.display}")
-        marked = resolve_sensitive(_names(sensitive), session.columns)
+        marked = resolve_sensitive(split_names(sensitive), session.columns)
         spec = session.prepare(spec_options)
         say(f"ranking {len(spec.attributes)} attribute(s) against {spec.target!r}")
         ranking = run_ranking(engine, spec)
@@ -139,7 +124,7 @@ def profile(
     >>> [(v.label, v.counts, v.entropy, v.contribution) for v in p.values]
     [('0', (2, 2), 1.0, 0.5), ('1', (4, 0), 0.0, 0.0)]
     """
-    names = _names(attributes)
+    names = split_names(attributes)
     if not names:
         raise SpecError("name the attribute(s) to profile")
     if options.get("attributes"):
@@ -192,7 +177,7 @@ def rank_and_profile_segments(
     with session_for(source, table) as session:
         engine, mark = session.engine, session.mark()
         say(f"reading the columns of {session.display}")
-        marked = resolve_sensitive(_names(sensitive), session.columns)
+        marked = resolve_sensitive(split_names(sensitive), session.columns)
         spec = session.prepare(spec_options)
         say(f"ranking {len(spec.attributes)} attribute(s) in each segment of "
             f"{', '.join(s.name for s in spec.by)}")

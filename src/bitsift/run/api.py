@@ -5,7 +5,7 @@ The CLI is a thin shell over these functions; they never print and never exit.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -15,6 +15,7 @@ from sqlglot import exp
 from bitsift.engines.base import Engine
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import Option, Problem, SpecError
+from bitsift.names import split_names
 from bitsift.run import concurrent, reference
 from bitsift.run.cuts import fetch_cuts, fetch_mdl_cuts  # noqa: F401 - re-exported for callers
 from bitsift.run.readout import read_ranking, read_segments
@@ -34,14 +35,6 @@ from bitsift.sql.sqlbuild import paste_statement
 from bitsift.sql.sqlstatements import rows_statement
 
 
-def _names(value: str | Iterable[str] | None) -> tuple[str, ...]:
-    if value is None:
-        return ()
-    if isinstance(value, str):
-        return tuple(v.strip() for v in value.split(",") if v.strip())
-    return tuple(value)
-
-
 def make_options(target: str, **options: Any) -> RankOptions:
     """:class:`RankOptions` from keyword arguments as :func:`rank` takes them."""
     attributes = options.pop("attributes", None)
@@ -50,12 +43,12 @@ def make_options(target: str, **options: Any) -> RankOptions:
     if unknown:
         raise SpecError("unknown option(s): " + ", ".join(unknown))
     for key in ("exclude", "categorical", "numeric", "by"):
-        options[key] = _names(options.get(key))
+        options[key] = split_names(options.get(key))
     options["binning_for"] = parse_binning_for(options.get("binning_for"))
     options["date_part"] = parse_date_parts(options.get("date_part"))
     return RankOptions(
         target=target,
-        attributes=_names(attributes) or None,
+        attributes=split_names(attributes) or None,
         thresholds=thresholds,
         **options,
     )

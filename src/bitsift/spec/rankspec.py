@@ -10,7 +10,7 @@ from typing import Literal
 from sqlglot import exp
 
 from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
-from bitsift.names import resolve_name
+from bitsift.names import resolve_names
 from bitsift.spec.predicate import Predicate, parse_predicate
 from bitsift.spec.schema import NUMERIC_FAMILIES, Column, Kind, refuse_ungroupable
 
@@ -307,15 +307,7 @@ class RankSpec:
 
 def _match(names: Sequence[str], columns: dict[str, Column]) -> tuple[list[str], list[str]]:
     """Resolve user spellings to catalog spellings (see :func:`bitsift.names.resolve_name`)."""
-    catalog = list(columns)
-    found, unknown = [], []
-    for n in names:
-        spelled = resolve_name(n, catalog)
-        if spelled is None:
-            unknown.append(n)
-        else:
-            found.append(spelled)
-    return found, unknown
+    return resolve_names(names, list(columns))
 
 
 def resolve(
