@@ -42,7 +42,7 @@ from bitsift.errors import (
     first_line,
     unknown_names_message,
 )
-from bitsift.spec.schema import Column, Family
+from bitsift.spec.schema import Column, Family, family_by_class
 from bitsift.sql.dialects import capabilities
 
 if TYPE_CHECKING:  # pragma: no cover - typing only; pyspark is an optional extra
@@ -90,21 +90,11 @@ def spark_family(data_type: Any) -> Family:
     """The bitsift type family of a ``pyspark.sql.types.DataType``."""
     from pyspark.sql import types as t
 
-    if isinstance(data_type, t.BooleanType):
-        return "boolean"
-    if isinstance(data_type, t.IntegralType):
-        return "integer"
-    if isinstance(data_type, t.DecimalType):
-        return "decimal"
-    if isinstance(data_type, t.FractionalType):
-        return "float"
-    if isinstance(data_type, t.StringType | t.VarcharType | t.CharType):
-        return "text"
-    if isinstance(data_type, t.DateType):
-        return "date"
-    if isinstance(data_type, t.TimestampType | t.TimestampNTZType):
-        return "timestamp"
-    return "other"
+    return family_by_class(data_type, (
+        (t.BooleanType, "boolean"), (t.IntegralType, "integer"), (t.DecimalType, "decimal"),
+        (t.FractionalType, "float"), ((t.StringType, t.VarcharType, t.CharType), "text"),
+        (t.DateType, "date"), ((t.TimestampType, t.TimestampNTZType), "timestamp"),
+    ))
 
 
 @dataclass

@@ -34,7 +34,7 @@ from bitsift.errors import (
     first_line,
     suggest,
 )
-from bitsift.spec.schema import Column, Family
+from bitsift.spec.schema import Column, Family, family_by_class
 from bitsift.sql.dialects import SQLALCHEMY_DIALECTS, capabilities
 
 #: Which pip extra brings a driver for a SQLAlchemy backend, and the URL scheme it serves.
@@ -74,22 +74,12 @@ def missing_driver_message(drivername: str, backend: str, error: BaseException) 
 
 
 def sqlalchemy_family(sa_type: Any) -> Family:
-    """The bitsift type family of a SQLAlchemy column type."""
-    if isinstance(sa_type, sa.Boolean):
-        return "boolean"
-    if isinstance(sa_type, sa.Integer):
-        return "integer"
-    if isinstance(sa_type, sa.Float):
-        return "float"
-    if isinstance(sa_type, sa.Numeric):
-        return "decimal"
-    if isinstance(sa_type, sa.DateTime):
-        return "timestamp"
-    if isinstance(sa_type, sa.Date):
-        return "date"
-    if isinstance(sa_type, sa.String | sa.Enum):
-        return "text"
-    return "other"
+    """The bitsift type family of a SQLAlchemy column type (Float before its base Numeric)."""
+    return family_by_class(sa_type, (
+        (sa.Boolean, "boolean"), (sa.Integer, "integer"), (sa.Float, "float"),
+        (sa.Numeric, "decimal"), (sa.DateTime, "timestamp"), (sa.Date, "date"),
+        ((sa.String, sa.Enum), "text"),
+    ))
 
 
 def safe_url(url: str | URL) -> str:

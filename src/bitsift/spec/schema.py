@@ -96,6 +96,23 @@ def hashable_value(value: Any) -> Any:
     return value
 
 
+def family_by_class(value: object,
+                    table: Sequence[tuple[type | tuple[type, ...], Family]]) -> Family:
+    """The family of the first ``(classes, family)`` entry ``value`` is an instance of, in
+    order (a driver's type classes nest: a subclass entry must come before its base), else
+    "other".
+
+    >>> family_by_class(True, [(bool, "boolean"), (int, "integer")])
+    'boolean'
+    >>> family_by_class("x", [(int, "integer")])
+    'other'
+    """
+    for classes, family in table:
+        if isinstance(value, classes):
+            return family
+    return "other"
+
+
 def family_of(type_name: str, dialect: str = "duckdb") -> Family:
     """Map a type name as an engine prints it to a :data:`Family`.
 
