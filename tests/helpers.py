@@ -30,6 +30,7 @@ from sqlglot import exp
 import bitsift
 from bitsift.cli import main
 from bitsift.run import reference
+from bitsift.run.api import METRICS_CHECKED
 from bitsift.run.result import Ranking
 from bitsift.run.session import Session
 from bitsift.sql.dialects import CAPABILITIES, capabilities
@@ -60,16 +61,7 @@ QUOTING_DIALECT: dict[str, str] = {
 }
 
 #: Metrics compared with the reference, all to 1e-9 (the G statistic relative to its size).
-COMPARED_METRICS: tuple[str, ...] = (
-    "information_gain",
-    "gain_ratio",
-    "symmetric_uncertainty",
-    "conditional_entropy",
-    "attribute_entropy",
-    "target_entropy",
-    "g_statistic",
-    "p_value",
-)
+COMPARED_METRICS: tuple[str, ...] = METRICS_CHECKED
 
 
 @dataclass(frozen=True)

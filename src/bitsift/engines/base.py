@@ -12,7 +12,6 @@ from typing import Any, ClassVar
 from sqlglot import exp
 
 from bitsift.errors import QueryCancelledError, QueryError, SpecError
-from bitsift.names import resolve_name as resolve_name  # re-exported: engines, jobs use it
 from bitsift.spec.schema import Column
 from bitsift.sql.dialects import Capabilities
 

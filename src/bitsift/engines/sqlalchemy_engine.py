@@ -16,7 +16,7 @@ from sqlalchemy.engine import URL, make_url
 from sqlglot import exp
 
 from bitsift.engines import sqlite_support
-from bitsift.engines.base import Engine, FetchResult, check_timeout_limit, resolve_name
+from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
 from bitsift.engines.masking import (
     environment_secrets,
     mask_text,
@@ -34,6 +34,7 @@ from bitsift.errors import (
     first_line,
     suggest,
 )
+from bitsift.names import resolve_name
 from bitsift.spec.schema import Column, Family, family_by_class
 from bitsift.sql.dialects import SQLALCHEMY_DIALECTS, capabilities
 

@@ -8,7 +8,6 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
 
-from bitsift.engines.base import resolve_name
 from bitsift.errors import (
     BitsiftError,
     PredicateError,
@@ -34,6 +33,7 @@ from bitsift.jobs.jobfile import (
     RunError,
     _keyed,
 )
+from bitsift.names import resolve_name
 from bitsift.run import api
 from bitsift.run.result import Ranking, SegmentedRanking
 from bitsift.run.session import Session
