@@ -179,21 +179,48 @@ target = "y"
     return path
 
 
-COMMANDS = {
-    "rank": ["rank", "{db}", "-t", "t", "-y", "y"],
-    "rank --by": ["rank", "{db}", "-t", "t", "-y", "y", "--by", "s"],
-    "check": ["check", "{db}", "-t", "t", "-y", "y"],
-    "sql": ["sql", "{db}", "-t", "t", "-y", "y"],
-    "profile": ["profile", "{db}", "-t", "t", "-y", "y", "--attribute", "a,n"],
-    "report": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}"],
-    "report --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2"],
-    "report --by --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--by", "s",
-                             "--select", "2"],
-    "redundancy": ["redundancy", "{db}", "-t", "t", "-y", "y"],
-    "select": ["select", "{db}", "-t", "t", "-y", "y", "--k", "2"],
-    "run": ["run", "{job}"],
-    "run --dry-run": ["run", "{job}", "--dry-run"],
+#: Every command, with how often it opens a source and resolves a request: once each where
+#: it reads a source; ``sql`` without a source resolves declared columns; ``drift`` reads only
+#: the history (it needs two runs: see ``_two_runs``).
+COMMANDS: dict[str, tuple[list[str], tuple[int, int]]] = {
+    "rank": (["rank", "{db}", "-t", "t", "-y", "y"], (1, 1)),
+    "rank --by": (["rank", "{db}", "-t", "t", "-y", "y", "--by", "s"], (1, 1)),
+    "rank --limit --timeout": (["rank", "{db}", "-t", "t", "-y", "y", "--limit", "1",
+                                "--timeout", "30"], (1, 1)),
+    "check": (["check", "{db}", "-t", "t", "-y", "y"], (1, 1)),
+    "sql": (["sql", "{db}", "-t", "t", "-y", "y"], (1, 1)),
+    "sql without a source": (["sql", "-t", "t", "-y", "y", "--attributes", "a"], (0, 1)),
+    "profile": (["profile", "{db}", "-t", "t", "-y", "y", "--attribute", "a,n"], (1, 1)),
+    "report": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}"], (1, 1)),
+    "report --select": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2"],
+                        (1, 1)),
+    "report --by --select": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--by", "s",
+                              "--select", "2"], (1, 1)),
+    "redundancy": (["redundancy", "{db}", "-t", "t", "-y", "y"], (1, 1)),
+    "select": (["select", "{db}", "-t", "t", "-y", "y", "--k", "2"], (1, 1)),
+    "run": (["run", "{job}"], (1, 1)),
+    "run --dry-run": (["run", "{job}", "--dry-run"], (1, 1)),
+    "models": (["models", "{job}", "--out", "{models}"], (1, 1)),
+    "drift": (["drift", "{job}"], (0, 0)),
 }
+
+
+def _two_runs(job: str) -> None:
+    """Two runs of the job in its history, for ``drift`` to compare."""
+    from click.testing import CliRunner
+
+    from bitsift.cli import cli
+
+    for _ in range(2):
+        result = CliRunner().invoke(cli, ["run", job])
+        assert result.exit_code == 0, result.output
+
+
+def test_every_command_is_counted() -> None:
+    """A new command joins COMMANDS (or the count would not cover it)."""
+    from bitsift.cli import cli
+
+    assert set(cli.commands) == {args[0] for args, _ in COMMANDS.values()}
 
 
 @pytest.mark.parametrize("command", list(COMMANDS))
@@ -204,12 +231,15 @@ def test_each_command_opens_and_resolves_its_source_once(
     from bitsift.cli import cli
 
     places = {"db": str(small_db), "out": str(tmp_path / "report.html"),
-              "job": str(_job(tmp_path, small_db))}
-    args = [a.format(**places) for a in COMMANDS[command]]
+              "job": str(_job(tmp_path, small_db)), "models": str(tmp_path / "models")}
+    template, expected = COMMANDS[command]
+    args = [a.format(**places) for a in template]
+    if command == "drift":
+        _two_runs(places["job"])
     calls = Calls(monkeypatch)
     result = CliRunner().invoke(cli, args)
     assert result.exit_code == 0, result.output
-    assert (calls.opened, calls.resolved) == (1, 1), command
+    assert (calls.opened, calls.resolved) == expected, command
 
 
 def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
@@ -239,15 +269,18 @@ def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
 
 def test_models_open_each_rankings_source_once(small_db: Path, tmp_path: Path,
                                                monkeypatch: pytest.MonkeyPatch) -> None:
-    """`bitsift models` checks a ranking, then writes its statement, on one opened source (its
-    request without limit and timeout is a second, different one to resolve)."""
+    """`bitsift models` checks a ranking, then writes its statement, on one opened source and
+    one resolved request: the job's limit and timeout do not make the statement a second
+    request to resolve."""
     from click.testing import CliRunner
 
     from bitsift.cli import cli
 
     job = _job(tmp_path, small_db)
+    job.write_text(job.read_text(encoding="utf-8") + "limit = 1\ntimeout = 30\n",
+                   encoding="utf-8")
     calls = Calls(monkeypatch)
     result = CliRunner().invoke(cli, ["models", str(job), "--out", str(tmp_path / "models")])
     assert result.exit_code == 0, result.output
-    assert calls.opened == 1
+    assert (calls.opened, calls.resolved) == (1, 1)
     assert "SELECT" in (tmp_path / "models" / "nightly__all.sql").read_text(encoding="utf-8")

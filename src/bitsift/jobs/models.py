@@ -49,10 +49,11 @@ def model_text(job: Job, ranking: JobRanking, dialect: str | None = None,
                session: Session | None = None) -> str:
     """The content of one model file: header comment, then one SELECT (no semicolon).
     ``session``: the ranking's source already open (default: the job's source is opened)."""
-    options = {k: v for k, v in ranking.options.items() if k not in ("limit", "timeout")}
+    # Every option, limit and timeout included: the statement lists every attribute and sets
+    # no timeout, and the same request as the preflight's is resolved once on the session.
     source = session if session is not None else job.source
     statement = api.statement(source, ranking.target, ranking.table, dialect=dialect,
-                              **options)
+                              **ranking.options)
     header = [
         f"bitsift {__version__} model: job {job.name}, ranking {ranking.name}",
         f"from job file {job.path.name}; regenerate with: bitsift models {job.path.name}"
