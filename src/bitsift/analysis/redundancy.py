@@ -186,25 +186,35 @@ def flagged_candidates_note(ranking: Ranking, names: Sequence[str]) -> str | Non
     return "flagged candidates: " + "; ".join(parts) + ". Consider --exclude."
 
 
+def ranking_keys(ranking: Ranking) -> dict[str, Any]:
+    """The JSON keys that name the ranking a redundancy or selection result builds on."""
+    return {"target": ranking.target, "table": ranking.table, "rows": ranking.rows}
+
+
 def ranking_cuts(ranking: Ranking) -> dict[str, list[float]]:
     """The cut points of the ranking's numeric attributes, by name."""
     return {s.attribute: list(s.cuts) for s in ranking.attributes if s.cuts is not None}
 
 
-def fetch_pairs(
-    engine: Engine,
-    spec: RankSpec,
-    cuts: Mapping[str, Sequence[float]],
-    pairs: Sequence[tuple[str, str]],
-    *,
-    batch_pairs: int = DEFAULT_BATCH_PAIRS,
-) -> list[PairScore]:
-    """Measure ``pairs`` on an open engine, at most ``batch_pairs`` per statement."""
-    scores: list[PairScore] = []
-    for batch in batches(pairs, batch_pairs):
-        statement = pairs_statement(spec, engine.caps, cuts, batch)
-        scores += read_pairs(engine.fetch(statement.sql).records(), batch)
-    return scores
+@dataclass(frozen=True)
+class PairMeasurer:
+    """Measures pairs of a ranking's attributes on an open engine, binned as the ranking binned
+    them, at most ``batch_pairs`` pairs per statement."""
+
+    engine: Engine
+    spec: RankSpec
+    #: The ranking's cut points of its numeric attributes (:func:`ranking_cuts`).
+    cuts: Mapping[str, Sequence[float]]
+    batch_pairs: int = DEFAULT_BATCH_PAIRS
+
+    def fill(self, matrix: RedundancyMatrix, pairs: Iterable[tuple[str, str]]) -> None:
+        """Measure those of ``pairs`` that ``matrix`` lacks, and add them to it."""
+        needed = [p for p in pairs if frozenset(p) not in matrix.pairs]
+        if not needed:
+            return
+        for batch in batches(needed, self.batch_pairs):
+            statement = pairs_statement(self.spec, self.engine.caps, self.cuts, batch)
+            matrix.add(read_pairs(self.engine.fetch(statement.sql).records(), batch))
 
 
 def measure_matrix(
@@ -219,10 +229,7 @@ def measure_matrix(
     names = tuple(attributes if attributes is not None else
                   [s.attribute for s in ranking.attributes])
     matrix = RedundancyMatrix(attributes=names)
-    pairs = all_pairs(names)
-    if pairs:
-        matrix.add(fetch_pairs(engine, spec, ranking_cuts(ranking), pairs,
-                               batch_pairs=batch_pairs))
+    PairMeasurer(engine, spec, ranking_cuts(ranking), batch_pairs).fill(matrix, all_pairs(names))
     return matrix
 
 
@@ -241,9 +248,7 @@ class Redundancy:
         """One JSON-ready object: the attributes with their relevance, and every pair."""
         ranking = self.ranking
         return {
-            "target": ranking.target,
-            "table": ranking.table,
-            "rows": ranking.rows,
+            **ranking_keys(ranking),
             "missing": self.missing,
             "attributes": [
                 {"attribute": s.attribute, "kind": s.kind,

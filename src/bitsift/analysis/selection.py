@@ -32,12 +32,13 @@ from typing import Any, Literal
 from bitsift.analysis.profile_model import ProfiledRun, Progress
 from bitsift.analysis.redundancy import (
     DEFAULT_BATCH_PAIRS,
+    PairMeasurer,
     RedundancyMatrix,
-    fetch_pairs,
     flagged_candidates_note,
     measure_matrix,
     rank_on_session,
     ranking_cuts,
+    ranking_keys,
 )
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
@@ -208,11 +209,8 @@ class Selection:
 
     def to_dict(self) -> dict[str, Any]:
         """One JSON-ready object: the request, then one entry per step."""
-        ranking = self.ranking
         return {
-            "target": ranking.target,
-            "table": ranking.table,
-            "rows": ranking.rows,
+            **ranking_keys(self.ranking),
             "criterion": self.criterion,
             "k": self.k,
             "missing": self.missing,
@@ -244,12 +242,10 @@ def select_on_engine(
         raise SpecError("not ranked: " + ", ".join(unknown))
     relevance = {n: scores[n].information_gain for n in names}
     measured = matrix if matrix is not None else RedundancyMatrix(attributes=names)
-    cuts = ranking_cuts(ranking)
+    measurer = PairMeasurer(engine, spec, ranking_cuts(ranking), batch_pairs)
 
     def lookup(chosen: str, rest: Sequence[str]) -> dict[str, float]:
-        needed = [(chosen, n) for n in rest if frozenset((chosen, n)) not in measured.pairs]
-        if needed:
-            measured.add(fetch_pairs(engine, spec, cuts, needed, batch_pairs=batch_pairs))
+        measurer.fill(measured, [(chosen, n) for n in rest])
         return {n: measured.mutual_information(chosen, n) for n in rest}
 
     steps = greedy_mrmr(relevance, k, lookup, criterion=criterion, order=names)

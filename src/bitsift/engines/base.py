@@ -5,13 +5,23 @@ from __future__ import annotations
 import threading
 import weakref
 from abc import ABC, abstractmethod
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 from typing import Any, ClassVar
 
 from sqlglot import exp
 
-from bitsift.errors import QueryCancelledError, QueryError, SpecError
+from bitsift.errors import (
+    QueryCancelledError,
+    QueryError,
+    QueryTimeoutError,
+    SourceError,
+    SpecError,
+    TableNotFoundError,
+    first_line,
+    unknown_names_message,
+)
 from bitsift.spec.schema import Column
 from bitsift.sql.dialects import Capabilities
 
@@ -44,6 +54,8 @@ class Engine(ABC):
     owned: bool = True
     #: Whether :meth:`open_sibling` can open another session on the same database.
     has_siblings: ClassVar[bool] = False
+    #: The statement timeout in seconds (None: no limit), as :meth:`set_timeout` set it.
+    timeout: float | None = None
 
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
         """The table's columns in catalog order, or :class:`TableNotFoundError`; those the
@@ -96,9 +108,27 @@ class Engine(ABC):
     def fetch(self, sql: str) -> FetchResult:
         """Run one SELECT and return its (small) result."""
 
-    @abstractmethod
     def set_timeout(self, seconds: float | None) -> None:
-        """Set a statement timeout, or add a note saying the engine has none."""
+        """Set a statement timeout, or add a note saying the engine has none. By default the
+        engine's :meth:`fetch` enforces :attr:`timeout` itself (a setting sent with each
+        statement, or an interrupt from a timer)."""
+        check_timeout_limit(self.caps, seconds)
+        self.timeout = seconds or None
+
+    def timeout_error(self, detail: str | None = None) -> QueryTimeoutError:
+        """A statement stopped at :attr:`timeout`; ``detail``: the database's own message."""
+        return QueryTimeoutError(f"the query ran longer than --timeout {self.timeout:g} s and "
+                                 "was cancelled" + (f" ({detail})" if detail else ""))
+
+    def missing_table(self, display: str) -> TableNotFoundError:
+        """No table ``display`` in the catalog: the error, with close matches among the
+        catalog's tables (:meth:`_table_names`)."""
+        return TableNotFoundError(unknown_names_message("table", [display], self._table_names()))
+
+    def _table_names(self) -> list[str]:
+        """The tables (plain and schema-qualified) a missing table's name is matched against;
+        none by default."""
+        return []
 
     def __post_init__(self) -> None:
         _LIVE[id(self)] = self
@@ -136,7 +166,17 @@ class Engine(ABC):
         """:class:`QueryCancelledError` once :meth:`cancel` has run: a statement sent after
         the cancel would otherwise run to its end."""
         if self.cancelled.is_set():
-            raise QueryCancelledError("the query was cancelled")
+            raise cancelled_error()
+
+    @contextmanager
+    def closed_on_failure(self) -> Iterator[None]:
+        """Close this engine when the block fails: one opened for a source it cannot read is
+        not handed to anyone who would close it."""
+        try:
+            yield
+        except BaseException:
+            self.close()
+            raise
 
     def close(self) -> None:  # noqa: B027 - optional hook
         """Release what the engine opened (connections it does not own stay open)."""
@@ -169,3 +209,21 @@ def check_timeout_limit(caps: Capabilities, seconds: float | None) -> None:
     if seconds is not None and seconds > caps.timeout_max:
         raise SpecError(f"--timeout {seconds:.15g} s is longer than {caps.name} can enforce "
                         f"(at most {caps.timeout_max:.15g} s); give inf for no limit")
+
+
+# Errors every engine raises in the same words (each engine decides when).
+
+
+def cancelled_error(detail: str | None = None) -> QueryCancelledError:
+    """A statement stopped by :meth:`Engine.cancel` (or on the server, ``detail`` saying so)."""
+    return QueryCancelledError("the query was cancelled" + (f": {detail}" if detail else ""))
+
+
+def query_error(database: str, message: str) -> QueryError:
+    """Any other failed statement, named by the database that refused it."""
+    return QueryError(f"{database} error: {message}")
+
+
+def unreadable_table(display: str, error: BaseException) -> SourceError:
+    """The table exists (or may) but the database cannot read it."""
+    return SourceError(f"cannot read {display}: {first_line(error)}")

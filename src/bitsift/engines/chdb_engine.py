@@ -17,17 +17,8 @@ from typing import Any
 
 from sqlglot import exp
 
-from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
-from bitsift.errors import (
-    MissingDriverError,
-    QueryError,
-    QueryTimeoutError,
-    SourceError,
-    SpecError,
-    TableNotFoundError,
-    first_line,
-    unknown_names_message,
-)
+from bitsift.engines.base import Engine, FetchResult, query_error, unreadable_table
+from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line
 from bitsift.spec.schema import Column, Family, family_of
 from bitsift.sql.dialects import Capabilities, capabilities
 
@@ -88,7 +79,6 @@ class ChdbEngine(Engine):
     """Runs bitsift's statements in an embedded ClickHouse session."""
 
     session: Any = None
-    timeout: float | None = None
     #: The ``tmp/`` folder chdb made in a database directory on opening it, removed on close:
     #: bitsift leaves the directory as it found it.
     made_tmp: Path | None = None
@@ -159,30 +149,25 @@ class ChdbEngine(Engine):
             described = self._query(query).to_pylist()
         except Exception as error:  # noqa: BLE001
             if _code(error) in _UNKNOWN_TABLE_CODES:
-                raise TableNotFoundError(self._missing_table_message(display)) from None
-            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
+                raise self.missing_table(display) from None
+            raise unreadable_table(display, error) from None
         return [
             Column(name=row["name"], family=clickhouse_family(row["type"]),
                    type_name=row["type"])
             for row in described
         ]
 
-    def _missing_table_message(self, display: str) -> str:
+    def _table_names(self) -> list[str]:
         query = ("SELECT database, name FROM system.tables WHERE NOT is_temporary "
                  "AND database NOT IN ('system', 'INFORMATION_SCHEMA', 'information_schema')")
         try:
             rows = self._query(query + settings_clause(self.caps, None)).to_pylist()
         except Exception:  # noqa: BLE001 - no suggestions then
             rows = []
-        names = [r["name"] for r in rows] + [f"{r['database']}.{r['name']}" for r in rows]
-        return unknown_names_message("table", [display], names)
-
-    def set_timeout(self, seconds: float | None) -> None:
-        # ClickHouse's own max_execution_time, set per statement in fetch().
-        check_timeout_limit(self.caps, seconds)
-        self.timeout = seconds or None
+        return [r["name"] for r in rows] + [f"{r['database']}.{r['name']}" for r in rows]
 
     def fetch(self, sql: str) -> FetchResult:
+        # The timeout: ClickHouse's own max_execution_time, set per statement.
         text = sql + settings_clause(self.caps, self.timeout)
         self.statements.append(text)
         try:
@@ -190,10 +175,8 @@ class ChdbEngine(Engine):
         except Exception as error:  # noqa: BLE001 - chdb raises RuntimeError subclasses
             if _code(error) in _TIMEOUT_CODES:
                 self._drain_aborted_output()
-                raise QueryTimeoutError(
-                    f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
-                ) from None
-            raise QueryError(f"ClickHouse error: {first_line(error)}") from None
+                raise self.timeout_error() from None
+            raise query_error("ClickHouse", first_line(error)) from None
         names = list(result.column_names)
         columns = [result.column(i).to_pylist() for i in range(result.num_columns)]
         rows = list(zip(*columns, strict=True)) if columns else []
@@ -229,11 +212,8 @@ def open_chdb_location(location: str, table: str | None) -> tuple[ChdbEngine, ex
         raise SourceError(f"no such file: {location}")
     path = location if location.startswith("/") else str(Path(location).absolute())
     engine = ChdbEngine.in_memory()
-    try:
+    with engine.closed_on_failure():
         return engine, engine.read_parquet(path)
-    except BaseException:
-        engine.close()
-        raise
 
 
 def _remove_empty(folder: Path | None) -> None:

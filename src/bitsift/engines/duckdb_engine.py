@@ -4,23 +4,15 @@ from __future__ import annotations
 
 import contextlib
 import threading
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import ClassVar
 
 import duckdb
 from sqlglot import exp
 
-from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
-from bitsift.errors import (
-    QueryCancelledError,
-    QueryError,
-    QueryTimeoutError,
-    SourceError,
-    TableNotFoundError,
-    first_line,
-    unknown_names_message,
-)
+from bitsift.engines.base import Engine, FetchResult, cancelled_error, query_error, unreadable_table
+from bitsift.errors import QueryError, SourceError, first_line
 from bitsift.spec.schema import Column, family_of
 from bitsift.sql.dialects import capabilities
 
@@ -55,7 +47,6 @@ def file_table(path: str) -> exp.Expression:
 @dataclass
 class DuckDBEngine(Engine):
     connection: duckdb.DuckDBPyConnection | None = None
-    timeout: float | None = field(default=None)
 
     def __post_init__(self) -> None:
         super().__post_init__()
@@ -103,11 +94,9 @@ class DuckDBEngine(Engine):
             relation = self.con.sql(query)
             names, types = relation.columns, relation.types
         except duckdb.CatalogException:
-            raise TableNotFoundError(self._missing_table_message(table, display)) from None
-        except duckdb.IOException as error:
-            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
-        except duckdb.Error as error:
-            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
+            raise self.missing_table(display) from None
+        except duckdb.Error as error:  # IOException and the others alike
+            raise unreadable_table(display, error) from None
         self._qualify(table)
         return [
             Column(name=n, family=family_of(str(t), "duckdb"), type_name=str(t))
@@ -132,19 +121,14 @@ class DuckDBEngine(Engine):
         if len(places) == 1 and places[0][0]:
             table.set("db", exp.to_identifier(places[0][1], quoted=True))
 
-    def _missing_table_message(self, table: exp.Expression, display: str) -> str:
+    def _table_names(self) -> list[str]:
         rows = self.con.execute(
             "SELECT table_schema, table_name FROM information_schema.tables"
         ).fetchall()
-        names = [n for _, n in rows] + [f"{s}.{n}" for s, n in rows]
-        return unknown_names_message("table", [display], names)
-
-    def set_timeout(self, seconds: float | None) -> None:
-        # DuckDB has no statement timeout setting; a timer interrupts the query instead.
-        check_timeout_limit(self.caps, seconds)
-        self.timeout = seconds
+        return [n for _, n in rows] + [f"{s}.{n}" for s, n in rows]
 
     def fetch(self, sql: str) -> FetchResult:
+        # DuckDB has no statement timeout setting; a timer interrupts the query instead.
         self.refuse_if_cancelled()
         self.statements.append(sql)
         timer = None
@@ -168,20 +152,16 @@ class DuckDBEngine(Engine):
         if fired.is_set():
             # An interrupt that lands before DuckDB starts executing is lost and the query
             # runs to the end; it still ran past the deadline, so the outcome is the same.
-            raise self._timeout_error()
+            raise self.timeout_error()
         return FetchResult(columns=names, rows=rows)
 
     def _failure(self, error: BaseException, timed_out: bool) -> QueryError:
         """The timeout if it fired, a cancel if :meth:`cancel` ran, else DuckDB's error."""
         if timed_out:
-            return self._timeout_error()
+            return self.timeout_error()
         if self.cancelled.is_set():
-            return QueryCancelledError("the query was cancelled")
-        return QueryError(f"DuckDB error: {first_line(error)}")
-
-    def _timeout_error(self) -> QueryTimeoutError:
-        return QueryTimeoutError(
-            f"the query ran longer than --timeout {self.timeout:g} s and was cancelled")
+            return cancelled_error()
+        return query_error("DuckDB", first_line(error))
 
     def cancel(self) -> None:
         """From another thread: interrupt the running statement (``interrupt()`` is

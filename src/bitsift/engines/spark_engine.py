@@ -30,18 +30,9 @@ from typing import TYPE_CHECKING, Any
 
 from sqlglot import exp
 
-from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
+from bitsift.engines.base import Engine, FetchResult, query_error, unreadable_table
 from bitsift.engines.masking import mask_text
-from bitsift.errors import (
-    MissingDriverError,
-    QueryError,
-    QueryTimeoutError,
-    SourceError,
-    SpecError,
-    TableNotFoundError,
-    first_line,
-    unknown_names_message,
-)
+from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line
 from bitsift.spec.schema import Column, Family, family_by_class
 from bitsift.sql.dialects import capabilities
 
@@ -104,7 +95,6 @@ class SparkEngine(Engine):
     session: SparkSession | None = None
     #: bitsift started the session: stop it at close.
     owned: bool = False
-    timeout: float | None = None
     #: Temporary views bitsift registered (dropped at close).
     views: list[str] = field(default_factory=list)
 
@@ -179,29 +169,24 @@ class SparkEngine(Engine):
             schema = self.spark.sql(query).schema  # analysed eagerly; no job runs
         except Exception as error:  # noqa: BLE001
             if _condition(error) == "TABLE_OR_VIEW_NOT_FOUND":
-                raise TableNotFoundError(self._missing_table_message(display)) from None
-            raise SourceError(f"cannot read {display}: {first_line(error)}") from None
+                raise self.missing_table(display) from None
+            raise unreadable_table(display, error) from None
         return [
             Column(name=f.name, family=spark_family(f.dataType),
                    type_name=f.dataType.simpleString())
             for f in schema.fields
         ]
 
-    def _missing_table_message(self, display: str) -> str:
+    def _table_names(self) -> list[str]:
         try:
             tables = self.spark.catalog.listTables()
         except Exception:  # noqa: BLE001 - a catalog we may not list: no suggestion
             tables = []
         names = [t.name for t in tables if not _OWN_VIEW.match(t.name)]
-        names += [f"{t.namespace[-1]}.{t.name}" for t in tables if t.namespace]
-        return unknown_names_message("table", [display], names)
-
-    def set_timeout(self, seconds: float | None) -> None:
-        # No statement timeout in Spark: fetch() interrupts its own tagged operation.
-        check_timeout_limit(self.caps, seconds)
-        self.timeout = seconds or None
+        return names + [f"{t.namespace[-1]}.{t.name}" for t in tables if t.namespace]
 
     def fetch(self, sql: str) -> FetchResult:
+        # No statement timeout in Spark: a timer interrupts this statement's tagged jobs.
         self.statements.append(sql)
         tag = f"bitsift-{uuid.uuid4().hex}"
         fired = threading.Event()
@@ -219,8 +204,8 @@ class SparkEngine(Engine):
             rows = [tuple(row) for row in frame.collect()]
         except Exception as error:  # noqa: BLE001 - pyspark and py4j errors alike
             if fired.is_set():
-                raise self._timeout_error() from None
-            raise QueryError(f"Spark error: {first_line(error)}") from None
+                raise self.timeout_error() from None
+            raise query_error("Spark", first_line(error)) from None
         finally:
             done.set()
             restore()
@@ -228,7 +213,7 @@ class SparkEngine(Engine):
                 timer.join()
         if fired.is_set():
             # The statement finished between the deadline and the interrupt.
-            raise self._timeout_error()
+            raise self.timeout_error()
         return FetchResult(columns=names, rows=rows)
 
     def _interrupt_after(self, tag: str, seconds: float, fired: threading.Event,
@@ -261,11 +246,6 @@ class SparkEngine(Engine):
             context.setLocalProperty(_INTERRUPT_PROPERTY, previous)
 
         return undo
-
-    def _timeout_error(self) -> QueryTimeoutError:
-        return QueryTimeoutError(
-            f"the query ran longer than --timeout {self.timeout:g} s and was cancelled"
-        )
 
     def close(self) -> None:
         if self.session is None:
@@ -303,11 +283,8 @@ def open_spark_location(location: str, table: str | None) -> tuple[SparkEngine, 
             )
         return SparkEngine.start(location), None
     engine = SparkEngine.start()
-    try:
+    with engine.closed_on_failure():
         return engine, engine.read_parquet(location)
-    except BaseException:
-        engine.close()
-        raise
 
 
 def _spark_context(session: SparkSession) -> Any:

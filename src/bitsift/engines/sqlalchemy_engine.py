@@ -16,7 +16,13 @@ from sqlalchemy.engine import URL, make_url
 from sqlglot import exp
 
 from bitsift.engines import sqlite_support
-from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
+from bitsift.engines.base import (
+    Engine,
+    FetchResult,
+    cancelled_error,
+    check_timeout_limit,
+    query_error,
+)
 from bitsift.engines.masking import (
     environment_secrets,
     mask_text,
@@ -26,9 +32,7 @@ from bitsift.engines.masking import (
 )
 from bitsift.errors import (
     MissingDriverError,
-    QueryCancelledError,
     QueryError,
-    QueryTimeoutError,
     SourceError,
     TableNotFoundError,
     first_line,
@@ -105,7 +109,6 @@ class SqlAlchemyEngine(Engine):
     engine: sa.Engine | None = None
     #: The URL's password and secret query values, masked in every driver message.
     secret: tuple[str, ...] = field(default=(), repr=False)
-    timeout: float | None = None
     #: The caller's Connection had an open transaction: leave it alone.
     borrowed_transaction: bool = False
     _session_read_only: bool = False
@@ -348,11 +351,10 @@ class SqlAlchemyEngine(Engine):
         """The error for a failed statement: the timeout (only if one was set), a cancel
         (by bitsift or on the server, e.g. MariaDB ``KILL QUERY``), or any other error."""
         if self.timeout and (timed_out or _TIMEOUT_PATTERNS.search(message)):
-            return QueryTimeoutError(f"the query ran longer than --timeout {self.timeout:g} s "
-                                     f"and was cancelled ({message})")
+            return self.timeout_error(message)
         if self.cancelled.is_set() or _CANCEL_PATTERNS.search(message):
-            return QueryCancelledError(f"the query was cancelled: {message}")
-        return QueryError(f"{self.caps.name} error: {message}")
+            return cancelled_error(message)
+        return query_error(self.caps.name, message)
 
     def cancel(self) -> None:
         """From another thread: cancel the running statement on the server, refuse new ones."""
