@@ -366,8 +366,8 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
         spec = resolve(make_options(TARGET), columns, opened.table, opened.display,
                        engine.caps.sqlglot_dialect)
         counted = strategy == "counted_concurrent"
-        engine.caps = replace(engine.caps, **_one_statement(),
-                              run_quantile="counted" if counted else "buckets")
+        _override_run(engine, **_one_statement(),
+                      run_quantile="counted" if counted else "buckets")
         if strategy in ("grouping_sets", "union_all", "cross_join"):
             engine.caps = replace(engine.caps, count_strategy=strategy)
             return _scores(run_ranking(engine, spec).attributes)
@@ -382,12 +382,27 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
         return _scores(read_ranking(records, spec, cuts, dialect=engine.caps.name).attributes)
 
 
-def _one_statement() -> dict[str, Any]:
-    """The capability override that keeps bitsift's run mode to one statement."""
-    from bitsift.sql.dialects import Capabilities
+def _run_fields() -> dict[str, Any]:
+    """The fields of the dataclass holding run mode's choices: the run policy, or in versions
+    before it, the capability entry."""
+    try:
+        from bitsift.engines.policy import RunPolicy
+    except ImportError:
+        from bitsift.sql.dialects import Capabilities as RunPolicy  # type: ignore[assignment]
+    return RunPolicy.__dataclass_fields__
 
-    fields = Capabilities.__dataclass_fields__
-    return {"run_sessions": 1} if "run_sessions" in fields else {}
+
+def _override_run(engine: Any, **fields: Any) -> None:
+    """Override run mode's choices on an open engine (its policy, or its capabilities)."""
+    if hasattr(engine, "policy"):
+        engine.policy = replace(engine.policy, **fields)
+    else:
+        engine.caps = replace(engine.caps, **fields)
+
+
+def _one_statement() -> dict[str, Any]:
+    """The run-mode override that keeps bitsift's run mode to one statement."""
+    return {"run_sessions": 1} if "run_sessions" in _run_fields() else {}
 
 
 CONTENDERS: dict[str, Callable[..., Metrics]] = {

@@ -9,7 +9,7 @@ The table (a 3-class target, 3 categorical and 4 numeric attributes of invented,
 values) is written to a scratch SQLite file or MariaDB database and removed afterwards. Each
 method ranks it ``--repeats`` times in this process, interleaved; the medians are printed with
 the largest difference in information gain between the methods (rounding only). The numbers
-behind the SQLite and MariaDB choices in src/bitsift/sql/dialects.py; see RESULTS.md.
+behind the SQLite and MariaDB choices in src/bitsift/engines/policy.py; see RESULTS.md.
 """
 
 from __future__ import annotations
@@ -29,7 +29,7 @@ from pathlib import Path
 import sqlalchemy as sa
 
 import bitsift
-from bitsift.sql import dialects
+from bitsift.engines import policy
 
 MARIADB_URL = "mysql+pymysql://root@127.0.0.1:3306/test"
 COLUMNS = "y INTEGER, c1 INTEGER, c2 VARCHAR(8), c3 INTEGER, n1 DOUBLE PRECISION, " \
@@ -94,21 +94,21 @@ def main(argv: list[str] | None = None) -> None:
     parser.add_argument("--mariadb-url", default=MARIADB_URL)
     args = parser.parse_args(argv)
     methods = ["statement", "buckets", "counted"]
-    shipped = dialects.CAPABILITIES[args.engine]
+    shipped = policy.run_policy(args.engine)
     seconds: dict[str, list[float]] = {m: [] for m in methods}
     gains: dict[str, dict[str, float]] = {}
     with scratch_table(args.engine, args.rows, args.mariadb_url) as (url, table):
         try:
             for _ in range(args.repeats):
                 for method in methods:
-                    dialects.CAPABILITIES[args.engine] = dataclasses.replace(
+                    policy.POLICIES[args.engine] = dataclasses.replace(
                         shipped, run_quantile=method)
                     start = time.perf_counter()
                     ranking = bitsift.rank(url, target="y", table=table)
                     seconds[method].append(time.perf_counter() - start)
                     gains[method] = {a.attribute: a.information_gain for a in ranking.attributes}
         finally:
-            dialects.CAPABILITIES[args.engine] = shipped
+            policy.POLICIES[args.engine] = shipped
     print(f"{args.engine}, {args.rows:,} rows x 7 attributes (4 numeric), {args.repeats} rounds; "
           f"shipped: {shipped.run_quantile}")
     for method in methods:

@@ -249,13 +249,14 @@ def run_sql(where: Loaded, sql: str) -> list[dict[str, Any]]:
 
 def rank_with(source: Any, table: str | None, target: str, *, strategy: str | None = None,
               quantile: str | None = None, caps: Mapping[str, Any] | None = None,
-              **options: Any) -> Ranking:
+              policy: Mapping[str, Any] | None = None, **options: Any) -> Ranking:
     """``bitsift.rank`` with the dialect's count strategy / quantile method (or any other
-    capability in ``caps``) overridden."""
+    capability in ``caps``, and run-policy field in ``policy``) overridden."""
     with Session.open(source, table) as session:
         overrides = {k: v for k, v in (("count_strategy", strategy), ("quantile", quantile)) if v}
         session.engine.caps = dataclasses.replace(session.engine.caps, **overrides,
                                                   **(caps or {}))
+        session.engine.policy = dataclasses.replace(session.engine.policy, **(policy or {}))
         return bitsift.rank(session, target, **options)
 
 

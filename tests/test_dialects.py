@@ -1,8 +1,9 @@
 """Every dialect's capability entry and what its paste-ready SQL must (not) say, from one table.
 
-:data:`EXPECTED` holds, per dialect, the capability fields the entry must have, why, and the
-text its paste-ready statement (golden variant ``default``) must and must not contain; the same
-two tests read every entry. Adding a dialect: one ``Capabilities`` entry in
+:data:`EXPECTED` holds, per dialect, the capability fields (SQL traits) and run-policy fields
+its entries must have, why, whether the suite executes it, and the text its paste-ready
+statement (golden variant ``default``) must and must not contain; the same tests read every
+entry. Adding a dialect: one ``Capabilities`` entry in
 ``src/bitsift/sql/dialects.py`` and one :class:`Expected` here (DEVELOPERS.md, "How to add a
 dialect"). At the end, what only a running engine shows (timeouts, read-only statements), on
 the engines that run here.
@@ -22,10 +23,11 @@ import pytest
 import sqlalchemy as sa
 import sqlglot
 from conftest import MARIADB_URL
-from helpers import fill_sqlalchemy, invalid_constructs, paste_sql, random_dataset
+from helpers import ENGINES, fill_sqlalchemy, invalid_constructs, paste_sql, random_dataset
 from sqlglot import exp
 
 import bitsift
+from bitsift.engines.policy import POLICIES, RunPolicy, Timeout, run_policy
 from bitsift.errors import QueryTimeoutError
 from bitsift.sql import dialects
 from bitsift.sql.dialects import capabilities
@@ -37,8 +39,15 @@ class Expected:
 
     #: Why the entry is what it is (the engine's traits that decide it).
     why: str
-    #: ``Capabilities`` fields and the value each must have.
+    #: ``Capabilities`` fields (the SQL traits) and the value each must have.
     caps: Mapping[str, Any]
+    #: ``RunPolicy`` fields (what a running session does) and the value each must have.
+    policy: Mapping[str, Any] = dataclasses.field(default_factory=dict)
+    #: The suite executes this dialect's SQL on a real engine against the NumPy reference
+    #: (tests/test_parity.py and tests/test_golden.py on :data:`helpers.ENGINES`,
+    #: tests/test_spark.py, tests/test_clickhouse.py); the others are checked on sqlglot's
+    #: output and the vendors' documentation only.
+    executed_here: bool = False
     #: Text the statement must contain, exactly as written.
     says: tuple[str, ...] = ()
     #: Text it must not contain, exactly as written.
@@ -55,7 +64,9 @@ EXPECTED: dict[str, Expected] = {
             "attribute), GROUPING SETS, LN; the timeout is enforced by interrupting the query "
             "from the client.",
         caps={"count_strategy": "grouping_sets", "quantile": "quantile_cont",
-              "timeout_in_client": True, "exact_key_type": None, "executed_in_tests": True},
+              "exact_key_type": None},
+        policy={"timeout": Timeout("client"), "run_quantile": "counted", "run_sessions": 2},
+        executed_here=True,
         says=("QUANTILE_CONT(CAST(\"score\" AS DOUBLE), [0.25, 0.5, 0.75])", "GROUPING SETS",
               "LN(CAST(n AS DOUBLE))"),
     ),
@@ -64,10 +75,11 @@ EXPECTED: dict[str, Expected] = {
             "exact quantiles from ROW_NUMBER(). Read-only through PRAGMA query_only (undone at "
             "close); --timeout through a progress handler; LN/FLOOR registered from Python "
             "when the build lacks them.",
-        caps={"count_strategy": "union_all", "quantile": "window",
-              "read_only_statement": "PRAGMA query_only = ON",
-              "read_only_reset": "PRAGMA query_only = OFF", "timeout_in_client": True,
-              "register_math_functions": True, "executed_in_tests": True},
+        caps={"count_strategy": "union_all", "quantile": "window"},
+        policy={"read_only_statement": "PRAGMA query_only = ON",
+                "read_only_reset": "PRAGMA query_only = OFF", "timeout": Timeout("client"),
+                "register_math_functions": True},
+        executed_here=True,
         says=("UNION ALL", "ROW_NUMBER() OVER (ORDER BY CAST(\"score\" AS REAL) NULLS LAST)",
               "CAST(n AS REAL)"),
         never_says=("GROUPING",),
@@ -76,10 +88,11 @@ EXPECTED: dict[str, Expected] = {
         why="GROUPING SETS with one-column GROUPING(), PERCENTILE_CONT ... WITHIN GROUP "
             "(exact). Read-only and statement_timeout are set per transaction (SET TRANSACTION "
             "READ ONLY, SET LOCAL), so a caller's pooled connection keeps its own settings.",
-        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont",
-              "read_only_statement": "SET TRANSACTION READ ONLY",
-              "timeout_statement": "SET LOCAL statement_timeout = {ms}",
-              "executed_in_tests": True},
+        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont"},
+        policy={"read_only_statement": "SET TRANSACTION READ ONLY",
+                "timeout": Timeout("transaction", "SET LOCAL statement_timeout = {ms}",
+                                   2_147_483.647)},
+        executed_here=True,
         says=("PERCENTILE_CONT(0.25) WITHIN GROUP (ORDER BY", "GROUPING(a1) = 0",
               "LN(CAST(n AS DOUBLE PRECISION))"),
     ),
@@ -88,8 +101,9 @@ EXPECTED: dict[str, Expected] = {
             "as a window function, and case-insensitive default collations: UNION ALL, window "
             "quantiles, and text grouped as CAST(... AS BINARY) (sqlglot would print "
             "VARBINARY, which MySQL rejects).",
-        caps={"count_strategy": "union_all", "quantile": "window", "exact_key_type": "BINARY",
-              "timeout_statement": "SET SESSION max_execution_time = {ms}"},
+        caps={"count_strategy": "union_all", "quantile": "window", "exact_key_type": "BINARY"},
+        policy={"timeout": Timeout("transaction", "SET SESSION max_execution_time = {ms}",
+                                   4_294_967.295)},
         says=("CAST(src.`word` AS BINARY) AS a1", "CAST(src.`y` AS BINARY) AS y",
               "CAST(SUM(n) AS SIGNED)", "CAST(n AS DOUBLE)"),
     ),
@@ -98,16 +112,17 @@ EXPECTED: dict[str, Expected] = {
             "merging 'a'/'A' and 'x'/'x ' in GROUP BY: UNION ALL, window quantiles, text "
             "grouped as BINARY. The timeout is a per-statement prefix (SET STATEMENT "
             "max_statement_time = s FOR ...), leaving no session state.",
-        caps={"count_strategy": "union_all", "exact_key_type": "BINARY",
-              "timeout_prefix": "SET STATEMENT max_statement_time = {seconds} FOR ",
-              "read_only_statement": "SET TRANSACTION READ ONLY", "executed_in_tests": True},
+        caps={"count_strategy": "union_all", "exact_key_type": "BINARY"},
+        policy={"timeout": Timeout("prefix", "SET STATEMENT max_statement_time = {seconds} FOR ",
+                                   31_536_000.0),
+                "read_only_statement": "SET TRANSACTION READ ONLY"},
+        executed_here=True,
         same_statement_as="mysql",
     ),
     "snowflake": Expected(
         why="GROUPING SETS, exact PERCENTILE_CONT ... WITHIN GROUP; case-sensitive comparisons "
             "by default. Not executed here: checked by sqlglot and the vendor's documentation.",
-        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont",
-              "executed_in_tests": False},
+        caps={"count_strategy": "grouping_sets", "quantile": "percentile_cont"},
         says=("PERCENTILE_CONT(0.5) WITHIN GROUP (ORDER BY", "GROUPING SETS",
               "CAST(n AS DOUBLE)"),
     ),
@@ -115,8 +130,7 @@ EXPECTED: dict[str, Expected] = {
         why="GROUPING SETS and GROUPING(); no exact quantile aggregate sqlglot maps "
             "faithfully, so the portable window method. LOG's arguments are reversed in "
             "BigQuery: only LN is written. Not executed here.",
-        caps={"count_strategy": "grouping_sets", "quantile": "window",
-              "executed_in_tests": False},
+        caps={"count_strategy": "grouping_sets", "quantile": "window"},
         says=("FROM `bitsift_golden`", "CAST(n AS FLOAT64)", "CAST(SUM(n) AS INT64)",
               "ROW_NUMBER() OVER"),
         never_says=("WITHIN GROUP",),
@@ -124,8 +138,9 @@ EXPECTED: dict[str, Expected] = {
     "redshift": Expected(
         why="GROUPING SETS; every PERCENTILE_CONT of one query must share its ORDER BY on "
             "Redshift, so the window method. Not executed here.",
-        caps={"count_strategy": "grouping_sets", "quantile": "window",
-              "timeout_statement": "SET statement_timeout TO {ms}"},
+        caps={"count_strategy": "grouping_sets", "quantile": "window"},
+        policy={"timeout": Timeout("transaction", "SET statement_timeout TO {ms}",
+                                   2_147_483.647)},
         says=("GROUPING SETS", "DOUBLE PRECISION"),
         never_says=("PERCENTILE_CONT",),
     ),
@@ -167,6 +182,8 @@ EXPECTED: dict[str, Expected] = {
             "approximate percentile_approx). Executed on a local Spark session in "
             "tests/test_spark.py.",
         caps={"count_strategy": "grouping_sets", "quantile": "percentile"},
+        policy={"timeout": Timeout("client")},
+        executed_here=True,
         says=("PERCENTILE(CAST(`score` AS DOUBLE), ARRAY(", "GROUPING(a1) = 0"),
         never_says_any_case=("PERCENTILE_APPROX",),
     ),
@@ -176,6 +193,9 @@ EXPECTED: dict[str, Expected] = {
             "GROUPING(); sqlglot's quantile is approximate, so the window method. Executed on "
             "embedded ClickHouse (chdb) in tests/test_clickhouse.py.",
         caps={"count_strategy": "grouping_sets", "quantile": "window"},
+        policy={"statement_settings": ("readonly = 2",), "timeout": Timeout(
+            "setting", "max_execution_time = {seconds}", 9_223_372_036_854.0)},
+        executed_here=True,
         says=("GROUPING(a1) = 0", "Float64"),
         never_says_any_case=("quantile(",),
     ),
@@ -195,6 +215,30 @@ def test_capability_entry(dialect: str) -> None:
     caps = capabilities(dialect)
     wanted = EXPECTED[dialect].caps
     assert {field: getattr(caps, field) for field in wanted} == wanted
+
+
+@pytest.mark.parametrize("dialect", EXPECTED)
+def test_run_policy_entry(dialect: str) -> None:
+    policy = run_policy(dialect)
+    wanted = EXPECTED[dialect].policy
+    assert {field: getattr(policy, field) for field in wanted} == wanted
+
+
+def test_every_run_policy_names_a_dialect() -> None:
+    assert sorted(set(POLICIES) - set(dialects.CAPABILITIES)) == []
+
+
+def test_the_executed_dialects_are_the_engines_the_suite_runs() -> None:
+    executed = {name for name, expected in EXPECTED.items() if expected.executed_here}
+    assert executed == {*ENGINES, "spark", "clickhouse"}
+
+
+def test_sql_traits_and_run_policy_share_no_field() -> None:
+    """The capability entry holds what pasted SQL needs; what a session does is policy."""
+    traits = {f.name for f in dataclasses.fields(dialects.Capabilities)}
+    policy = {f.name for f in dataclasses.fields(RunPolicy)}
+    assert traits & policy == set()
+    assert "executed_in_tests" not in traits
 
 
 @pytest.mark.parametrize("dialect", EXPECTED)

@@ -32,8 +32,8 @@ from helpers import (
 )
 
 import bitsift
+from bitsift.engines.policy import run_policy
 from bitsift.run import api, reference
-from bitsift.sql.dialects import capabilities
 
 # --- a million distinct values -----------------------------------------------------------------
 
@@ -176,7 +176,7 @@ def test_500_columns_rank_in_batches(engine: str, request: pytest.FixtureRequest
     for statement in (s for s in ranking.statements if "information_gain" in s):
         sizes.append(max(int(i) for i in re.findall(r"\bAS a(\d+)\b", statement)))
     assert max(sizes) <= api.MAX_ATTRIBUTES_PER_STATEMENT
-    counted = capabilities(engine).run_quantile == "counted"
+    counted = run_policy(engine).run_quantile == "counted"
     assert sum(sizes) == WIDE_COLUMNS - (len(numeric) if counted else 0), engine
     assert any("bucket_cells" in s for s in ranking.statements) == counted, engine
 

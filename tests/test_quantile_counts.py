@@ -20,9 +20,9 @@ from helpers import Dataset, assert_matches_reference, assert_same_ranking, load
 from test_quantiles import SHAPES, non_finite_dataset, shaped_dataset
 
 import bitsift
+from bitsift.engines.policy import run_policy
 from bitsift.run import quantile_counts
 from bitsift.run.result import Ranking
-from bitsift.sql.dialects import capabilities
 
 COUNTED = {"run_quantile": "counted"}
 ROW_BY_ROW = {"run_quantile": "buckets"}
@@ -63,7 +63,7 @@ def test_counted_bins_equal_the_numpy_reference(missing: str, bins: int,
     # (the next test compares it with the row-by-row binning instead).
     shapes = [s for s in SHAPES if not (missing == "drop" and s == "empty")]
     with loaded("duckdb", dataset, request) as where:
-        ranking = rank_with(where.source, where.table, "y", caps=COUNTED, missing=missing,
+        ranking = rank_with(where.source, where.table, "y", policy=COUNTED, missing=missing,
                             bins=bins, attributes=",".join(shapes))
     _assert_counted(ranking)
     assert_matches_reference(ranking, dataset, "y", numeric=shapes, missing=missing, bins=bins,
@@ -76,8 +76,8 @@ def test_counted_shapes_equal_the_row_by_row_bins(missing: str,
                                                   request: pytest.FixtureRequest) -> None:
     dataset = shaped_dataset(rows=2000, seed=31)
     with loaded("duckdb", dataset, request) as where:
-        counted = rank_with(where.source, where.table, "y", caps=COUNTED, missing=missing)
-        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW,
+        counted = rank_with(where.source, where.table, "y", policy=COUNTED, missing=missing)
+        row_by_row = rank_with(where.source, where.table, "y", policy=ROW_BY_ROW,
                                missing=missing)
     _assert_counted(counted)
     assert_same_ranking(counted, row_by_row, missing)
@@ -111,8 +111,8 @@ def test_counted_bins_equal_the_row_by_row_bins(options: dict[str, Any],
     # Ties on the cut points are where counting "below v" and "equal to v" must be exact.
     dataset = _tied_dataset(rows=4000, seed=5)
     with loaded("duckdb", dataset, request) as where:
-        counted = rank_with(where.source, where.table, "y", caps=COUNTED, **options)
-        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, **options)
+        counted = rank_with(where.source, where.table, "y", policy=COUNTED, **options)
+        row_by_row = rank_with(where.source, where.table, "y", policy=ROW_BY_ROW, **options)
     _assert_counted(counted)
     assert CELLS not in _sent(row_by_row) and ROW_BINNING in _sent(row_by_row)
     assert_same_ranking(counted, row_by_row, str(options))
@@ -127,7 +127,7 @@ def test_the_counted_statements_run_on_other_engines(engine: str,
     # statements are plain SQL, and the metrics are computed in the client from their counts.
     dataset = _tied_dataset(rows=1500, seed=8)
     with loaded(engine, dataset, request) as where:
-        counted = rank_with(where.source, where.table, "y", caps=COUNTED, bins=5)
+        counted = rank_with(where.source, where.table, "y", policy=COUNTED, bins=5)
     _assert_counted(counted)
     assert_matches_reference(counted, dataset, "y",
                              numeric=("few", "cluster", "halves", "nothing"),
@@ -141,8 +141,8 @@ def test_counted_bins_equal_the_row_by_row_bins_on_mariadb(
     # MariaDB groups text byte-exactly (BINARY keys): the classes arrive as bytes.
     dataset = _tied_dataset(rows=1500, seed=6)
     with loaded("mariadb", dataset, request) as where:
-        counted = rank_with(where.source, where.table, "y", caps=COUNTED, **options)
-        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, **options)
+        counted = rank_with(where.source, where.table, "y", policy=COUNTED, **options)
+        row_by_row = rank_with(where.source, where.table, "y", policy=ROW_BY_ROW, **options)
     _assert_counted(counted)
     assert_same_ranking(counted, row_by_row, str(options))
     for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
@@ -152,8 +152,8 @@ def test_counted_bins_equal_the_row_by_row_bins_on_mariadb(
 def test_the_dialects_run_and_measured_here_count() -> None:
     # MySQL has no server in the tests: it keeps its one-statement quantile.
     counting = ("duckdb", "postgres", "sqlite", "mariadb")
-    assert {capabilities(d).run_quantile for d in counting} == {"counted"}
-    assert capabilities("mysql").run_quantile == "statement"
+    assert {run_policy(d).run_quantile for d in counting} == {"counted"}
+    assert run_policy("mysql").run_quantile == "statement"
 
 
 @pytest.mark.slow
@@ -161,8 +161,8 @@ def test_infinite_and_nan_values_are_ranked_the_usual_way(
         request: pytest.FixtureRequest) -> None:
     dataset = non_finite_dataset(rows=500, seed=4)
     with loaded("duckdb", dataset, request) as where:
-        counted = rank_with(where.source, where.table, "y", caps=COUNTED)
-        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW)
+        counted = rank_with(where.source, where.table, "y", policy=COUNTED)
+        row_by_row = rank_with(where.source, where.table, "y", policy=ROW_BY_ROW)
     assert CELLS in _sent(counted)  # plain was counted ...
     (ranked,) = _ranking_statements(counted)  # ... the other two binned by rows
     assert ROW_BINNING in ranked and '"with_inf"' in ranked and '"with_nan"' in ranked
@@ -193,9 +193,9 @@ def test_a_table_changing_between_the_steps_is_ranked_the_usual_way(
 
     monkeypatch.setattr(quantile_counts, "_splits", changed_then_split)
     try:
-        ranking = rank_with(connection, "t", "y", caps=COUNTED)
+        ranking = rank_with(connection, "t", "y", policy=COUNTED)
         monkeypatch.setattr(quantile_counts, "_splits", splits)
-        fresh = rank_with(connection, "t", "y", caps=ROW_BY_ROW)
+        fresh = rank_with(connection, "t", "y", policy=ROW_BY_ROW)
     finally:
         connection.close()
     assert ROW_BINNING in _sent(ranking) and ranking.rows == 3360
@@ -213,8 +213,8 @@ def test_many_bins_and_classes_are_still_counted(request: pytest.FixtureRequest)
     dataset = Dataset(columns=(("y", "text"), ("normal", "float"), ("tail", "float")),
                       rows=rows)
     with loaded("duckdb", dataset, request) as where:
-        counted = rank_with(where.source, where.table, "y", caps=COUNTED, bins=50)
-        row_by_row = rank_with(where.source, where.table, "y", caps=ROW_BY_ROW, bins=50)
+        counted = rank_with(where.source, where.table, "y", policy=COUNTED, bins=50)
+        row_by_row = rank_with(where.source, where.table, "y", policy=ROW_BY_ROW, bins=50)
     _assert_counted(counted)
     assert_same_ranking(counted, row_by_row)
     for a, b in zip(counted.attributes, row_by_row.attributes, strict=True):
@@ -228,7 +228,7 @@ def test_a_file_source_counts_on_its_own_session(request: pytest.FixtureRequest)
     dataset = shaped_dataset(rows=2000, seed=9)
     with loaded("duckdb", dataset, request, duckdb_file=True) as where:
         two = bitsift.rank(where.source, target="y", table=where.table)
-        one = rank_with(where.source, where.table, "y", caps={"run_sessions": 1})
+        one = rank_with(where.source, where.table, "y", policy={"run_sessions": 1})
     _assert_counted(two)
     assert_same_ranking(two, one)
     assert_matches_reference(two, dataset, "y", numeric=SHAPES)
@@ -257,8 +257,8 @@ def test_bigger_tables_get_more_buckets(monkeypatch: pytest.MonkeyPatch) -> None
     connection = duckdb.connect()
     connection.execute("CREATE TABLE t AS SELECT i % 3 AS y, sqrt(i) AS v FROM range(3000) r(i)")
     try:
-        counted = rank_with(connection, "t", "y", caps=COUNTED)
-        row_by_row = rank_with(connection, "t", "y", caps=ROW_BY_ROW)
+        counted = rank_with(connection, "t", "y", policy=COUNTED)
+        row_by_row = rank_with(connection, "t", "y", policy=ROW_BY_ROW)
     finally:
         connection.close()
     scale = 2000 / math.sqrt(2999)  # buckets / (highest - lowest value)
@@ -282,8 +282,8 @@ def test_decimal_date_integer_and_timestamp_columns_count_like_floats(
         "FROM range(20000) r(i)")
     try:
         numeric = "sown,count_,seen"
-        counted = rank_with(connection, "t", "y", caps=COUNTED, numeric=numeric, **options)
-        row_by_row = rank_with(connection, "t", "y", caps=ROW_BY_ROW, numeric=numeric,
+        counted = rank_with(connection, "t", "y", policy=COUNTED, numeric=numeric, **options)
+        row_by_row = rank_with(connection, "t", "y", policy=ROW_BY_ROW, numeric=numeric,
                                **options)
     finally:
         connection.close()

@@ -111,7 +111,7 @@ def test_infinite_and_nan_values_fall_back_to_the_engines_quantile(
             opened_engine = session.engine
             spec = session.resolve(make_options("y"))
             by_statement = fetch_cuts(opened_engine, spec)
-            opened_engine.caps = replace(opened_engine.caps, run_quantile="buckets")
+            opened_engine.policy = replace(opened_engine.policy, run_quantile="buckets")
             mixed = fetch_cuts(opened_engine, spec)
         # The whole run-mode result: same cut points as the one-statement quantile, within
         # the last bit (the engines' own interpolation rounds differently from numpy).
@@ -149,7 +149,7 @@ def test_a_ranking_reads_no_whole_column_sort_on_duckdb() -> None:
         with Session.open(connection, "t") as session:
             engine = session.engine
             spec = session.resolve(make_options("y"))
-            assert engine.caps.run_quantile == "counted"  # buckets for cut points, too
+            assert engine.policy.run_quantile == "counted"  # buckets for cut points, too
             fetch_cuts(engine, spec)
             sent = " ".join(engine.statements).lower()
         assert "quantile_cont" not in sent and "row_number" in sent

@@ -28,6 +28,7 @@ from helpers import (
 
 import bitsift
 from bitsift.engines.masking import mask_text, mask_url
+from bitsift.engines.policy import Timeout
 from bitsift.engines.sources import open_source
 from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine, safe_url
 from bitsift.errors import PredicateError, QueryError, QueryTimeoutError, SourceError
@@ -408,7 +409,7 @@ def test_engine_without_timeout_says_so(tmp_path: pytest.TempPathFactory) -> Non
     with engine.begin() as connection:
         _run(connection, "CREATE TABLE t AS SELECT 1 AS a, 1 AS y UNION ALL SELECT 2, 0")
     engine.dispose()
-    ranking = rank_with(url, "t", "y", timeout=5, caps={"timeout_in_client": False})
+    ranking = rank_with(url, "t", "y", timeout=5, policy={"timeout": Timeout()})
     assert ranking.notes == ["sqlite has no statement timeout; --timeout 5 is not applied"]
     assert bitsift.rank(url, table="t", target="y", timeout=5).notes == []
 

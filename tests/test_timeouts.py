@@ -19,9 +19,9 @@ from conftest import MARIADB_URL, POSTGRES_URL
 
 import bitsift
 from bitsift.cli import main
+from bitsift.engines.policy import run_policy
 from bitsift.errors import QueryTimeoutError, SpecError
 from bitsift.jobs.jobfile import JobError, load_job
-from bitsift.sql.dialects import CAPABILITIES
 
 BAD = ["nan", "-1", "0", "-inf"]
 
@@ -153,7 +153,7 @@ def test_postgres_takes_its_longest_timeout_and_refuses_a_longer_one(
     with postgres_engine.begin() as connection:
         _run(connection, f'CREATE TABLE "{pg_schema}".t AS SELECT i % 3 AS a, '
                                    "i % 5 AS b, i % 2 AS y FROM generate_series(1, 50) i")
-    longest = CAPABILITIES["postgres"].timeout_max
+    longest = run_policy("postgres").timeout.longest
     ranking = bitsift.rank(POSTGRES_URL, table=f"{pg_schema}.t", target="y", timeout=longest)
     assert "SET LOCAL statement_timeout = 2147483647" in ranking.statements
     # Was: sqlalchemy DataError "2999999999 ms is outside the valid range".

@@ -12,6 +12,7 @@ from typing import Any, ClassVar
 
 from sqlglot import exp
 
+from bitsift.engines.policy import RunPolicy, run_policy
 from bitsift.errors import (
     QueryCancelledError,
     QueryError,
@@ -56,6 +57,9 @@ class Engine(ABC):
     has_siblings: ClassVar[bool] = False
     #: The statement timeout in seconds (None: no limit), as :meth:`set_timeout` set it.
     timeout: float | None = None
+    #: What the session does besides sending statements: the engine's entry in the run policy
+    #: table (:func:`bitsift.engines.policy.run_policy`), looked up by :attr:`caps`' name.
+    policy: RunPolicy = field(init=False, repr=False)
 
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
         """The table's columns in catalog order, or :class:`TableNotFoundError`; those the
@@ -112,7 +116,7 @@ class Engine(ABC):
         """Set a statement timeout, or add a note saying the engine has none. By default the
         engine's :meth:`fetch` enforces :attr:`timeout` itself (a setting sent with each
         statement, or an interrupt from a timer)."""
-        check_timeout_limit(self.caps, seconds)
+        check_timeout_limit(self, seconds)
         self.timeout = seconds or None
 
     def timeout_error(self, detail: str | None = None) -> QueryTimeoutError:
@@ -131,6 +135,7 @@ class Engine(ABC):
         return []
 
     def __post_init__(self) -> None:
+        self.policy = run_policy(self.caps.name)
         _LIVE[id(self)] = self
 
     def cancel(self) -> None:
@@ -155,6 +160,7 @@ class Engine(ABC):
         sibling = self._new_session()
         self.statements.extend(sibling.statements)
         sibling.statements = self.statements
+        sibling.policy = self.policy
         sibling.set_timeout(timeout)
         return sibling
 
@@ -203,12 +209,13 @@ def cancel_all() -> None:
             continue
 
 
-def check_timeout_limit(caps: Capabilities, seconds: float | None) -> None:
+def check_timeout_limit(engine: Engine, seconds: float | None) -> None:
     """:class:`SpecError` when ``seconds`` is longer than the engine's timeout can hold
     (instead of a driver's overflow, a server's range error, or a value silently cut)."""
-    if seconds is not None and seconds > caps.timeout_max:
-        raise SpecError(f"--timeout {seconds:.15g} s is longer than {caps.name} can enforce "
-                        f"(at most {caps.timeout_max:.15g} s); give inf for no limit")
+    longest = engine.policy.timeout.longest
+    if seconds is not None and seconds > longest:
+        raise SpecError(f"--timeout {seconds:.15g} s is longer than {engine.caps.name} can "
+                        f"enforce (at most {longest:.15g} s); give inf for no limit")
 
 
 # Errors every engine raises in the same words (each engine decides when).

@@ -1,8 +1,8 @@
 """ClickHouse, embedded (chdb): Parquet files read in place, or tables of a chdb database directory.
 
 A caller's :class:`chdb.session.Session` is used as it is and never closed. Settings are
-scoped to each statement by a trailing ``SETTINGS`` clause (the capability table's
-``statement_settings`` and ``timeout_setting``: ``readonly = 2`` and ``max_execution_time``),
+scoped to each statement by a trailing ``SETTINGS`` clause (the run policy's
+``statement_settings`` and its ``setting`` timeout: ``readonly = 2`` and ``max_execution_time``),
 so no session, a caller's included, keeps any state from bitsift.
 """
 
@@ -18,9 +18,10 @@ from typing import Any
 from sqlglot import exp
 
 from bitsift.engines.base import Engine, FetchResult, query_error, unreadable_table
+from bitsift.engines.policy import RunPolicy
 from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line
 from bitsift.spec.schema import Column, Family, family_of
-from bitsift.sql.dialects import Capabilities, capabilities
+from bitsift.sql.dialects import capabilities
 
 #: ClickHouse error codes bitsift tells apart (``Code: N. DB::Exception ...``).
 _UNKNOWN_TABLE_CODES = frozenset({60, 81})  # UNKNOWN_TABLE, UNKNOWN_DATABASE
@@ -57,19 +58,16 @@ def clickhouse_family(type_name: str) -> Family:
     return family_of(inner, "clickhouse")
 
 
-def settings_clause(caps: Capabilities, timeout: float | None) -> str:
+def settings_clause(policy: RunPolicy, timeout: float | None) -> str:
     """The trailing ``SETTINGS`` clause for one statement, or ``""``.
 
-    >>> settings_clause(capabilities("clickhouse"), 2.5)
+    >>> from bitsift.engines.policy import run_policy
+    >>> settings_clause(run_policy("clickhouse"), 2.5)
     '\\nSETTINGS readonly = 2, max_execution_time = 2.500000'
     """
-    settings = list(caps.statement_settings)
-    if timeout and caps.timeout_setting:
-        settings.append(caps.timeout_setting.format(
-            ms=max(1, round(timeout * 1000)),
-            seconds=f"{max(timeout, 0.000001):.6f}",
-            whole_seconds=max(1, round(timeout)),
-        ))
+    settings = list(policy.statement_settings)
+    if timeout and policy.timeout.how == "setting":
+        settings.append(policy.timeout.filled(timeout))
     # On its own line: the statement may end with a comment.
     return "\nSETTINGS " + ", ".join(settings) if settings else ""
 
@@ -144,7 +142,7 @@ class ChdbEngine(Engine):
         return self.session.query(sql, "ArrowTable")
 
     def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:
-        query = "DESCRIBE TABLE " + table.sql("clickhouse") + settings_clause(self.caps, None)
+        query = "DESCRIBE TABLE " + table.sql("clickhouse") + settings_clause(self.policy, None)
         try:
             described = self._query(query).to_pylist()
         except Exception as error:  # noqa: BLE001
@@ -161,14 +159,14 @@ class ChdbEngine(Engine):
         query = ("SELECT database, name FROM system.tables WHERE NOT is_temporary "
                  "AND database NOT IN ('system', 'INFORMATION_SCHEMA', 'information_schema')")
         try:
-            rows = self._query(query + settings_clause(self.caps, None)).to_pylist()
+            rows = self._query(query + settings_clause(self.policy, None)).to_pylist()
         except Exception:  # noqa: BLE001 - no suggestions then
             rows = []
         return [r["name"] for r in rows] + [f"{r['database']}.{r['name']}" for r in rows]
 
     def fetch(self, sql: str) -> FetchResult:
         # The timeout: ClickHouse's own max_execution_time, set per statement.
-        text = sql + settings_clause(self.caps, self.timeout)
+        text = sql + settings_clause(self.policy, self.timeout)
         self.statements.append(text)
         try:
             result = self._query(text)

@@ -210,15 +210,15 @@ class SqlAlchemyEngine(Engine):
 
     def _prepare(self) -> None:
         """Once per connection: math functions for SQLite, session-scoped read-only mode."""
-        if self.caps.register_math_functions:
+        if self.policy.register_math_functions:
             sqlite_support.restore_functions(self._driver_connection())
             added = sqlite_support.register_math_functions(self._driver_connection())
             if added:
                 self.notes.append("this SQLite build lacks " + ", ".join(added)
                                   + ": bitsift registered Python's on the connection")
-        if (self.caps.read_only_statement and self.caps.read_only_reset
+        if (self.policy.read_only_statement and self.policy.read_only_reset
                 and not self.borrowed_transaction):
-            self._session(self.caps.read_only_statement)
+            self._session(self.policy.read_only_statement)
             self._session_read_only = True
 
     def _execute(self, statement: str) -> sa.CursorResult[Any]:
@@ -234,12 +234,12 @@ class SqlAlchemyEngine(Engine):
         """Start a transaction: read-only, with the timeout, both scoped to it."""
         if self.borrowed_transaction:
             return
-        if self.caps.read_only_statement and not self.caps.read_only_reset:
-            self._session(self.caps.read_only_statement)
-        for setting in self.caps.transaction_settings:
+        if self.policy.read_only_statement and not self.policy.read_only_reset:
+            self._session(self.policy.read_only_statement)
+        for setting in self.policy.transaction_settings:
             self._session(setting)
-        if self.timeout and self.caps.timeout_statement:
-            self._session(_timeout_text(self.caps.timeout_statement, self.timeout))
+        if self.timeout and self.policy.timeout.how == "transaction":
+            self._session(self.policy.timeout.filled(self.timeout))
 
     def _end(self) -> None:
         if not self.borrowed_transaction:
@@ -309,10 +309,10 @@ class SqlAlchemyEngine(Engine):
         return name
 
     def set_timeout(self, seconds: float | None) -> None:
-        check_timeout_limit(self.caps, seconds)
+        check_timeout_limit(self, seconds)
         if not seconds:
             return
-        if not self.caps.has_timeout:
+        if not self.policy.has_timeout:
             self.notes.append(
                 f"{self.caps.name} has no statement timeout; --timeout {seconds:g} is not applied"
             )
@@ -321,9 +321,9 @@ class SqlAlchemyEngine(Engine):
 
     def fetch(self, sql: str) -> FetchResult:
         text = sql
-        if self.timeout and self.caps.timeout_prefix and not self.borrowed_transaction:
-            text = _timeout_text(self.caps.timeout_prefix, self.timeout) + sql
-        client_timeout = (self.timeout if self.caps.timeout_in_client
+        if self.timeout and self.policy.timeout.how == "prefix" and not self.borrowed_transaction:
+            text = self.policy.timeout.filled(self.timeout) + sql
+        client_timeout = (self.timeout if self.policy.timeout.how == "client"
                           and not self.borrowed_transaction else None)
         try:
             self.refuse_if_cancelled()
@@ -395,7 +395,7 @@ class SqlAlchemyEngine(Engine):
             self.con.rollback()
 
     def close(self) -> None:
-        reset = self.caps.read_only_reset
+        reset = self.policy.read_only_reset
         if self.connection is not None and self._session_read_only and reset:
             with contextlib.suppress(Exception):  # closing anyway
                 self._session(reset)
@@ -449,15 +449,6 @@ def _quietly(cancel: Callable[[], object]) -> Callable[[], None]:
             cancel()
 
     return call
-
-
-def _timeout_text(template: str, seconds: float) -> str:
-    """A timeout statement with its placeholders filled from a validated number of seconds."""
-    return template.format(
-        ms=max(1, round(seconds * 1000)),
-        seconds=f"{max(seconds, 0.000001):.6f}",
-        whole_seconds=max(1, round(seconds)),
-    )
 
 
 def _scrub(text: str, secrets: tuple[str, ...]) -> str:

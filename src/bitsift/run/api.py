@@ -114,8 +114,8 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
     (:func:`bitsift.run.parts.merge_parts`). Serial batches are the one-session case of
     :func:`bitsift.run.concurrent.fetch_records_in_parts`.
     """
-    # The dialect's run_sessions: parts of the attributes at once (benchmarks/RESULTS.md);
-    # one session runs the same parts one after another.
+    # The engine's run_sessions (its run policy): parts of the attributes at once
+    # (benchmarks/RESULTS.md); one session runs the same parts one after another.
     return concurrent.fetch_records_in_parts(engine, spec, concurrent.sessions_for(engine, spec),
                                              MAX_ATTRIBUTES_PER_STATEMENT)
 

@@ -13,8 +13,8 @@ Only run mode uses this (``bitsift sql`` prints one statement), and only on sess
 opened itself: a caller's connection may hold temporary tables, an open transaction or a
 DataFrame scanned by name, none of which a second session would see.
 
-The ``run_sessions`` field of the capability table turns it on per dialect; the measurements
-behind each choice are in benchmarks/RESULTS.md.
+The ``run_sessions`` field of the run policy (engines/policy.py) turns it on per engine; the
+measurements behind each choice are in benchmarks/RESULTS.md.
 """
 
 from __future__ import annotations
@@ -46,7 +46,7 @@ def sessions_for(engine: Engine, spec: RankSpec) -> int:
     """How many sessions the ranking of ``spec`` runs on (1: one statement, as usual)."""
     if len(spec.attributes) < 2 or not engine.can_open_siblings():
         return 1
-    return max(1, min(engine.caps.run_sessions, len(spec.attributes)))
+    return max(1, min(engine.policy.run_sessions, len(spec.attributes)))
 
 
 @dataclass(frozen=True)
@@ -114,9 +114,9 @@ class PartResult:
 
 def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
     """The statements of one part on one session: the boundaries pre-pass and the ranking
-    statement, or, where the dialect's ``run_quantile`` is "counted", the attributes binned
+    statement, or, where the run policy's ``run_quantile`` is "counted", the attributes binned
     by quantile ranked from bucket counts (:mod:`bitsift.run.quantile_counts`)."""
-    if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
+    if engine.policy.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         records, cuts = quantile_counts.rank_counted(engine, spec)
         return PartResult(cuts=cuts, records=records)
     cuts = fetch_cuts(engine, spec)
@@ -137,7 +137,7 @@ def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> lis
     bucket counts, they make parts of their own (their statements read only their columns),
     the other attributes share the other sessions."""
     counted: list[int] = []
-    if engine.caps.run_quantile == "counted" and quantile_counts.counts_apply(spec):
+    if engine.policy.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         counted = [i - 1 for i in quantiles.quantile_indexes(spec)]
     others = [i for i in range(len(spec.attributes)) if i not in counted]
     if not counted or not others:

@@ -19,11 +19,11 @@ from bitsift.sql.sqlbuild import bounds_statement, cut_count, histogram_statemen
 def fetch_cuts(engine: Engine, spec: RankSpec) -> dict[str, list[float]]:
     """The cut points of every numeric attribute: the bounds pre-pass (quantile, equal-width,
     best-split, computed in SQL) and, for mdl, the histogram pre-pass whose cut points are
-    found in Python. Where the dialect's ``run_quantile`` is "buckets", quantile cut points
+    found in Python. Where the run policy's ``run_quantile`` is "buckets", quantile cut points
     come from :mod:`bitsift.run.quantiles` instead (same values, no whole-column sort).
     Duplicate and non-finite cut points are dropped."""
     cuts: dict[str, list[float]] = {}
-    if engine.caps.run_quantile in ("buckets", "counted"):
+    if engine.policy.run_quantile in ("buckets", "counted"):
         cuts = {name: _clean(found) for name, found in
                 quantiles.bucketed_cuts(engine, spec).items()}
     statement = bounds_statement(spec, engine.caps, skip=cuts)

@@ -150,7 +150,7 @@ class Thresholds:
 
 def timeout_seconds(value: object) -> float | None:
     """``--timeout`` checked: a finite, positive number of seconds, or None for no limit
-    (``inf`` too). Each engine checks its own upper limit (:attr:`Capabilities.timeout_max`).
+    (``inf`` too). Each engine checks its own upper limit (its run policy's ``timeout.longest``).
 
     >>> timeout_seconds(2), timeout_seconds(float("inf"))
     (2.0, None)

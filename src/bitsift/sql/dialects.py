@@ -1,10 +1,13 @@
 """The capability table: what each SQL dialect can do, as data.
 
 The query builder never asks "is this PostgreSQL?"; it asks the dialect's
-:class:`Capabilities` entry. Adding a dialect means adding one entry here (and
-one entry in the expectations table of ``tests/test_dialects.py``).
+:class:`Capabilities` entry: the SQL the dialect can express, all a pasted statement needs.
+What a running session does on the engine (read-only settings, timeouts, sessions at once) is
+its run policy, :mod:`bitsift.engines.policy`. Adding a dialect means adding one entry here
+(and one entry in the expectations table of ``tests/test_dialects.py``, which also says which
+entries the suite executes).
 
-Entries marked ``executed_in_tests`` were checked by executing the generated SQL on
+The entries the suite executes were checked by executing the generated SQL on
 DuckDB 2.0, SQLite 3.40, PostgreSQL 15 and MariaDB 10.11 (tests/test_parity.py,
 tests/test_golden.py), Spark 4.3 local[2] (tests/test_spark.py) and ClickHouse 26.9 embedded as
 chdb 4.4 (tests/test_clickhouse.py) against the NumPy reference; the others come from sqlglot's
@@ -50,9 +53,8 @@ case-insensitive and ignore trailing spaces too: its paste-ready SQL groups text
 
 from __future__ import annotations
 
-import threading
-from dataclasses import dataclass, replace
-from typing import Literal
+from dataclasses import dataclass
+from typing import Any, Literal
 
 from bitsift.errors import SpecError
 
@@ -93,206 +95,25 @@ class DateFunctions:
 
 @dataclass(frozen=True)
 class Capabilities:
-    """What the query builder and the engines may use on one dialect."""
+    """The SQL one dialect can express, as the query builder uses it: all a pasted statement
+    needs. What a running session on the engine does besides (read-only settings, timeouts,
+    sessions at once, how cut points are found) is its :class:`~bitsift.engines.policy.RunPolicy`.
+    """
 
     name: str
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
     quantile: QuantileMethod = "window"
-    #: Run mode only: how quantile cut points are found before the ranking statement.
-    #: ``statement``: the bounds pre-pass with :attr:`quantile`. ``buckets``: the same exact
-    #: values from three aggregate statements that never sort a whole column
-    #: (:mod:`bitsift.run.quantiles`). ``counted``: where there are no segments and no weight,
-    #: one scan counts (bucket, class) cells that give both the cut points and the bins'
-    #: counts, and no row is binned one by one (:mod:`bitsift.run.quantile_counts`); otherwise as
-    #: ``buckets``; the metrics are computed in the client from the counts (the statements
-    #: are plain aggregates and window functions). Measured in benchmarks/RESULTS.md.
-    run_quantile: Literal["statement", "buckets", "counted"] = "statement"
-    #: Run mode only: cut the attributes into this many statements (each after its own
-    #: boundaries pre-pass) and run them at once, one per session (bitsift.run.concurrent), when
-    #: bitsift opened the source itself. 1: one statement. Measured in benchmarks/RESULTS.md.
-    run_sessions: int = 1
     #: Type (spelled in the dialect) that grouped text values are cast to so that they compare
     #: byte-exactly. ``None``: the engine's default comparison already tells 'a' from 'A'
     #: and 'x' from 'x '. MySQL/MariaDB's default collations are case-insensitive and
     #: PAD SPACE, SQL Server's are case-insensitive and always pad.
     exact_key_type: str | None = None
-    #: Run at the start of every transaction bitsift opens, to make it read-only. Must be
-    #: transaction-scoped (PostgreSQL, MySQL/MariaDB ``SET TRANSACTION READ ONLY``) unless
-    #: :attr:`read_only_reset` undoes it when bitsift closes the connection.
-    read_only_statement: str | None = None
-    #: Run at the start of every transaction after :attr:`read_only_statement`: settings
-    #: scoped to bitsift's own transaction (PostgreSQL ``SET LOCAL``), never a session's.
-    transaction_settings: tuple[str, ...] = ()
-    #: Undoes a session-scoped :attr:`read_only_statement` at close (SQLite's pragma).
-    read_only_reset: str | None = None
-    #: Run at the start of every transaction to set a statement timeout; ``{ms}``,
-    #: ``{seconds}`` (decimal) and ``{whole_seconds}`` (integer, at least 1) are replaced.
-    timeout_statement: str | None = None
-    #: Alternatively, a prefix put before every statement (MariaDB's ``SET STATEMENT ... FOR``,
-    #: which leaves no session state behind), with the same placeholders.
-    timeout_prefix: str | None = None
-    #: The engine has no server-side timeout, and bitsift interrupts the query from the
-    #: client instead (DuckDB ``interrupt()``, SQLite's progress handler).
-    timeout_in_client: bool = False
-    #: Settings scoped to each statement by a trailing ``SETTINGS`` clause (ClickHouse): they
-    #: leave no state behind, so a caller's session is handed back unchanged.
-    statement_settings: tuple[str, ...] = ()
-    #: The timeout as one more such setting, with the placeholders of :attr:`timeout_statement`.
-    timeout_setting: str | None = None
-    #: The longest ``--timeout`` the engine's mechanism can hold, in seconds. Default: the
-    #: longest wait of a Python timer, which bitsift's client-side interrupts use.
-    timeout_max: float = threading.TIMEOUT_MAX
-    #: SQLite builds without math functions lack LN and FLOOR: bitsift registers Python's.
-    register_math_functions: bool = False
     #: Does the engine have a chi-square survival function? (none listed has; p comes from Python)
     has_chi2: bool = False
-    #: True when the entry was checked by executing SQL on a real engine in the test suite.
-    executed_in_tests: bool = False
     #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
     dates: DateFunctions = DateFunctions()
 
-    @property
-    def has_timeout(self) -> bool:
-        """True when ``--timeout`` is enforced on this dialect, by the server or by bitsift."""
-        return bool(self.timeout_statement or self.timeout_prefix or self.timeout_in_client
-                    or self.timeout_setting)
-
-
-_DEFAULT = Capabilities(name="generic", sqlglot_dialect="")
-
-CAPABILITIES: dict[str, Capabilities] = {
-    c.name: c
-    for c in [
-        replace(
-            _DEFAULT,
-            name="duckdb",
-            sqlglot_dialect="duckdb",
-            quantile="quantile_cont",
-            run_quantile="counted",
-            run_sessions=2,
-            timeout_in_client=True,
-            executed_in_tests=True,
-        ),
-        # No GROUPING SETS, no quantile aggregate; math functions only in builds with
-        # SQLITE_ENABLE_MATH_FUNCTIONS (Python's 3.40 has them).
-        replace(
-            _DEFAULT,
-            name="sqlite",
-            sqlglot_dialect="sqlite",
-            count_strategy="union_all",
-            # 500k rows x 4 numeric + 3 categorical: 19.2 s with the window quantile, 6.7 s
-            # with bucket cut points, 5.8 s counted (benchmarks/quantile_methods.py).
-            run_quantile="counted",
-            read_only_statement="PRAGMA query_only = ON",
-            read_only_reset="PRAGMA query_only = OFF",
-            timeout_in_client=True,
-            register_math_functions=True,
-            executed_in_tests=True,
-        ),
-        replace(
-            _DEFAULT,
-            name="postgres",
-            sqlglot_dialect="postgres",
-            quantile="percentile_cont",
-            run_quantile="counted",
-            run_sessions=2,
-            # The planner estimates a binned column's groups from the raw column's distinct
-            # values (millions) and, at the default 4MB, sorts and spills instead of hashing
-            # a few dozen groups: 2M x 16 took 19.7 s, 10.2 s with this (RESULTS.md).
-            transaction_settings=("SET LOCAL work_mem = '256MB'",),
-            timeout_statement="SET LOCAL statement_timeout = {ms}",
-            # statement_timeout is a 32-bit count of milliseconds (pg_settings.max_val).
-            timeout_max=2_147_483.647,
-            read_only_statement="SET TRANSACTION READ ONLY",
-            executed_in_tests=True,
-        ),
-        # WITH ROLLUP only (sqlglot would emit GROUPING SETS anyway); PERCENTILE_CONT is a
-        # window function only; default collations are case-insensitive.
-        replace(
-            _DEFAULT,
-            name="mysql",
-            sqlglot_dialect="mysql",
-            count_strategy="union_all",
-            exact_key_type="BINARY",
-            timeout_statement="SET SESSION max_execution_time = {ms}",
-            # max_execution_time: an unsigned 32-bit count of milliseconds.
-            timeout_max=4_294_967.295,
-            read_only_statement="SET TRANSACTION READ ONLY",
-        ),
-        # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect), has no GROUPING() at all, and
-        # names its timeout differently; its default utf8mb4_general_ci is case-insensitive
-        # and PAD SPACE, so text is grouped as BINARY.
-        replace(
-            _DEFAULT,
-            name="mariadb",
-            sqlglot_dialect="mysql",
-            count_strategy="union_all",
-            # Bucket cut points: 500k rows x 4 numeric + 3 categorical took 3.8 s against 14.5 s
-            # with the window quantile; counted from cells, 200k rows: 4.24 s against 4.35 s
-            # for bucket cut points, and no row binned (benchmarks/quantile_methods.py).
-            run_quantile="counted",
-            exact_key_type="BINARY",
-            timeout_prefix="SET STATEMENT max_statement_time = {seconds} FOR ",
-            # max_statement_time: at most 31536000 s (one year, SYSTEM_VARIABLES on 10.11);
-            # a larger value is silently cut to that.
-            timeout_max=31_536_000.0,
-            read_only_statement="SET TRANSACTION READ ONLY",
-            executed_in_tests=True,
-        ),
-        replace(
-            _DEFAULT,
-            name="snowflake",
-            sqlglot_dialect="snowflake",
-            quantile="percentile_cont",
-            timeout_statement="ALTER SESSION SET STATEMENT_TIMEOUT_IN_SECONDS = {whole_seconds}",
-            # At most 604800 s (seven days), from Snowflake's parameter reference.
-            timeout_max=604_800.0,
-        ),
-        replace(_DEFAULT, name="bigquery", sqlglot_dialect="bigquery"),
-        # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.
-        replace(
-            _DEFAULT,
-            name="redshift",
-            sqlglot_dialect="redshift",
-            timeout_statement="SET statement_timeout TO {ms}",
-            timeout_max=2_147_483.647,  # as PostgreSQL's: 32-bit milliseconds
-        ),
-        # Trino has only approx_percentile: window method.
-        replace(_DEFAULT, name="trino", sqlglot_dialect="trino"),
-        # PERCENTILE_CONT is window-only; collations are usually case-insensitive and
-        # comparisons always ignore trailing spaces: group text as VARBINARY.
-        replace(_DEFAULT, name="tsql", sqlglot_dialect="tsql", exact_key_type="VARBINARY(8000)"),
-        replace(_DEFAULT, name="oracle", sqlglot_dialect="oracle", quantile="percentile_cont"),
-        # sqlglot rewrites exact percentiles to percentile_approx for Spark: window method.
-        replace(_DEFAULT, name="databricks", sqlglot_dialect="databricks"),
-        # Executed on a local Spark 4.3 (tests/test_spark.py). Spark's exact percentile()
-        # aggregate; no statement timeout, so bitsift interrupts its own tagged operation.
-        replace(
-            _DEFAULT,
-            name="spark",
-            sqlglot_dialect="spark",
-            quantile="percentile",
-            timeout_in_client=True,
-            executed_in_tests=True,
-        ),
-        # Executed on embedded ClickHouse, chdb 4.4 (tests/test_clickhouse.py). Exact quantiles
-        # need parametric syntax (quantileExactInclusive(p)(x)) that sqlglot cannot produce
-        # from the canonical dialect: window method. readonly = 2 rejects writes yet lets the
-        # same SETTINGS clause set max_execution_time (readonly = 1 would refuse that, and
-        # also refuses the file() table function).
-        replace(
-            _DEFAULT,
-            name="clickhouse",
-            sqlglot_dialect="clickhouse",
-            statement_settings=("readonly = 2",),
-            timeout_setting="max_execution_time = {seconds}",
-            # Held as int64 microseconds: chdb 4.4 refuses 9223372036855 s and more.
-            timeout_max=9_223_372_036_854.0,
-            executed_in_tests=True,
-        ),
-    ]
-}
 
 #: Each dialect's date functions where the standard EXTRACT forms do not serve. Executed in
 #: tests (tests/test_binning_parity.py) on DuckDB, SQLite, PostgreSQL and MariaDB; the others
@@ -336,8 +157,47 @@ DATE_FUNCTIONS: dict[str, DateFunctions] = {
                                 month="toMonth(x)", dow="toDayOfWeek(x) % 7",
                                 hour="toHour(x)"),
 }
-CAPABILITIES = {name: replace(c, dates=DATE_FUNCTIONS.get(name, c.dates))
-                for name, c in CAPABILITIES.items()}
+def _dialect(name: str, sqlglot_dialect: str | None = None, **traits: Any) -> Capabilities:
+    """One entry: its sqlglot dialect (by default of the same name), its date functions from
+    :data:`DATE_FUNCTIONS`, and the traits where it differs from the defaults."""
+    return Capabilities(name=name, sqlglot_dialect=sqlglot_dialect or name,
+                        dates=DATE_FUNCTIONS.get(name, DateFunctions()), **traits)
+
+
+CAPABILITIES: dict[str, Capabilities] = {
+    c.name: c
+    for c in [
+        _dialect("duckdb", quantile="quantile_cont"),
+        # No GROUPING SETS, no quantile aggregate; math functions only in builds with
+        # SQLITE_ENABLE_MATH_FUNCTIONS (Python's 3.40 has them).
+        _dialect("sqlite", count_strategy="union_all"),
+        _dialect("postgres", quantile="percentile_cont"),
+        # WITH ROLLUP only (sqlglot would emit GROUPING SETS anyway); PERCENTILE_CONT is a
+        # window function only; default collations are case-insensitive.
+        _dialect("mysql", count_strategy="union_all", exact_key_type="BINARY"),
+        # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect) and has no GROUPING() at all;
+        # its default utf8mb4_general_ci is case-insensitive and PAD SPACE, so text is
+        # grouped as BINARY.
+        _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY"),
+        _dialect("snowflake", quantile="percentile_cont"),
+        _dialect("bigquery"),
+        # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.
+        _dialect("redshift"),
+        # Trino has only approx_percentile: window method.
+        _dialect("trino"),
+        # PERCENTILE_CONT is window-only; collations are usually case-insensitive and
+        # comparisons always ignore trailing spaces: group text as VARBINARY.
+        _dialect("tsql", exact_key_type="VARBINARY(8000)"),
+        _dialect("oracle", quantile="percentile_cont"),
+        # sqlglot rewrites exact percentiles to percentile_approx for Spark: window method.
+        _dialect("databricks"),
+        # Spark's exact percentile() aggregate.
+        _dialect("spark", quantile="percentile"),
+        # Exact quantiles need parametric syntax (quantileExactInclusive(p)(x)) that sqlglot
+        # cannot produce from the canonical dialect: window method.
+        _dialect("clickhouse"),
+    ]
+}
 
 #: SQLAlchemy dialect names (``engine.dialect.name``) to bitsift dialect names.
 SQLALCHEMY_DIALECTS: dict[str, str] = {
