@@ -284,3 +284,67 @@ def test_models_open_each_rankings_source_once(small_db: Path, tmp_path: Path,
     assert result.exit_code == 0, result.output
     assert (calls.opened, calls.resolved) == (1, 1)
     assert "SELECT" in (tmp_path / "models" / "nightly__all.sql").read_text(encoding="utf-8")
+
+
+# --- provenance: the session records statements and notes once; results are built with them --
+
+
+def _provenance_assignments(tree: ast.AST) -> list[str]:
+    """Assignments to a ``statements`` or ``notes`` attribute (a result stamped after it was
+    built), as source text."""
+    found = []
+    for node in ast.walk(tree):
+        targets: list[ast.expr] = []
+        if isinstance(node, ast.Assign):
+            targets = list(node.targets)
+        elif isinstance(node, ast.AugAssign | ast.AnnAssign):
+            targets = [node.target]
+        for target in targets:
+            parts = target.elts if isinstance(target, ast.Tuple) else [target]
+            found += [ast.unparse(p) for p in parts
+                      if isinstance(p, ast.Attribute) and p.attr in ("statements", "notes")]
+    return found
+
+
+def test_no_result_gets_its_statements_or_notes_after_it_was_built() -> None:
+    """Entry points build results with the session's record (Session.record, Record.stamp)
+    instead of assigning statements and notes afterwards (there were 12 such assignments)."""
+    assigned = {}
+    for path in sorted(PACKAGE.rglob("*.py")):
+        found = _provenance_assignments(ast.parse(path.read_text(encoding="utf-8")))
+        if found:
+            assigned[str(path.relative_to(PACKAGE))] = found
+    # The engine's own log, shared with the sibling sessions it opens; drift's report is
+    # not a ranking's result (it compares history rows).
+    assert assigned == {"engines/base.py": ["sibling.statements"],
+                        "jobs/drift.py": ["report.notes"]}
+
+
+def test_each_statement_is_recorded_for_one_result(small_db: Path) -> None:
+    """Two rankings on one session: each lists its own statements (the first also those sent
+    on opening the session), none twice; together they are every statement sent."""
+    import bitsift
+    from bitsift.run.session import Session
+
+    with Session.open(str(small_db), "t") as session:
+        first = bitsift.rank(session, "y")
+        second = bitsift.rank(session, "y", numeric="b")
+        sent = list(session.engine.statements)
+        assert session.record().statements == []  # nothing left unrecorded
+    assert sent == [*first.statements, *second.statements]
+    for ranking in (first, second):
+        assert any("information_gain" in s for s in ranking.statements)
+
+
+def test_the_session_notes_come_first_once(small_db: Path) -> None:
+    """A ranking's notes are the session's, then its own (fractional weights: no p-value),
+    each once, however many results the session has built."""
+    import bitsift
+    from bitsift.run.session import Session
+
+    with Session.open(str(small_db), "t") as session:
+        session.engine.notes.append("a note of the session")
+        rankings = [bitsift.rank(session, "y", weight="n", attributes="a,b") for _ in range(2)]
+    for ranking in rankings:
+        assert ranking.notes[0] == "a note of the session"
+        assert len(ranking.notes) == 2 and "weight" in ranking.notes[1]

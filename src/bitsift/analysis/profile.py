@@ -69,7 +69,7 @@ def rank_and_profile(
     say = progress or (lambda _message: None)
     spec_options = make_options(target, **options)
     with session_for(source, table) as session:
-        engine, mark = session.engine, session.mark()
+        engine = session.engine
         say(f"reading the columns of {session.display}")
         marked = resolve_sensitive(split_names(sensitive), session.columns)
         spec = session.prepare(spec_options)
@@ -83,8 +83,8 @@ def rank_and_profile(
             say(f"counting values x classes of {len(chosen)} attribute(s)")
             subset = replace(spec, attributes=tuple(by_name[n] for n in chosen))
             profiles = fetch_profiles(engine, subset, cuts, max_values=max_values)
-        ranking.statements = session.statements_since(mark)
-        notes = session.notes
+        record = session.record()
+    ranking, notes = record.stamp(ranking), record.notes
     parameters = {
         "source": spec.source_name,
         "target": spec.target,
@@ -175,7 +175,7 @@ def rank_and_profile_segments(
         raise SpecError("name the segment column(s) with by")
     runs = []
     with session_for(source, table) as session:
-        engine, mark = session.engine, session.mark()
+        engine = session.engine
         say(f"reading the columns of {session.display}")
         marked = resolve_sensitive(split_names(sensitive), session.columns)
         spec = session.prepare(spec_options)
@@ -195,11 +195,11 @@ def rank_and_profile_segments(
                                  where=segment_predicate(spec, ranking.segment or {}))
                 profiles = fetch_profiles(engine, subset, cuts, max_values=max_values)
             runs.append((ranking, profiles))
-        statements = session.statements_since(mark)
-        notes = session.notes
+        record = session.record()
     out = []
     for ranking, profiles in runs:
-        ranking.statements = statements
+        # Every segment lists the statements of them all: they share one statement.
+        ranking = replace(ranking, statements=record.statements)
         label = segment_label(ranking.segment)
         if ranking.status != "ok":
             label += f" ({SEGMENT_STATUS[ranking.status]})"
@@ -213,5 +213,5 @@ def rank_and_profile_segments(
             "max_values": max_values, "segment": segment_label(ranking.segment),
         }
         out.append(ProfiledRun(ranking=ranking, profiles=profiles, parameters=parameters,
-                               sensitive=marked, notes=notes, segment=label))
+                               sensitive=marked, notes=record.notes, segment=label))
     return out

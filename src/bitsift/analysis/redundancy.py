@@ -285,13 +285,10 @@ def redundancy(source: Any, target: str, table: str | None = None, *,
     [('a', 'b', 1.0), ('a', 'c', 0.0), ('b', 'c', 0.0)]
     """
     with session_for(source, table) as session:
-        mark = session.mark()
         spec, ranking = rank_on_session(session, target, options)
         matrix = measure_matrix(session.engine, spec, ranking, batch_pairs=batch_pairs)
-        statements, notes = session.statements_since(mark), session.notes
+        record = session.record()
     flagged = flagged_candidates_note(ranking, matrix.attributes)
-    if flagged:
-        notes.append(flagged)
-    ranking.statements = statements
-    return Redundancy(ranking=ranking, matrix=matrix, missing=spec.options.missing,
-                      statements=statements, notes=notes)
+    return record.stamp(Redundancy(ranking=record.stamp(ranking), matrix=matrix,
+                                   missing=spec.options.missing,
+                                   notes=[flagged] if flagged else []))

@@ -281,14 +281,11 @@ def select_attributes(source: Any, target: str, table: str | None = None, *, k: 
     if k < 1:
         raise SpecError.option("k", f" must be at least 1, not {k}")
     with session_for(source, table) as session:
-        mark = session.mark()
         spec, ranking = rank_on_session(session, target, options)
         selection = select_on_engine(session.engine, spec, ranking, k, criterion=criterion,
                                      batch_pairs=batch_pairs)
-        selection.statements = session.statements_since(mark)
-        selection.notes = session.notes + selection.notes
-    ranking.statements = list(selection.statements)
-    return selection
+        record = session.record()
+    return replace(record.stamp(selection), ranking=record.stamp(ranking))
 
 
 def select_for_runs(
@@ -325,9 +322,6 @@ def select_for_runs(
     spec_options = make_options(target, by=by, **options)
     with session_for(source, table) as session:
         engine = session.engine
-        # Only this step's statements are added: a session shared with the ranking (report)
-        # has already given the runs the ones before.
-        mark = session.mark()
         spec = session.prepare(spec_options)
         for run in runs:
             ranking = run.ranking
@@ -344,8 +338,10 @@ def select_for_runs(
             matrix = measure_matrix(engine, run_spec, ranking, names, batch_pairs=batch_pairs)
             run.selection = select_on_engine(engine, run_spec, ranking, k, criterion=criterion,
                                              candidates=names, matrix=matrix)
-        statements = session.statements_since(mark)
+        # Only this step's statements: a session shared with the ranking (report) has
+        # already given the runs the ones before.
+        statements = session.record().statements
     for run in runs:
-        run.ranking.statements = [*run.ranking.statements, *statements]
+        run.ranking = replace(run.ranking, statements=[*run.ranking.statements, *statements])
         if run.selection is not None:
-            run.selection.statements = statements
+            run.selection = replace(run.selection, ranking=run.ranking, statements=statements)

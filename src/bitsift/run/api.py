@@ -80,19 +80,10 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
     """
     spec_options = make_options(target, **options)
     with session_for(source, table) as session:
-        mark = session.mark()
         spec = session.prepare(spec_options)
         result: Ranking | SegmentedRanking = (
             run_segmented(session.engine, spec) if spec.by else run_ranking(session.engine, spec))
-        result.statements = session.statements_since(mark)
-        return result
-
-
-def _label_binning(ranking: Ranking, spec: RankSpec) -> None:
-    """Name each numeric attribute's binning method on its score."""
-    methods = {a.name: a.binning for a in spec.attributes}
-    for scored in ranking.attributes:
-        scored.binning = methods.get(scored.attribute)
+        return session.record().stamp(result)
 
 
 #: Attributes per ranking statement in run mode; wider tables are ranked in batches, one
@@ -121,29 +112,21 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
 
 
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
-    """Compute a :class:`Ranking` for a resolved, unsegmented spec on an open engine."""
+    """Compute a :class:`Ranking` for a resolved, unsegmented spec on an open engine. The
+    statements and the engine's notes are the session's to add (:meth:`Session.record`)."""
     if spec.by:
         raise SpecError(problems=[Problem("by", (
             "a segmented spec (", Option("by"), ") gives one ranking per segment: "
             "use run_segmented()"))])
     records, cuts = fetch_records(engine, spec)
-    ranking = read_ranking(records, spec, cuts, dialect=engine.caps.name)
-    _label_binning(ranking, spec)
-    ranking.statements = list(engine.statements)
-    ranking.notes = list(engine.notes) + ranking.notes
-    return ranking
+    return read_ranking(records, spec, cuts, dialect=engine.caps.name)
 
 
 def run_segmented(engine: Engine, spec: RankSpec) -> SegmentedRanking:
     """Compute one ranking per segment of a spec with segment columns (``--by``), in one
     statement. Numeric attributes are binned with cut points computed over the whole table."""
     records, cuts = fetch_records(engine, spec)
-    segmented = read_segments(records, spec, cuts, dialect=engine.caps.name)
-    for ranking in segmented.segments:
-        _label_binning(ranking, spec)
-    segmented.statements = list(engine.statements)
-    segmented.notes = list(engine.notes) + segmented.notes
-    return segmented
+    return read_segments(records, spec, cuts, dialect=engine.caps.name)
 
 
 def statement(
@@ -280,10 +263,8 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
             "check compares an unsegmented, unweighted ranking with the reference: check one "
             "segment with ", Option("where"), " instead of by, and leave out weight"))])
     with session_for(source, table) as session:
-        mark = session.mark()
         spec = session.prepare(spec_options)
-        ranking = run_ranking(session.engine, spec)
-        ranking.statements = session.statements_since(mark)
+        ranking = session.record().stamp(run_ranking(session.engine, spec))
         total = ranking.rows + ranking.rows_excluded
         whole = total <= sample_rows
         data = _pull_rows(session.engine, spec, None if whole else sample_rows)

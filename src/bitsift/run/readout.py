@@ -126,9 +126,9 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
         row = by_index.get(index, _NOTHING_MEASURED)
         scored = score(row, attribute.name, attribute.kind, spec.options.thresholds,
                        cuts.get(attribute.name))
-        if not whole_numbers:
-            scored.p_value = None
-        scores.append(scored)
+        # No p-value where the weights are not whole numbers: G assumes counts.
+        scores.append(replace(scored, binning=attribute.binning,
+                              p_value=scored.p_value if whole_numbers else None))
     ordered = sort_scores(scores, spec.options.sort)
     if spec.options.limit:
         ordered = ordered[: spec.options.limit]
@@ -177,8 +177,7 @@ def read_ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, S
         raise DataError(
             f"target {spec.target!r} has a single class in {spec.source_name}: nothing to rank"
         )
-    ranking.notes = _weight_notes(spec, whole)
-    return ranking
+    return replace(ranking, notes=_weight_notes(spec, whole))
 
 
 def read_segments(records: Sequence[Record], spec: RankSpec,

@@ -21,9 +21,11 @@ wherever it takes a source, and leaves a session it was given open.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from typing import Any
+from dataclasses import dataclass
+from typing import Any, ClassVar, Protocol, TypeVar
 
 from sqlglot import exp
 
@@ -34,6 +36,32 @@ from bitsift.spec.schema import Column
 
 #: A progress callback: receives one short status message per step.
 Progress = Callable[[str], None]
+
+
+class _Provenanced(Protocol):
+    """A result dataclass that lists the statements sent for it and the notes for the user."""
+
+    __dataclass_fields__: ClassVar[dict[str, Any]]
+    statements: list[str]
+    notes: list[str]
+
+
+_Result = TypeVar("_Result", bound=_Provenanced)
+
+
+@dataclass(frozen=True)
+class Record:
+    """What one result on a session sent and has to say: taken once, by :meth:`Session.record`."""
+
+    #: The statements sent for the result, in order.
+    statements: list[str]
+    #: The session's notes for the user (columns left out, a timeout not applied...).
+    notes: list[str]
+
+    def stamp(self, result: _Result) -> _Result:
+        """``result`` built again with these statements, and these notes before its own."""
+        return dataclasses.replace(result, statements=list(self.statements),
+                                   notes=[*self.notes, *result.notes])
 
 
 class Session:
@@ -50,7 +78,8 @@ class Session:
         self._columns: list[Column] | None = None
         self._resolved: list[tuple[spec.RankOptions, spec.RankSpec]] = []
         self._timeout: tuple[float | None] | None = None
-        self._marked = False
+        #: How many of the engine's statements earlier records have taken.
+        self._recorded = 0
 
     @classmethod
     def open(cls, source: Any, table: str | None = None) -> Session:
@@ -100,19 +129,16 @@ class Session:
         """Every statement sent so far, in order (a copy)."""
         return list(self.engine.statements)
 
-    def mark(self) -> int:
-        """A bookmark in the statement log, for :meth:`statements_since`. The first result of
-        a session starts at the beginning: the statements that opened it (read-only settings,
-        the catalog) were sent for it."""
-        if not self._marked:
-            self._marked = True
-            return 0
-        return len(self.engine.statements)
-
-    def statements_since(self, mark: int) -> list[str]:
-        """The statements sent after :meth:`mark` gave ``mark``: one result's, on a session
-        that may have served others before."""
-        return self.engine.statements[mark:]
+    def record(self) -> Record:
+        """The statements and notes of the result now being built, to build it with: the
+        statements sent since the previous record (the first record of a session starts at
+        the beginning: the statements that opened it, read-only settings and the catalog,
+        were sent for it), and every note so far. Each statement is recorded once, so a
+        session serving several results (a report's ranking, drill-down and selection) gives
+        each its own."""
+        statements = self.engine.statements[self._recorded:]
+        self._recorded += len(statements)
+        return Record(statements=list(statements), notes=list(self.engine.notes))
 
     @property
     def notes(self) -> list[str]:
