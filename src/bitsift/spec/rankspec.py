@@ -9,10 +9,15 @@ from typing import Literal
 
 from sqlglot import exp
 
-from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
-from bitsift.names import resolve_names
+from bitsift.errors import Option, Problem, SpecError
+from bitsift.spec.named_columns import (
+    NamedColumns,
+    check_binnable,
+    check_segments_and_weight,
+    named_columns,
+)
 from bitsift.spec.predicate import Predicate, parse_predicate
-from bitsift.spec.schema import NUMERIC_FAMILIES, Column, Kind, refuse_ungroupable
+from bitsift.spec.schema import TEMPORAL_FAMILIES, Column, Kind, refuse_ungroupable
 
 Missing = Literal["category", "drop"]
 SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty")
@@ -21,8 +26,6 @@ MISSING_MODES: tuple[str, ...] = ("category", "drop")
 BINNING_METHODS: tuple[str, ...] = ("quantile", "equal-width", "best-split", "mdl")
 #: Parts of a date or timestamp that ``--date-part`` turns into categories.
 DATE_PARTS: tuple[str, ...] = ("year", "month", "dow", "hour")
-#: Column type families holding dates and times (numeric as epoch seconds with --numeric).
-TEMPORAL_FAMILIES: frozenset[str] = frozenset({"date", "timestamp"})
 #: One column's binning override: (column, method, bins or None for the run's --bins).
 ColumnBinning = tuple[str, str, int | None]
 
@@ -305,11 +308,6 @@ class RankSpec:
         return tuple(a for a in self.attributes if a.kind == "numeric")
 
 
-def _match(names: Sequence[str], columns: dict[str, Column]) -> tuple[list[str], list[str]]:
-    """Resolve user spellings to catalog spellings (see :func:`bitsift.names.resolve_name`)."""
-    return resolve_names(names, list(columns))
-
-
 def resolve(
     options: RankOptions,
     columns: Sequence[Column],
@@ -322,67 +320,70 @@ def resolve(
     Every unknown name is reported at once, each with a close match when there is one.
     """
     by_name = {c.name: c for c in columns}
-    unknown: list[str] = []
-    target_found, target_unknown = _match([options.target], by_name)
-    unknown += target_unknown
-    picked, bad = _match(options.attributes or (), by_name)
-    unknown += bad
-    excluded, bad = _match(options.exclude, by_name)
-    unknown += bad
-    forced_cat, bad = _match(options.categorical, by_name)
-    unknown += bad
-    forced_num, bad = _match(options.numeric, by_name)
-    unknown += bad
-    segment_names, bad = _match(options.by, by_name)
-    unknown += bad
-    weight_found, bad = _match([options.weight] if options.weight else [], by_name)
-    unknown += bad
-    binned, bad = _match([name for name, _, _ in options.binning_for], by_name)
-    unknown += bad
-    dated, bad = _match([name for name, _ in options.date_part if name], by_name)
-    unknown += bad
-    if unknown:
-        raise ColumnError(
-            unknown_names_message("column", unknown, by_name) + f" in {source_name}"
-        )
-    target = target_found[0]
-    weight = weight_found[0] if weight_found else None
-    _check_segments_and_weight(target, segment_names, weight, picked, by_name)
-    refuse_ungroupable(by_name, {"target": [target], "attributes": picked,
-                                 "by": segment_names, "weight": [weight] if weight else []})
+    named = named_columns({
+        "target": [options.target],
+        "picked": list(options.attributes or ()),
+        "excluded": list(options.exclude),
+        "categorical": list(options.categorical),
+        "numeric": list(options.numeric),
+        "by": list(options.by),
+        "weight": [options.weight] if options.weight else [],
+        "binned": [name for name, _, _ in options.binning_for],
+        "dated": [name for name, _ in options.date_part if name],
+    }, by_name, source_name)
+    check_segments_and_weight(named.target, named.by, named.weight, named.picked, by_name)
+    refuse_ungroupable(by_name, {"target": [named.target], "attributes": named.picked,
+                                 "by": named.by,
+                                 "weight": [named.weight] if named.weight else []})
+    names = _ranked_names(options, columns, named, source_name)
+    check_binnable(named, by_name)
+    attributes = _attribute_specs(names, options, named, by_name)
+    where = parse_predicate(options.where, by_name, dialect) if options.where else None
+    return RankSpec(
+        source=source,
+        source_name=source_name,
+        target=named.target,
+        attributes=tuple(attributes),
+        options=options,
+        where=where,
+        target_family=by_name[named.target].family,
+        by=tuple(AttributeSpec(name=n, kind="categorical", family=by_name[n].family)
+                 for n in dict.fromkeys(named.by)),
+        weight=named.weight,
+    )
+
+
+def _ranked_names(options: RankOptions, columns: Sequence[Column], named: NamedColumns,
+                  source_name: str) -> list[str]:
+    """The attributes to rank: those named (or every groupable column), without the target,
+    the excluded columns, the segments and the weight."""
     # Segment and weight columns are never ranked: within a segment, its columns are constant.
-    roles = {*segment_names, *([weight] if weight else [])}
+    left_out = {named.target, *named.excluded, *named.by, *([named.weight] if named.weight else [])}
     if options.attributes:
-        names = [n for n in dict.fromkeys(picked)
-                 if n != target and n not in excluded and n not in roles]
+        names = [n for n in dict.fromkeys(named.picked) if n not in left_out]
     else:
         # An ungroupable column is left out (the engine's note names it and its type).
-        names = [c.name for c in columns if c.groupable
-                 and c.name != target and c.name not in excluded and c.name not in roles]
+        names = [c.name for c in columns if c.groupable and c.name not in left_out]
     if not names:
         raise SpecError(f"no attributes left to rank in {source_name} (only the target remains)")
-    binnable = NUMERIC_FAMILIES | TEMPORAL_FAMILIES
-    not_numeric = [n for n in forced_num if by_name[n].family not in binnable]
-    if not_numeric:
-        raise ColumnError.option(
-            "numeric", " needs number columns (or dates and timestamps, binned as epoch "
-            "seconds); not those: " + _typed_names(not_numeric, by_name))
-    # "other": a column described without a connection (`bitsift sql` with no SOURCE).
-    not_dates = [n for n in dated if by_name[n].family not in TEMPORAL_FAMILIES | {"other"}]
-    if not_dates:
-        raise ColumnError.option("date_part", " needs date or timestamp columns; not those: "
-                                 + _typed_names(not_dates, by_name))
-    part_of = dict(zip(dated, [p for n, p in options.date_part if n], strict=True))
+    return names
+
+
+def _attribute_specs(names: Sequence[str], options: RankOptions, named: NamedColumns,
+                     by_name: dict[str, Column]) -> list[AttributeSpec]:
+    """Each attribute's kind (forced by ``numeric``/``categorical``, else its type's), with its
+    binning (numeric) or date part (categorical dates)."""
+    part_of = dict(zip(named.dated, [p for n, p in options.date_part if n], strict=True))
     every_date_part = next((p for n, p in options.date_part if not n), None)
     binning_of = {found: (method, bins) for found, (_, method, bins)
-                  in zip(binned, options.binning_for, strict=True)}
+                  in zip(named.binned, options.binning_for, strict=True)}
     attributes = []
     for n in names:
         col = by_name[n]
         kind: Kind
-        if n in forced_num:
+        if n in named.numeric:
             kind = "numeric"
-        elif n in forced_cat:
+        elif n in named.categorical:
             kind = "categorical"
         else:
             kind = col.default_kind
@@ -392,7 +393,7 @@ def resolve(
                                             binning=method, bins=bins or options.bins))
             continue
         part = part_of.get(n)
-        if part is None and n not in forced_cat and col.family in TEMPORAL_FAMILIES:
+        if part is None and n not in named.categorical and col.family in TEMPORAL_FAMILIES:
             part = every_date_part  # a bare --date-part PART: every date column not named
         attributes.append(AttributeSpec(name=n, kind=kind, family=col.family, date_part=part))
     unbinned = [a.name for a in attributes if a.name in binning_of and a.kind != "numeric"]
@@ -401,49 +402,4 @@ def resolve(
             Option("binning_for"), " names columns that are not binned (integers, dates and ",
             Option("categorical"), " columns are categories unless named in ", Option("numeric"),
             "): " + ", ".join(unbinned)))])
-    where = parse_predicate(options.where, by_name, dialect) if options.where else None
-    return RankSpec(
-        source=source,
-        source_name=source_name,
-        target=target,
-        attributes=tuple(attributes),
-        options=options,
-        where=where,
-        target_family=by_name[target].family,
-        by=tuple(AttributeSpec(name=n, kind="categorical", family=by_name[n].family)
-                 for n in dict.fromkeys(segment_names)),
-        weight=weight,
-    )
-
-
-def _typed_names(names: Sequence[str], by_name: dict[str, Column]) -> str:
-    """``'a' (VARCHAR), 'b' (text)``: names with their database type, for an error."""
-    return ", ".join(f"{n!r} ({by_name[n].type_name or by_name[n].family})" for n in names)
-
-
-def _check_segments_and_weight(target: str, segments: Sequence[str], weight: str | None,
-                               picked: Sequence[str], by_name: dict[str, Column]) -> None:
-    """Every conflict between --by, --weight, the target and --attributes, reported at once."""
-    by = Option("by")
-    problems = []
-    if target in segments:
-        problems.append(Problem("by", (f"the target {target!r} cannot also be a segment (", by,
-                                       ")")))
-    if weight is not None:
-        if weight == target:
-            problems.append(Problem.of(f"the target {target!r} cannot also be the weight",
-                                       "weight"))
-        if weight in segments:
-            problems.append(Problem("weight", (f"{weight!r} cannot be both a segment (", by,
-                                               ") and the weight")))
-        family = by_name[weight].family
-        # "other": paste mode without a connection does not know the type.
-        if family not in NUMERIC_FAMILIES and family != "other":
-            problems.append(Problem.option("weight", f" needs a number column; {weight!r} is "
-                                           f"{by_name[weight].type_name or family}"))
-    both = [n for n in dict.fromkeys(picked) if n in segments or n == weight]
-    if both:
-        problems.append(Problem("attributes", ("columns named both in ", Option("attributes"),
-                                               " and as a segment or weight: ", ", ".join(both))))
-    if problems:
-        raise SpecError(problems=problems)
+    return attributes

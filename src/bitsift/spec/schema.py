@@ -16,6 +16,8 @@ Family = Literal["integer", "float", "decimal", "text", "boolean", "date", "time
 Kind = Literal["categorical", "numeric"]
 
 NUMERIC_FAMILIES: frozenset[str] = frozenset({"integer", "float", "decimal"})
+#: Column type families holding dates and times (numeric as epoch seconds with --numeric).
+TEMPORAL_FAMILIES: frozenset[str] = frozenset({"date", "timestamp"})
 
 _FAMILY_OF_TYPE: dict[str, Family] = {}
 for _family, _types in {
