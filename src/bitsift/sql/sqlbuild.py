@@ -296,6 +296,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
+        "z": literal(spec.options.z),
     }
 
 
