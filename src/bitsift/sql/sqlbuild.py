@@ -468,6 +468,9 @@ def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | N
         "one row per attribute (attribute_index 0 describes the target); entropies in bits.",
         "p-value: chi-square survival function of g_statistic with dof degrees of freedom,",
         "e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).",
+        f"information_gain_low/high: a {spec.options.confidence:.0%} interval of the "
+        "bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped "
+        "at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.",
     ]
     lines = "\n".join(f"-- {_comment_safe(h)}" for h in header)
     return f"{lines}\n{statement.sql};\n"
