@@ -6,7 +6,7 @@
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
--- information_gain_low/high: a 95% interval of the bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.
+-- information_gain_low/high: an interval at level 0.95 of the bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.
 WITH ordered_4 AS (
   SELECT
     CAST(`score` AS FLOAT64) AS v,
