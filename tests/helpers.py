@@ -318,8 +318,12 @@ def assert_same_ranking(got: Ranking, want: Ranking, context: str = "") -> None:
     for a, b in zip(got.attributes, want.attributes, strict=True):
         where = f"{context} {a.attribute}"
         assert (a.distinct, a.dof, a.rows) == (b.distinct, b.dof, b.rows), where
+        assert (a.rank_low, a.rank_high) == (b.rank_low, b.rank_high), where
         for metric in COMPARED_METRICS:
             x, w = getattr(a, metric), getattr(b, metric)
+            if x is None or w is None:  # no interval: nothing measured, on both sides
+                assert x is w, f"{context} {a.attribute} {metric}: {x} / {w}"
+                continue
             assert abs(x - w) <= 1e-9 * max(1.0, abs(w)), f"{context} {a.attribute} {metric}"
 
 

@@ -110,3 +110,20 @@ def test_quantile_methods_agree(engine: str, request: pytest.FixtureRequest) -> 
                        else {"statement", "buckets"})
     difference = float(lines[-1].rsplit(" ", 1)[-1])
     assert difference <= TOLERANCE
+
+
+@pytest.mark.slow
+def test_compare_trees_runs_and_counts_statements(tmp_path: Path) -> None:
+    # The tree against itself: the same statement count; timings are never asserted.
+    out = tmp_path / "trees.json"
+    src = str(ROOT / "src")
+    completed = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "compare_trees.py"), "--baseline", src,
+         "--candidate", src, "--rows", "3000", "--attributes", "4", "--repeats", "1",
+         "--json", str(out)],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert completed.returncode == 0, completed.stderr
+    report = json.loads(out.read_text(encoding="utf-8"))
+    assert report["statements"]["baseline"] == report["statements"]["candidate"]
+    assert len(report["seconds"]["candidate"]) == 1 and report["ratio"] > 0

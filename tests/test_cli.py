@@ -22,12 +22,18 @@ from click.testing import CliRunner, Result
 from sqlglot import exp
 
 from bitsift.cli import cli
+from bitsift.run.api import METRICS_CHECKED
 from bitsift.run.result import ATTRIBUTE_KEYS
 
-TOP_KEYS = ["target", "table", "rows", "rows_excluded", "target_entropy", "classes", "attributes"]
+TOP_KEYS = ["target", "table", "rows", "rows_excluded", "target_entropy", "classes", "confidence",
+            "attributes"]
+#: The gain's uncertainty: two compact columns in the table (interval, rank range).
+UNCERTAINTY_KEYS = ("information_gain_se", "information_gain_corrected", "information_gain_low",
+                    "information_gain_high", "rank_low", "rank_high")
 #: Keys the table and Markdown formats show as columns; the binning (method, bin count, cut
 #: points) of numeric attributes is listed below the table instead.
-TABLE_KEYS = tuple(k for k in ATTRIBUTE_KEYS if k not in ("binning", "bins", "cuts"))
+TABLE_KEYS = (*(k for k in ATTRIBUTE_KEYS
+                if k not in ("binning", "bins", "cuts", *UNCERTAINTY_KEYS)), "interval", "rank")
 SCRIPT = Path(sys.executable).with_name("bitsift")
 
 # A generated table (values are functions of the row number): an id, a text channel, an
@@ -301,7 +307,7 @@ def test_check_command_agrees(visits_db: Path) -> None:
     assert "whole table" in result.stdout
     assert "database and reference agree" in result.stdout
     reported = [line for line in result.stdout.splitlines() if "max |difference|" in line]
-    assert len(reported) == 8
+    assert len(reported) == len(METRICS_CHECKED) == 12
     assert all(float(line.rsplit("=", 1)[1]) <= 1e-9 for line in reported)
 
 

@@ -185,7 +185,8 @@ def test_tied_attributes_trading_places_is_not_drift() -> None:
            _history_row("c", 3, 0.3 + 4e-15), _history_row("d", 4, 0.1)]
     new = [_history_row("a", 1, 0.5), _history_row("c", 2, 0.3 + 4e-15),
            _history_row("b", 3, 0.3), _history_row("d", 4, 0.1)]
-    assert compare(old, new, DriftThresholds(ig_change=0, rank_change=0)) == ([], [])
+    assert compare(old, new, DriftThresholds(ig_change=0, rank_change=0,
+                                             ig_rule="change")) == ([], [])
     # A real move past a tie is still one.
     moved = [_history_row("d", 1, 0.6), _history_row("a", 2, 0.5),
              _history_row("b", 3, 0.3), _history_row("c", 4, 0.3)]

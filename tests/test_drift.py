@@ -39,7 +39,8 @@ def test_compare_finds_every_kind_of_change() -> None:
     new = [row("a", 1, 0.505), row("b", 2, 0.10), row("c", 3, 0.20, "id_like"),
            row("e", 4, 0.05), row("new", 5, 0.04), row("d", 8, 0.09),
            row("x", 1, 0.1, ranking="added")]
-    changes, notes = compare(old, new, DriftThresholds(ig_change=0.01, rank_change=3))
+    changes, notes = compare(old, new, DriftThresholds(ig_change=0.01, rank_change=3,
+                                                       ig_rule="change"))
     found = {(c.kind, c.ranking, c.attribute) for c in changes}
     assert found == {
         ("information_gain", "r", "b"),   # 0.30 -> 0.10; a moved 0.005 only
@@ -56,14 +57,55 @@ def test_compare_finds_every_kind_of_change() -> None:
     assert notes == []
 
 
+def spread(attribute: str, position: int, ig: float, low: float | None,
+           high: float | None) -> dict[str, Any]:
+    """A history row with the gain's interval (schema version 2)."""
+    return {**row(attribute, position, ig), "information_gain_low": low,
+            "information_gain_high": high}
+
+
+def test_by_default_a_gain_moved_when_its_intervals_are_apart() -> None:
+    # Issue 18: "a" moves 0.05 bits (over --ig-change) inside overlapping intervals: noise.
+    # "b" moves 0.005 bits (under it), but its intervals do not touch: a real move.
+    old = [spread("a", 1, 0.40, 0.30, 0.50), spread("b", 2, 0.100, 0.099, 0.101)]
+    new = [spread("a", 1, 0.45, 0.35, 0.55), spread("b", 2, 0.105, 0.104, 0.106)]
+    changes, notes = compare(old, new)
+    assert [(c.kind, c.attribute) for c in changes] == [("information_gain", "b")]
+    assert notes == []
+    by_change, _ = compare(old, new, DriftThresholds(ig_rule="change"))
+    assert [(c.kind, c.attribute) for c in by_change] == [("information_gain", "a")]
+    # Touching ends overlap; equal gains never move, whatever their intervals.
+    touching = [spread("a", 1, 0.45, 0.50, 0.60), spread("b", 2, 0.100, 0.0, 0.0)]
+    assert compare(old, touching)[0] == []
+
+
+def test_rows_without_an_interval_fall_back_to_the_change_and_say_so() -> None:
+    # An old history row (schema version 1: no interval) against a new one, and a row of a
+    # ranking with fractional weights (NULL interval): compared by --ig-change, with a note.
+    old = [row("a", 1, 0.40), spread("b", 2, 0.10, None, None)]
+    new = [spread("a", 1, 0.45, 0.35, 0.55), spread("b", 2, 0.30, None, None)]
+    changes, notes = compare(old, new)
+    assert [(c.kind, c.attribute) for c in changes] == [("information_gain", "a"),
+                                                        ("information_gain", "b")]
+    assert len(notes) == 1 and "--ig-change (0.01 bits)" in notes[0]
+
+
+def test_an_unknown_ig_rule_is_one_problem() -> None:
+    with pytest.raises(SpecError, match="ig_rule must be one of interval, change, not 'x'"):
+        DriftThresholds(ig_rule="x")
+
+
 def test_compare_thresholds_are_strict_and_ignore_rounding() -> None:
     old = [row("a", 1, 0.5), row("b", 2, 0.25)]
     same = [row("a", 1, 0.5 + 1e-15), row("b", 2, 0.25)]
-    assert compare(old, same, DriftThresholds(ig_change=0, rank_change=0)) == ([], [])
+    exact = DriftThresholds(ig_change=0, rank_change=0, ig_rule="change")
+    assert compare(old, same, exact) == ([], [])
     moved = [row("b", 1, 0.26), row("a", 2, 0.5)]
-    changes, _ = compare(old, moved, DriftThresholds(ig_change=0.01, rank_change=1))
+    changes, _ = compare(old, moved, DriftThresholds(ig_change=0.01, rank_change=1,
+                                                     ig_rule="change"))
     assert changes == []  # exactly at the thresholds is not beyond them
-    changes, _ = compare(old, moved, DriftThresholds(ig_change=0.009, rank_change=0))
+    changes, _ = compare(old, moved, DriftThresholds(ig_change=0.009, rank_change=0,
+                                                     ig_rule="change"))
     assert [(c.kind, c.attribute) for c in changes] == [
         ("rank", "a"), ("information_gain", "b"), ("rank", "b")]
     _, notes = compare(old, [row("a", 1, 0.5, options='{"bins":4}'), row("b", 2, 0.25)])
@@ -119,10 +161,16 @@ def test_planted_change_is_drift_and_exits_3(tmp_path: Path) -> None:
     direct = runner.invoke(cli, ["drift", "--results", str(tmp_path / "hist.duckdb"),
                                  "--results-table", "history", "--job", "nightly"])
     assert direct.exit_code == 3
-    # A loose threshold hides the move.
-    loose = drift(job.destination, "nightly", thresholds=DriftThresholds(ig_change=1.0,
-                                                                         rank_change=10))
+    # A loose threshold hides the move; by default (intervals apart) it shows.
+    loose = drift(job.destination, "nightly", thresholds=DriftThresholds(
+        ig_change=1.0, rank_change=10, ig_rule="change"))
     assert not loose.drifted
+    assert drift(job.destination, "nightly", thresholds=DriftThresholds(
+        ig_change=1.0, rank_change=10)).drifted
+    by_change = runner.invoke(cli, ["drift", str(job_file), "--ig-rule", "change",
+                                    "--ig-change", "1", "--rank-change", "10"])
+    assert by_change.exit_code == 0, by_change.output
+    assert "moves > 1 bits" in by_change.output
 
 
 @pytest.mark.slow

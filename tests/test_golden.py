@@ -99,7 +99,8 @@ def test_sql_command_output_parses_back(dialect: str) -> None:
 EXECUTED = {"duckdb": ["duckdb"], "sqlite": ["sqlite"], "postgres": ["postgres"],
             "mariadb": ["mariadb", "mysql"]}
 COMPARED = ("information_gain", "gain_ratio", "symmetric_uncertainty", "conditional_entropy",
-            "attribute_entropy", "target_entropy", "g_statistic")
+            "attribute_entropy", "target_entropy", "g_statistic", "information_gain_se",
+            "information_gain_corrected", "information_gain_low", "information_gain_high")
 
 
 @pytest.mark.slow
@@ -124,6 +125,9 @@ def test_golden_sql_executes_and_equals_rank(engine: str, request: pytest.Fixtur
                     row = by_name[scored.attribute]
                     assert int(row["distinct_values"]) == scored.distinct, context
                     assert int(row["dof"]) == scored.dof, context
+                    # The rank ranges: the statement's self-join, run mode's rank_ranges().
+                    assert (int(row["rank_low"]), int(row["rank_high"])) == (
+                        scored.rank_low, scored.rank_high), f"{context}: {scored.attribute}"
                     for metric in COMPARED:
                         got, want = float(row[metric]), getattr(scored, metric)
                         assert abs(got - want) <= 1e-9 * max(1.0, abs(want)), (

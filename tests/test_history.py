@@ -32,11 +32,13 @@ import bitsift.run.api
 from bitsift.jobs import history_duckdb
 from bitsift.jobs.drift import drift
 from bitsift.jobs.history import (
+    ADDED_IN_2,
     COLUMN_NAMES,
     COLUMNS,
     SCHEMA_VERSION,
     Destination,
     HistoryError,
+    compatibility_problems,
     ranking_rows,
 )
 from bitsift.jobs.history_open import open_store
@@ -151,7 +153,7 @@ def test_an_incompatible_table_is_refused_and_left_alone(destination: Destinatio
         with pytest.raises(HistoryError) as caught:
             store.replace_run("j", "r1", rows_of(ranking))
         message = str(caught.value)
-        assert "is not a bitsift history table of schema version 1" in message
+        assert f"is not a bitsift history table of schema version {SCHEMA_VERSION}" in message
         assert "missing column(s) schema_version, run_at," in message
         assert "unexpected column(s) note" in message
         assert "column information_gain holds text, expected float" in message
@@ -166,6 +168,48 @@ def test_an_incompatible_table_is_refused_and_left_alone(destination: Destinatio
         f'table = "{destination.table}"\n[[ranking]]\ntable = "t"\ntarget = "y"\n')
     with pytest.raises(bitsift.BitsiftError, match=r"job.toml:2: results table .* not a bitsift"):
         preflight(load_job(job_file))
+
+
+@pytest.mark.slow
+def test_a_version_1_table_is_read_then_migrated_by_the_next_write(
+        destination: Destination, ranking: bitsift.Ranking) -> None:
+    # Issue 18: schema version 2 added the gain's se, interval and rank range. A version 1
+    # table (made here from a new one) is read with those NULL, and the next write adds them.
+    added = [c.name for c in ADDED_IN_2]
+    table = destination.table_name().sql(destination.sqlglot_dialect())
+    with open_store(destination, write=True) as store:
+        store.replace_run("j", "r1", rows_of(ranking))
+    for name in added:
+        execute(destination, f"ALTER TABLE {table} DROP COLUMN {name}")
+    execute(destination, f"UPDATE {table} SET schema_version = 1")
+    with open_store(destination) as store:
+        assert store.check() is True
+        old = store.read("j", ["r1"])
+        assert set(store.existing_columns() or {}) == set(COLUMN_NAMES) - set(added)
+    assert old and all(row[name] is None for row in old for name in added)
+    assert all(row["schema_version"] == 1 for row in old)
+    with open_store(destination, write=True) as store:
+        assert store.replace_run("j", "r2", rows_of(ranking, "r2")) == 4
+        existing = store.existing_columns()
+        both = store.read("j", ["r1", "r2"])
+    assert existing is not None and list(existing) == list(COLUMN_NAMES)
+    assert {c.name: existing[c.name] for c in ADDED_IN_2} == {c.name: c.family
+                                                              for c in ADDED_IN_2}
+    expected = {r["attribute"]: r for r in rows_of(ranking, "r2")}
+    for row in both:
+        if row["run_id"] == "r2":
+            assert row == expected[row["attribute"]]
+            assert row["information_gain_corrected"] is not None
+        else:
+            assert all(row[name] is None for name in added)
+    assert drift(destination, "j").changes is not None  # old and new rows compare
+
+
+def test_a_table_lacking_only_some_new_columns_is_refused() -> None:
+    families = {c.name: c.family for c in COLUMNS if c.name != "rank_high"}
+    assert compatibility_problems(families) == ["missing column(s) rank_high"]
+    old = {c.name: c.family for c in COLUMNS if c not in ADDED_IN_2}
+    assert compatibility_problems(old) == []
 
 
 def test_rows_from_a_newer_schema_are_refused(tmp_path: Path, ranking: bitsift.Ranking) -> None:

@@ -233,3 +233,35 @@ def test_report_command_rejects_a_negative_top(tmp_path: Path) -> None:
                                       "--out", str(tmp_path / "r.html"), "--top", "-1"])
     assert result.exit_code == 2 and "--top" in result.output
     assert not (tmp_path / "r.html").exists()
+
+
+def test_the_chart_draws_each_interval_and_shades_overlapping_ranks(run: ProfiledRun) -> None:
+    # Issue 18: a whisker from the interval's low to its high end per attribute, and a shaded
+    # row where the rank range overlaps the one above.
+    context = report_context([run], now=NOW)
+    (first,) = context["runs"]
+    rows = first["chart"]["rows"]
+    scores = run.ranking.attributes
+    ticks = first["chart"]["ticks"]
+    assert ticks[-1]["x"] >= max(r["whisker"]["x2"] for r in rows if r["whisker"])
+    for r, s in zip(rows, scores, strict=True):
+        assert r["whisker"] is not None and r["whisker"]["x1"] <= r["whisker"]["x2"]
+        assert s.information_gain_high is not None and s.information_gain_low is not None
+    expected = [i > 0 and scores[i].rank_low is not None
+                and scores[i].rank_low <= (scores[i - 1].rank_high or 0)
+                and (scores[i - 1].rank_low or 0) <= (scores[i].rank_high or 0)
+                for i in range(len(scores))]
+    assert [r["overlaps_above"] for r in rows] == expected and any(expected)
+    assert not rows[0]["overlaps_above"]
+    html = parse(render_report([run], now=NOW))
+    shaded = [a["data-attribute"] for a in html.with_class("rect", "overlap")]
+    assert shaded == [r["attribute"] for r in rows if r["overlaps_above"]]
+    whiskers = [a["data-attribute"] for a in html.with_class("g", "whisker")]
+    assert whiskers == [s.attribute for s in scores]
+
+
+def test_no_whiskers_on_a_chart_of_another_metric(connection: Any) -> None:
+    by_ratio = rank_and_profile(connection, target="outcome", table="visits", bins=4, top=1,
+                                sort="gain_ratio")
+    rows = report_context([by_ratio], now=NOW)["runs"][0]["chart"]["rows"]
+    assert all(r["whisker"] is None for r in rows)

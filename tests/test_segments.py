@@ -266,7 +266,7 @@ def test_cli_json_has_one_ranking_per_segment(tmp_path: Path) -> None:
     result = CliRunner().invoke(cli, [*args, "--by", "region", "--format", "json"])
     assert result.exit_code == 0, result.output
     payload = json.loads(result.stdout)
-    assert list(payload) == ["target", "table", "by", "segments"]
+    assert list(payload) == ["target", "table", "by", "confidence", "segments"]
     assert payload["by"] == ["region"]
     assert [s["segment"] for s in payload["segments"]] == [{"region": r} for r in
                                                            ("east", "north", "south", None)]

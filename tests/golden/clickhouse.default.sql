@@ -6,6 +6,7 @@
 -- one row per attribute (attribute_index 0 describes the target); entropies in bits.
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
+-- information_gain_low/high: an interval at level 0.95 of the bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.
 WITH ordered_4 AS (
   SELECT
     CAST("score" AS Nullable(Float64)) AS v,
@@ -232,7 +233,8 @@ WITH ordered_4 AS (
     SUM(n) OVER (PARTITION BY attr, a1, a2, a3, a4, a5) AS n_x,
     ROW_NUMBER() OVER (PARTITION BY attr, a1, a2, a3, a4, a5 ORDER BY y) AS x_first,
     SUM(n) OVER (PARTITION BY attr, y) AS n_y,
-    ROW_NUMBER() OVER (PARTITION BY attr, y ORDER BY n) AS y_first
+    ROW_NUMBER() OVER (PARTITION BY attr, y ORDER BY n) AS y_first,
+    SUM(n) OVER (PARTITION BY attr) AS n_all
   FROM counts
   WHERE
     NOT (
@@ -261,7 +263,22 @@ WITH ordered_4 AS (
         THEN CAST(n_y AS Nullable(Float64)) * LN(CAST(n_y AS Nullable(Float64)))
         ELSE 0
       END AS Nullable(Decimal(38, 18)))
-    ) AS Nullable(Float64)) AS s_y
+    ) AS Nullable(Float64)) AS s_y,
+    CAST(SUM(
+      CAST(CAST(n AS Nullable(Float64)) * (
+        (
+          LN(CAST(n AS Nullable(Float64))) - LN(CAST(n_x AS Nullable(Float64)))
+        ) - (
+          LN(CAST(n_y AS Nullable(Float64))) - LN(CAST(n_all AS Nullable(Float64)))
+        )
+      ) * (
+        (
+          LN(CAST(n AS Nullable(Float64))) - LN(CAST(n_x AS Nullable(Float64)))
+        ) - (
+          LN(CAST(n_y AS Nullable(Float64))) - LN(CAST(n_all AS Nullable(Float64)))
+        )
+      ) AS Nullable(Decimal(38, 18)))
+    ) AS Nullable(Float64)) AS s_kk
   FROM cells
   GROUP BY
     attr
@@ -284,7 +301,10 @@ WITH ordered_4 AS (
     ) / LN(2) ELSE 0 END AS h_x,
     (
       s_x - s_xy
-    ) / n_total_f / LN(2) AS h_y_given_x
+    ) / n_total_f / LN(2) AS h_y_given_x,
+    s_kk / n_total_f / (
+      LN(2) * LN(2)
+    ) AS k_bits
   FROM per_attribute
 ), gains AS (
   SELECT
@@ -295,8 +315,63 @@ WITH ordered_4 AS (
     n_classes,
     h_y,
     h_x,
-    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig
+    CASE WHEN n_values > 1 AND h_y - h_y_given_x > 0 THEN h_y - h_y_given_x ELSE 0 END AS ig,
+    CASE
+      WHEN k_bits - (
+        h_y - h_y_given_x
+      ) * (
+        h_y - h_y_given_x
+      ) > 0
+      THEN k_bits - (
+        h_y - h_y_given_x
+      ) * (
+        h_y - h_y_given_x
+      )
+      ELSE 0
+    END AS ig_variance
   FROM entropies
+), uncertainty AS (
+  SELECT
+    attr,
+    se,
+    corrected,
+    CASE
+      WHEN corrected - 1.959963984540054 * se > 0
+      THEN corrected - 1.959963984540054 * se
+      ELSE 0
+    END AS ig_low,
+    CASE
+      WHEN corrected + 1.959963984540054 * se > 0
+      THEN corrected + 1.959963984540054 * se
+      ELSE 0
+    END AS ig_high
+  FROM (
+    SELECT
+      attr,
+      SQRT(ig_variance / (
+        n_total_f + 1
+      )) AS se,
+      ig - (
+        n_values - 1
+      ) * (
+        n_classes - 1
+      ) / (
+        2 * n_total_f * LN(2)
+      ) AS corrected
+    FROM gains
+  ) AS spread
+), rank_ranges AS (
+  SELECT
+    a.attr,
+    CAST(1 + SUM(CASE WHEN b.attr <> a.attr AND b.ig_low > a.ig_high THEN 1 ELSE 0 END) AS Nullable(Int64)) AS rank_low,
+    CAST(SUM(CASE WHEN b.ig_high >= a.ig_low THEN 1 ELSE 0 END) AS Nullable(Int64)) AS rank_high
+  FROM uncertainty AS a
+  JOIN uncertainty AS b
+    ON b.attr > 0
+  WHERE
+    a.attr > 0
+  GROUP BY
+    a.attr
 ), excluded AS (
   SELECT
     COALESCE(SUM(n), 0) AS rows_excluded
@@ -351,10 +426,20 @@ SELECT
     g.n_values - 1
   ) * (
     g.n_classes - 1
-  ) AS dof
+  ) AS dof,
+  u.se AS information_gain_se,
+  u.corrected AS information_gain_corrected,
+  u.ig_low AS information_gain_low,
+  u.ig_high AS information_gain_high,
+  r.rank_low AS rank_low,
+  r.rank_high AS rank_high
 FROM excluded AS e
 LEFT JOIN gains AS g
   ON 1 = 1
+LEFT JOIN uncertainty AS u
+  ON u.attr = g.attr
+LEFT JOIN rank_ranges AS r
+  ON r.attr = g.attr
 ORDER BY
   CASE WHEN g.attr = 0 THEN 0 ELSE 1 END,
   information_gain DESC,

@@ -74,15 +74,20 @@ def _ranked_line(ranked: Ranking) -> str:
 @click.option("--job", "job_name", help="Job name (default: the job file's).")
 @click.option("--old", help="Run id of the older run (needs --new).")
 @click.option("--new", help="Run id of the newer run (default: the newest).")
+@click.option("--ig-rule", type=click.Choice(drift_lib.IG_RULES), default="interval",
+              show_default=True,
+              help="When a gain has moved: its intervals in the two runs do not overlap, or "
+                   "it changed by more than --ig-change.")
 @click.option("--ig-change", type=float, default=0.01, show_default=True,
-              help="Information gain move, in bits, that counts as drift.")
+              help="Information gain move, in bits, that counts as drift (--ig-rule change, "
+                   "and rows without an interval).")
 @click.option("--rank-change", type=int, default=3, show_default=True,
               help="Move in the ranking, in places, that counts as drift.")
 @click.option("--format", "-f", "fmt", type=click.Choice(["text", "json"]), default="text",
               show_default=True)
 def drift_command(job_file: str | None, results: str | None, results_table: str,
-                  job_name: str | None, old: str | None, new: str | None, ig_change: float,
-                  rank_change: int, fmt: str) -> None:
+                  job_name: str | None, old: str | None, new: str | None, ig_rule: str,
+                  ig_change: float, rank_change: int, fmt: str) -> None:
     """Compare the two newest runs of a job (or --old and --new) in its history table.
 
     Exits 3 when an attribute's information gain or rank moved beyond the thresholds, or an
@@ -97,7 +102,8 @@ def drift_command(job_file: str | None, results: str | None, results_table: str,
         name = job_name
     else:
         raise click.UsageError("give a JOB_FILE, or --results and --job")
-    thresholds = drift_lib.DriftThresholds(ig_change=ig_change, rank_change=rank_change)
+    thresholds = drift_lib.DriftThresholds(ig_change=ig_change, rank_change=rank_change,
+                                           ig_rule=ig_rule)
     report = drift_lib.drift(destination, name, old=old, new=new, thresholds=thresholds)
     render = drift_lib.render_json if fmt == "json" else drift_lib.render_text
     click.echo(render(report), nl=False)

@@ -19,6 +19,7 @@ from bitsift.engines.sources import ENGINE_NAMES, EngineSource
 from bitsift.names import one_line
 from bitsift.spec.rankspec import (
     BINNING_METHODS,
+    CONFIDENCE_Z,
     MISSING_MODES,
     SORT_METRICS,
     Thresholds,
@@ -104,6 +105,10 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
                      show_default=True, help="Metric to sort by (descending)."),
         click.option("--limit", type=int, help="Show the top N attributes only."),
+        click.option("--confidence", type=click.Choice([f"{c:.2f}" for c in CONFIDENCE_Z]),
+                     default="0.95", show_default=True, callback=lambda _c, _p, v: float(v),
+                     help="Level of each gain's interval (bias-corrected gain ± z·se) and "
+                          "of the rank ranges drawn from them."),
         click.option("--timeout", type=float, help="Statement timeout in seconds."),
         click.option("--high-cardinality", "high_cardinality", type=int, default=1000,
                      show_default=True, help="Flag attributes with more distinct values."),

@@ -32,6 +32,7 @@ def _floor(x: Any) -> Any:
 MATH_FUNCTIONS: dict[str, Callable[[Any], Any]] = {
     "ln": lambda x: math.log(x) if x is not None and x > 0 else None,
     "floor": _floor,
+    "sqrt": lambda x: math.sqrt(x) if x is not None and x >= 0 else None,
 }
 
 #: Functions that SQLAlchemy's pysqlite dialect replaces on every connection with Python's own

@@ -1,8 +1,10 @@
 """Drift between two runs of a job, read from the history table.
 
-An attribute drifts when its information gain moves by more than ``ig_change`` bits, its place
-in the ranking by more than ``rank_change`` positions, when it appears or disappears, or when it
-gains or loses a trust flag. Rankings that appear or disappear between runs are reported too.
+An attribute drifts when its information gain moves (by default: when the two runs' intervals
+of the gain do not overlap; with ``ig_rule="change"``, or for rows without an interval, by more
+than ``ig_change`` bits), its place in the ranking by more than ``rank_change`` positions,
+when it appears or disappears, or when it gains or loses a trust flag. Rankings that appear
+or disappear between runs are reported too.
 """
 
 from __future__ import annotations
@@ -27,6 +29,9 @@ DRIFT_EXIT_CODE = 3
 #: before snapping compares quietly too. Attributes whose sort metric differs by no more
 #: than this are ties: their order among themselves is never a rank change.
 FLOAT_NOISE = 1e-9
+#: How an information gain move is judged: ``interval`` (the runs' intervals do not overlap)
+#: or ``change`` (it moved by more than ``ig_change`` bits).
+IG_RULES: tuple[str, ...] = ("interval", "change")
 
 
 @dataclass(frozen=True)
@@ -37,8 +42,14 @@ class DriftThresholds:
     ig_change: float = 0.01
     #: Change of place in the ranking, in positions.
     rank_change: int = 3
+    #: One of :data:`IG_RULES`; rows without an interval (history of schema version 1,
+    #: fractional weights) fall back to ``ig_change`` under ``interval``.
+    ig_rule: str = "interval"
 
     def __post_init__(self) -> None:
+        if self.ig_rule not in IG_RULES:
+            raise SpecError.option("ig_rule", f" must be one of {', '.join(IG_RULES)}, "
+                                   f"not {self.ig_rule!r}")
         if self.ig_change < 0:
             raise SpecError.option("ig_change", f" must be at least 0, not {self.ig_change}")
         if self.rank_change < 0:
@@ -149,6 +160,7 @@ def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[st
     new_rankings = {(k[0], k[1]) for k in new}
     changes: list[Change] = []
     notes: list[str] = []
+    without_interval: set[str] = set()
     for ranking, segment in sorted(old_rankings - new_rankings):
         changes.append(Change("ranking_disappeared", ranking, segment, None))
     for ranking, segment in sorted(new_rankings - old_rankings):
@@ -175,7 +187,36 @@ def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[st
             continue
         changes += _attribute_changes(key, before, after, limits,
                                       _span_gap(spans[0][key], spans[1][key]))
+        if limits.ig_rule == "interval" and not (_interval(before) and _interval(after)):
+            without_interval.add(ranking)
+    if without_interval:
+        notes.append(f"ranking(s) {', '.join(repr(r) for r in sorted(without_interval))}: some "
+                     "rows have no interval of the gain (history written before schema "
+                     "version 2, or fractional weights); their gains are compared with "
+                     f"--ig-change ({limits.ig_change:g} bits) instead")
     return changes, notes
+
+
+def _interval(row: Mapping[str, Any]) -> tuple[float, float] | None:
+    """The row's interval of the gain, or None (NULL, or a row read without the column)."""
+    low, high = row.get("information_gain_low"), row.get("information_gain_high")
+    if low is None or high is None:
+        return None
+    return float(low), float(high)
+
+
+def _gain_moved(before: Mapping[str, Any], after: Mapping[str, Any],
+                limits: DriftThresholds) -> bool:
+    """Whether the gain moved beyond the rule: intervals apart (both rows have one), else by
+    more than ``ig_change``. Differences of rounding (:data:`FLOAT_NOISE`) never count."""
+    ig_before, ig_after = float(before["information_gain"]), float(after["information_gain"])
+    if abs(ig_after - ig_before) <= FLOAT_NOISE:
+        return False
+    old_span, new_span = _interval(before), _interval(after)
+    if limits.ig_rule == "interval" and old_span is not None and new_span is not None:
+        return (old_span[1] + FLOAT_NOISE < new_span[0]
+                or new_span[1] + FLOAT_NOISE < old_span[0])
+    return abs(ig_after - ig_before) > limits.ig_change + FLOAT_NOISE
 
 
 def _summary(row: Mapping[str, Any]) -> dict[str, Any]:
@@ -189,7 +230,7 @@ def _attribute_changes(key: tuple[str, str, str], before: Mapping[str, Any],
     changes = []
     ig_before, ig_after = float(before["information_gain"]), float(after["information_gain"])
     # Parallel aggregation sums in varying order: identical data can differ in the last bits.
-    if abs(ig_after - ig_before) > limits.ig_change + FLOAT_NOISE:
+    if _gain_moved(before, after, limits):
         changes.append(Change("information_gain", ranking, segment, attribute, ig_before,
                               ig_after))
     # Places moved beyond its ties: tied attributes may come in any order on old history.
@@ -292,8 +333,11 @@ def render_text(report: DriftReport) -> str:
         lines.append(f"job {report.job}: run {report.new.run_id} ({_stamp(report.new.run_at)}) "
                      f"against run {report.old.run_id} ({_stamp(report.old.run_at)})")
     limits = report.thresholds
-    lines.append(f"thresholds: information gain moves > {limits.ig_change:g} bits, "
-                 f"rank moves > {limits.rank_change} places")
+    gain_rule = (f"information gain moves > {limits.ig_change:g} bits"
+                 if limits.ig_rule == "change" else
+                 "information gain intervals apart (without intervals: moves > "
+                 f"{limits.ig_change:g} bits)")
+    lines.append(f"thresholds: {gain_rule}, rank moves > {limits.rank_change} places")
     if report.changes:
         rows = [
             (c.ranking + (f" {c.segment}" if c.segment else ""), c.attribute or "-",

@@ -2,8 +2,12 @@
 transaction per run.
 
 The schema is :data:`COLUMNS` (documented in docs/scheduled-runs.md) with version
-:data:`SCHEMA_VERSION`, stored in every row. A missing table is created; an existing table whose
-columns differ is an error and is never altered. Destinations are a DuckDB file (written through
+:data:`SCHEMA_VERSION`, stored in every row. A missing table is created; a table of schema
+version 1 (without :data:`ADDED_IN_2`) is read as it is (those columns NULL) and migrated by the
+first write, under the writer lock, in the write's transaction (ALTER TABLE ... ADD COLUMN of
+nullable columns; MySQL/MariaDB commit DDL at once, so there the columns are added just before
+the write's transaction); an existing table whose columns differ otherwise is an error and is
+never altered. Destinations are a DuckDB file (written through
 DuckDB, SQL built by sqlglot) or a SQLAlchemy URL (written through SQLAlchemy Core).
 
 Writers of one history table take turns: a DuckDB file admits one writing process (the others
@@ -36,7 +40,7 @@ from bitsift.sql.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.version import __version__
 
 #: Bumped whenever :data:`COLUMNS` changes; a table holding newer rows is refused.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 DEFAULT_TABLE = "bitsift_history"
 
 
@@ -58,7 +62,7 @@ class HistoryColumn:
 
 
 COLUMNS: tuple[HistoryColumn, ...] = (
-    HistoryColumn("schema_version", "integer", "version of this table layout (currently 1)"),
+    HistoryColumn("schema_version", "integer", "version of this table layout (currently 2)"),
     HistoryColumn("run_id", "text", "the run's id (`--run-id`, or generated from the time)",
                   length=100),
     HistoryColumn("run_at", "timestamp", "when the run started, UTC (stored without a zone)"),
@@ -90,8 +94,23 @@ COLUMNS: tuple[HistoryColumn, ...] = (
                   nullable=True, length=255),
     HistoryColumn("options", "text", "the ranking's settings from the job file, as JSON"),
     HistoryColumn("bitsift_version", "text", "version of bitsift that wrote the row", length=32),
+    # Schema version 2 (issue 18), appended: what ALTER TABLE ... ADD COLUMN gives an old table.
+    HistoryColumn("information_gain_se", "float", "standard error of IG, bits; NULL with "
+                  "fractional weights or in rows of schema version 1", nullable=True),
+    HistoryColumn("information_gain_corrected", "float", "IG less its first-order bias "
+                  "(r-1)(c-1)/(2 N ln 2); NULL in rows of schema version 1", nullable=True),
+    HistoryColumn("information_gain_low", "float", "low end of the gain's interval at the "
+                  "run's confidence (in options), clipped at 0", nullable=True),
+    HistoryColumn("information_gain_high", "float", "high end of the gain's interval",
+                  nullable=True),
+    HistoryColumn("rank_low", "integer", "best plausible rank in the ranking (segment)",
+                  nullable=True),
+    HistoryColumn("rank_high", "integer", "worst plausible rank in the ranking (segment)",
+                  nullable=True),
 )
 COLUMN_NAMES: tuple[str, ...] = tuple(c.name for c in COLUMNS)
+#: The columns schema version 2 added to version 1, at the end of :data:`COLUMNS`.
+ADDED_IN_2: tuple[HistoryColumn, ...] = COLUMNS[-6:]
 
 
 @dataclass(frozen=True)
@@ -212,6 +231,12 @@ def ranking_rows(ranking: Ranking, *, run_id: str, run_at: _dt.datetime, job: st
             "flags": ",".join(scored.flags),
             "options": settings,
             "bitsift_version": __version__,
+            "information_gain_se": scored.information_gain_se,
+            "information_gain_corrected": scored.information_gain_corrected,
+            "information_gain_low": scored.information_gain_low,
+            "information_gain_high": scored.information_gain_high,
+            "rank_low": scored.rank_low,
+            "rank_high": scored.rank_high,
         })
     return rows
 
@@ -234,11 +259,23 @@ def _utc_naive(moment: _dt.datetime) -> _dt.datetime:
     return moment
 
 
+def columns_to_add(existing: Mapping[str, str]) -> list[HistoryColumn]:
+    """The columns of :data:`ADDED_IN_2` a table of schema version 1 lacks (all or none: a
+    table lacking only some of them is not a version 1 table, see
+    :func:`compatibility_problems`)."""
+    names = {name.lower() for name in existing}
+    return [c for c in ADDED_IN_2 if c.name not in names]
+
+
 def compatibility_problems(existing: Mapping[str, str]) -> list[str]:
-    """What makes an existing table (column name -> type family) unusable; empty when fine."""
+    """What makes an existing table (column name -> type family) unusable; empty when fine.
+    A table of schema version 1 (every column but :data:`ADDED_IN_2`) is fine: it is
+    migrated by the first write."""
     by_lower = {name.lower(): family for name, family in existing.items()}
     problems = []
-    missing = [c.name for c in COLUMNS if c.name not in by_lower]
+    lacking = columns_to_add(existing)
+    optional = {c.name for c in lacking} if len(lacking) == len(ADDED_IN_2) else set()
+    missing = [c.name for c in COLUMNS if c.name not in by_lower and c.name not in optional]
     if missing:
         problems.append("missing column(s) " + ", ".join(missing))
     expected = set(COLUMN_NAMES)

@@ -10,7 +10,15 @@ import duckdb
 from sqlglot import exp
 
 from bitsift.errors import first_line
-from bitsift.jobs.history import COLUMN_NAMES, COLUMNS, Destination, HistoryError, RunInfo
+from bitsift.jobs.history import (
+    COLUMN_NAMES,
+    COLUMNS,
+    Destination,
+    HistoryColumn,
+    HistoryError,
+    RunInfo,
+    columns_to_add,
+)
 from bitsift.jobs.history_store import (
     WRITE_WAIT_SECONDS,
     HistoryStore,
@@ -123,6 +131,13 @@ class DuckDBStore(HistoryStore):
                                                     expressions=definitions), kind="TABLE",
                                     exists=True))
 
+    def _add_column_sql(self, column: HistoryColumn) -> str:
+        """ALTER TABLE ... ADD COLUMN for a column a schema version 1 table lacks."""
+        definition = exp.ColumnDef(this=_ident(column.name),
+                                   kind=exp.DataType.build(_DUCKDB_TYPES[column.family]))
+        return self._sql(exp.Alter(this=self.table.copy(), kind="TABLE",
+                                   actions=[definition]))
+
     def _run_filter(self) -> exp.Condition:
         return exp.and_(_col("job").eq(exp.Placeholder()), _col("run_id").eq(exp.Placeholder()))
 
@@ -141,6 +156,9 @@ class DuckDBStore(HistoryStore):
         try:
             if not self.check():
                 con.execute(self._create_sql())
+            else:
+                for column in columns_to_add(self.existing_columns() or {}):
+                    con.execute(self._add_column_sql(column))
             con.execute(self._sql(delete), [job, run_id])
             if rows:
                 con.executemany(self._sql(insert), [[r[n] for n in COLUMN_NAMES] for r in rows])
@@ -177,8 +195,11 @@ class DuckDBStore(HistoryStore):
         if not ids or self.existing_columns() is None:
             return []
         assert self.connection is not None
+        existing = {name.lower() for name in self.existing_columns() or {}}
+        # A schema version 1 table, not yet migrated: its rows have no interval (NULL).
         query = (
-            exp.select(*(_col(n) for n in COLUMN_NAMES))
+            exp.select(*(_col(n) if n in existing else exp.Null().as_(n)
+                         for n in COLUMN_NAMES))
             .from_(self.table.copy())
             .where(exp.and_(_col("job").eq(exp.Placeholder()),
                             _col("run_id").isin(*(exp.Placeholder() for _ in ids))))

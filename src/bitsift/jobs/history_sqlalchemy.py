@@ -26,6 +26,7 @@ from bitsift.jobs.history import (
     HistoryColumn,
     HistoryError,
     RunInfo,
+    columns_to_add,
 )
 from bitsift.jobs.history_store import (
     WRITE_WAIT_SECONDS,
@@ -206,6 +207,15 @@ class SqlAlchemyStore(HistoryStore):
         if_not_exists = connection.dialect.name in _IF_NOT_EXISTS_DIALECTS
         connection.execute(sa.schema.CreateTable(self.sa_table, if_not_exists=if_not_exists))
 
+    def _add_column(self, connection: sa.Connection, column: HistoryColumn) -> None:
+        """ALTER TABLE ... ADD COLUMN for a column a schema version 1 table lacks (in the
+        write's transaction; MySQL/MariaDB commit it at once, under the writer lock)."""
+        preparer = connection.dialect.identifier_preparer
+        name = preparer.format_table(self.sa_table)
+        kind = _sa_type(column).compile(dialect=connection.dialect)
+        connection.exec_driver_sql(
+            f"ALTER TABLE {name} ADD COLUMN {preparer.quote(column.name)} {kind}")
+
     def replace_run(self, job: str, run_id: str, rows: Sequence[Mapping[str, Any]]) -> int:
         table = self.sa_table
         self._check_keys(job, run_id, rows)
@@ -215,6 +225,8 @@ class SqlAlchemyStore(HistoryStore):
                 self._create(connection)
             else:
                 self._verify(existing, lambda: self._newest(connection))
+                for column in columns_to_add(existing):
+                    self._add_column(connection, column)
             connection.execute(table.delete().where(self._same(table.c.job, job),
                                                     self._same(table.c.run_id, run_id)))
             if rows:
@@ -241,10 +253,13 @@ class SqlAlchemyStore(HistoryStore):
         with self._connection(write=False) as connection:
             if not ids or self._existing(connection) is None:
                 return []
+            existing = {name.lower() for name in self._existing(connection) or {}}
             keys = [self._key_value(run_id) for run_id in ids]
+            # A schema version 1 table, not yet migrated: its rows have no interval (NULL).
+            columns = [c if c.name in existing else sa.null().label(c.name) for c in table.c]
             result = connection.execute(
-                sa.select(table).where(self._same(table.c.job, job),
-                                       self._key(table.c.run_id).in_(keys))
+                sa.select(*columns).where(self._same(table.c.job, job),
+                                          self._key(table.c.run_id).in_(keys))
             ).all()
         return _rows_to_dicts(COLUMN_NAMES, result)
 

@@ -52,14 +52,14 @@ RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
 RANKING_KEYS: tuple[str, ...] = (
     "name", "table", "target", "attributes", "exclude", "categorical", "numeric", "missing",
     "bins", "where", "sort", "limit", "timeout", "high_cardinality", "by", "weight",
-    "binning", "binning_for", "date_part",
+    "binning", "binning_for", "date_part", "confidence",
 )
 DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
 NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric", "by")
 _STRINGS = ("name", "table", "target", "where", "missing", "sort", "weight", "binning",
             "binning_for", "date_part")
 _INTEGERS = ("bins", "limit", "high_cardinality")
-_NUMBERS = ("timeout",)
+_NUMBERS = ("timeout", "confidence")
 MAX_NAME = 200
 MAX_RUN_ID = 100
 

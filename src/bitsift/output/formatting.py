@@ -17,6 +17,7 @@ from bitsift.run.result import (
     SegmentedRanking,
     segment_label,
 )
+from bitsift.spec.rankspec import CONFIDENCE_Z
 
 FORMATS: tuple[str, ...] = ("table", "json", "csv", "markdown")
 
@@ -25,6 +26,8 @@ _TABLE_COLUMNS: tuple[tuple[str, str], ...] = (
     ("kind", "kind"),
     ("distinct", "values"),
     ("information_gain", "info gain"),
+    ("interval", "corrected ± {level}"),
+    ("rank_range", "rank"),
     ("gain_ratio", "gain ratio"),
     ("symmetric_uncertainty", "sym unc"),
     ("conditional_entropy", "H(Y|X)"),
@@ -50,8 +53,44 @@ def _cell(key: str, value: object) -> str:
     return escape_text(str(value))
 
 
+def interval_text(score: AttributeScore, confidence: float) -> str:
+    """The gain's interval, compactly: the corrected gain ± z·se (``0.1850 ± 0.0040``); its
+    low end is clipped at 0 in the fields. ``-`` without an se (fractional weights).
+
+    >>> s = AttributeScore("a", "categorical", 3, 0.2, 0.1, 0.1, 0.7, 1.5, 9.0, 2, 0.01,
+    ...                    information_gain_se=0.002, information_gain_corrected=0.185)
+    >>> interval_text(s, 0.95)
+    '0.1850 ± 0.0039'
+    """
+    if score.information_gain_se is None:
+        return "-"
+    half = CONFIDENCE_Z[confidence] * score.information_gain_se
+    return (f"{format_metric('information_gain', score.information_gain_corrected)}"
+            f" ± {format_metric('information_gain', half)}")
+
+
+def rank_text(score: AttributeScore) -> str:
+    """The rank range ``1–2`` (one number when both ends agree); ``-`` without one."""
+    if score.rank_low is None or score.rank_high is None:
+        return "-"
+    if score.rank_low == score.rank_high:
+        return str(score.rank_low)
+    return f"{score.rank_low}\u2013{score.rank_high}"
+
+
+def _headers(ranking: Ranking) -> list[str]:
+    return [h.format(level=f"{ranking.confidence:.0%}") for _, h in _TABLE_COLUMNS]
+
+
 def _rows(ranking: Ranking) -> list[list[str]]:
-    return [[_cell(k, getattr(a, k)) for k, _ in _TABLE_COLUMNS] for a in ranking.attributes]
+    def cell(key: str, a: AttributeScore) -> str:
+        if key == "interval":
+            return interval_text(a, ranking.confidence)
+        if key == "rank_range":
+            return rank_text(a)
+        return _cell(key, getattr(a, key))
+
+    return [[cell(k, a) for k, _ in _TABLE_COLUMNS] for a in ranking.attributes]
 
 
 def _summary(ranking: Ranking) -> str:
@@ -77,7 +116,7 @@ def _legend(ranking: Ranking) -> list[str]:
 
 def as_table(ranking: Ranking) -> str:
     """An aligned terminal table: text left, numbers right."""
-    header = [h for _, h in _TABLE_COLUMNS]
+    header = _headers(ranking)
     out = [_summary(ranking), "",
            *aligned([header, *_rows(ranking)], left=_TEXT_COLUMNS, rule=True)]
     out += _cut_lines(ranking)
@@ -123,7 +162,7 @@ def _markdown_escape(text: str) -> str:
 
 def as_markdown(ranking: Ranking) -> str:
     """A GitHub-flavoured Markdown table with a one-line summary."""
-    header = [h for _, h in _TABLE_COLUMNS]
+    header = _headers(ranking)
     # "H(Y|X)" holds a pipe: unescaped, it would split the header into one cell too many.
     lines = [_summary(ranking), "", "| " + " | ".join(map(_markdown_escape, header)) + " |"]
     lines.append("|" + "|".join("---" if i in _TEXT_COLUMNS else "---:"

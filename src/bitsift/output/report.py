@@ -23,6 +23,7 @@ from bitsift.numformat import (
     format_metric,
     format_share,
 )
+from bitsift.output import report_interval as interval
 from bitsift.output.report_redundancy import redundancy_context
 from bitsift.output.texttable import aligned
 from bitsift.run.metrics import FLAG_DESCRIPTIONS
@@ -166,7 +167,8 @@ def _chart(run: ProfiledRun, anchors: dict[str, str]) -> dict[str, Any]:
     metric = ranking.sort
     values = [float(getattr(s, metric)) for s in ranking.attributes]
     bound = ranking.target_entropy if metric == "information_gain" else 1.0
-    ticks = nice_ticks(max(values, default=0.0))
+    whiskers = metric in interval.WHISKER_METRICS
+    ticks = nice_ticks(max([*values, *interval.highs(ranking, whiskers)], default=0.0))
     scale_top = ticks[-1]
     span = _BAR_RIGHT - _BAR_LEFT
 
@@ -179,6 +181,9 @@ def _chart(run: ProfiledRun, anchors: dict[str, str]) -> dict[str, Any]:
         marks = list(scored.flags)
         sensitive = scored.attribute in run.sensitive
         rows.append({
+            "whisker": interval.whisker(scored, x_of, top + _ROW_HEIGHT / 2, whiskers),
+            "overlaps_above": interval.overlaps_above(ranking, position),
+            "rank_text": interval.rank_text(scored),
             "attribute": scored.attribute,
             "short": _short(scored.attribute),
             "anchor": anchors.get(scored.attribute),
@@ -333,6 +338,7 @@ def run_context(run: ProfiledRun, prefix: str) -> dict[str, Any]:
     flags_seen = sorted({f for s in ranking.attributes for f in s.flags})
     return {
         "id": prefix,
+        "confidence": f"{ranking.confidence:.0%}",
         "segment": run.segment,
         "title": f"{ranking.target} in {ranking.table}",
         "parameters": _parameters(run),

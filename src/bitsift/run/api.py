@@ -224,6 +224,10 @@ METRICS_CHECKED: tuple[str, ...] = (
     "target_entropy",
     "g_statistic",
     "p_value",
+    "information_gain_se",
+    "information_gain_corrected",
+    "information_gain_low",
+    "information_gain_high",
 )
 
 
@@ -292,7 +296,7 @@ def _compare(ranking: Ranking, spec: RankSpec, data: Mapping[str, Sequence[Any]]
         table = reference.contingency(values, y, spec.options.missing)
         if table.sum() == 0:
             continue
-        expected = reference.metrics(table)
+        expected = reference.metrics(table, spec.options.confidence)
         for metric in METRICS_CHECKED:
             got = getattr(scored, metric)
             diff = abs(got - expected[metric])

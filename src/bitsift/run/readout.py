@@ -17,7 +17,7 @@ from dataclasses import replace
 from typing import Any
 
 from bitsift.errors import DataError
-from bitsift.run.metrics import score, snap, snap_total, sort_scores
+from bitsift.run.metrics import rank_ranges, score, snap, snap_total, sort_scores
 from bitsift.run.result import Ranking, SegmentedRanking
 from bitsift.spec.rankspec import RankSpec
 
@@ -117,6 +117,7 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
         segment=segment, status="no_rows", weight=spec.weight,
         weight_total=0.0 if weighted else None,
         rows_without_weight=_count(first, "rows_without_weight"),
+        confidence=spec.options.confidence,
     )
     if target_row is None or _count(target_row, "rows_used") == 0:
         return base
@@ -125,10 +126,15 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
     for index, attribute in enumerate(spec.attributes, start=1):
         row = by_index.get(index, _NOTHING_MEASURED)
         scored = score(row, attribute.name, attribute.kind, spec.options.thresholds,
-                       cuts.get(attribute.name))
-        # No p-value where the weights are not whole numbers: G assumes counts.
-        scores.append(replace(scored, binning=attribute.binning,
-                              p_value=scored.p_value if whole_numbers else None))
+                       cuts.get(attribute.name), z=spec.options.z)
+        # No p-value and no interval where the weights are not whole numbers: both assume counts.
+        if whole_numbers:
+            scores.append(replace(scored, binning=attribute.binning))
+        else:
+            scores.append(replace(scored, binning=attribute.binning, p_value=None,
+                                  information_gain_se=None, information_gain_low=None,
+                                  information_gain_high=None))
+    rank_ranges(scores)
     ordered = sort_scores(scores, spec.options.sort)
     if spec.options.limit:
         ordered = ordered[: spec.options.limit]
@@ -146,8 +152,9 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
 def _weight_notes(spec: RankSpec, whole_numbers: bool) -> list[str]:
     if spec.weight is None or whole_numbers:
         return []
-    return [f"the weights in {spec.weight!r} are not all whole numbers: p-values are not "
-            "reported (the G-test reads weights as frequency counts)"]
+    return [f"the weights in {spec.weight!r} are not all whole numbers: p-values, standard "
+            "errors, intervals and rank ranges are not reported (the G-test and the se read "
+            "weights as frequency counts)"]
 
 
 def _no_rows_error(spec: RankSpec, excluded: int) -> DataError:
@@ -204,5 +211,5 @@ def read_segments(records: Sequence[Record], spec: RankSpec,
     return SegmentedRanking(
         target=spec.target, table=spec.source_name, by=names, segments=segments,
         weight=spec.weight, dialect=dialect, sort=spec.options.sort,
-        notes=_weight_notes(spec, whole),
+        notes=_weight_notes(spec, whole), confidence=spec.options.confidence,
     )

@@ -20,6 +20,12 @@ ATTRIBUTE_KEYS: tuple[str, ...] = (
     "g_statistic",
     "dof",
     "p_value",
+    "information_gain_se",
+    "information_gain_corrected",
+    "information_gain_low",
+    "information_gain_high",
+    "rank_low",
+    "rank_high",
     "flags",
     "binning",
     "bins",
@@ -52,6 +58,16 @@ class AttributeScore:
     cuts: list[float] | None = None
     #: How a numeric attribute was binned: quantile, equal-width, best-split or mdl.
     binning: str | None = None
+    #: The standard error of the gain (bits); None with fractional weights or no rows.
+    information_gain_se: float | None = None
+    #: The gain less its first-order bias (r-1)(c-1)/(2 n ln 2); negative: below the noise.
+    information_gain_corrected: float = 0.0
+    #: The interval corrected ± z·se at the run's confidence, both ends clipped at 0.
+    information_gain_low: float | None = None
+    information_gain_high: float | None = None
+    #: The best and worst plausible rank among the ranking's attributes (by the intervals).
+    rank_low: int | None = None
+    rank_high: int | None = None
 
     @property
     def bins(self) -> int | None:
@@ -89,10 +105,12 @@ class Ranking:
     weight_total: float | None = None
     #: Weighted: rows with a target whose weight is NULL or 0, left out.
     rows_without_weight: int = 0
+    #: The level of every attribute's interval (``--confidence``).
+    confidence: float = 0.95
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON contract: target, table, rows, rows_excluded, target_entropy, classes,
-        attributes (each with the keys of :data:`ATTRIBUTE_KEYS`).
+        confidence, attributes (each with the keys of :data:`ATTRIBUTE_KEYS`).
 
         Weighted rankings add ``weight`` (after table), ``rows_without_weight`` and
         ``weight_total`` (after rows_excluded); unweighted ones have exactly the keys above."""
@@ -106,6 +124,7 @@ class Ranking:
             out["weight_total"] = self.weight_total
         out["target_entropy"] = self.target_entropy
         out["classes"] = self.classes
+        out["confidence"] = self.confidence
         out["attributes"] = [a.to_dict() for a in self.attributes]
         return out
 
@@ -170,20 +189,23 @@ class SegmentedRanking:
     sort: str = "information_gain"
     statements: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    #: The level of every attribute's interval (``--confidence``), in every segment.
+    confidence: float = 0.95
 
     def to_dict(self) -> dict[str, Any]:
-        """``{"target", "table", "by", ["weight",] "segments": [...]}``; each segment holds
-        ``segment`` (column -> value), ``status``, then the keys of :meth:`Ranking.to_dict`
-        other than target, table and weight."""
+        """``{"target", "table", "by", ["weight",] "confidence", "segments": [...]}``; each
+        segment holds ``segment`` (column -> value), ``status``, then the keys of
+        :meth:`Ranking.to_dict` other than target, table, weight and confidence."""
         out: dict[str, Any] = {"target": self.target, "table": self.table, "by": list(self.by)}
         if self.weight is not None:
             out["weight"] = self.weight
+        out["confidence"] = self.confidence
         entries = []
         for ranking in self.segments:
             entry: dict[str, Any] = {"segment": dict(ranking.segment or {}),
                                      "status": ranking.status}
             entry.update({k: v for k, v in ranking.to_dict().items()
-                          if k not in ("target", "table", "weight")})
+                          if k not in ("target", "table", "weight", "confidence")})
             entries.append(entry)
         out["segments"] = entries
         return out

@@ -20,7 +20,15 @@ from bitsift.spec.predicate import Predicate, parse_predicate
 from bitsift.spec.schema import TEMPORAL_FAMILIES, Column, Kind, refuse_ungroupable
 
 Missing = Literal["category", "drop"]
-SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty")
+SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty",
+                                 "information_gain_corrected")
+#: ``--confidence`` levels and their two-sided normal quantiles z = Φ⁻¹(1 - (1 - level) / 2),
+#: the values of scipy.stats.norm.ppf(0.95 / 0.975 / 0.995) (tests/test_uncertainty.py).
+CONFIDENCE_Z: dict[float, float] = {
+    0.90: 1.6448536269514722,
+    0.95: 1.959963984540054,
+    0.99: 2.5758293035489004,
+}
 MISSING_MODES: tuple[str, ...] = ("category", "drop")
 #: How numeric attributes are cut into bins (see DEVELOPERS.md, "Binning").
 BINNING_METHODS: tuple[str, ...] = ("quantile", "equal-width", "best-split", "mdl")
@@ -199,6 +207,13 @@ class RankOptions:
     by: tuple[str, ...] = ()
     #: A non-negative weight column (``--weight``): sums of weights instead of row counts.
     weight: str | None = None
+    #: The level of each gain's interval (``--confidence``), one of :data:`CONFIDENCE_Z`.
+    confidence: float = 0.95
+
+    @property
+    def z(self) -> float:
+        """The normal quantile of :attr:`confidence`: the interval is corrected ± z·se."""
+        return CONFIDENCE_Z[self.confidence]
 
     def __post_init__(self) -> None:
         try:
@@ -220,6 +235,10 @@ class RankOptions:
         if self.sort not in SORT_METRICS:
             problems.append(Problem.option(
                 "sort", f" must be one of {', '.join(SORT_METRICS)}, not {self.sort!r}"))
+        if self.confidence not in CONFIDENCE_Z:
+            levels = ", ".join(f"{c:.2f}" for c in CONFIDENCE_Z)
+            problems.append(Problem.option(
+                "confidence", f" must be one of {levels}, not {self.confidence!r}"))
         if not 2 <= self.bins <= 1000:
             problems.append(Problem.option("bins",
                                            f" must be between 2 and 1000, not {self.bins}"))

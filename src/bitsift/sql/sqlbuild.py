@@ -296,6 +296,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "strategy": caps.count_strategy,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
+        "z": literal(spec.options.z),
     }
 
 
@@ -467,6 +468,10 @@ def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | N
         "one row per attribute (attribute_index 0 describes the target); entropies in bits.",
         "p-value: chi-square survival function of g_statistic with dof degrees of freedom,",
         "e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).",
+        # No percent sign: drivers (psycopg) read one in the text as a placeholder.
+        f"information_gain_low/high: an interval at level {spec.options.confidence:.2f} of the "
+        "bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped "
+        "at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.",
     ]
     lines = "\n".join(f"-- {_comment_safe(h)}" for h in header)
     return f"{lines}\n{statement.sql};\n"
