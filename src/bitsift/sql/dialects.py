@@ -145,8 +145,20 @@ class Capabilities:
     timeout_max: float = threading.TIMEOUT_MAX
     #: SQLite builds without math functions lack LN and FLOOR: bitsift registers Python's.
     register_math_functions: bool = False
-    #: Does the engine have a chi-square survival function? (none listed has; p comes from Python)
-    has_chi2: bool = False
+    #: The chi-square survival function in the dialect's SQL, ``g`` and ``dof`` standing for the
+    #: G statistic and its degrees of freedom, for model files' ``p_value``. ``None``: the
+    #: engine has none (no engine listed here has one; bitsift computes p in Python).
+    chi2_survival: str | None = None
+    #: The current time in UTC without a zone, in the dialect's SQL, read once per statement:
+    #: a model file's ``run_at`` (docs/scheduled-runs.md, "Keeping the history...").
+    utc_now: str = "CAST(CURRENT_TIMESTAMP AT TIME ZONE 'UTC' AS TIMESTAMP)"
+    #: The statements that open and end one transaction in a script (``bitsift models
+    #: --insert``); ``None``: the engine has none (each statement stands alone); an empty
+    #: opening statement: transactions open by themselves.
+    script_transaction: tuple[str, str] | None = ("BEGIN", "COMMIT")
+    #: Put before CREATE TABLE where the engine has no IF NOT EXISTS; ``{table}`` is the
+    #: table's name as a string literal.
+    create_guard: str | None = None
     #: True when the entry was checked by executing SQL on a real engine in the test suite.
     executed_in_tests: bool = False
     #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
@@ -262,7 +274,8 @@ CAPABILITIES: dict[str, Capabilities] = {
         replace(_DEFAULT, name="trino", sqlglot_dialect="trino"),
         # PERCENTILE_CONT is window-only; collations are usually case-insensitive and
         # comparisons always ignore trailing spaces: group text as VARBINARY.
-        replace(_DEFAULT, name="tsql", sqlglot_dialect="tsql", exact_key_type="VARBINARY(8000)"),
+        replace(_DEFAULT, name="tsql", sqlglot_dialect="tsql", exact_key_type="VARBINARY(8000)",
+                create_guard="IF OBJECT_ID({table}, 'U') IS NULL"),
         replace(_DEFAULT, name="oracle", sqlglot_dialect="oracle", quantile="percentile_cont"),
         # sqlglot rewrites exact percentiles to percentile_approx for Spark: window method.
         replace(_DEFAULT, name="databricks", sqlglot_dialect="databricks"),
@@ -336,7 +349,41 @@ DATE_FUNCTIONS: dict[str, DateFunctions] = {
                                 month="toMonth(x)", dow="toDayOfWeek(x) % 7",
                                 hour="toHour(x)"),
 }
-CAPABILITIES = {name: replace(c, dates=DATE_FUNCTIONS.get(name, c.dates))
+#: Each dialect's UTC clock where the default (``CURRENT_TIMESTAMP AT TIME ZONE 'UTC'``) does
+#: not serve. Executed on DuckDB, SQLite, PostgreSQL and MariaDB (tests/test_models_history.py);
+#: the others from the vendors' documentation. Every one is read once per statement.
+UTC_CLOCKS: dict[str, str] = {
+    "sqlite": "STRFTIME('%Y-%m-%d %H:%M:%f', 'now') || '000'",  # SQLAlchemy's text form
+    "mysql": "UTC_TIMESTAMP(6)",
+    "mariadb": "UTC_TIMESTAMP(6)",
+    "redshift": "SYSDATE",
+    "snowflake": "CAST(CONVERT_TIMEZONE('UTC', CURRENT_TIMESTAMP()) AS TIMESTAMP_NTZ)",
+    "bigquery": "CURRENT_DATETIME('UTC')",
+    "tsql": "SYSUTCDATETIME()",
+    "oracle": "SYS_EXTRACT_UTC(SYSTIMESTAMP)",
+    "spark": "TO_UTC_TIMESTAMP(CURRENT_TIMESTAMP(), CURRENT_TIMEZONE())",
+    "databricks": "TO_UTC_TIMESTAMP(CURRENT_TIMESTAMP(), CURRENT_TIMEZONE())",
+    "clickhouse": "now64(6, 'UTC')",
+}
+#: Transactions of ``bitsift models --insert`` scripts where ``BEGIN``/``COMMIT`` do not serve.
+#: Oracle opens one by itself; Spark, Databricks and ClickHouse have none (one INSERT is
+#: atomic on a Delta table; ClickHouse inserts a block at a time).
+SCRIPT_TRANSACTIONS: dict[str, tuple[str, str] | None] = {
+    "duckdb": ("BEGIN TRANSACTION", "COMMIT"),
+    "mysql": ("START TRANSACTION", "COMMIT"),
+    "mariadb": ("START TRANSACTION", "COMMIT"),
+    "bigquery": ("BEGIN TRANSACTION", "COMMIT TRANSACTION"),
+    "trino": ("START TRANSACTION", "COMMIT"),
+    "tsql": ("BEGIN TRANSACTION", "COMMIT TRANSACTION"),
+    "oracle": ("", "COMMIT"),
+    "spark": None,
+    "databricks": None,
+    "clickhouse": None,
+}
+CAPABILITIES = {name: replace(c, dates=DATE_FUNCTIONS.get(name, c.dates),
+                              utc_now=UTC_CLOCKS.get(name, c.utc_now),
+                              script_transaction=SCRIPT_TRANSACTIONS.get(name,
+                                                                         c.script_transaction))
                 for name, c in CAPABILITIES.items()}
 
 #: SQLAlchemy dialect names (``engine.dialect.name``) to bitsift dialect names.
