@@ -5,9 +5,9 @@ Layout: ``OUT/<job>__<ranking>.sql``, names lower-cased with every run of other 
 letters, digits and ``_`` turned into ``_`` (so the file name is also a valid model name). Each
 file holds a header comment and one SELECT (:func:`bitsift.sql.history_select.history_select`)
 without a trailing semicolon (most schedulers wrap the SELECT in their own CREATE TABLE ... AS).
-With ``insert``, ``OUT/<job>__<ranking>.insert.sql`` holds the ready-to-schedule script
-(:mod:`bitsift.jobs.history_script`). Files hold no generation time: the same job file and
-bitsift version give the same bytes.
+With ``insert``, ``OUT/<job>.insert.sql`` holds the ready-to-schedule script of the whole job
+(:mod:`bitsift.jobs.history_script`): one run, every ranking. Files hold no generation time:
+the same job file and bitsift version give the same bytes.
 """
 
 from __future__ import annotations
@@ -28,14 +28,15 @@ from bitsift.run.cuts import fetch_mdl_cuts
 from bitsift.run.session import Session
 from bitsift.spec.rankspec import RankSpec
 from bitsift.sql.dialects import Capabilities, capabilities
-from bitsift.sql.history_select import history_select
+from bitsift.sql.history_select import history_select, job_history_select
 from bitsift.sql.sqlbuild import Statement, binning_summary
 from bitsift.version import __version__
 
 
 @dataclass(frozen=True)
 class ModelFile:
-    """A model file written for one ranking (``script``: its ``--insert`` form, if asked)."""
+    """A model file written for one ranking (``script``: the job's ``--insert`` script, if
+    asked; the same for every ranking of the job)."""
 
     ranking: str
     path: Path
@@ -75,9 +76,10 @@ def _header(job: Job, ranking: JobRanking, spec: RankSpec, caps: Capabilities,
     ]
     if spec.where:
         header.append(f"where: {spec.where.text}")
-    not_here = [k for k in ("limit", "timeout") if k in ranking.settings]
-    if not_here:
-        header.append(f"not applied in a model: {', '.join(not_here)} (every attribute is listed)")
+    if "limit" in ranking.settings:
+        header.append(f"limit: the top {spec.options.limit} attributes of each segment")
+    if "timeout" in ranking.settings:
+        header.append("not applied in a model: timeout (set the scheduler's own)")
     header += [
         f"rows: history rows (schema version {SCHEMA_VERSION}, the columns of the history table "
         "in docs/scheduled-runs.md), one per segment x attribute; each execution is one run:",
@@ -93,7 +95,7 @@ def _header(job: Job, ranking: JobRanking, spec: RankSpec, caps: Capabilities,
 def model_statement(job: Job, ranking: JobRanking, dialect: str | None,
                     session: Session) -> tuple[Statement, list[str], Capabilities]:
     """One ranking's history SELECT, its header lines and its dialect, on its open source."""
-    options = {k: v for k, v in ranking.options.items() if k not in ("limit", "timeout")}
+    options = {k: v for k, v in ranking.options.items() if k != "timeout"}
     caps = capabilities(dialect) if dialect else session.engine.caps
     spec = session.resolve(api.make_options(ranking.target, **options))
     # MDL's cut points need a Python step: computed here and inlined as literals.
@@ -115,23 +117,34 @@ def model_text(job: Job, ranking: JobRanking, dialect: str | None = None,
                session: Session | None = None) -> str:
     """The content of one model file: header comment, then one SELECT (no semicolon).
     ``session``: the ranking's source already open (default: the job's source is opened)."""
-    return model_texts(job, ranking, dialect, session)[0]
-
-
-def model_texts(job: Job, ranking: JobRanking, dialect: str | None = None,
-                session: Session | None = None) -> tuple[str, str]:
-    """The model file's content and its ``--insert`` script's."""
     if session is None:
         with Session.open(job.source, ranking.table) as opened:
-            return model_texts(job, ranking, dialect, opened)
-    statement, header, caps = model_statement(job, ranking, dialect, session)
-    model = f"{_comments(header)}\n{statement.sql}\n"
-    script_header = [header[0], header[1].replace(" --out DIR", " --insert --out DIR"),
-                     f"appends this ranking's history rows to {job.destination.table}, "
-                     "creating it if missing (the DDL of bitsift run)", *header[2:]]
-    script = f"{_comments(script_header)}\n" + history_script.script(
-        job.destination.table, statement, caps)
-    return model, script
+            return model_text(job, ranking, dialect, opened)
+    statement, header, _ = model_statement(job, ranking, dialect, session)
+    return f"{_comments(header)}\n{statement.sql}\n"
+
+
+def job_script(job: Job, statements: list[Statement], caps: Capabilities,
+               dialect: str | None) -> str:
+    """The ``--insert`` script of a job: every ranking's rows appended in one statement (one
+    reading of the clock, so one run, as ``bitsift run`` writes it), after creating the history
+    table if it is missing."""
+    header = [
+        f"bitsift {__version__} history script: job {job.name}, rankings "
+        + ", ".join(r.name for r in job.rankings),
+        f"from job file {job.path.name}; regenerate with: bitsift models {job.path.name}"
+        + (f" --dialect {dialect}" if dialect else "") + " --insert --out DIR",
+        f"creates {job.destination.table} if missing (the DDL of bitsift run, schema version "
+        f"{SCHEMA_VERSION}) and appends one run: every ranking's history rows, run_at the "
+        "statement's start time in UTC, run_id its text in the engine's form",
+        "timeout is not applied (set the scheduler's own); p_value: "
+        + ("the engine's chi-square survival function" if caps.chi2_survival else
+           f"NULL, {caps.name} has no chi-square distribution function (drift reads it as "
+           "unknown)"),
+    ]
+    combined = job_history_select(statements, caps)
+    return f"{_comments(header)}\n" + history_script.script(job.destination.table, combined,
+                                                             caps)
 
 
 def _write_atomically(path: Path, text: str) -> None:
@@ -148,7 +161,7 @@ def _write_atomically(path: Path, text: str) -> None:
 def write_models(job: Job, out_dir: str | Path, dialect: str | None = None, *,
                  insert: bool = False) -> list[ModelFile]:
     """Write one ``.sql`` file per ranking of ``job`` into ``out_dir`` (created if missing),
-    and with ``insert`` its script form beside it (``.insert.sql``).
+    and with ``insert`` the job's script (``<job>.insert.sql``, see :func:`job_script`).
 
     Every ranking is checked against the source first; nothing is written when one is invalid.
     Existing files of the same names are replaced; other files are left alone.
@@ -160,21 +173,24 @@ def write_models(job: Job, out_dir: str | Path, dialect: str | None = None, *,
                         + ": rename the rankings")
     # Each ranking's source is opened once: by the checks, then kept for its statement.
     with checked_sessions(job, destination=False) as sessions:
-        texts = [(r, name, model_texts(job, r, dialect, sessions[number]))
-                 for number, (r, name) in enumerate(zip(job.rankings, names, strict=True))]
+        built = [model_statement(job, r, dialect, sessions[number])
+                 for number, r in enumerate(job.rankings)]
+    texts = [(r, name, f"{_comments(header)}\n{statement.sql}\n")
+             for r, name, (statement, header, _) in zip(job.rankings, names, built, strict=True)]
+    script = job_script(job, [b[0] for b in built], built[0][2], dialect) if insert else None
     out = Path(out_dir)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as error:
         raise BitsiftError(f"cannot create {out}: {error.strerror}") from None
     written = []
-    for ranking, name, (text, script) in texts:
+    script_path = out / f"{slug(job.name)}.insert.sql" if script is not None else None
+    for ranking, name, text in texts:
         path = out / f"{name}.sql"
         _write_atomically(path, text)
-        script_path = out / f"{name}.insert.sql" if insert else None
-        if script_path is not None:
-            _write_atomically(script_path, script)
         written.append(ModelFile(ranking=ranking.name, path=path, script=script_path))
+    if script_path is not None and script is not None:
+        _write_atomically(script_path, script)
     return written
 
 

@@ -37,6 +37,7 @@ FAMILY_TYPES: dict[str, str] = {"text": "VARCHAR", "integer": "BIGINT", "float":
 FLAG_ORDER: tuple[str, ...] = ("id_like", "constant", "near_perfect", "high_cardinality")
 
 _ROWS, _TARGET, _CLOCK = "history_rows", "history_target", "history_clock"
+_OUT = "history_out"
 _TARGET_CLASSES = "history_target_classes"
 
 
@@ -187,6 +188,13 @@ def history_select(spec: RankSpec, caps: Capabilities, columns: Sequence[History
              .from_(exp.to_table(_TARGET).as_("h"))
              .join(exp.to_table(_CLOCK).as_("c"), join_type="cross")
              .where(exp.GT(this=_col("attribute_index"), expression=value_literal(0))))
+    if spec.options.limit:
+        # The top ``limit`` of each ranking, as a run keeps them.
+        ctes.append(exp.CTE(this=outer, alias=exp.TableAlias(this=exp.to_identifier(_OUT))))
+        outer = (exp.select(*(_col(c.name, "o") for c in columns))
+                 .from_(exp.to_table(_OUT).as_("o"))
+                 .where(exp.LTE(this=_col("position", "o"),
+                                expression=value_literal(spec.options.limit))))
     outer.set("with_", exp.With(expressions=ctes))
     sql = outer.sql(dialect=caps.sqlglot_dialect, pretty=pretty,
                     unsupported_level=sqlglot.ErrorLevel.RAISE)
@@ -217,3 +225,58 @@ def _computed(spec: RankSpec, caps: Capabilities) -> dict[str, exp.Expr]:
         "flags": flags_expression(spec.options.thresholds),
         "p_value": p_value,
     }
+
+
+def _renamed_steps(tree: exp.Select, number: int) -> tuple[exp.Select, list[exp.CTE]]:
+    """``tree`` without its WITH, and its steps (the clock left out) renamed ``r<number>_*``,
+    every reference to them with them."""
+    tree = tree.copy()
+    steps = tree.args["with_"].expressions
+    tree.set("with_", None)
+    names = {cte.alias for cte in steps} - {_CLOCK}
+    renamed = {name: f"r{number}_{name}" for name in names}
+
+    def is_step(node: exp.Expr) -> bool:
+        """A step's name: as a table read (not a schema's table) or as a CTE's alias."""
+        if isinstance(node, exp.Table):
+            return not node.args.get("db") and node.name in renamed
+        return (isinstance(node, exp.TableAlias) and isinstance(node.parent, exp.CTE)
+                and node.name in renamed)
+
+    def rename(node: exp.Expr) -> exp.Expr:
+        if is_step(node):
+            node.set("this", exp.to_identifier(renamed[node.name]))
+        elif isinstance(node, exp.Column) and node.table in renamed:
+            node.set("table", exp.to_identifier(renamed[node.table]))
+        return node
+
+    ctes = [cte.transform(rename) for cte in steps if cte.alias != _CLOCK]
+    renamed_tree = tree.transform(rename)
+    assert isinstance(renamed_tree, exp.Select)
+    return renamed_tree, [c for c in ctes if isinstance(c, exp.CTE)]
+
+
+def job_history_select(statements: Sequence[Statement], caps: Capabilities, *,
+                       pretty: bool = True) -> Statement:
+    """Several rankings' history SELECTs (:func:`history_select`) as one statement whose rows
+    share one reading of the clock: one run, as ``bitsift run`` writes a job's rankings. Each
+    ranking's steps are renamed ``r<n>_<step>``; the clock is read once."""
+    selects: list[exp.Select] = []
+    ctes: list[exp.CTE] = []
+    clock: exp.CTE | None = None
+    for number, statement in enumerate(statements, start=1):
+        assert isinstance(statement.tree, exp.Select)
+        for cte in statement.tree.args["with_"].expressions:
+            if cte.alias == _CLOCK and clock is None:
+                clock = cte.copy()
+        select, steps = _renamed_steps(statement.tree, number)
+        selects.append(select)
+        ctes += steps
+    assert clock is not None
+    combined: exp.Expression = selects[0]
+    for select in selects[1:]:
+        combined = exp.union(combined, select, distinct=False)
+    combined.set("with_", exp.With(expressions=[clock, *ctes]))
+    sql = combined.sql(dialect=caps.sqlglot_dialect, pretty=pretty,
+                       unsupported_level=sqlglot.ErrorLevel.RAISE)
+    return Statement(sql=sql, tree=combined, dialect=caps.name)
