@@ -18,6 +18,7 @@ import os
 import shutil
 import sqlite3
 import subprocess
+import sys
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -219,7 +220,9 @@ def check_history_flow(place: Place, tmp_path: Path) -> None:
         for name in EXACT:
             assert got[name] == expected[name], (key, name)
         for name in FLOATS:
-            assert float(got[name]) == pytest.approx(float(expected[name]), abs=1e-9), (key, name)
+            # G relative: a run keeps 13 significant digits of it.
+            assert float(got[name]) == pytest.approx(float(expected[name]), rel=1e-12,
+                                                     abs=1e-9), (key, name)
         assert expected["p_value"] is not None and got["p_value"] is None
         assert got["run_id"] == runs[0]
         # The statement's start time in UTC, whatever the client's time zone.
@@ -452,6 +455,13 @@ def test_ranking_columns_flow_through_by_name(tmp_path: Path) -> None:
             history_select(spec, caps, [_Column("later_metric", "float")], constants)
 
 
+def test_positions_round_as_a_run_rounds() -> None:
+    from bitsift.run.metrics import RESOLUTION_DIGITS
+    from bitsift.sql.history_select import SNAP_PLACES
+
+    assert SNAP_PLACES == RESOLUTION_DIGITS
+
+
 def test_drift_reads_a_null_p_value_as_unknown() -> None:
     row = {"ranking": "all", "segment": "", "attribute": "a", "position": 1,
            "information_gain": 0.3, "flags": "", "options": "{}", "p_value": 0.01}
@@ -484,3 +494,47 @@ def test_segment_values_are_written_as_a_run_writes_them(tmp_path: Path) -> None
     assert any('\\"hi\\"' in k[1] for k in by_model) and any("grün ✓" in k[1] for k in by_model)
     assert CliRunner().invoke(cli, ["drift", str(job.path)]).exit_code == 0
     assert {r["schema_version"] for r in by_model.values()} == {SCHEMA_VERSION}
+
+
+@pytest.mark.slow
+def test_weights_binnings_and_typed_segments_match_a_run(tmp_path: Path) -> None:
+    """The demo's trays (invented data): a weighted ranking with mdl cut points (computed by
+    bitsift, inlined), best-split bins and a date part, boolean and date segments."""
+    root = Path(__file__).resolve().parents[1]
+    subprocess.run([sys.executable, str(root / "examples" / "make_demo.py"), "--rows", "3000",
+                    "--out", str(tmp_path)], check=True, capture_output=True, timeout=300)
+    source = tmp_path / "greenhouse.duckdb"
+    job = load_job(write_job(tmp_path, f"""job = "variants"
+source = "{source}"
+[results]
+destination = "{source}"
+table = "history"
+[defaults]
+table = "trays"
+target = "outcome"
+exclude = ["tray_id"]
+[[ranking]]
+name = "weighted"
+weight = "germination_days"
+binning = "mdl"
+[[ranking]]
+name = "dated"
+by = ["is_organic", "sown_on"]
+date_part = "sown_on=month"
+attributes = ["moisture_pct", "substrate", "light_hours"]
+binning = "best-split"
+"""))
+    assert CliRunner().invoke(cli, ["run", str(job.path), "--run-id", "r1"]).exit_code == 0
+    files = write_models(job, tmp_path / "models", insert=True)
+    assert files[0].script is not None
+    with duckdb.connect(str(source)) as con:
+        con.execute(files[0].script.read_text(encoding="utf-8"))
+    by_run, by_model = _rows(job, "r1"), _rows(job, _runs(job)[0])
+    assert set(by_model) == set(by_run) and len({k[1] for k in by_run}) > 100
+    for key, expected in by_run.items():
+        for name in EXACT:
+            assert by_model[key][name] == expected[name], (key, name)
+        for name in FLOATS:
+            assert by_model[key][name] == pytest.approx(expected[name], rel=1e-12,
+                                                        abs=1e-9), (key, name)
+    assert CliRunner().invoke(cli, ["drift", str(job.path)]).exit_code == 0

@@ -36,6 +36,10 @@ FAMILY_TYPES: dict[str, str] = {"text": "VARCHAR", "integer": "BIGINT", "float":
 #: The trust flags in the order bitsift lists them (:func:`bitsift.run.metrics.flags_for`).
 FLAG_ORDER: tuple[str, ...] = ("id_like", "constant", "near_perfect", "high_cardinality")
 
+#: Decimal places the sort metric is rounded to before ordering: the run's rounding,
+#: :data:`bitsift.run.metrics.RESOLUTION_DIGITS` (a later stage: tests check they agree).
+SNAP_PLACES = 12
+
 _ROWS, _TARGET, _CLOCK = "history_rows", "history_target", "history_clock"
 _OUT = "history_out"
 _TARGET_CLASSES = "history_target_classes"
@@ -201,13 +205,21 @@ def history_select(spec: RankSpec, caps: Capabilities, columns: Sequence[History
     return Statement(sql=sql, tree=outer, dialect=caps.name)
 
 
+def _snapped(metric: exp.Expr) -> exp.Expr:
+    """``metric`` rounded as :func:`bitsift.run.metrics.snap` rounds it before sorting (12
+    decimal places), so that residue (an IG of 3e-17) does not break a tie that a run orders by
+    name. Rounded as DECIMAL: PostgreSQL has no ROUND of a DOUBLE to places."""
+    decimal = exp.Cast(this=metric, to=exp.DataType.build("DECIMAL(38, 18)"))
+    return exp.Round(this=decimal, decimals=value_literal(SNAP_PLACES))
+
+
 def _computed(spec: RankSpec, caps: Capabilities) -> dict[str, exp.Expr]:
     run_at = _col("run_at", "c")
     position = exp.Window(
         this=exp.func("ROW_NUMBER"),
         partition_by=_segments(spec) or None,
         order=exp.Order(expressions=[
-            exp.Ordered(this=_col(spec.options.sort), desc=True),
+            exp.Ordered(this=_snapped(_col(spec.options.sort)), desc=True),
             exp.Ordered(this=_name_order(spec)),
         ]),
     )
