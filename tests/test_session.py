@@ -239,8 +239,8 @@ def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
 
 def test_models_open_each_rankings_source_once(small_db: Path, tmp_path: Path,
                                                monkeypatch: pytest.MonkeyPatch) -> None:
-    """`bitsift models` checks a ranking, then writes its statement, on one opened source (its
-    request without limit and timeout is a second, different one to resolve)."""
+    """`bitsift models` checks a ranking, then writes its statement, on one opened source and
+    one resolved request."""
     from click.testing import CliRunner
 
     from bitsift.cli import cli
@@ -249,5 +249,5 @@ def test_models_open_each_rankings_source_once(small_db: Path, tmp_path: Path,
     calls = Calls(monkeypatch)
     result = CliRunner().invoke(cli, ["models", str(job), "--out", str(tmp_path / "models")])
     assert result.exit_code == 0, result.output
-    assert calls.opened == 1
+    assert (calls.opened, calls.resolved) == (1, 1)
     assert "SELECT" in (tmp_path / "models" / "nightly__all.sql").read_text(encoding="utf-8")

@@ -95,9 +95,9 @@ def _header(job: Job, ranking: JobRanking, spec: RankSpec, caps: Capabilities,
 def model_statement(job: Job, ranking: JobRanking, dialect: str | None,
                     session: Session) -> tuple[Statement, list[str], Capabilities]:
     """One ranking's history SELECT, its header lines and its dialect, on its open source."""
-    options = {k: v for k, v in ranking.options.items() if k != "timeout"}
     caps = capabilities(dialect) if dialect else session.engine.caps
-    spec = session.resolve(api.make_options(ranking.target, **options))
+    # The request the checks resolved (timeout included, unused here): resolved once.
+    spec = session.resolve(api.make_options(ranking.target, **ranking.options))
     # MDL's cut points need a Python step: computed here and inlined as literals.
     cuts = fetch_mdl_cuts(session.engine, spec)
     constants: dict[str, str | int] = {
