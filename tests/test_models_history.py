@@ -538,3 +538,44 @@ binning = "best-split"
             assert by_model[key][name] == pytest.approx(expected[name], rel=1e-12,
                                                         abs=1e-9), (key, name)
     assert CliRunner().invoke(cli, ["drift", str(job.path)]).exit_code == 0
+
+
+@pytest.mark.slow
+@pytest.mark.clickhouse
+def test_clickhouse_script_runs_in_embedded_clickhouse(tmp_path: Path) -> None:
+    """ClickHouse has an engine here (chdb): its script, split at its statements, runs there
+    twice (two runs), its table created with MergeTree, its values those of `bitsift rank`."""
+    chdb_session = pytest.importorskip("chdb.session")
+    path = duckdb_source(tmp_path / "src.duckdb")
+    job = load_job(write_job(tmp_path, job_text(str(path), str(path), "bitsift_history", "t")))
+    files = write_models(job, tmp_path / "models", "clickhouse", insert=True)
+    assert files[0].script is not None
+    parquet = tmp_path / "t.parquet"
+    with duckdb.connect(str(path), read_only=True) as con:
+        con.execute(f"COPY t TO '{parquet}' (FORMAT parquet)")
+    session = chdb_session.Session()
+    try:
+        session.query("CREATE DATABASE IF NOT EXISTS main")
+        session.query(f"CREATE TABLE main.t ENGINE = Memory AS SELECT * FROM "
+                      f"file('{parquet}', 'Parquet')")
+        text = files[0].script.read_text(encoding="utf-8")
+        body = "\n".join(line for line in text.splitlines() if not line.startswith("--"))
+        statements = [s for s in body.split(";\n") if s.strip()]
+        assert [s.split()[0] for s in statements] == ["CREATE", "INSERT"]  # no transactions
+        for statement in [*statements, statements[1]]:
+            session.query(statement)
+        runs = str(session.query("SELECT count(DISTINCT run_id) FROM bitsift_history", "CSV"))
+        assert runs.strip() == "2"
+        got = str(session.query(
+            "SELECT attribute, position, information_gain, flags FROM bitsift_history "
+            "WHERE ranking = 'all' ORDER BY run_id, position", "CSV")).split()
+    finally:
+        session.close()
+    ranked = bitsift.rank(str(path), "y", "t", exclude="label")
+    expected = [(s.attribute, position, s.information_gain, ",".join(s.flags))
+                for position, s in enumerate(ranked.attributes, start=1)]
+    rows = [line.split(",") for line in got]
+    assert len(rows) == 2 * len(expected)
+    for row, (attribute, position, gain, flags) in zip(rows, expected * 2, strict=True):
+        assert row[0].strip('"') == attribute and int(row[1]) == position
+        assert float(row[2]) == pytest.approx(gain, abs=1e-9) and row[3].strip('"') == flags

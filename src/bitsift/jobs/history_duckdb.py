@@ -63,13 +63,14 @@ def _col(name: str) -> exp.Column:
     return exp.column(_ident(name))
 
 
-def create_table_sql(table: exp.Table, dialect: str) -> str:
+def create_table_sql(table: exp.Table, dialect: str, table_options: str | None = None) -> str:
     """CREATE TABLE IF NOT EXISTS of the history table as a DuckDB results file has it, in
-    ``dialect`` (sqlglot spells the types)."""
+    ``dialect`` (sqlglot spells the types), ``table_options`` after it."""
     definitions = [
         exp.ColumnDef(
             this=_ident(c.name),
-            kind=exp.DataType.build(_DUCKDB_TYPES[c.family]),
+            # nullable=False: ClickHouse would wrap the type in Nullable() beside NOT NULL.
+            kind=exp.DataType.build(_DUCKDB_TYPES[c.family], nullable=c.nullable),
             constraints=[] if c.nullable else [
                 exp.ColumnConstraint(kind=exp.NotNullColumnConstraint())
             ],
@@ -78,7 +79,8 @@ def create_table_sql(table: exp.Table, dialect: str) -> str:
     ]
     create = exp.Create(this=exp.Schema(this=table.copy(), expressions=definitions),
                         kind="TABLE", exists=True)
-    return create.sql(dialect, unsupported_level=sqlglot.ErrorLevel.RAISE)
+    text = create.sql(dialect, unsupported_level=sqlglot.ErrorLevel.RAISE)
+    return f"{text} {table_options}" if table_options else text
 
 
 class DuckDBStore(HistoryStore):

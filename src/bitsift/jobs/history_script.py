@@ -38,7 +38,7 @@ def create_sql(table_name: str, caps: Capabilities) -> str:
     table = parse_table_name(table_name, caps.sqlglot_dialect)
     backend = SQLALCHEMY_DDL.get(caps.name)
     if backend is None:
-        text = create_table_sql(table, caps.sqlglot_dialect)
+        text = create_table_sql(table, caps.sqlglot_dialect, caps.table_options)
     else:
         dialect = sa.engine.make_url(f"{backend}://").get_dialect()()
         ddl = create_table(history_table(table.name, table.db or None), dialect)

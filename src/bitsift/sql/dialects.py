@@ -159,6 +159,9 @@ class Capabilities:
     #: Put before CREATE TABLE where the engine has no IF NOT EXISTS; ``{table}`` is the
     #: table's name as a string literal.
     create_guard: str | None = None
+    #: Written after the history table's column list where the engine needs more (ClickHouse:
+    #: its table engine and sort key).
+    table_options: str | None = None
     #: True when the entry was checked by executing SQL on a real engine in the test suite.
     executed_in_tests: bool = False
     #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
@@ -299,6 +302,8 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="clickhouse",
             sqlglot_dialect="clickhouse",
             statement_settings=("readonly = 2",),
+            # A history table sorted by its run key (docs/scheduled-runs.md).
+            table_options="ENGINE = MergeTree ORDER BY (job, run_id)",
             timeout_setting="max_execution_time = {seconds}",
             # Held as int64 microseconds: chdb 4.4 refuses 9223372036855 s and more.
             timeout_max=9_223_372_036_854.0,
