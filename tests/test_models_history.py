@@ -579,3 +579,56 @@ def test_clickhouse_script_runs_in_embedded_clickhouse(tmp_path: Path) -> None:
     for row, (attribute, position, gain, flags) in zip(rows, expected * 2, strict=True):
         assert row[0].strip('"') == attribute and int(row[1]) == position
         assert float(row[2]) == pytest.approx(gain, abs=1e-9) and row[3].strip('"') == flags
+
+
+QUOTED_COLUMN = "it's \"x\""
+
+
+@pytest.mark.slow
+def test_quotes_and_unicode_in_names_and_values(tmp_path: Path) -> None:
+    """Job, ranking, column and table names with quotes, spaces and non-ASCII characters, a
+    --where with a quoted literal: literals and identifiers survive into the history."""
+    path = tmp_path / "src.duckdb"
+    with duckdb.connect(str(path)) as con:
+        con.execute('CREATE SCHEMA "ops ✓"')
+        quoted = exp.to_identifier(QUOTED_COLUMN, quoted=True).sql("duckdb")
+        con.execute(f'CREATE TABLE "Tray\'s data" ("größe" INTEGER, {quoted} VARCHAR, '
+                    '"select" DOUBLE, "ÿ" VARCHAR)')
+        con.execute("""INSERT INTO "Tray's data" SELECT i % 5, CASE WHEN i % 3 = 0 THEN 'O''Brien'
+                       ELSE 'back\\slash' END, i / 7.0, CASE WHEN i % 5 < 2 THEN 'ja' ELSE 'nein'
+                       END FROM range(400) r(i)""")
+    # TOML basic strings are JSON strings for these characters.
+    settings = {
+        "job": "O'Brien's trays ✓", "source": str(path), "destination": str(path),
+        "table": '"ops ✓"."hist\'s"', "name": 'it\'s "all"',
+        "where": f"{quoted} <> 'O''Brien'", "by": QUOTED_COLUMN, "source_table": '"Tray\'s data"',
+    }
+    toml = {k: json.dumps(v, ensure_ascii=False) for k, v in settings.items()}
+    job = load_job(write_job(tmp_path, f"""job = {toml["job"]}
+source = {toml["source"]}
+[results]
+destination = {toml["destination"]}
+table = {toml["table"]}
+[defaults]
+table = {toml["source_table"]}
+target = "ÿ"
+[[ranking]]
+name = {toml["name"]}
+where = {toml["where"]}
+[[ranking]]
+name = "by quote"
+by = [{toml["by"]}]
+"""))
+    ran = CliRunner().invoke(cli, ["run", str(job.path), "--run-id", "r1"])
+    assert ran.exit_code == 0, ran.output
+    files = write_models(job, tmp_path / "models", insert=True)
+    assert files[0].script is not None
+    with duckdb.connect(str(path)) as con:
+        con.execute(files[0].script.read_text(encoding="utf-8"))
+    by_run, by_model = _rows(job, "r1"), _rows(job, _runs(job)[0])
+    assert set(by_model) == set(by_run) and len(by_run) >= 4
+    assert {k[2] for k in by_run} >= {"größe", "select"}
+    for key, expected in by_run.items():
+        for name in EXACT:
+            assert by_model[key][name] == expected[name], (key, name)
+    assert CliRunner().invoke(cli, ["drift", str(job.path)]).exit_code == 0
