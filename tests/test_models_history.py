@@ -632,3 +632,30 @@ by = [{toml["by"]}]
         for name in EXACT:
             assert by_model[key][name] == expected[name], (key, name)
     assert CliRunner().invoke(cli, ["drift", str(job.path)]).exit_code == 0
+
+
+@pytest.mark.slow
+def test_empty_and_one_row_tables_append_what_they_have(tmp_path: Path) -> None:
+    """An empty table gives no history rows (a run refuses it); one row gives its attributes
+    with gain 0 in a segmented ranking, as a run writes a single-class segment."""
+    path = duckdb_source(tmp_path / "src.duckdb", [])
+    with duckdb.connect(str(path)) as con:
+        con.execute("CREATE TABLE one AS SELECT 1 AS a, 'x' AS b, 0.5 AS amount, 'L0' AS label, "
+                    "'yes' AS y")
+    text = job_text(str(path), str(path), "bitsift_history", "t")
+    job = load_job(write_job(tmp_path, text))
+    files = write_models(job, tmp_path / "models", insert=True)
+    assert files[0].script is not None
+    with duckdb.connect(str(path)) as con:
+        con.execute(files[0].script.read_text(encoding="utf-8"))
+        assert con.execute("SELECT count(*) FROM bitsift_history").fetchone() == (0,)
+    one = load_job(write_job(tmp_path, text.replace('table = "t"', 'table = "one"')
+                             .replace('job = "nightly"', 'job = "one"'), "one.toml"))
+    files = write_models(one, tmp_path / "one", insert=True)
+    assert files[0].script is not None
+    with duckdb.connect(str(path)) as con:
+        con.execute(files[0].script.read_text(encoding="utf-8"))
+        rows = con.execute("SELECT ranking, segment, attribute, information_gain, flags "
+                           "FROM bitsift_history ORDER BY ranking, position").fetchall()
+    assert ("by label", '{"label":"L0"}', "a", 0.0, "constant") in rows
+    assert {r[3] for r in rows} == {0.0}
