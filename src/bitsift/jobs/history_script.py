@@ -42,6 +42,9 @@ def create_sql(table_name: str, caps: Capabilities) -> str:
     else:
         dialect = sa.engine.make_url(f"{backend}://").get_dialect()()
         ddl = create_table(history_table(table.name, table.db or None), dialect)
+        # A script runs every night: IF NOT EXISTS also where a run checks first instead
+        # (Oracle 23ai has it), unless the dialect guards the CREATE otherwise.
+        ddl.if_not_exists = caps.create_guard is None
         text = str(ddl.compile(dialect=dialect)).strip()
     if caps.create_guard:
         name = exp.Literal.string(".".join(p for p in (table.db, table.name) if p))
