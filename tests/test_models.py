@@ -1,5 +1,5 @@
-"""Model files: one plain SELECT per ranking that, run on DuckDB or PostgreSQL, gives the same
-metrics as ``bitsift rank``."""
+"""Model files: one plain SELECT per ranking whose rows, run on DuckDB or PostgreSQL, are the
+history rows of ``bitsift rank``'s ranking (tests/test_models_history.py: as history)."""
 
 from __future__ import annotations
 
@@ -56,19 +56,22 @@ def check_models(job: Job, out: Path, dialect: str, run_sql: object) -> None:
         assert len(trees) == 1 and isinstance(trees[0], exp.Select)
         assert not any(isinstance(n, exp.DDL | exp.DML) for n in trees[0].walk())
         rows = {r["attribute"]: r for r in run_sql(text)}  # type: ignore[operator]
-        ranked = bitsift.rank(job.source, ranking.target, ranking.table,
-                              **{**ranking.options, "limit": None})
-        assert len(rows) == len(ranked.attributes) + 1  # plus the target's row
-        for scored in ranked.attributes:
+        ranked = bitsift.rank(job.source, ranking.target, ranking.table, **ranking.options)
+        # One row per attribute (no row for the target), limit applied as a run applies it.
+        assert list(rows) and set(rows) == {s.attribute for s in ranked.attributes}
+        for position, scored in enumerate(ranked.attributes, start=1):
             got = rows[scored.attribute]
+            assert int(got["position"]) == position
             assert int(got["distinct_values"]) == scored.distinct
             assert int(got["dof"]) == scored.dof
+            assert (got["job"], got["ranking"]) == ("Models Test", ranking.name)
+            assert got["flags"] == ",".join(scored.flags)
             for metric in METRICS:
                 assert float(got[metric]) == pytest.approx(getattr(scored, metric),
                                                            rel=1e-9, abs=1e-12), metric
     second = files[1].path.read_text(encoding="utf-8")
     assert "-- where: amount > 0.5" in second
-    assert "-- not applied in a model: limit (every attribute is listed)" in second
+    assert "-- limit: the top 2 attributes of each segment" in second
     assert "a (numeric)" in second
 
 
@@ -108,7 +111,7 @@ def test_models_cli_and_name_clashes(tmp_path: Path) -> None:
     assert result.exit_code == 0, result.output
     assert "models_test__all.sql  (ranking all)" in result.output
     text = (tmp_path / "out" / "models_test__all.sql").read_text()
-    assert "--dialect postgres --out DIR" in text and "dialect postgres" in text
+    assert "--dialect postgres --out DIR" in text and "postgres has no chi-square" in text
     clash = job_text(str(source), "t").replace('name = "all"', 'name = "Binned, dropped"')
     with pytest.raises(SpecError, match="models_test__binned_dropped"):
         write_models(load_job(write_job(tmp_path, clash, "clash.toml")), tmp_path / "x")

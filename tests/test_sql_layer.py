@@ -23,6 +23,8 @@ PACKAGE = Path(bitsift.__file__).resolve().parent
 OWN_STATEMENTS = {
     "sql/sqlbuild.py": "the SQL layer itself",
     "sql/sqlstatements.py": "the SQL layer itself",
+    "sql/history_select.py": "the SQL layer itself: the ranking as history rows (model files)",
+    "jobs/history_script.py": "the history table's script (DDL + INSERT), written, never sent",
     "engines/sources.py": "opening a source: table names and DuckDB's file readers on its session",
     "jobs/history.py": "the history store's own tables, written (the SQL layer sends one SELECT)",
     "jobs/history_duckdb.py": "the history store's own tables in a DuckDB file, written and read",

@@ -117,11 +117,18 @@ def drift_command(job_file: str | None, results: str | None, results_table: str,
               help="SQL dialect to write (default: the source's).")
 @click.option("--out", "-o", "out_dir", required=True, type=click.Path(file_okay=False),
               help="Folder for the .sql files (created if missing).")
-def models_command(job_file: str, dialect: str | None, out_dir: str) -> None:
-    """Write one plain-SELECT .sql file per ranking of JOB_FILE, for SQL schedulers."""
+@click.option("--insert", is_flag=True,
+              help="Also write the job's script (JOB.insert.sql): create the history table if "
+              "missing and append one run of every ranking to it.")
+def models_command(job_file: str, dialect: str | None, out_dir: str, insert: bool) -> None:
+    """Write one .sql file per ranking of JOB_FILE whose SELECT returns history rows, for SQL
+    schedulers."""
     job = load_job(job_file)
-    for model in write_models(job, out_dir, dialect.lower() if dialect else None):
+    models = write_models(job, out_dir, dialect.lower() if dialect else None, insert=insert)
+    for model in models:
         click.echo(f"{model.path}  (ranking {model.ranking})")
+    if models and models[0].script is not None:
+        click.echo(f"{models[0].script}  (every ranking, one run per execution)")
 
 
 #: Added to the ``bitsift`` group by cli.py.

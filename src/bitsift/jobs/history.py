@@ -200,7 +200,7 @@ def ranking_rows(ranking: Ranking, *, run_id: str, run_at: _dt.datetime, job: st
                  ) -> list[dict[str, Any]]:
     """The history rows of one ranking, one per attribute, in the ranking's order."""
     stamp = _utc_naive(run_at)
-    settings = jsonout.dumps(dict(options), sort_keys=True, separators=(",", ":"), default=str)
+    settings = options_json(options)
     rows = []
     for position, scored in enumerate(ranking.attributes, start=1):
         rows.append({
@@ -239,6 +239,15 @@ def ranking_rows(ranking: Ranking, *, run_id: str, run_at: _dt.datetime, job: st
             "rank_high": scored.rank_high,
         })
     return rows
+
+
+def options_json(options: Mapping[str, Any]) -> str:
+    """The history's ``options``: a ranking's settings from the job file as compact JSON.
+
+    >>> options_json({"sort": "gain_ratio", "bins": 5})
+    '{"bins":5,"sort":"gain_ratio"}'
+    """
+    return jsonout.dumps(dict(options), sort_keys=True, separators=(",", ":"), default=str)
 
 
 def segment_json(segment: Mapping[str, Any] | None) -> str:

@@ -7,6 +7,7 @@ from pathlib import Path
 from typing import Any
 
 import duckdb
+import sqlglot
 from sqlglot import exp
 
 from bitsift.errors import first_line
@@ -70,6 +71,26 @@ def _col(name: str) -> exp.Column:
     return exp.column(_ident(name))
 
 
+def create_table_sql(table: exp.Table, dialect: str, table_options: str | None = None) -> str:
+    """CREATE TABLE IF NOT EXISTS of the history table as a DuckDB results file has it, in
+    ``dialect`` (sqlglot spells the types), ``table_options`` after it."""
+    definitions = [
+        exp.ColumnDef(
+            this=_ident(c.name),
+            # nullable=False: ClickHouse would wrap the type in Nullable() beside NOT NULL.
+            kind=exp.DataType.build(_DUCKDB_TYPES[c.family], nullable=c.nullable),
+            constraints=[] if c.nullable else [
+                exp.ColumnConstraint(kind=exp.NotNullColumnConstraint())
+            ],
+        )
+        for c in COLUMNS
+    ]
+    create = exp.Create(this=exp.Schema(this=table.copy(), expressions=definitions),
+                        kind="TABLE", exists=True)
+    text = create.sql(dialect, unsupported_level=sqlglot.ErrorLevel.RAISE)
+    return f"{text} {table_options}" if table_options else text
+
+
 class DuckDBStore(HistoryStore):
     """History in a DuckDB database file; SQL built by sqlglot with ``?`` parameters."""
 
@@ -117,19 +138,7 @@ class DuckDBStore(HistoryStore):
         return None if row is None or row[0] is None else int(row[0])
 
     def _create_sql(self) -> str:
-        definitions = [
-            exp.ColumnDef(
-                this=_ident(c.name),
-                kind=exp.DataType.build(_DUCKDB_TYPES[c.family]),
-                constraints=[] if c.nullable else [
-                    exp.ColumnConstraint(kind=exp.NotNullColumnConstraint())
-                ],
-            )
-            for c in COLUMNS
-        ]
-        return self._sql(exp.Create(this=exp.Schema(this=self.table.copy(),
-                                                    expressions=definitions), kind="TABLE",
-                                    exists=True))
+        return create_table_sql(self.table, "duckdb")
 
     def _add_column_sql(self, column: HistoryColumn) -> str:
         """ALTER TABLE ... ADD COLUMN for a column a schema version 1 table lacks."""

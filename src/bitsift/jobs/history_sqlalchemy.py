@@ -61,6 +61,26 @@ def _sa_type(column: HistoryColumn) -> Any:
     return sa.DateTime().with_variant(mysql.DATETIME(fsp=6), "mysql", "mariadb")
 
 
+def history_table(name: str, schema: str | None) -> sa.Table:
+    """The history table as SQLAlchemy Core defines it (its DDL is what a run creates)."""
+    return sa.Table(
+        name,
+        sa.MetaData(),
+        *(sa.Column(c.name, _sa_type(c), nullable=c.nullable) for c in COLUMNS),
+        schema=schema,
+        # Names in any script, emoji included (MySQL's older "utf8" stops at 3 bytes).
+        mysql_charset="utf8mb4",
+        mariadb_charset="utf8mb4",
+    )
+
+
+def create_table(table: sa.Table, dialect: sa.Dialect) -> sa.schema.CreateTable:
+    """The CREATE TABLE a run sends to create ``table`` on ``dialect`` (IF NOT EXISTS where the
+    dialect understands it)."""
+    if_not_exists = dialect.name in _IF_NOT_EXISTS_DIALECTS
+    return sa.schema.CreateTable(table, if_not_exists=if_not_exists)
+
+
 class SqlAlchemyStore(HistoryStore):
     """History in any SQLAlchemy database, through SQLAlchemy Core (Table, insert, delete)."""
 
@@ -80,15 +100,7 @@ class SqlAlchemyStore(HistoryStore):
                 f"the driver for {url.drivername} is not installed ({first_line(error)})"
             ) from None
         self.schema = self.table.db or None
-        self.sa_table = sa.Table(
-            self.table.name,
-            sa.MetaData(),
-            *(sa.Column(c.name, _sa_type(c), nullable=c.nullable) for c in COLUMNS),
-            schema=self.schema,
-            # Names in any script, emoji included (MySQL's older "utf8" stops at 3 bytes).
-            mysql_charset="utf8mb4",
-            mariadb_charset="utf8mb4",
-        )
+        self.sa_table = history_table(self.table.name, self.schema)
         self._bytewise = self.engine.dialect.name in _COLLATING_DIALECTS
 
     @contextmanager
@@ -204,8 +216,7 @@ class SqlAlchemyStore(HistoryStore):
     def _create(self, connection: sa.Connection) -> None:
         # IF NOT EXISTS where understood: with the writer lock held it is not needed, but a
         # writer of another bitsift version (without the lock) may create it meanwhile.
-        if_not_exists = connection.dialect.name in _IF_NOT_EXISTS_DIALECTS
-        connection.execute(sa.schema.CreateTable(self.sa_table, if_not_exists=if_not_exists))
+        connection.execute(create_table(self.sa_table, connection.dialect))
 
     def _add_column(self, connection: sa.Connection, column: HistoryColumn) -> None:
         """ALTER TABLE ... ADD COLUMN for a column a schema version 1 table lacks (in the

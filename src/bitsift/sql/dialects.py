@@ -53,7 +53,7 @@ case-insensitive and ignore trailing spaces too: its paste-ready SQL groups text
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any, Literal
 
 from bitsift.errors import SpecError
@@ -109,8 +109,23 @@ class Capabilities:
     #: and 'x' from 'x '. MySQL/MariaDB's default collations are case-insensitive and
     #: PAD SPACE, SQL Server's are case-insensitive and always pad.
     exact_key_type: str | None = None
-    #: Does the engine have a chi-square survival function? (none listed has; p comes from Python)
-    has_chi2: bool = False
+    #: The chi-square survival function in the dialect's SQL, ``g`` and ``dof`` standing for the
+    #: G statistic and its degrees of freedom, for model files' ``p_value``. ``None``: the
+    #: engine has none (no engine listed here has one; bitsift computes p in Python).
+    chi2_survival: str | None = None
+    #: The current time in UTC without a zone, in the dialect's SQL, read once per statement:
+    #: a model file's ``run_at`` (docs/scheduled-runs.md, "Keeping the history...").
+    utc_now: str = "CAST(CURRENT_TIMESTAMP AT TIME ZONE 'UTC' AS TIMESTAMP)"
+    #: The statements that open and end one transaction in a script (``bitsift models
+    #: --insert``); ``None``: the engine has none (each statement stands alone); an empty
+    #: opening statement: transactions open by themselves.
+    script_transaction: tuple[str, str] | None = ("BEGIN", "COMMIT")
+    #: Put before CREATE TABLE where the engine has no IF NOT EXISTS; ``{table}`` is the
+    #: table's name as a string literal.
+    create_guard: str | None = None
+    #: Written after the history table's column list where the engine needs more (ClickHouse:
+    #: its table engine and sort key).
+    table_options: str | None = None
     #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
     dates: DateFunctions = DateFunctions()
 
@@ -157,11 +172,48 @@ DATE_FUNCTIONS: dict[str, DateFunctions] = {
                                 month="toMonth(x)", dow="toDayOfWeek(x) % 7",
                                 hour="toHour(x)"),
 }
+#: Each dialect's UTC clock where the default (``CURRENT_TIMESTAMP AT TIME ZONE 'UTC'``) does
+#: not serve. Executed on DuckDB, SQLite, PostgreSQL and MariaDB (tests/test_models_history.py);
+#: the others from the vendors' documentation. Every one is read once per statement.
+UTC_CLOCKS: dict[str, str] = {
+    "sqlite": "STRFTIME('%Y-%m-%d %H:%M:%f', 'now') || '000'",  # SQLAlchemy's text form
+    "mysql": "UTC_TIMESTAMP(6)",
+    "mariadb": "UTC_TIMESTAMP(6)",
+    "redshift": "SYSDATE",
+    "snowflake": "CAST(CONVERT_TIMEZONE('UTC', CURRENT_TIMESTAMP()) AS TIMESTAMP_NTZ)",
+    "bigquery": "CURRENT_DATETIME('UTC')",
+    "tsql": "SYSUTCDATETIME()",
+    "oracle": "SYS_EXTRACT_UTC(SYSTIMESTAMP)",
+    "spark": "TO_UTC_TIMESTAMP(CURRENT_TIMESTAMP(), CURRENT_TIMEZONE())",
+    "databricks": "TO_UTC_TIMESTAMP(CURRENT_TIMESTAMP(), CURRENT_TIMEZONE())",
+    "clickhouse": "now64(6, 'UTC')",
+}
+#: Transactions of ``bitsift models --insert`` scripts where ``BEGIN``/``COMMIT`` do not serve.
+#: Oracle opens one by itself; Spark, Databricks and ClickHouse have none (one INSERT is
+#: atomic on a Delta table; ClickHouse inserts a block at a time).
+SCRIPT_TRANSACTIONS: dict[str, tuple[str, str] | None] = {
+    "duckdb": ("BEGIN TRANSACTION", "COMMIT"),
+    "mysql": ("START TRANSACTION", "COMMIT"),
+    "mariadb": ("START TRANSACTION", "COMMIT"),
+    "bigquery": ("BEGIN TRANSACTION", "COMMIT TRANSACTION"),
+    "trino": ("START TRANSACTION", "COMMIT"),
+    "tsql": ("BEGIN TRANSACTION", "COMMIT TRANSACTION"),
+    "oracle": ("", "COMMIT"),
+    "spark": None,
+    "databricks": None,
+    "clickhouse": None,
+}
+
+
 def _dialect(name: str, sqlglot_dialect: str | None = None, **traits: Any) -> Capabilities:
-    """One entry: its sqlglot dialect (by default of the same name), its date functions from
-    :data:`DATE_FUNCTIONS`, and the traits where it differs from the defaults."""
-    return Capabilities(name=name, sqlglot_dialect=sqlglot_dialect or name,
-                        dates=DATE_FUNCTIONS.get(name, DateFunctions()), **traits)
+    """One entry: its sqlglot dialect (by default of the same name), its date functions, clock
+    and script transaction from the tables above, and the traits where it differs from the
+    defaults."""
+    defaults = Capabilities(name=name, sqlglot_dialect=sqlglot_dialect or name)
+    return replace(defaults, dates=DATE_FUNCTIONS.get(name, defaults.dates),
+                   utc_now=UTC_CLOCKS.get(name, defaults.utc_now),
+                   script_transaction=SCRIPT_TRANSACTIONS.get(name, defaults.script_transaction),
+                   **traits)
 
 
 CAPABILITIES: dict[str, Capabilities] = {
@@ -187,7 +239,8 @@ CAPABILITIES: dict[str, Capabilities] = {
         _dialect("trino"),
         # PERCENTILE_CONT is window-only; collations are usually case-insensitive and
         # comparisons always ignore trailing spaces: group text as VARBINARY.
-        _dialect("tsql", exact_key_type="VARBINARY(8000)"),
+        _dialect("tsql", exact_key_type="VARBINARY(8000)",
+                 create_guard="IF OBJECT_ID({table}, 'U') IS NULL"),
         _dialect("oracle", quantile="percentile_cont"),
         # sqlglot rewrites exact percentiles to percentile_approx for Spark: window method.
         _dialect("databricks"),
@@ -195,7 +248,8 @@ CAPABILITIES: dict[str, Capabilities] = {
         _dialect("spark", quantile="percentile"),
         # Exact quantiles need parametric syntax (quantileExactInclusive(p)(x)) that sqlglot
         # cannot produce from the canonical dialect: window method.
-        _dialect("clickhouse"),
+        # A history table sorted by its run key (docs/scheduled-runs.md).
+        _dialect("clickhouse", table_options="ENGINE = MergeTree ORDER BY (job, run_id)"),
     ]
 }
 
