@@ -10,6 +10,7 @@ from typing import Any, NoReturn
 import click
 
 from bitsift.cli import signals
+from bitsift.cli.cli_counts import counts_command, counts_ranking, from_counts_options
 from bitsift.cli.cli_jobs import JOB_COMMANDS
 from bitsift.cli.cli_options import (
     CliState,
@@ -51,14 +52,21 @@ def cli(ctx: click.Context, debug: bool) -> None:
 
 @cli.command("rank")
 @click.argument("source")
+@from_counts_options
 @rank_options
 @segment_options
 @engine_option
 @click.option("--format", "-f", "fmt", type=click.Choice(FORMATS), default="table",
               show_default=True)
-def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> None:
-    """Rank the attributes of SOURCE by what they tell about --target."""
-    ranking = api.rank(engine_source(source, engine), **library_options(kwargs))
+@click.pass_context
+def rank_command(ctx: click.Context, /, source: str, fmt: str, engine: str | None,
+                 **kwargs: Any) -> None:
+    """Rank the attributes of SOURCE by what they tell about --target.
+
+    With --from-counts, SOURCE holds stored counts (`bitsift counts`): a window is ranked.
+    """
+    ranking = counts_ranking(ctx, source, kwargs) or api.rank(engine_source(source, engine),
+                                                              **library_options(kwargs))
     print_statements(ranking.dialect, ranking.statements)
     print_notes(ranking.notes)
     # color=True: written as is. Click would otherwise strip what looks like a colour code from
@@ -186,6 +194,7 @@ def _mask_chain(error: BaseException) -> None:
         link = link.__cause__ or link.__context__
 
 
-for _command in (*JOB_COMMANDS, report_command, profile_command, *SELECT_COMMANDS):
+for _command in (*JOB_COMMANDS, report_command, profile_command, *SELECT_COMMANDS,
+                 counts_command):
     cli.add_command(_command)
 
