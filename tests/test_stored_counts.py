@@ -1,0 +1,330 @@
+"""Stored counts (docs/stored-counts.md): ``bitsift counts`` and ``rank --from-counts``.
+
+The data are invented for these checks (tests/helpers.random_dataset plus a day column). The
+equality tests compare a window ranked from the counts with the rows of that window ranked
+directly, numeric attributes cut at the stored cut points, to 1e-9 on every executed engine.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import subprocess
+import sys
+from pathlib import Path
+from typing import Any
+
+import duckdb
+import pytest
+
+from bitsift.errors import BitsiftError
+from bitsift.jobs import counts_store
+from bitsift.jobs.counts_build import build_counts
+from bitsift.run.counts_meta import CountsMeta
+from bitsift.run.counts_rank import rank_counts
+from bitsift.run.readout import read_ranking, read_segments
+from bitsift.run.result import Ranking, SegmentedRanking
+from bitsift.run.session import Session
+from bitsift.spec.rankspec import RankOptions
+from bitsift.sql.sqlbuild import rank_statement
+from tests.helpers import (
+    ENGINES,
+    Dataset,
+    assert_same_ranking,
+    loaded,
+    random_dataset,
+    run_main,
+)
+
+#: Every test here opens DuckDB files or servers several times: seconds each on this machine.
+pytestmark = pytest.mark.slow
+
+FIRST_DAY = _dt.date(2026, 3, 1)
+DAYS = 8
+
+
+def dated_dataset(seed: int = 19, rows: int = 900) -> Dataset:
+    """random_dataset with a ``sown`` day (ISO text, so every driver takes it; NULL now and
+    then: such rows belong to no partition)."""
+    base = random_dataset(seed, rows)
+    rows_out = []
+    for i, row in enumerate(base.rows):
+        day = None if i % 97 == 5 else (FIRST_DAY + _dt.timedelta(days=i % DAYS)).isoformat()
+        rows_out.append((*row, day))
+    return Dataset(columns=(*base.columns, ("sown", "date")), rows=rows_out)
+
+
+def _day(offset: int) -> str:
+    return (FIRST_DAY + _dt.timedelta(days=offset)).isoformat()
+
+
+def direct(source: Any, table: str, cuts: dict[str, list[float]], where: str | None,
+           *, by: tuple[str, ...] = ()) -> Ranking | SegmentedRanking:
+    """The rows ranked directly, numeric attributes cut at ``cuts`` (the stored ones)."""
+    with Session.open(source, table) as session:
+        spec = session.resolve(RankOptions(target="y", exclude=("sown",), where=where, by=by))
+        statement = rank_statement(spec, session.engine.caps, cuts)
+        records = session.engine.fetch(statement.sql).records()
+        if by:
+            return read_segments(records, spec, cuts, dialect=session.engine.caps.name)
+        return read_ranking(records, spec, cuts, dialect=session.engine.caps.name)
+
+
+def _destination(engine: str, where: Any, tmp_path: Path) -> tuple[str, str]:
+    """(DEST, counts table) on the engine under test: the counts live beside the data."""
+    if engine == "duckdb":
+        return str(tmp_path / "counts.duckdb"), "bitsift_counts"
+    table = f"{where.schema}.bitsift_counts" if where.schema else "bitsift_counts"
+    return where.url, table
+
+
+def _stored_cuts(ranking: Ranking) -> dict[str, list[float]]:
+    return {a.attribute: list(a.cuts or []) for a in ranking.attributes if a.kind == "numeric"}
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_window_equals_the_direct_ranking(engine: str, request: pytest.FixtureRequest,
+                                          tmp_path: Path) -> None:
+    data = dated_dataset()
+    with loaded(engine, data, request, duckdb_file=True) as where:
+        dest, table = _destination(engine, where, tmp_path)
+        report = build_counts(where.source, table=where.table, target="y", partition="sown",
+                              into=dest, counts_table=table)
+        assert report.partitions == [_day(i) for i in range(DAYS)]
+        assert sorted(report.attributes) == ["level", "noise", "price", "ratio", "score",
+                                             "word"]
+        window = rank_counts(dest, counts_table=table, since=_day(2), until=_day(6))
+        assert isinstance(window, Ranking)
+        cuts = _stored_cuts(window)
+        assert set(cuts) == {"score", "ratio", "price"}
+        literal = "DATE '{}'"
+        predicate = (f"sown >= {literal.format(_day(2))} AND sown < {literal.format(_day(6))}")
+        want = direct(where.source, where.table, cuts, predicate)
+        assert isinstance(want, Ranking)
+        assert_same_ranking(window, want, f"{engine} window")
+        assert window.rows_excluded == want.rows_excluded > 0
+        # Every stored partition, and one partition by itself, as --by-partition gives it.
+        whole = rank_counts(dest, counts_table=table)
+        assert isinstance(whole, Ranking)
+        everything = direct(where.source, where.table, cuts, "sown IS NOT NULL")
+        assert isinstance(everything, Ranking)
+        assert_same_ranking(whole, everything, f"{engine} all")
+        trend = rank_counts(dest, counts_table=table, since=_day(3), until=_day(5),
+                            by_partition=True)
+        assert isinstance(trend, SegmentedRanking)
+        assert [s.segment for s in trend.segments] == [{"sown": _day(3)}, {"sown": _day(4)}]
+        one = direct(where.source, where.table, cuts, f"sown = {literal.format(_day(4))}")
+        assert isinstance(one, Ranking)
+        assert_same_ranking(trend.segments[1], one, f"{engine} one partition")
+
+
+def test_missing_drop_and_sort_apply_when_ranking(tmp_path: Path,
+                                                  request: pytest.FixtureRequest) -> None:
+    with loaded("duckdb", dated_dataset(), request, duckdb_file=True) as where:
+        dest = str(tmp_path / "c.duckdb")
+        build_counts(where.source, table=where.table, target="y", partition="sown", into=dest)
+        got = rank_counts(dest, missing="drop", sort="gain_ratio", limit=3)
+        assert isinstance(got, Ranking)
+        with Session.open(where.source, where.table) as session:
+            spec = session.resolve(RankOptions(target="y", exclude=("sown",), missing="drop",
+                                               sort="gain_ratio", limit=3,
+                                               where="sown IS NOT NULL"))
+            cuts = _stored_cuts(rank_counts(dest))  # type: ignore[arg-type]
+            records = session.engine.fetch(rank_statement(spec, session.engine.caps,
+                                                          cuts).sql).records()
+            want = read_ranking(records, spec, cuts, dialect="duckdb")
+        assert_same_ranking(got, want, "drop")
+        assert len(got.attributes) == 3
+
+
+# --- attacks, on DuckDB files ----------------------------------------------------------------
+
+def _trays(path: Path, rows: list[tuple[Any, ...]]) -> None:
+    """A small invented greenhouse table: day, zone, moisture, outcome."""
+    with duckdb.connect(str(path)) as con:
+        con.execute('CREATE TABLE IF NOT EXISTS trays (day DATE, zone VARCHAR, "zoné" VARCHAR,'
+                    ' "feuchte ☂" DOUBLE, outcome VARCHAR)')
+        con.executemany("INSERT INTO trays VALUES (?, ?, ?, ?, ?)", rows)
+
+
+def _tray_rows(day: str, count: int, shift: int = 0) -> list[tuple[Any, ...]]:
+    zones = ["a", "A", "b", None]
+    return [(day, zones[(i + shift) % 4], f"Z{i % 3}", float((i * 7 + shift) % 13),
+             ["thrived", "stunted", None][i % 3] if i % 5 else "failed") for i in range(count)]
+
+
+def _total(dest: Path, table: str = "bitsift_counts") -> list[tuple[Any, ...]]:
+    with duckdb.connect(str(dest), read_only=True) as con:
+        return con.execute(f'SELECT "partition", SUM(n) FROM {table} WHERE attribute_index = 0 '
+                           'GROUP BY 1 ORDER BY 1').fetchall()
+
+
+def test_counting_twice_adds_nothing_and_new_days_are_appended(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40) + _tray_rows("2026-03-02", 30))
+    first = build_counts(str(source), table="trays", target="outcome", partition="day",
+                         into=str(dest))
+    assert first.partitions == ["2026-03-01", "2026-03-02"]
+    again = build_counts(str(source), table="trays", target="outcome", partition="day",
+                         into=str(dest))
+    assert (again.partitions, again.rows) == ([], 0)
+    assert _total(dest) == [("2026-03-01", 40), ("2026-03-02", 30)]
+    _trays(source, _tray_rows("2026-03-03", 25))
+    third = build_counts(str(source), table="trays", target="outcome", partition="day",
+                         into=str(dest))
+    assert third.partitions == ["2026-03-03"]
+    assert _total(dest) == [("2026-03-01", 40), ("2026-03-02", 30), ("2026-03-03", 25)]
+
+
+def test_a_late_partition_is_recounted_and_cuts_stay_fixed(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40) + _tray_rows("2026-03-02", 30))
+    build_counts(str(source), table="trays", target="outcome", partition="day", into=str(dest),
+                 bins=3)
+    cuts = _meta(dest).cuts
+    # Late rows for the 2nd, far outside the first cut points.
+    _trays(source, [("2026-03-02", "b", "Z1", 1000.0 + i, "thrived") for i in range(20)])
+    stale = build_counts(str(source), table="trays", target="outcome", partition="day",
+                         into=str(dest), bins=3)
+    assert stale.partitions == []
+    assert _total(dest)[1] == ("2026-03-02", 30)
+    late = build_counts(str(source), table="trays", target="outcome", partition="day",
+                        into=str(dest), bins=3, recount_from="2026-03-02")
+    assert late.partitions == ["2026-03-02"]
+    assert _total(dest) == [("2026-03-01", 40), ("2026-03-02", 50)]
+    assert _meta(dest).cuts == cuts
+    got = rank_counts(str(dest), since="2026-03-02")
+    assert isinstance(got, Ranking)
+    want = direct_trays(source, cuts, "day >= DATE '2026-03-02'")
+    assert_same_ranking(got, want, "recounted")
+    refit = build_counts(str(source), table="trays", target="outcome", partition="day",
+                         into=str(dest), bins=3, refit=True)
+    assert refit.partitions == ["2026-03-01", "2026-03-02"]
+    assert _meta(dest).cuts != cuts
+
+
+def direct_trays(source: Path, cuts: dict[str, list[float]], where: str) -> Ranking:
+    with Session.open(str(source), "trays") as session:
+        spec = session.resolve(RankOptions(target="outcome", exclude=("day",), where=where))
+        records = session.engine.fetch(rank_statement(spec, session.engine.caps,
+                                                      cuts).sql).records()
+        return read_ranking(records, spec, cuts, dialect="duckdb")
+
+
+def _meta(dest: Path) -> CountsMeta:
+    with duckdb.connect(str(dest), read_only=True) as con:
+        return CountsMeta.from_rows(con.execute("SELECT key, value FROM bitsift_counts_meta"
+                                                ).fetchall(), "test")
+
+
+def test_case_twins_unicode_and_null_values_match_the_direct_ranking(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 60) + _tray_rows("2026-03-02", 45, shift=1)
+           + [(None, "a", "Z1", 2.0, "thrived")] * 7)
+    build_counts(str(source), table="trays", target="outcome", partition="day", into=str(dest))
+    got = rank_counts(str(dest))
+    assert isinstance(got, Ranking)
+    assert sorted(a.attribute for a in got.attributes) == ["feuchte ☂", "zone", "zoné"]
+    # The rows without a day are in no partition.
+    assert _total(dest) == [("2026-03-01", 60), ("2026-03-02", 45)]
+    want = direct_trays(source, _meta(dest).cuts, "day IS NOT NULL")
+    assert_same_ranking(got, want, "twins")
+    assert got["zone"].distinct == 4  # a, A, b and NULL
+
+
+def test_a_failed_write_leaves_nothing_half_way(tmp_path: Path,
+                                                 monkeypatch: pytest.MonkeyPatch) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40))
+    build_counts(str(source), table="trays", target="outcome", partition="day", into=str(dest))
+    before = _total(dest)
+    _trays(source, _tray_rows("2026-03-02", 30))
+
+    def killed(self: CountsMeta) -> list[tuple[str, str]]:
+        raise KeyboardInterrupt  # after the counts rows were inserted, before the metadata
+
+    monkeypatch.setattr(counts_store, "_BATCH", 3)
+    monkeypatch.setattr(CountsMeta, "rows", killed)
+    with pytest.raises(KeyboardInterrupt):
+        build_counts(str(source), table="trays", target="outcome", partition="day",
+                     into=str(dest))
+    assert _total(dest) == before
+
+
+def test_concurrent_runs_into_one_destination_do_not_double_rows(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, [row for d in range(1, 6) for row in _tray_rows(f"2026-03-0{d}", 50)])
+    command = [sys.executable, "-m", "bitsift.cli", "counts", str(source), "-t", "trays",
+               "-y", "outcome", "--partition", "day", "--into", str(dest)]
+    environment = {**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1] / "src")}
+    runs = [subprocess.Popen(command, env=environment, stdout=subprocess.PIPE,
+                             stderr=subprocess.PIPE, text=True) for _ in range(3)]
+    outputs = [run.communicate(timeout=120) for run in runs]
+    # Each run reads the source while the others may hold the destination: all succeed.
+    assert [run.returncode for run in runs] == [0, 0, 0], outputs
+    assert _total(dest) == [(f"2026-03-0{d}", 50) for d in range(1, 6)]
+
+
+def test_mismatched_options_empty_window_and_bad_grain_are_one_line_errors(
+        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40))
+    base = ["counts", str(source), "-t", "trays", "--partition", "day", "--into", str(dest)]
+    assert run_main(capsys, *base, "-y", "outcome").code == 0
+    other = run_main(capsys, *base, "-y", "zone")
+    assert other.code == 1
+    assert other.err.count("\n") == 1
+    assert "target 'zone' asked, 'outcome' stored" in other.err and "--refit" in other.err
+    fewer = run_main(capsys, *base, "-y", "outcome", "-a", "zone")
+    assert fewer.code == 1 and "attributes" in fewer.err
+    empty = run_main(capsys, "rank", str(dest), "--from-counts", "--since", "2027-01-01")
+    assert empty.code == 1 and empty.err.count("\n") == 1
+    assert "no stored partitions" in empty.err and "2026-03-01 to 2026-03-01" in empty.err
+    bad_date = run_main(capsys, "rank", str(dest), "--from-counts", "--since", "March")
+    assert bad_date.code == 1 and "YYYY-MM-DD" in bad_date.err
+    grain = run_main(capsys, "counts", str(source), "-t", "trays", "-y", "outcome",
+                     "--partition", "zone", "--grain", "month", "--into",
+                     str(tmp_path / "other.duckdb"))
+    assert grain.code == 1 and "needs a date or timestamp column" in grain.err
+    stray = run_main(capsys, "rank", str(dest), "--from-counts", "-y", "outcome")
+    assert stray.code == 2 and "decides what is counted" in stray.err
+    no_target = run_main(capsys, "rank", str(source), "-t", "trays")
+    assert no_target.code == 2 and "--target" in no_target.err
+
+
+def test_rank_from_counts_prints_like_rank(tmp_path: Path,
+                                           capsys: pytest.CaptureFixture[str]) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40) + _tray_rows("2026-03-02", 40, shift=2))
+    counted = run_main(capsys, "counts", str(source), "-t", "trays", "-y", "outcome",
+                       "--partition", "day", "--into", str(dest))
+    assert counted.code == 0
+    assert "counted 2 partition(s), 2026-03-01 to 2026-03-02" in counted.out
+    shown = run_main(capsys, "rank", str(dest), "--from-counts", "--until", "2026-03-02",
+                     "-f", "json")
+    assert shown.code == 0, shown.err
+    assert '"target": "outcome"' in shown.out and '"attribute": "zone"' in shown.out
+    trend = run_main(capsys, "rank", str(dest), "--from-counts", "--by-partition", "-f", "csv")
+    assert trend.code == 0 and "2026-03-02" in trend.out
+
+
+def test_a_partition_column_named_like_the_internal_alias_is_refused(tmp_path: Path) -> None:
+    source = tmp_path / "src.duckdb"
+    with duckdb.connect(str(source)) as con:
+        con.execute("CREATE TABLE t AS SELECT DATE '2026-01-01' AS d, 1 AS bitsift_partition, "
+                    "'x' AS y")
+    with pytest.raises(BitsiftError, match="bitsift_partition"):
+        build_counts(str(source), table="t", target="y", partition="d",
+                     into=str(tmp_path / "c.duckdb"))
+
+
+def test_values_round_trip() -> None:
+    from bitsift.run.counts_values import decode, encode
+
+    values = ["", "a:b", "日本", 0, -7, 2**62, 1e-300, float("inf"), True, False,
+              _dt.date(2026, 3, 1), _dt.datetime(2026, 3, 1, 12, 30, 1, 5)]
+    assert [decode(encode(v)) for v in values] == values
+    assert encode(-0.0) == encode(0.0)
+    assert encode(b"\xff\x00") == "x:ff00" and decode("x:ff00") == b"\xff\x00"
+    assert encode(None) is None
+
