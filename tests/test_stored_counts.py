@@ -8,6 +8,7 @@ directly, numeric attributes cut at the stored cut points, to 1e-9 on every exec
 from __future__ import annotations
 
 import datetime as _dt
+import json
 import os
 import subprocess
 import sys
@@ -328,3 +329,22 @@ def test_values_round_trip() -> None:
     assert encode(b"\xff\x00") == "x:ff00" and decode("x:ff00") == b"\xff\x00"
     assert encode(None) is None
 
+
+
+def test_the_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
+    """benchmarks/stored_counts.py at a tiny size, so it never rots (timings live in
+    benchmarks/RESULTS.md, never in tests)."""
+    script = Path(__file__).resolve().parents[1] / "benchmarks" / "stored_counts.py"
+    out = tmp_path / "result.json"
+    environment = {**os.environ, "PYTHONPATH": str(script.parents[1] / "src")}
+    completed = subprocess.run(
+        [sys.executable, str(script), "--days", "3", "--rows-per-day", "2000",
+         "--attributes", "4", "--repeats", "2", "--json", str(out)],
+        capture_output=True, text=True, timeout=300, env=environment)
+    assert completed.returncode == 0, completed.stderr
+    assert "ratio a/b:" in completed.stdout
+    result = json.loads(out.read_text())
+    assert result["data_rows"] == 4 * 2000
+    assert result["counts_rows"] > 0
+    assert len(result["seconds"]["a"]) == len(result["seconds"]["b"]) == 2
+    assert result["largest_categorical_difference"] < 1e-9
