@@ -7,6 +7,7 @@ directly, numeric attributes cut at the stored cut points, to 1e-9 on every exec
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import json
 import os
@@ -17,12 +18,15 @@ from typing import Any
 
 import duckdb
 import pytest
+import sqlalchemy as sa
+from sqlglot import exp
 
 from bitsift.errors import BitsiftError
 from bitsift.jobs import counts_store
-from bitsift.jobs.counts_build import build_counts
+from bitsift.jobs.counts_build import build_counts, paste_counts
 from bitsift.run.counts_meta import CountsMeta
 from bitsift.run.counts_rank import rank_counts
+from bitsift.run.cuts import fetch_cuts
 from bitsift.run.readout import read_ranking, read_segments
 from bitsift.run.result import Ranking, SegmentedRanking
 from bitsift.run.session import Session
@@ -30,6 +34,7 @@ from bitsift.spec.rankspec import RankOptions
 from bitsift.sql.sqlbuild import rank_statement
 from tests.helpers import (
     ENGINES,
+    QUOTING_DIALECT,
     Dataset,
     assert_same_ranking,
     loaded,
@@ -348,3 +353,83 @@ def test_the_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
     assert result["counts_rows"] > 0
     assert len(result["seconds"]["a"]) == len(result["seconds"]["b"]) == 2
     assert result["largest_categorical_difference"] < 1e-9
+
+
+# --- bitsift sql --counts: the statements pasted into the warehouse -------------------------
+
+def _execute(where: Any, statements: list[str]) -> list[dict[str, Any]]:
+    """Run pasted statements in order as a user would; the rows of the last one."""
+    if where.engine == "duckdb":
+        with duckdb.connect(where.source) as con:
+            for sql in statements[:-1]:
+                con.execute(sql)
+            cursor = con.execute(statements[-1])
+            names = [d[0] for d in cursor.description]
+            return [dict(zip(names, row, strict=True)) for row in cursor.fetchall()]
+    engine = sa.create_engine(where.url, poolclass=sa.pool.NullPool)
+    try:
+        with engine.begin() as connection:
+            for sql in statements[:-1]:
+                connection.exec_driver_sql(sql, execution_options={"no_parameters": True})
+            result = connection.exec_driver_sql(statements[-1],
+                                                execution_options={"no_parameters": True})
+            return [dict(row._mapping) for row in result]
+    finally:
+        engine.dispose()
+
+
+def _stored_rows(where: Any, table: str) -> int:
+    rows = _execute(where, [f"SELECT COUNT(*) AS n FROM {table}"])
+    return int(next(iter(rows[0].values())))
+
+
+@pytest.mark.parametrize("engine", ENGINES)
+def test_pasted_statements_keep_counts_in_the_warehouse(engine: str, tmp_path: Path,
+                                                        request: pytest.FixtureRequest) -> None:
+    with loaded(engine, dated_dataset(), request, duckdb_file=True) as where:
+        table = f"{where.schema}.bitsift_counts" if where.schema else "bitsift_counts"
+        text = paste_counts(where.source, table=where.table, target="y", partition="sown",
+                            counts_table=table, since=_day(2), until=_day(6))
+        assert text.startswith("-- bitsift")
+        create, insert, ranking = [s for s in text.split(";\n\n") if s.strip()]
+        assert "CREATE TABLE IF NOT EXISTS" in create and insert.lstrip().count("INSERT") == 1
+        quoted_table = ".".join(exp.to_identifier(p, quoted=True).sql(
+            QUOTING_DIALECT[engine]) for p in table.split("."))
+        _execute(where, [create, insert, "SELECT 1 AS done"])
+        stored = _stored_rows(where, quoted_table)
+        assert stored > 0
+        # The nightly insert again: no partition is newer than the newest stored one.
+        _execute(where, [create, insert, "SELECT 1 AS done"])
+        assert _stored_rows(where, quoted_table) == stored
+        records = _execute(where, [ranking.rstrip(";\n")])
+        with Session.open(where.source, where.table) as session:
+            predicate = f"sown >= DATE '{_day(2)}' AND sown < DATE '{_day(6)}'"
+            spec = session.resolve(RankOptions(target="y", exclude=("sown",), where=predicate))
+            cuts = fetch_cuts(session.engine, dataclasses.replace(spec, where=None))
+            pasted = read_ranking(records, spec, cuts, dialect=engine)
+            direct_records = session.engine.fetch(
+                rank_statement(spec, session.engine.caps, cuts).sql).records()
+            want = read_ranking(direct_records, spec, cuts, dialect=engine)
+        assert_same_ranking(pasted, want, f"{engine} pasted")
+        # The client-side path gives the same ranking from its own counts.
+        dest = str(tmp_path / "client.duckdb")
+        build_counts(where.source, table=where.table, target="y", partition="sown", into=dest)
+        client = rank_counts(dest, since=_day(2), until=_day(6))
+        assert isinstance(client, Ranking)
+        assert_same_ranking(pasted, client, f"{engine} client")
+
+
+def test_sql_counts_on_the_command_line(tmp_path: Path,
+                                        capsys: pytest.CaptureFixture[str]) -> None:
+    source = tmp_path / "src.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40))
+    shown = run_main(capsys, "sql", str(source), "--counts", "-t", "trays", "-y", "outcome",
+                     "--partition", "day", "-d", "sqlite")
+    assert shown.code == 0, shown.err
+    assert shown.out.count(";\n") == 3 and "numeric cut points" in shown.out
+    stray = run_main(capsys, "sql", str(source), "-t", "trays", "-y", "outcome",
+                     "--partition", "day")
+    assert stray.code == 2 and "--partition needs --counts" in stray.err
+    month = run_main(capsys, "sql", str(source), "--counts", "-t", "trays", "-y", "outcome",
+                     "--partition", "day", "--grain", "month", "-d", "sqlite")
+    assert month.code == 1 and "not available on sqlite" in month.err

@@ -10,7 +10,13 @@ from typing import Any, NoReturn
 import click
 
 from bitsift.cli import signals
-from bitsift.cli.cli_counts import counts_command, counts_ranking, from_counts_options
+from bitsift.cli.cli_counts import (
+    counts_command,
+    counts_paste_text,
+    counts_ranking,
+    counts_sql_options,
+    from_counts_options,
+)
 from bitsift.cli.cli_jobs import JOB_COMMANDS
 from bitsift.cli.cli_options import (
     CliState,
@@ -76,15 +82,23 @@ def rank_command(ctx: click.Context, /, source: str, fmt: str, engine: str | Non
 
 @cli.command("sql")
 @click.argument("source", required=False)
+@counts_sql_options
 @rank_options
 @segment_options
 @click.option("--dialect", "-d", type=click.Choice(sorted(CAPABILITIES), case_sensitive=False),
               help="SQL dialect to write (default: the SOURCE's, or duckdb).")
-def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
+@click.pass_context
+def sql_command(ctx: click.Context, /, source: str | None, dialect: str | None,
+                **kwargs: Any) -> None:
     """Print the self-contained ranking statement, formatted for pasting into a console.
 
-    Without SOURCE, describe the columns with --table, --attributes and --numeric.
+    Without SOURCE, describe the columns with --table, --attributes and --numeric. With
+    --counts: the statements that keep stored counts inside the warehouse.
     """
+    pasted = counts_paste_text(ctx, source, dialect, kwargs)
+    if pasted is not None:
+        click.echo(pasted, nl=False)
+        return
     options = library_options(kwargs)
     # The statement is printed, not run: --timeout is only checked.
     timeout_seconds(options.pop("timeout", None))

@@ -16,11 +16,12 @@ from bitsift.cli.cli_options import (
     print_statements,
     rank_options,
 )
-from bitsift.jobs.counts_build import build_counts
+from bitsift.jobs.counts_build import build_counts, paste_counts
 from bitsift.names import one_line
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
 from bitsift.run.counts_rank import rank_counts
 from bitsift.run.result import Ranking, SegmentedRanking
+from bitsift.spec.rankspec import timeout_seconds
 from bitsift.sql.counts_sql import GRAINS
 
 #: rank's options that decide what is counted: they belong to ``bitsift counts``.
@@ -121,3 +122,49 @@ def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
                        sort=options["sort"], limit=options["limit"],
                        missing=options["missing"], thresholds=options["thresholds"],
                        timeout=options["timeout"])
+
+
+_PASTE_ONLY = ("partition", "grain", "counts_table", "since", "until")
+
+
+def counts_sql_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """``sql``'s options for the statements that keep counts inside the warehouse."""
+    options = [
+        click.option("--counts", "counts", is_flag=True,
+                     help="Print the statements that keep stored counts inside the warehouse: "
+                          "create the counts table, add new partitions, rank a window."),
+        click.option("--partition", "-p", help="With --counts: the partition column."),
+        click.option("--grain", type=click.Choice(GRAINS), default="day", show_default=True,
+                     help="With --counts: a date's day, week or month, or raw values."),
+        click.option("--counts-table", default=DEFAULT_COUNTS_TABLE, show_default=True,
+                     help="With --counts: [schema.]table of the counts."),
+        click.option("--since", metavar="P", help="With --counts: the window's first partition."),
+        click.option("--until", metavar="P", help="With --counts: the window's end (exclusive)."),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def counts_paste_text(ctx: click.Context, source: str | None, dialect: str | None,
+                      kwargs: dict[str, Any]) -> str | None:
+    """The ``sql --counts`` statements, or None without --counts (after checking that no
+    --counts option was given)."""
+    given = {name for name in ctx.params
+             if ctx.get_parameter_source(name) is not ParameterSource.DEFAULT}
+    settings = {k: kwargs.pop(k) for k in ("counts", *_PASTE_ONLY)}
+    if not settings["counts"]:
+        stray = sorted(given & set(_PASTE_ONLY))
+        if stray:
+            raise click.UsageError(f"--{stray[0].replace('_', '-')} needs --counts")
+        return None
+    if source is None:
+        raise click.UsageError("--counts needs a SOURCE: the column types and the numeric cut "
+                               "points come from the table")
+    if settings["partition"] is None:
+        raise click.UsageError("--counts needs --partition")
+    options = library_options(kwargs)
+    timeout_seconds(options.pop("timeout", None))
+    return paste_counts(source, dialect=dialect, partition=settings["partition"],
+                        grain=settings["grain"], counts_table=settings["counts_table"],
+                        since=settings["since"], until=settings["until"], **options)

@@ -8,6 +8,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from bitsift.engines.sources import parse_table_name
 from bitsift.errors import SpecError
 from bitsift.jobs.counts_store import CountsConflict, Write, open_counts_store
 from bitsift.jobs.history import Destination
@@ -16,8 +17,9 @@ from bitsift.run.api import make_options
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE, CountsMeta
 from bitsift.run.counts_values import encode, parse_partition, partition_value
 from bitsift.run.cuts import fetch_cuts
-from bitsift.run.session import session_for
-from bitsift.spec.rankspec import RankSpec
+from bitsift.run.session import Session, session_for
+from bitsift.spec.rankspec import RankOptions, RankSpec
+from bitsift.sql.counts_paste import create_statement, insert_statement, window_rank_statement
 from bitsift.sql.counts_sql import (
     GRAINS,
     PARTITION_ALIAS,
@@ -25,6 +27,8 @@ from bitsift.sql.counts_sql import (
     counting_statement,
     partition_kind_problem,
 )
+from bitsift.sql.dialects import capabilities
+from bitsift.version import __version__
 
 #: The options that decide what is counted: a later run must ask for the same ones.
 COUNTED_OPTIONS = ("attributes", "exclude", "categorical", "numeric", "bins", "binning",
@@ -49,8 +53,6 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
                  recount_from: str | None = None, **options: Any) -> CountsReport:
     """Count the partitions of ``partition`` not yet stored (from ``recount_from`` on, or all
     of them with ``refit``) in the source, and store them in ``into``."""
-    if grain not in GRAINS:
-        raise SpecError.option("grain", f" must be one of {', '.join(GRAINS)}, not {grain!r}")
     for unsupported in ("by", "weight"):
         if options.get(unsupported):
             raise SpecError.option(unsupported, " is not available for stored counts")
@@ -61,26 +63,9 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
     requested = {k: _plain(options.get(k)) for k in COUNTED_OPTIONS}
     with session_for(source, table) as session:
         mark = session.mark()
-        names = [c.name for c in session.columns]
-        column = resolve_name(partition, names)
-        if column is None:
-            raise SpecError.option("partition", f": no column {partition!r} in {session.display}")
-        if any(n.lower() == PARTITION_ALIAS for n in names):
-            raise SpecError(f"the table has a column named {PARTITION_ALIAS!r}, which the "
-                            "counting statement needs for itself")
-        family = next(c.family for c in session.columns if c.name == column)
-        partitioning = Partitioning(column, family, grain)  # type: ignore[arg-type]
-        problem = partition_kind_problem(partitioning)
-        if problem:
-            raise SpecError(problem)
-        exclude = (*(options.pop("exclude", None) or ()), column)
-        rank_options = make_options(target, exclude=exclude, **options)
-        if column in (rank_options.attributes or ()):
-            raise SpecError.option("attributes", f": the partition column {column!r} is not "
-                                   "ranked")
-        spec = session.prepare(rank_options)
-        if column == spec.target:
-            raise SpecError.option("partition", " must not be the target")
+        spec, partitioning, rank_options = _resolved(session, target, partition, grain,
+                                                     options)
+        column = partitioning.column
         asked = CountsMeta(source=session.display, target=spec.target, partition=column,
                            grain=grain, partition_kind=partitioning.kind, attributes=(),
                            options=requested)
@@ -121,6 +106,76 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
     return CountsReport(destination=store.destination.display, partitions=partitions,
                         rows=written, attributes=[a.name for a in spec.attributes],
                         notes=notes, statements=statements)
+
+
+def _resolved(session: Session, target: str, partition: str, grain: str,
+              options: dict[str, Any]) -> tuple[RankSpec, Partitioning, RankOptions]:
+    """The spec of the counted attributes (the partition column left out) and the
+    partitioning, checked against the table."""
+    if grain not in GRAINS:
+        raise SpecError.option("grain", f" must be one of {', '.join(GRAINS)}, not {grain!r}")
+    names = [c.name for c in session.columns]
+    column = resolve_name(partition, names)
+    if column is None:
+        raise SpecError.option("partition", f": no column {partition!r} in {session.display}")
+    if any(n.lower() == PARTITION_ALIAS for n in names):
+        raise SpecError(f"the table has a column named {PARTITION_ALIAS!r}, which the "
+                        "counting statement needs for itself")
+    family = next(c.family for c in session.columns if c.name == column)
+    partitioning = Partitioning(column, family, grain)  # type: ignore[arg-type]
+    problem = partition_kind_problem(partitioning)
+    if problem:
+        raise SpecError(problem)
+    exclude = (*(options.pop("exclude", None) or ()), column)
+    rank_options = make_options(target, exclude=exclude, **options)
+    if column in (rank_options.attributes or ()):
+        raise SpecError.option("attributes", f": the partition column {column!r} is not "
+                               "ranked")
+    spec = session.prepare(rank_options)
+    if column == spec.target:
+        raise SpecError.option("partition", " must not be the target")
+    return spec, partitioning, rank_options
+
+
+def paste_counts(source: Any, *, target: str, partition: str, table: str | None = None,
+                 grain: str = "day", counts_table: str = DEFAULT_COUNTS_TABLE,
+                 since: str | None = None, until: str | None = None,
+                 dialect: str | None = None, **options: Any) -> str:
+    """The paste-ready statements keeping the counts inside the source's warehouse
+    (``bitsift sql --counts``): create the counts table if missing, insert the partitions
+    newer than the newest stored one, rank the window ``[since, until)``. Numeric cut points
+    are computed now, from the table, and written into the insert as literals."""
+    for unsupported in ("by", "weight"):
+        if options.get(unsupported):
+            raise SpecError.option(unsupported, " is not available for stored counts")
+    options.pop("limit", None)
+    with session_for(source, table) as session:
+        spec, partitioning, _ = _resolved(session, target, partition, grain, options)
+        caps = capabilities(dialect) if dialect else session.engine.caps
+        cuts = fetch_cuts(session.engine, spec)
+        notes = list(session.notes)
+        display = session.display
+    low = None if since is None else parse_partition(since, partitioning.kind, "since")
+    high = None if until is None else parse_partition(until, partitioning.kind, "until")
+    counts = parse_table_name(counts_table, caps.sqlglot_dialect)
+    binning = "; ".join(f"{name}: {', '.join(f'{c:.12g}' for c in values) or 'one bin'}"
+                        for name, values in sorted(cuts.items())) or "none"
+    header = [
+        f"bitsift {__version__} - stored counts in the warehouse, dialect {caps.name}",
+        f"table: {display}; target: {spec.target}; partition: {partitioning.column} "
+        f"({partitioning.grain}); counts table: {counts_table}",
+        f"numeric cut points, fixed when these statements were written: {binning}",
+        "1. create the counts table (once); 2. every night: add the partitions newer than "
+        "the newest stored one; 3. rank a window of partitions",
+        *(f"note: {n}" for n in notes),
+    ]
+    statements = [
+        create_statement(counts, caps, partitioning.kind),
+        insert_statement(spec, caps, cuts, partitioning, counts),
+        window_rank_statement(spec, caps, counts, partitioning, low, high),
+    ]
+    lines = "\n".join(f"-- {' '.join(h.split())}" for h in header)
+    return lines + "\n" + "".join(f"{s};\n\n" for s in statements).rstrip("\n") + "\n"
 
 
 def _plain(value: Any) -> Any:

@@ -131,6 +131,25 @@ def counting_statement(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Se
     Only rows with a partition, newer than ``after`` or from ``from_`` on when given; numeric
     attributes are binned at ``cuts`` (the stored ones).
     """
+    conditions: list[exp.Expression] = []
+    if after is not None:
+        conditions.append(exp.GT(this=_partition_key(),
+                                 expression=partition_literal(after, partitioning.kind)))
+    if from_ is not None:
+        conditions.append(exp.GTE(this=_partition_key(),
+                                  expression=partition_literal(from_, partitioning.kind)))
+    return finish(_counting_text(spec, caps, cuts, partitioning, conditions), caps,
+                  pretty=False)
+
+
+def _partition_key() -> exp.Column:
+    return exp.column(exp.to_identifier(PARTITION_ALIAS, quoted=True), table="src")
+
+
+def _counting_text(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[float]],
+                   partitioning: Partitioning, extra: Sequence[exp.Expression]) -> str:
+    """The counting statement in the canonical dialect, rows limited by ``extra`` conditions
+    on the partition (``src.bitsift_partition``) too."""
     context = _context(spec, caps, cuts)
     partition = _partition_expression(partitioning, caps)
     # The partition is computed in a derived table in the source's own dialect (its
@@ -145,14 +164,8 @@ def counting_statement(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Se
         user = sqlglot.parse_one(str(context["qualified_where"]), read=CANONICAL)
         assert isinstance(user, exp.Expression)
         conditions.append(user)
-    key = exp.column(exp.to_identifier(PARTITION_ALIAS, quoted=True), table="src")
-    conditions.append(exp.Not(this=exp.Is(this=key.copy(), expression=exp.Null())))
-    if after is not None:
-        conditions.append(exp.GT(this=key.copy(),
-                                 expression=partition_literal(after, partitioning.kind)))
-    if from_ is not None:
-        conditions.append(exp.GTE(this=key.copy(),
-                                  expression=partition_literal(from_, partitioning.kind)))
+    conditions.append(exp.Not(this=exp.Is(this=_partition_key(), expression=exp.Null())))
+    conditions += [c.copy() for c in extra]
     context["qualified_where"] = exp.and_(*conditions).sql(CANONICAL)
     context.update({
         "segments": [{"index": 1, "column": quote(PARTITION_ALIAS),
@@ -162,7 +175,7 @@ def counting_statement(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Se
         "order_by_gain": None,
         "bounds": None,
     })
-    return finish(render("rank.sql.j2", **context), caps, pretty=False)
+    return render("rank.sql.j2", **context)
 
 
 def _reparsed(sql: str, caps: Capabilities) -> str:
