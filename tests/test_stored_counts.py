@@ -433,3 +433,61 @@ def test_sql_counts_on_the_command_line(tmp_path: Path,
     month = run_main(capsys, "sql", str(source), "--counts", "-t", "trays", "-y", "outcome",
                      "--partition", "day", "--grain", "month", "-d", "sqlite")
     assert month.code == 1 and "not available on sqlite" in month.err
+
+
+@pytest.mark.parametrize(("grain", "windows"), [
+    ("week", [("2026-03-02", "2026-03-16"), ("2026-03-09", None)]),
+    ("month", [("2026-03-01", "2026-04-01"), ("2026-04-01", None)]),
+])
+@pytest.mark.parametrize("engine", ("duckdb", "postgres", "mariadb"))
+def test_weeks_and_months_match_the_direct_ranking(
+        engine: str, grain: str, windows: list[tuple[str, str | None]], tmp_path: Path,
+        request: pytest.FixtureRequest) -> None:
+    base = random_dataset(23, 700)
+    start = _dt.date(2026, 2, 27)  # a Friday: weeks and months straddle the days
+    rows = [(*row, (start + _dt.timedelta(days=(i * 5) % 45)).isoformat())
+            for i, row in enumerate(base.rows)]
+    data = Dataset(columns=(*base.columns, ("sown", "timestamp" if engine == "postgres"
+                                            else "date")), rows=rows)
+    with loaded(engine, data, request, duckdb_file=True) as where:
+        dest = str(tmp_path / "counts.duckdb")
+        report = build_counts(where.source, table=where.table, target="y", partition="sown",
+                              into=dest, grain=grain, attributes="word,level,noise")
+        if grain == "week":
+            assert report.partitions[0] == "2026-02-23"  # the Monday of the first week
+        else:
+            assert report.partitions == ["2026-02-01", "2026-03-01", "2026-04-01"]
+        for since, until in windows:
+            got = rank_counts(dest, since=since, until=until)
+            assert isinstance(got, Ranking)
+            predicate = f"sown >= DATE '{since}'" + (f" AND sown < DATE '{until}'"
+                                                     if until else "")
+            want = direct(where.source, where.table, {}, predicate)
+            assert isinstance(want, Ranking)
+            want_spec_attributes = {a.attribute for a in want.attributes}
+            assert {a.attribute for a in got.attributes} <= want_spec_attributes
+            for scored in got.attributes:
+                other = want[scored.attribute]
+                assert abs(scored.information_gain - other.information_gain) <= 1e-9, grain
+                assert (scored.rows, scored.distinct) == (other.rows, other.distinct), grain
+
+
+def test_integer_and_text_partitions(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    with duckdb.connect(str(source)) as con:
+        con.execute("CREATE TABLE t AS SELECT i % 12 AS batch, chr(CAST(65 + i % 3 AS INTEGER)) AS bench, "
+                    "i % 5 AS a, CASE WHEN i % 4 = 0 THEN 'late' ELSE 'ok' END AS y "
+                    "FROM range(600) r(i)")
+    numbered = build_counts(str(source), table="t", target="y", partition="batch",
+                            grain="value", into=str(dest), exclude="bench")
+    assert numbered.partitions == list(range(12))  # integers, in numeric order
+    got = rank_counts(str(dest), since="2", until="10")
+    assert isinstance(got, Ranking) and got.rows == 400
+    with pytest.raises(BitsiftError, match="integer"):
+        rank_counts(str(dest), since="two")
+    lettered = build_counts(str(source), table="t", target="y", partition="bench",
+                            grain="value", into=str(dest), counts_table="by_bench",
+                            exclude="batch")
+    assert lettered.partitions == ["A", "B", "C"]
+    one = rank_counts(str(dest), counts_table="by_bench", since="B", until="C")
+    assert isinstance(one, Ranking) and one.rows == 200

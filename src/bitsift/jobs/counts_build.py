@@ -12,7 +12,7 @@ from bitsift.engines.sources import parse_table_name
 from bitsift.errors import SpecError
 from bitsift.jobs.counts_store import CountsConflict, Write, open_counts_store
 from bitsift.jobs.history import Destination
-from bitsift.names import resolve_name
+from bitsift.names import resolve_name, split_names
 from bitsift.run.api import make_options
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE, CountsMeta
 from bitsift.run.counts_values import encode, parse_partition, partition_value
@@ -126,7 +126,7 @@ def _resolved(session: Session, target: str, partition: str, grain: str,
     problem = partition_kind_problem(partitioning)
     if problem:
         raise SpecError(problem)
-    exclude = (*(options.pop("exclude", None) or ()), column)
+    exclude = (*split_names(options.pop("exclude", None)), column)
     rank_options = make_options(target, exclude=exclude, **options)
     if column in (rank_options.attributes or ()):
         raise SpecError.option("attributes", f": the partition column {column!r} is not "
