@@ -286,6 +286,9 @@ def test_mismatched_options_empty_window_and_bad_grain_are_one_line_errors(
     empty = run_main(capsys, "rank", str(dest), "--from-counts", "--since", "2027-01-01")
     assert empty.code == 1 and empty.err.count("\n") == 1
     assert "no stored partitions" in empty.err and "2026-03-01 to 2026-03-01" in empty.err
+    missing = run_main(capsys, "rank", str(dest), "--from-counts", "--counts-table", "nope")
+    assert missing.code == 1 and missing.err.count("\n") == 1
+    assert f"counts table nope in {dest}" in missing.err and "bitsift counts" in missing.err
     bad_date = run_main(capsys, "rank", str(dest), "--from-counts", "--since", "March")
     assert bad_date.code == 1 and "YYYY-MM-DD" in bad_date.err
     grain = run_main(capsys, "counts", str(source), "-t", "trays", "-y", "outcome",

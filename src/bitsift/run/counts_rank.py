@@ -5,11 +5,13 @@ table (:func:`bitsift.sql.counts_sql.stored_rank_statement`), read into the same
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 from sqlglot import exp
 
 from bitsift.engines.base import Engine
+from bitsift.engines.masking import mask_url
 from bitsift.errors import DataError
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE, CountsMeta
 from bitsift.run.counts_values import parse_partition
@@ -59,7 +61,8 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
         mark = session.mark()
         session.set_timeout(options.timeout)
         engine = session.engine
-        meta = read_meta(engine, session.table, session.display)
+        shown = _display(dest, session.display)
+        meta = read_meta(engine, session.table, shown)
         low = None if since is None else parse_partition(since, meta.partition_kind, "since")
         high = None if until is None else parse_partition(until, meta.partition_kind, "until")
         window = window_condition(low, high, meta.partition_kind)
@@ -70,7 +73,7 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
             have = (f"stored: {stored['first']} to {stored['last']}" if stored["partitions"]
                     else "none stored")
             raise DataError(f"no stored partitions {described} in counts table {counts_table} "
-                            f"({have}): nothing to rank")
+                            f"in {shown} ({have}): nothing to rank")
         attributes = [StoredAttribute(i, a["name"], a["kind"])
                       for i, a in enumerate(meta.attributes, start=1)]
         statement = stored_rank_statement(
@@ -99,6 +102,14 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
         result.notes = [*session.notes, *result.notes]
         result.statements = session.statements_since(mark)
         return result
+
+
+def _display(dest: Any, fallback: str) -> str:
+    """The destination for messages: a file's path, a URL without its password."""
+    if isinstance(dest, str | Path):
+        text = str(dest)
+        return mask_url(text) if "://" in text else text
+    return fallback
 
 
 def _with_target(options: RankOptions, target: str) -> RankOptions:
