@@ -34,6 +34,7 @@ from bitsift.spec.rankspec import RankOptions
 from bitsift.sql.sqlbuild import rank_statement
 from tests.helpers import (
     ENGINES,
+    POSTGRES_URL,
     QUOTING_DIALECT,
     Dataset,
     assert_same_ranking,
@@ -339,15 +340,21 @@ def test_values_round_trip() -> None:
 
 
 
-def test_the_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
+@pytest.mark.parametrize("engine", ("duckdb", "postgres"))
+def test_the_benchmark_runs_at_a_small_size(engine: str, tmp_path: Path,
+                                            request: pytest.FixtureRequest) -> None:
     """benchmarks/stored_counts.py at a tiny size, so it never rots (timings live in
     benchmarks/RESULTS.md, never in tests)."""
+    server = []
+    if engine == "postgres":
+        request.getfixturevalue("postgres_engine")  # skips (or fails in CI) without a server
+        server = ["--engine", "postgres", "--postgres-url", POSTGRES_URL]
     script = Path(__file__).resolve().parents[1] / "benchmarks" / "stored_counts.py"
     out = tmp_path / "result.json"
     environment = {**os.environ, "PYTHONPATH": str(script.parents[1] / "src")}
     completed = subprocess.run(
         [sys.executable, str(script), "--days", "3", "--rows-per-day", "2000",
-         "--attributes", "4", "--repeats", "2", "--json", str(out)],
+         "--attributes", "4", "--repeats", "2", "--json", str(out), *server],
         capture_output=True, text=True, timeout=300, env=environment)
     assert completed.returncode == 0, completed.stderr
     assert "ratio a/b:" in completed.stdout
@@ -478,8 +485,9 @@ def test_weeks_and_months_match_the_direct_ranking(
 def test_integer_and_text_partitions(tmp_path: Path) -> None:
     source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
     with duckdb.connect(str(source)) as con:
-        con.execute("CREATE TABLE t AS SELECT i % 12 AS batch, chr(CAST(65 + i % 3 AS INTEGER)) AS bench, "
-                    "i % 5 AS a, CASE WHEN i % 4 = 0 THEN 'late' ELSE 'ok' END AS y "
+        con.execute("CREATE TABLE t AS SELECT i % 12 AS batch, "
+                    "chr(CAST(65 + i % 3 AS INTEGER)) AS bench, i % 5 AS a, "
+                    "CASE WHEN i % 4 = 0 THEN 'late' ELSE 'ok' END AS y "
                     "FROM range(600) r(i)")
     numbered = build_counts(str(source), table="t", target="y", partition="batch",
                             grain="value", into=str(dest), exclude="bench")
