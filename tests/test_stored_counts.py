@@ -13,6 +13,7 @@ import json
 import os
 import subprocess
 import sys
+import threading
 from pathlib import Path
 from typing import Any
 
@@ -502,3 +503,37 @@ def test_integer_and_text_partitions(tmp_path: Path) -> None:
     assert lettered.partitions == ["A", "B", "C"]
     one = rank_counts(str(dest), counts_table="by_bench", since="B", until="C")
     assert isinstance(one, Ranking) and one.rows == 200
+
+
+@pytest.mark.parametrize("engine", ("postgres", "mariadb"))
+def test_concurrent_runs_into_a_server_destination_take_turns(
+        engine: str, request: pytest.FixtureRequest) -> None:
+    """Four runs at once into one PostgreSQL/MariaDB counts table: the writer lock makes them
+    take turns, and each replaces the partitions it carries, so no row is doubled."""
+    data = dated_dataset(rows=400)
+    with loaded(engine, data, request) as where:
+        table = f"{where.schema}.bitsift_counts"
+        errors: list[BaseException] = []
+
+        def one_run() -> None:
+            try:
+                build_counts(where.source, table=where.table, target="y", partition="sown",
+                             into=where.url, counts_table=table, attributes="word,noise")
+            except BaseException as error:  # noqa: BLE001 - reported below
+                errors.append(error)
+
+        runs = [threading.Thread(target=one_run) for _ in range(4)]
+        for run in runs:
+            run.start()
+        for run in runs:
+            run.join(timeout=120)
+        assert errors == []
+        dialect = QUOTING_DIALECT[engine]
+        quoted_table = ".".join(exp.to_identifier(p, quoted=True).sql(dialect)
+                                for p in table.split("."))
+        partition = exp.to_identifier("partition", quoted=True).sql(dialect)
+        totals = _execute(where, [f"SELECT {partition} AS p, SUM(n) AS n FROM {quoted_table} "
+                                  "WHERE attribute_index = 0 GROUP BY 1 ORDER BY 1"])
+        days = data.column("sown")
+        assert [(str(r["p"]), int(r["n"])) for r in totals] == [
+            (_day(i), sum(1 for d in days if d == _day(i))) for i in range(DAYS)]
