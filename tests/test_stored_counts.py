@@ -537,3 +537,22 @@ def test_concurrent_runs_into_a_server_destination_take_turns(
         days = data.column("sown")
         assert [(str(r["p"]), int(r["n"])) for r in totals] == [
             (_day(i), sum(1 for d in days if d == _day(i))) for i in range(DAYS)]
+
+
+def test_the_same_options_spelled_otherwise_are_the_same_counts(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    _trays(source, _tray_rows("2026-03-01", 40))
+    build_counts(str(source), table="trays", target="outcome", partition="day", into=str(dest),
+                 exclude="zoné", binning_for="feuchte ☂=equal-width:3")
+    _trays(source, _tray_rows("2026-03-02", 30))
+    again = build_counts(str(source), table="trays", target="outcome", partition="DAY",
+                         into=str(dest), exclude=["zoné"],
+                         binning_for=["feuchte ☂=equal-width:3"])
+    assert again.partitions == ["2026-03-02"]
+    assert _meta(dest).cuts["feuchte ☂"] == pytest.approx([4.0, 8.0])
+    with duckdb.connect(str(source)) as con:
+        con.execute("ALTER TABLE trays DROP COLUMN zone")
+    with pytest.raises(BitsiftError, match="no longer has: zone; rebuild"):
+        build_counts(str(source), table="trays", target="outcome", partition="day",
+                     into=str(dest), exclude="zoné",
+                     binning_for="feuchte ☂=equal-width:3")

@@ -60,11 +60,12 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
         raise SpecError("--refit recounts every partition: leave out --recount-from")
     store = open_counts_store(Destination(into, counts_table))
     stored, newest = (None, None) if refit else store.state()
-    requested = {k: _plain(options.get(k)) for k in COUNTED_OPTIONS}
     with session_for(source, table) as session:
         mark = session.mark()
         spec, partitioning, rank_options = _resolved(session, target, partition, grain,
                                                      options)
+        # From the checked options: a comma string and a list of the same names agree.
+        requested = {k: _plain(getattr(rank_options, k)) for k in COUNTED_OPTIONS}
         column = partitioning.column
         asked = CountsMeta(source=session.display, target=spec.target, partition=column,
                            grain=grain, partition_kind=partitioning.kind, attributes=(),
@@ -76,9 +77,8 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
                     f"counts table {counts_table} in {store.destination.display} was built "
                     f"otherwise ({mismatch}): ask for the same counts, or rebuild them with "
                     "--refit")
-            kept = [a["name"] for a in stored.attributes]
-            spec = dataclasses.replace(spec, attributes=tuple(
-                a for a in spec.attributes if a.name in kept))
+            spec = _stored_order(spec, stored, f"counts table {counts_table} in "
+                                 f"{store.destination.display}")
             cuts = stored.cuts
         else:
             cuts = fetch_cuts(session.engine, spec)
@@ -176,6 +176,22 @@ def paste_counts(source: Any, *, target: str, partition: str, table: str | None 
     ]
     lines = "\n".join(f"-- {' '.join(h.split())}" for h in header)
     return lines + "\n" + "".join(f"{s};\n\n" for s in statements).rstrip("\n") + "\n"
+
+
+def _stored_order(spec: RankSpec, stored: CountsMeta, where: str) -> RankSpec:
+    """The spec's attributes as the counts store them (same order, same kinds); an attribute
+    stored but no longer in the table, or of another kind now, is an error."""
+    resolved = {a.name: a for a in spec.attributes}
+    missing = [a["name"] for a in stored.attributes if a["name"] not in resolved]
+    if missing:
+        raise CountsConflict(f"{where} holds attribute(s) the table no longer has: "
+                             + ", ".join(missing) + "; rebuild the counts with --refit")
+    changed = [a["name"] for a in stored.attributes if resolved[a["name"]].kind != a["kind"]]
+    if changed:
+        raise CountsConflict(f"{where}: attribute(s) of another kind now (their column type "
+                             "changed): " + ", ".join(changed) + "; rebuild with --refit")
+    return dataclasses.replace(spec, attributes=tuple(resolved[a["name"]]
+                                                      for a in stored.attributes))
 
 
 def _plain(value: Any) -> Any:
