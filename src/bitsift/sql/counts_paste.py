@@ -34,14 +34,40 @@ def _ident(name: str) -> exp.Identifier:
     return exp.to_identifier(name, quoted=True)
 
 
+#: Text type of the counts table and its casts where TEXT would become a LOB that cannot be
+#: grouped or compared as such (SQL Server's VARCHAR(MAX), Oracle's CLOB): values are grouped
+#: as at most VARBINARY(8000) there anyway (see dialects.py).
+_BOUNDED_TEXT = {"tsql": "VARCHAR(4000)", "oracle": "VARCHAR(4000)"}
+
+def _text_type(caps: Capabilities) -> str:
+    return _BOUNDED_TEXT.get(caps.name, _BOUNDED_TEXT.get(caps.sqlglot_dialect, "TEXT"))
+
+
+#: Placeholder the insert wraps around values stored as text, replaced by the dialect's cast
+#: after the statement is generated (the canonical dialect would drop VARCHAR's length).
+_AS_TEXT = "bitsift_as_text"
+
+
 def _text(node: exp.Expression) -> exp.Expression:
-    return exp.cast(node, exp.DataType.build("TEXT"))
+    return exp.Anonymous(this=_AS_TEXT, expressions=[node])
+
+
+def _texts_cast(tree: exp.Expression, caps: Capabilities) -> exp.Expression:
+    to = exp.DataType.build(_text_type(caps), dialect=caps.sqlglot_dialect)
+
+    def cast(node: exp.Expression) -> exp.Expression:
+        if isinstance(node, exp.Anonymous) and node.name.lower() == _AS_TEXT:
+            return exp.Cast(this=node.expressions[0], to=to.copy())
+        return node
+
+    return tree.transform(cast)
 
 
 def create_statement(table: exp.Expression, caps: Capabilities, kind: str) -> str:
     """CREATE TABLE IF NOT EXISTS for the counts table."""
-    types = {"partition": "BIGINT" if kind == "integer" else "TEXT",
-             "attribute_index": "INT", "attribute": "TEXT", "value": "TEXT", "class": "TEXT",
+    text = _text_type(caps)
+    types = {"partition": "BIGINT" if kind == "integer" else text,
+             "attribute_index": "INT", "attribute": text, "value": text, "class": text,
              "n": "BIGINT"}
     definitions = [exp.ColumnDef(this=_ident(c), kind=exp.DataType.build(types[c]))
                    for c in COUNTS_COLUMNS]
@@ -77,11 +103,13 @@ def insert_statement(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequ
         for i in range(1, len(spec.attributes) + 1)])
     rows = exp.select(partition.as_("partition"), column("attr").as_("attribute_index"),
                       names.as_("attribute"), values.as_("value"),
-                      _text(column("y")).as_("class"), column("n").as_("n")).from_("counted")
+                      _text(column("y")).as_("class"), column("n").as_("n")
+                      ).from_("counted")
     rows.set("with_", tree.args["with_"])
     select = finish(rows.sql(CANONICAL), caps, pretty=True)
     assert isinstance(table, exp.Table)
-    insert = exp.insert(select.tree, table.copy(), columns=[_ident(c) for c in COUNTS_COLUMNS])
+    insert = exp.insert(_texts_cast(select.tree, caps), table.copy(),
+                        columns=[_ident(c) for c in COUNTS_COLUMNS])
     return insert.sql(caps.sqlglot_dialect, pretty=True)
 
 
