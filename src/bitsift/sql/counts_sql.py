@@ -104,7 +104,11 @@ def partition_literal(value: str | int, kind: PartitionKind) -> exp.Expression:
 def _partition_expression(partitioning: Partitioning, caps: Capabilities) -> exp.Expression:
     """The partition of a row (the column qualified by ``t``), in ``caps``' dialect."""
     column = exp.column(exp.to_identifier(partitioning.column, quoted=True), table="t")
-    if partitioning.grain == "value":
+    if partitioning.grain == "value" or (partitioning.grain == "day"
+                                         and partitioning.family == "date"
+                                         and caps.sqlglot_dialect != "sqlite"):
+        # A date is its own day: compared as it is, an index or partitioning on it serves.
+        # (SQLite's "dates" are text that may carry a time: DATE() cuts it off.)
         return column
     if partitioning.grain == "day":
         return exp.cast(column, exp.DataType.build("DATE"))
