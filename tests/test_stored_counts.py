@@ -576,3 +576,36 @@ def test_pasted_statements_for_every_dialect(tmp_path: Path) -> None:
             assert problems == [], f"{dialect} statement {number + 1}: {problems}"
         if dialect in ("tsql", "oracle"):  # LOBs there cannot be grouped as such
             assert "MAX)" not in text and "CLOB" not in text, dialect
+
+
+def test_nan_infinities_empty_and_one_row_tables(tmp_path: Path) -> None:
+    source, dest = tmp_path / "src.duckdb", tmp_path / "dest.duckdb"
+    with duckdb.connect(str(source)) as con:
+        con.execute("CREATE TABLE odd AS SELECT DATE '2026-01-01' + CAST(i % 2 AS INTEGER) AS d, "
+                    "CASE WHEN i % 3 = 0 THEN 'nan'::DOUBLE WHEN i % 3 = 1 THEN '-inf'::DOUBLE "
+                    "ELSE i END AS a, CASE WHEN i % 5 = 0 THEN 'inf'::DOUBLE ELSE i END AS x, "
+                    "i % 2 = 0 AS y FROM range(60) r(i)")
+        con.execute("CREATE TABLE empty (d DATE, a VARCHAR, y VARCHAR)")
+        con.execute("CREATE TABLE one AS SELECT DATE '2026-01-01' AS d, 'a' AS a, 'ok' AS y")
+    build_counts(str(source), table="odd", target="y", partition="d", into=str(dest),
+                 categorical="a", bins=3)
+    got = rank_counts(str(dest))
+    assert isinstance(got, Ranking)
+    cuts = _meta(dest).cuts
+    with Session.open(str(source), "odd") as session:
+        spec = session.resolve(RankOptions(target="y", exclude=("d",), categorical=("a",),
+                                           bins=3))
+        want = read_ranking(session.engine.fetch(rank_statement(spec, session.engine.caps,
+                                                                cuts).sql).records(),
+                            spec, cuts, dialect="duckdb")
+    assert_same_ranking(got, want, "non-finite")
+    assert got["a"].distinct == 22  # NaN and -inf are one value each
+    empty = build_counts(str(source), table="empty", target="y", partition="d",
+                         into=str(dest), counts_table="e")
+    assert (empty.partitions, empty.rows) == ([], 0)
+    with pytest.raises(BitsiftError, match="none stored"):
+        rank_counts(str(dest), counts_table="e")
+    build_counts(str(source), table="one", target="y", partition="d", into=str(dest),
+                 counts_table="o")
+    with pytest.raises(BitsiftError, match="single class"):
+        rank_counts(str(dest), counts_table="o")

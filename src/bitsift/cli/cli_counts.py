@@ -59,7 +59,6 @@ def counts_command(ctx: click.Context, /, source: str, **kwargs: Any) -> None:
             raise click.UsageError(f"--{name} applies when ranking: use it with "
                                    "`bitsift rank DEST --from-counts`")
         kwargs.pop(name)
-    kwargs.pop("timeout", None)
     options = library_options(kwargs)
     report = build_counts(source, **options)
     print_statements("source", report.statements)
