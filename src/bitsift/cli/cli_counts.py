@@ -61,7 +61,7 @@ def counts_command(ctx: click.Context, /, source: str, **kwargs: Any) -> None:
         kwargs.pop(name)
     options = library_options(kwargs)
     report = build_counts(source, **options)
-    print_statements("source", report.statements)
+    print_statements(report.dialect, report.statements)
     print_notes(report.notes)
     added = (f"{len(report.partitions)} partition(s), {report.partitions[0]} to "
              f"{report.partitions[-1]}" if report.partitions else "no new partitions")

@@ -45,6 +45,8 @@ class CountsReport:
     attributes: list[str]
     notes: list[str] = field(default_factory=list)
     statements: list[str] = field(default_factory=list)
+    #: The source's dialect (the statements' language).
+    dialect: str = ""
 
 
 def build_counts(source: Any, *, target: str, partition: str, into: str,
@@ -90,6 +92,7 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
         fetched = session.engine.fetch(statement.sql)
         statements = session.statements_since(mark)
         notes = list(session.notes)
+        dialect = session.engine.caps.name
     rows, partitions = _rows(fetched.columns, fetched.rows, spec, partitioning.kind)
     if stored is None:
         spec, rows, dropped = _capped(spec, rows, rank_options.thresholds.high_cardinality)
@@ -105,7 +108,7 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
                                 recount_from=start, refit=refit))
     return CountsReport(destination=store.destination.display, partitions=partitions,
                         rows=written, attributes=[a.name for a in spec.attributes],
-                        notes=notes, statements=statements)
+                        notes=notes, statements=statements, dialect=dialect)
 
 
 def _resolved(session: Session, target: str, partition: str, grain: str,
