@@ -609,3 +609,24 @@ def test_nan_infinities_empty_and_one_row_tables(tmp_path: Path) -> None:
                  counts_table="o")
     with pytest.raises(BitsiftError, match="single class"):
         rank_counts(str(dest), counts_table="o")
+
+
+@pytest.mark.parametrize("engine", ("duckdb", "postgres"))
+def test_refit_may_change_the_partition_kind(engine: str, tmp_path: Path,
+                                             request: pytest.FixtureRequest) -> None:
+    data = dated_dataset(rows=200)
+    numbered = Dataset(columns=(*data.columns, ("batch", "integer")),
+                       rows=[(*row, i % 4) for i, row in enumerate(data.rows)])
+    with loaded(engine, numbered, request, duckdb_file=True) as where:
+        dest, table = _destination(engine, where, tmp_path)
+        build_counts(where.source, table=where.table, target="y", partition="sown",
+                     into=dest, counts_table=table, exclude="batch")
+        with pytest.raises(BitsiftError, match="--refit"):
+            build_counts(where.source, table=where.table, target="y", partition="batch",
+                         grain="value", into=dest, counts_table=table, exclude="sown")
+        rebuilt = build_counts(where.source, table=where.table, target="y",
+                               partition="batch", grain="value", into=dest,
+                               counts_table=table, exclude="sown", refit=True)
+        assert rebuilt.partitions == [0, 1, 2, 3]
+        got = rank_counts(dest, counts_table=table, since=1, until=3)
+        assert isinstance(got, Ranking) and got.rows + got.rows_excluded == 100

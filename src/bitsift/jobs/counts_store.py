@@ -143,11 +143,13 @@ class DuckDBCounts(CountsStore):
         partition = exp.column(_ident("partition"))
         try:
             con.begin()
+            if write.refit:  # the partition column's type may change with the rebuild
+                for table in (self.table, self._meta_table()):
+                    con.execute(exp.Drop(tables=[table.copy()], kind="TABLE", exists=True
+                                         ).sql("duckdb"))
             self._create(con, write.meta.partition_kind)
             stored, _ = self._read(con)
             _check_meta(stored, write, self.where)
-            if write.refit:
-                con.execute(exp.delete(self.table.copy()).sql("duckdb"))
             if write.recount_from is not None:
                 later = partition.copy() >= exp.Placeholder()
                 con.execute(exp.delete(self.table.copy(), where=later).sql("duckdb"),
@@ -237,11 +239,11 @@ class SqlAlchemyCounts(CountsStore):
     def write(self, write: Write) -> int:
         counts, meta = self._tables(write.meta.partition_kind)
         with self._store._connection(write=True) as connection:
+            if write.refit:  # the partition column's type may change with the rebuild
+                counts.metadata.drop_all(connection, checkfirst=True)
             counts.metadata.create_all(connection, checkfirst=True)
             stored, _ = self._read(connection, write.meta.partition_kind)
             _check_meta(stored, write, self.where)
-            if write.refit:
-                connection.execute(sa.delete(counts))
             if write.recount_from is not None:
                 connection.execute(sa.delete(counts).where(
                     counts.c.partition >= write.recount_from))
