@@ -29,6 +29,9 @@ OWN_STATEMENTS = {
     "jobs/history.py": "the history store's own tables, written (the SQL layer sends one SELECT)",
     "jobs/history_duckdb.py": "the history store's own tables in a DuckDB file, written and read",
     "spec/predicate.py": "re-quotes the column names of the user's --where it parses",
+    "sql/counts_sql.py": "the SQL layer itself (stored counts)",
+    "sql/counts_paste.py": "the SQL layer itself (stored counts, pasted)",
+    "jobs/counts_store.py": "the counts store's own tables in a DuckDB file, written and read",
 }
 
 

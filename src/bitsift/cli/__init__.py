@@ -10,6 +10,13 @@ from typing import Any, NoReturn
 import click
 
 from bitsift.cli import signals
+from bitsift.cli.cli_counts import (
+    counts_command,
+    counts_paste_text,
+    counts_ranking,
+    counts_sql_options,
+    from_counts_options,
+)
 from bitsift.cli.cli_jobs import JOB_COMMANDS
 from bitsift.cli.cli_options import (
     CliState,
@@ -51,14 +58,21 @@ def cli(ctx: click.Context, debug: bool) -> None:
 
 @cli.command("rank")
 @click.argument("source")
+@from_counts_options
 @rank_options
 @segment_options
 @engine_option
 @click.option("--format", "-f", "fmt", type=click.Choice(FORMATS), default="table",
               show_default=True)
-def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> None:
-    """Rank the attributes of SOURCE by what they tell about --target."""
-    ranking = api.rank(engine_source(source, engine), **library_options(kwargs))
+@click.pass_context
+def rank_command(ctx: click.Context, /, source: str, fmt: str, engine: str | None,
+                 **kwargs: Any) -> None:
+    """Rank the attributes of SOURCE by what they tell about --target.
+
+    With --from-counts, SOURCE holds stored counts (`bitsift counts`): a window is ranked.
+    """
+    ranking = counts_ranking(ctx, source, kwargs) or api.rank(engine_source(source, engine),
+                                                              **library_options(kwargs))
     print_statements(ranking.dialect, ranking.statements)
     print_notes(ranking.notes)
     # color=True: written as is. Click would otherwise strip what looks like a colour code from
@@ -68,15 +82,23 @@ def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> No
 
 @cli.command("sql")
 @click.argument("source", required=False)
+@counts_sql_options
 @rank_options
 @segment_options
 @click.option("--dialect", "-d", type=click.Choice(sorted(CAPABILITIES), case_sensitive=False),
               help="SQL dialect to write (default: the SOURCE's, or duckdb).")
-def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
+@click.pass_context
+def sql_command(ctx: click.Context, /, source: str | None, dialect: str | None,
+                **kwargs: Any) -> None:
     """Print the self-contained ranking statement, formatted for pasting into a console.
 
-    Without SOURCE, describe the columns with --table, --attributes and --numeric.
+    Without SOURCE, describe the columns with --table, --attributes and --numeric. With
+    --counts: the statements that keep stored counts inside the warehouse.
     """
+    pasted = counts_paste_text(ctx, source, dialect, kwargs)
+    if pasted is not None:
+        click.echo(pasted, nl=False)
+        return
     options = library_options(kwargs)
     # The statement is printed, not run: --timeout is only checked.
     timeout_seconds(options.pop("timeout", None))
@@ -186,6 +208,7 @@ def _mask_chain(error: BaseException) -> None:
         link = link.__cause__ or link.__context__
 
 
-for _command in (*JOB_COMMANDS, report_command, profile_command, *SELECT_COMMANDS):
+for _command in (*JOB_COMMANDS, report_command, profile_command, *SELECT_COMMANDS,
+                 counts_command):
     cli.add_command(_command)
 
