@@ -187,6 +187,23 @@ class DuckDBStore(HistoryStore):
             fetched = self.connection.execute(self._sql(query), [job, *ids]).fetchall()
         return _rows_to_dicts(COLUMN_NAMES, fetched)
 
+    def jobs(self) -> list[str]:
+        if self.existing_columns() is None:
+            return []
+        assert self.connection is not None
+        query = exp.select(_col("job")).distinct().from_(self.table.copy())
+        with _ctrl_c_as_interrupt():
+            fetched = self.connection.execute(self._sql(query)).fetchall()
+        return sorted(str(r[0]) for r in fetched)
+
+    def tables(self) -> list[str]:
+        if self.connection is None:
+            return []
+        query = ("SELECT table_name FROM information_schema.tables "
+                 "WHERE lower(table_schema) = lower(?)")
+        fetched = self.connection.execute(query, [self.table.db or "main"]).fetchall()
+        return sorted(str(r[0]) for r in fetched)
+
     def close(self) -> None:
         if self.connection is not None:
             self.connection.close()
