@@ -37,6 +37,22 @@ FILE_READERS: dict[str, str] = {
 }
 
 
+#: Settings of every DuckDB connection bitsift opens: DuckDB would otherwise download and load
+#: an extension when a statement or file needs one (a SQLite file, an https:// path), sending
+#: requests and running fetched code although bitsift promises to send nothing anywhere.
+#: Parquet, CSV and JSON readers are built in. Also used by the DuckDB history store.
+SAFE_CONFIG: dict[str, str | bool | int | float | list[str]] = {
+    "autoinstall_known_extensions": False,
+    "autoload_known_extensions": False,
+    "allow_community_extensions": False,
+}
+
+
+def connect(database: str, *, read_only: bool = False) -> duckdb.DuckDBPyConnection:
+    """A DuckDB connection with :data:`SAFE_CONFIG` (no extension is fetched or loaded)."""
+    return duckdb.connect(database, read_only=read_only, config=dict(SAFE_CONFIG))
+
+
 def file_reader(path: str) -> str | None:
     """The DuckDB table function that reads ``path`` in place, or None for a database file."""
     suffixes = Path(path).suffixes
@@ -77,11 +93,11 @@ class DuckDBEngine(Engine):
         if file_reader(path) is not None:
             if not any(ch in path for ch in "*?[") and not Path(path).exists():
                 raise SourceError(f"no such file: {path}")
-            return cls(caps=caps, connection=duckdb.connect(":memory:"))
+            return cls(caps=caps, connection=connect(":memory:"))
         if not Path(path).exists():
             raise SourceError(f"no such file: {path}")
         try:
-            connection = duckdb.connect(path, read_only=True)
+            connection = connect(path, read_only=True)
         except duckdb.Error as error:
             message = f"cannot open {path} as a DuckDB database: {first_line(error)}"
             raise SourceError(message) from None

@@ -15,6 +15,7 @@ from sqlglot import exp
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table
 from bitsift.engines.masking import mask_url
+from bitsift.engines.sqlite_support import is_sqlite_file
 from bitsift.errors import SourceError, SpecError
 from bitsift.names import quoted
 
@@ -129,6 +130,12 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
             engine.close()
             raise
         return OpenSource(engine=engine, table=file_table(text), display=text)
+    if is_sqlite_file(text):
+        # DuckDB would open it through its sqlite extension, downloading it (SAFE_CONFIG).
+        from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
+
+        engine = SqlAlchemyEngine.open_sqlite_file(text)
+        return _with_table(engine, table, text)
     engine = DuckDBEngine.open_file(text)
     return _with_table(engine, table, text)
 

@@ -9,6 +9,7 @@ import warnings
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, ClassVar
 
 import sqlalchemy as sa
@@ -153,6 +154,13 @@ class SqlAlchemyEngine(Engine):
                    f"{DRIVER_EXTRAS[backend][1]}://" if backend in DRIVER_EXTRAS else "")
             ) from None
         return cls._from_engine(engine, owned=True, secret=secret)
+
+    @classmethod
+    def open_sqlite_file(cls, path: str) -> SqlAlchemyEngine:
+        """A SQLite database file given as a path (no URL parsing: any character may be in it)."""
+        url = sa.URL.create("sqlite", database=str(Path(path).resolve()))
+        return cls._from_engine(sa.create_engine(url, poolclass=sa.pool.NullPool), owned=True,
+                                secret=())
 
     @classmethod
     def wrap(cls, source: sa.Engine | sa.Connection) -> SqlAlchemyEngine:

@@ -9,6 +9,7 @@ from typing import Any
 import duckdb
 from sqlglot import exp
 
+from bitsift.engines.duckdb_engine import connect
 from bitsift.errors import first_line
 from bitsift.jobs.history import COLUMN_NAMES, COLUMNS, Destination, HistoryError, RunInfo
 from bitsift.jobs.history_store import (
@@ -34,7 +35,7 @@ def _connect_duckdb(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection
 
     def attempt() -> bool:
         try:
-            opened.append(duckdb.connect(str(path), read_only=read_only))
+            opened.append(connect(str(path), read_only=read_only))
         except duckdb.IOException as error:
             if "lock" not in str(error).lower():
                 message = f"cannot open results file {path}: {first_line(error)}"
