@@ -30,7 +30,6 @@ from bitsift.names import one_line
 from bitsift.output.formatting import FORMATS, render
 from bitsift.output.texttable import aligned
 from bitsift.run import api
-from bitsift.spec.rankspec import timeout_seconds
 from bitsift.sql.dialects import CAPABILITIES
 from bitsift.version import __version__
 
@@ -75,12 +74,11 @@ def rank_command(source: str, fmt: str, engine: str | None, **kwargs: Any) -> No
 def sql_command(source: str | None, dialect: str | None, **kwargs: Any) -> None:
     """Print the self-contained ranking statement, formatted for pasting into a console.
 
-    Without SOURCE, describe the columns with --table, --attributes and --numeric.
+    Without SOURCE, describe the columns with --table, --attributes and --numeric. A data
+    file as SOURCE with --table: the file gives the columns, the statement reads the table.
+    --timeout limits what runs on SOURCE; --limit is refused (every attribute is returned).
     """
     options = library_options(kwargs)
-    # The statement is printed, not run: --timeout is only checked.
-    timeout_seconds(options.pop("timeout", None))
-    options.pop("limit", None)
     click.echo(api.statement(source, dialect=dialect, **options), nl=False)
 
 

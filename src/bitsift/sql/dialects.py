@@ -151,6 +151,9 @@ class Capabilities:
     executed_in_tests: bool = False
     #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
     dates: DateFunctions = DateFunctions()
+    #: A pasted statement may read a data file in place (DuckDB's read_parquet/read_csv_auto/
+    #: read_json_auto); elsewhere ``bitsift sql FILE`` needs ``--table`` naming the table.
+    reads_files: bool = False
 
     @property
     def has_timeout(self) -> bool:
@@ -173,6 +176,7 @@ CAPABILITIES: dict[str, Capabilities] = {
             run_sessions=2,
             timeout_in_client=True,
             executed_in_tests=True,
+            reads_files=True,
         ),
         # No GROUPING SETS, no quantile aggregate; math functions only in builds with
         # SQLITE_ENABLE_MATH_FUNCTIONS (Python's 3.40 has them).
