@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import threading
+import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import ClassVar
@@ -68,10 +69,33 @@ def file_table(path: str) -> exp.Expression:
     return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path)]))
 
 
+#: Modules whose data frames DuckDB scans in place (pandas, Arrow tables and record batches,
+#: Polars), registered on bitsift's own in-memory connection: no rows are copied.
+FRAME_MODULES: tuple[str, ...] = ("pandas", "pyarrow", "polars")
+
+
+def is_frame(source: object) -> bool:
+    """Whether ``source`` is a data frame DuckDB can scan in place."""
+    return type(source).__module__.partition(".")[0] in FRAME_MODULES
+
+
+def _frame_columns(frame: object) -> list[object]:
+    """A frame's own column names: Arrow's ``column_names``/``schema.names``, else ``columns``."""
+    for attribute in ("column_names", "columns"):
+        names = getattr(frame, attribute, None)
+        if names is not None and not callable(names):
+            return list(names)
+    schema = getattr(frame, "schema", None)
+    return list(getattr(schema, "names", []) or [])
+
+
 @dataclass
 class DuckDBEngine(Engine):
     connection: duckdb.DuckDBPyConnection | None = None
     timeout: float | None = field(default=None)
+    #: Data frames registered by name on this session (:meth:`open_frame`); a sibling session
+    #: registers them again, since a registration is visible to its own connection only.
+    frames: dict[str, object] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         super().__post_init__()
@@ -84,7 +108,35 @@ class DuckDBEngine(Engine):
 
     def _new_session(self) -> DuckDBEngine:
         # cursor(): a new connection to the same database instance, read-only if it is.
-        return DuckDBEngine(caps=self.caps, connection=self.con.cursor(), owned=True)
+        sibling = DuckDBEngine(caps=self.caps, connection=self.con.cursor(), owned=True,
+                               frames=dict(self.frames))
+        for name, frame in self.frames.items():
+            sibling.con.register(name, frame)
+        return sibling
+
+    @classmethod
+    def open_frame(cls, frame: object) -> tuple[DuckDBEngine, exp.Table]:
+        """A pandas/Arrow/Polars data frame, scanned in place by an in-memory session (DuckDB's
+        ``register``: a view over the caller's memory, no copy), and the view's name."""
+        name = f"bitsift_frame_{uuid.uuid4().hex}"
+        connection = connect(":memory:")
+        try:
+            connection.register(name, frame)
+        except (duckdb.Error, TypeError, ValueError) as error:
+            connection.close()
+            raise SourceError(f"cannot read the {type(frame).__name__}: {first_line(error)}"
+                              ) from None
+        view = exp.Table(this=exp.to_identifier(name, quoted=True))
+        read = connection.sql(exp.select(exp.Star()).from_(view).limit(0).sql("duckdb")).columns
+        own = [str(c) for c in _frame_columns(frame)]
+        if own and own != read:
+            connection.close()
+            renamed = [f"{o!r} (read as {r!r})" for o, r in zip(own, read, strict=False) if o != r]
+            raise SourceError(f"the {type(frame).__name__}'s column names collide apart from "
+                              f"case or repeat: {', '.join(renamed)}; rename them (bitsift will "
+                              "not guess which one a name means)")
+        engine = cls(caps=capabilities("duckdb"), connection=connection, frames={name: frame})
+        return engine, view
 
     @classmethod
     def open_file(cls, path: str) -> DuckDBEngine:

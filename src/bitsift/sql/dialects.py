@@ -98,6 +98,10 @@ class Capabilities:
     name: str
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
+    #: The count strategy of the pasted statement (``bitsift sql``, job models), where it
+    #: must also compute its cut points in a ``bounds`` CTE; ``None``: :attr:`count_strategy`.
+    #: Measured in benchmarks/RESULTS.md ("Paste mode").
+    paste_count_strategy: CountStrategy | None = None
     quantile: QuantileMethod = "window"
     #: Run mode only: how quantile cut points are found before the ranking statement.
     #: ``statement``: the bounds pre-pass with :attr:`quantile`. ``buckets``: the same exact
@@ -154,6 +158,13 @@ class Capabilities:
     #: A pasted statement may read a data file in place (DuckDB's read_parquet/read_csv_auto/
     #: read_json_auto); elsewhere ``bitsift sql FILE`` needs ``--table`` naming the table.
     reads_files: bool = False
+
+    @property
+    def for_paste(self) -> Capabilities:
+        """These capabilities with the pasted statement's count strategy."""
+        if self.paste_count_strategy is None:
+            return self
+        return replace(self, count_strategy=self.paste_count_strategy, paste_count_strategy=None)
 
     @property
     def has_timeout(self) -> bool:
