@@ -107,7 +107,9 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
         verdict = "agree" if report.ok else "DISAGREE"
         click.echo(f"result: database and reference {verdict} (tolerance {report.tolerance:g})")
     else:
-        click.echo("result: sample only, differences are informative (no exact comparison)")
+        total = report.ranking.rows + report.ranking.rows_excluded
+        click.echo("result: sample only: the differences are the sample's, informative (no exact"
+                   f" comparison); --sample-rows {total} compares the whole table")
     if not report.ok:
         sys.exit(1)
 

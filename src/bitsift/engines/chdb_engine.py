@@ -26,6 +26,7 @@ from bitsift.errors import (
     SpecError,
     TableNotFoundError,
     first_line,
+    install_extra,
     unknown_names_message,
 )
 from bitsift.spec.schema import Column, Family, family_of
@@ -45,7 +46,7 @@ def import_chdb() -> Any:
         import chdb.session
     except ImportError:
         raise MissingDriverError(
-            "the ClickHouse engine needs chdb: pip install 'bitsift[clickhouse]'"
+            f"the ClickHouse engine needs chdb: {install_extra('clickhouse')}"
         ) from None
     return chdb.session
 

@@ -40,6 +40,7 @@ from bitsift.errors import (
     SpecError,
     TableNotFoundError,
     first_line,
+    install_extra,
     unknown_names_message,
 )
 from bitsift.spec.schema import Column, Family, family_by_class
@@ -72,7 +73,7 @@ def import_pyspark() -> Any:
             import pyspark.sql
     except ImportError:
         raise MissingDriverError(
-            "the Spark engine needs pyspark: pip install 'bitsift[spark]' (and Java 17+)"
+            f"the Spark engine needs pyspark: {install_extra('spark')} (and Java 17+)"
         ) from None
     return pyspark.sql
 

@@ -33,6 +33,7 @@ from bitsift.errors import (
     SourceError,
     TableNotFoundError,
     first_line,
+    install_extra,
     suggest,
 )
 from bitsift.names import resolve_name
@@ -71,7 +72,7 @@ def missing_driver_message(drivername: str, backend: str, error: BaseException) 
     line = f"no driver for {drivername}:// (module {module!r} is not installed)"
     if backend in DRIVER_EXTRAS:
         extra, scheme = DRIVER_EXTRAS[backend]
-        line += f"; pip install 'bitsift[{extra}]' and use {scheme}://"
+        line += f"; {install_extra(extra)} and use {scheme}://"
     return line
 
 
@@ -150,7 +151,7 @@ class SqlAlchemyEngine(Engine):
         except sa.exc.NoSuchModuleError:
             raise MissingDriverError(
                 f"SQLAlchemy has no dialect {parsed.drivername!r} installed"
-                + (f"; pip install 'bitsift[{DRIVER_EXTRAS[backend][0]}]' and use "
+                + (f"; {install_extra(DRIVER_EXTRAS[backend][0])} and use "
                    f"{DRIVER_EXTRAS[backend][1]}://" if backend in DRIVER_EXTRAS else "")
             ) from None
         return cls._from_engine(engine, owned=True, secret=secret)

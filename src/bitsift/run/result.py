@@ -8,6 +8,7 @@ from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from bitsift.errors import install_extra
 from bitsift.numformat import format_bits, format_p_value
 
 #: Keys of one attribute in the JSON contract, in order.
@@ -117,7 +118,7 @@ class Ranking:
         try:
             import pandas as pd
         except ImportError as error:  # pragma: no cover - depends on the environment
-            raise ImportError("to_pandas() needs pandas: pip install 'bitsift[pandas]'") from error
+            raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
         return pd.DataFrame([a.to_dict() for a in self.attributes], columns=list(ATTRIBUTE_KEYS))
 
     def __getitem__(self, name: str) -> AttributeScore:
@@ -261,7 +262,7 @@ class SegmentedRanking:
         try:
             import pandas as pd
         except ImportError as error:  # pragma: no cover - depends on the environment
-            raise ImportError("to_pandas() needs pandas: pip install 'bitsift[pandas]'") from error
+            raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
         heads = segment_columns(self.by)
         rows = [[*((r.segment or {}).get(b) for b in self.by),
                  *(a.to_dict()[k] for k in ATTRIBUTE_KEYS)]
