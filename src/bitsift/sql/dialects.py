@@ -37,6 +37,11 @@ SQLite 3.40.1          (not available)  9.5 s            37.7 s
   at 5M rows; per-attribute statements were faster still, but need several statements).
 - Not executed here: every dialect with GROUPING SETS uses them (one scan); sqlglot cannot
   emit them for the others.
+- Pasted statements that compute their own cut points (a ``bounds`` CTE joined into
+  ``base``) use ``paste_count_strategy`` where it is set: MariaDB ``cross_join`` (``base`` is
+  evaluated once per reference there, so ``union_all`` recomputed every quantile per
+  attribute: 172 s against 33 s), PostgreSQL ``union_all`` (at a console's default work_mem:
+  5.6 s against 13.2 s for GROUPING SETS). benchmarks/RESULTS.md, "Paste mode".
 
 Text grouping: MySQL/MariaDB compare text under the column's collation; their defaults are
 case-insensitive and PAD SPACE, so ``GROUP BY`` would merge 'a' with 'A' and 'x' with 'x '.
@@ -98,9 +103,11 @@ class Capabilities:
     name: str
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
-    #: The count strategy of the pasted statement (``bitsift sql``, job models), where it
-    #: must also compute its cut points in a ``bounds`` CTE; ``None``: :attr:`count_strategy`.
-    #: Measured in benchmarks/RESULTS.md ("Paste mode").
+    #: The count strategy of a pasted statement (``bitsift sql``, job models) that computes
+    #: its own cut points: ``base`` then joins the ``bounds`` CTE, and an engine that evaluates
+    #: ``base`` once per reference (``union_all`` reads it once per attribute) recomputes
+    #: every quantile each time. ``None``: :attr:`count_strategy`. Measured in
+    #: benchmarks/RESULTS.md ("Paste mode"; benchmarks/paste_strategies.py).
     paste_count_strategy: CountStrategy | None = None
     quantile: QuantileMethod = "window"
     #: Run mode only: how quantile cut points are found before the ranking statement.
@@ -210,6 +217,11 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="postgres",
             sqlglot_dialect="postgres",
             quantile="percentile_cont",
+            # Pasted with its own cut points (and the console's default work_mem): 500k rows x
+            # 3 categorical + 4 numeric took 13.2 s with GROUPING SETS, 5.6 s with UNION ALL,
+            # 4.8 s in run mode; without cut points GROUPING SETS stays ahead, 0.4 s against
+            # 1.1 s (benchmarks/paste_strategies.py, RESULTS.md).
+            paste_count_strategy="union_all",
             run_quantile="counted",
             run_sessions=2,
             # The planner estimates a binned column's groups from the raw column's distinct
@@ -243,6 +255,10 @@ CAPABILITIES: dict[str, Capabilities] = {
             name="mariadb",
             sqlglot_dialect="mysql",
             count_strategy="union_all",
+            # Pasted with its own cut points, union_all recomputed the window quantiles once
+            # per attribute: 200k rows x 3 categorical + 4 numeric took 172 s, 33 s with the
+            # cross join, 6 s in run mode (benchmarks/paste_strategies.py, RESULTS.md).
+            paste_count_strategy="cross_join",
             # Bucket cut points: 500k rows x 4 numeric + 3 categorical took 3.8 s against 14.5 s
             # with the window quantile; counted from cells, 200k rows: 4.24 s against 4.35 s
             # for bucket cut points, and no row binned (benchmarks/quantile_methods.py).
