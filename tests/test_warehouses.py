@@ -21,6 +21,7 @@ from bitsift.cli import cli
 from bitsift.engines import sqlite_support
 from bitsift.engines.sources import open_source
 from bitsift.errors import MissingDriverError, SourceError, TableNotFoundError
+from bitsift.sql.dialects import capabilities
 
 DATASET = random_dataset(seed=31, rows=1000)
 
@@ -122,7 +123,12 @@ def test_paste_statement_from_a_connection_uses_its_dialect(
                                          dialect="postgres")
     assert "dialect mariadb" in sql and "CAST(`word` AS BINARY)" not in sql
     assert "CAST(src.`word` AS BINARY)" in sql  # text is grouped byte-exactly
-    assert "GROUPING SETS" not in sql and "GROUPING SETS" in postgres_sql
+    assert "GROUPING SETS" not in sql
+    # Written for PostgreSQL: its quoting, no BINARY casts, its pasted count strategy.
+    assert "dialect postgres" in postgres_sql and 'src."word"' in postgres_sql
+    assert "`" not in postgres_sql.split("\n", 2)[2] and "BINARY" not in postgres_sql
+    paste_strategy = capabilities("postgres").for_paste.count_strategy
+    assert ("GROUPING SETS" in postgres_sql) == (paste_strategy == "grouping_sets")
 
 
 # --- drivers ----------------------------------------------------------------------------------
