@@ -124,3 +124,12 @@ def test_segment_columns_of_to_pandas_match_the_csv() -> None:
     plain = bitsift.rank(frame, "wilted", by="shelf")
     assert isinstance(plain, bitsift.SegmentedRanking)
     assert list(plain.to_pandas().columns)[:2] == ["shelf", "attribute"]
+
+
+def test_a_frame_gives_the_columns_of_a_statement_that_reads_a_table() -> None:
+    frame = _trays()
+    with pytest.raises(SpecError, match="^a statement from a data frame needs table naming"):
+        bitsift.statement(frame, "wilted", dialect="postgres")
+    text = bitsift.statement(frame, "wilted", table="greenhouse.trays", dialect="postgres")
+    assert 'FROM "greenhouse"."trays"' in text and "bitsift_frame" not in text
+    assert "-- attributes: soil (categorical), shelf (categorical), light (numeric)" in text

@@ -14,7 +14,7 @@ import sqlglot
 from sqlglot import exp
 
 from bitsift.engines.base import Engine
-from bitsift.engines.duckdb_engine import file_reader
+from bitsift.engines.duckdb_engine import file_reader, is_frame
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import Option, Problem, SpecError
 from bitsift.names import split_names
@@ -162,7 +162,8 @@ def statement(
     ``attributes`` and ``numeric`` describe the columns (``numeric`` columns are binned).
     A data file (Parquet, CSV, JSON) as ``source`` with ``table``: the file gives the columns
     and the statement reads ``table``, e.g. the warehouse table the file was exported from;
-    without ``table`` the statement reads the file, which only DuckDB can.
+    without ``table`` the statement reads the file, which only DuckDB can. A data frame
+    likewise gives the columns, and needs ``table``.
     ``timeout`` applies to the statements run on ``source`` (catalog, MDL cut points); the
     printed statement carries none, and ``limit`` is refused: it returns every attribute.
 
@@ -173,7 +174,14 @@ def statement(
     spec_options = make_options(target, **options)
     _refuse_unprinted(spec_options, has_source=source is not None)
     if source is not None:
-        schema_file = isinstance(source, str | Path) and file_reader(str(source)) is not None
+        frame = is_frame(source)
+        schema_file = frame or (isinstance(source, str | Path)
+                                and file_reader(str(source)) is not None)
+        if frame and not table:
+            # The frame's view exists only in bitsift's own session: nothing to paste it into.
+            raise SpecError(problems=[Problem("table", (
+                "a statement from a data frame needs ", Option("table"), " naming the table "
+                "it should read (the frame then only gives the columns)"))])
         with session_for(source, None if schema_file else table) as session:
             caps = capabilities(dialect) if dialect else session.engine.caps
             if schema_file and not table and not caps.reads_files:
