@@ -70,7 +70,8 @@ def file_table(path: str) -> exp.Expression:
 
 
 #: Modules whose data frames DuckDB scans in place (pandas, Arrow tables and record batches,
-#: Polars), registered on bitsift's own in-memory connection: no rows are copied.
+#: tested; Polars, which DuckDB reads through Arrow, untested here: not installed), registered
+#: on bitsift's own in-memory connection: no rows are copied.
 FRAME_MODULES: tuple[str, ...] = ("pandas", "pyarrow", "polars")
 
 
