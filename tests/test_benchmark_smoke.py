@@ -127,3 +127,21 @@ def test_compare_trees_runs_and_counts_statements(tmp_path: Path) -> None:
     report = json.loads(out.read_text(encoding="utf-8"))
     assert report["statements"]["baseline"] == report["statements"]["candidate"]
     assert len(report["seconds"]["candidate"]) == 1 and report["ratio"] > 0
+
+@pytest.mark.parametrize("engine", ["mariadb", "postgres"])
+def test_paste_strategies_agree(engine: str, request: pytest.FixtureRequest) -> None:
+    # benchmarks/paste_strategies.py: the pasted statement per count strategy, same gains as
+    # run mode (issue 21 item 8).
+    server = request.getfixturevalue(f"{engine}_engine").url.render_as_string(
+        hide_password=False)
+    completed = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "paste_strategies.py"), "--engine", engine,
+         "--rows", "3000", "--repeats", "1", f"--{engine}-url", server],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert completed.returncode == 0, completed.stderr
+    lines = completed.stdout.splitlines()
+    measured = {line.split()[0] for line in lines if "median" in line}
+    assert measured == {"rank", "union_all", "cross_join"} | (
+        {"grouping_sets"} if engine == "postgres" else set())
+    assert float(lines[-1].rsplit(" ", 1)[-1]) <= TOLERANCE

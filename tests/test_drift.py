@@ -10,6 +10,7 @@ import duckdb
 import pytest
 import sqlalchemy as sa
 from click.testing import CliRunner
+from helpers import run_main
 from test_jobs import (
     POSTGRES_URL,
     duckdb_source,
@@ -20,7 +21,7 @@ from test_jobs import (
 )
 
 from bitsift.cli import cli
-from bitsift.errors import SpecError
+from bitsift.errors import BitsiftError, SpecError
 from bitsift.jobs.drift import DriftThresholds, compare, drift
 from bitsift.jobs.job_run import run_job
 from bitsift.jobs.jobfile import load_job
@@ -130,8 +131,9 @@ def test_planted_change_is_drift_and_exits_3(tmp_path: Path) -> None:
     job_file = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))
     job = load_job(job_file)
     runner = CliRunner()
-    one = runner.invoke(cli, ["drift", str(job_file)])
-    assert one.exit_code == 0 and "has 0 runs" in one.output
+    # No run yet: the table does not exist, which is no "no drift" (issue 21 item 5).
+    none = runner.invoke(cli, ["drift", str(job_file)])
+    assert none.exit_code == 1 and "does not exist" in str(none.exception)
     run_job(job, "day1")
     run_job(job, "day2")
     quiet = runner.invoke(cli, ["drift", str(job_file)])
@@ -186,6 +188,59 @@ def test_drift_errors(tmp_path: Path) -> None:
     assert usage.exit_code == 2 and "give a JOB_FILE, or --results and --job" in usage.output
     single = runner.invoke(cli, ["drift", str(job_file)])
     assert single.exit_code == 0 and "has 1 run in history: nothing to compare" in single.output
+
+
+def test_nothing_to_compare_is_an_error_naming_what_exists(
+        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # Issue 21 item 5: a misspelled --job or a missing history table printed "0 runs ... no
+    # drift" and exited 0, so a cron line watching for exit 3 stayed silent forever.
+    duckdb_source(tmp_path / "src.duckdb")
+    job_file = write_job(tmp_path, two_rankings("src.duckdb", "hist.duckdb"))
+    job = load_job(job_file)
+    history = tmp_path / "hist.duckdb"
+    missing_file = run_main(capsys, "drift", str(job_file))
+    assert (missing_file.code, missing_file.out) == (1, "")
+    assert missing_file.err == (
+        f"Error: results table history in {history} does not exist: no run has written to it; "
+        "it has no tables\n")
+    run_job(job, "day1")
+    run_job(job, "day2")
+    results = ("drift", "--results", str(history), "--results-table", "history")
+    misspelled = run_main(capsys, *results, "--job", "nightlly")
+    assert (misspelled.code, misspelled.out) == (1, "")
+    assert misspelled.err == (
+        f"Error: job 'nightlly' has no runs in results table history in {history} "
+        "(did you mean 'nightly'?); jobs there: 'nightly'\n")
+    other_table = run_main(capsys, *results, "--results-table", "histroy", "--job", "nightly")
+    assert other_table.code == 1
+    assert other_table.err == (
+        f"Error: results table histroy in {history} does not exist: no run has written to it; "
+        "tables there: 'history'\n")
+    with pytest.raises(BitsiftError, match="job 'x' has no runs in results table"):
+        drift(job.destination, "x")
+    # --new naming the oldest run: nothing before it, said so (not "nothing to compare yet").
+    oldest = run_main(capsys, "drift", str(job_file), "--new", "day1")
+    assert (oldest.code, oldest.out) == (1, "")
+    assert oldest.err == ("Error: run 'day1' is the oldest run of job 'nightly' in history: "
+                          "there is no earlier run to compare it with\n")
+    assert run_main(capsys, "drift", str(job_file), "--new", "day2").code == 0
+
+
+@pytest.mark.postgres
+def test_missing_table_and_job_on_postgres(tmp_path: Path, postgres_engine: sa.Engine,
+                                           pg_schema: str) -> None:
+    postgres_source(postgres_engine, pg_schema, random_rows())
+    job = load_job(write_job(tmp_path, two_rankings(
+        POSTGRES_URL, POSTGRES_URL, f"{pg_schema}.history", source_table=f"{pg_schema}.t")))
+    with pytest.raises(BitsiftError, match=r"does not exist: no run has written to it; "
+                                           r"tables there: 't'$"):
+        drift(job.destination, "nightly")
+    run_job(job, "day1")
+    with pytest.raises(BitsiftError, match=r"job 'Nightly' has no runs in results table .* "
+                                           r"\(did you mean 'nightly'\?\); jobs there: 'nightly'$"):
+        drift(job.destination, "Nightly")
+    assert drift(job.destination, "nightly").notes == [
+        f"job 'nightly' has 1 run in {pg_schema}.history: nothing to compare yet"]
 
 
 @pytest.mark.postgres

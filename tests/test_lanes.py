@@ -56,3 +56,44 @@ def test_fast_lane_leaves_out_tests_that_need_a_server_spark_or_clickhouse() -> 
             if wanted == marker:
                 assert test not in fast, f"{test} runs in the fast lane"
                 assert test in marked, f"{test} is not marked {marker}"
+
+
+def _make_target(name: str) -> tuple[str, list[str]]:
+    """A Makefile target's prerequisites and recipe lines."""
+    lines = (ROOT / "Makefile").read_text().splitlines()
+    start = next(i for i, line in enumerate(lines) if line.startswith(f"{name}:"))
+    recipe = []
+    for line in lines[start + 1:]:
+        if not line.startswith("\t"):
+            break
+        recipe.append(line.strip())
+    return lines[start].partition(":")[2], recipe
+
+
+def test_make_test_installs_no_browser_and_ci_does() -> None:
+    # Issue 21 item 11: `make test` as root installed Chromium and ~250 system packages.
+    for target in ("test", "test-fast", "lint"):
+        prerequisites, recipe = _make_target(target)
+        assert "browser" not in prerequisites.split(), target
+        assert not any("apt-get" in line or "make browser" in line for line in recipe), target
+    _, browser = _make_target("browser")
+    assert any("apt-get install" in line and "chromium" in line for line in browser)
+    ci = [line.strip() for line in (ROOT / ".ci" / "run").read_text().splitlines()
+          if line.strip() and not line.lstrip().startswith("#")]
+    assert ci.index("make browser") < ci.index("make test")
+    assert 'export CI="${CI:-true}"' in ci
+
+
+def test_the_browser_test_skips_with_a_reason_locally_and_fails_in_ci(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    import test_report_browser
+
+    monkeypatch.setattr(test_report_browser.shutil, "which", lambda _name: None)
+    monkeypatch.setattr(test_report_browser, "Path", lambda _p: ROOT / "no" / "such" / "file")
+    reason = "headless Chromium not found: install the Debian package 'chromium' (`make browser`"
+    monkeypatch.setattr(test_report_browser, "IN_CI", False)
+    with pytest.raises(pytest.skip.Exception, match=re.escape(reason)):
+        test_report_browser.chromium()
+    monkeypatch.setattr(test_report_browser, "IN_CI", True)
+    with pytest.raises(pytest.fail.Exception, match=re.escape(reason)):
+        test_report_browser.chromium()

@@ -385,12 +385,19 @@ def test_command_table_lists_the_top_pairs(source: str) -> None:
 def test_command_csv_and_json_list_every_pair(source: str) -> None:
     runner = CliRunner()
     csv_out = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "-f", "csv",
-                                  "--by", "symmetric_uncertainty", "--missing", "drop"])
+                                  "--sort-pairs", "symmetric_uncertainty", "--missing", "drop"])
     assert csv_out.exit_code == 0, csv_out.output
     rows = csv_out.output.splitlines()
     assert rows[0].split(",") == list(PAIR_KEYS) and len(rows) == 16
     su = [float(r.split(",")[3]) for r in rows[1:]]
     assert su == sorted(su, reverse=True)
+    # --by was this order's flag; it means segments elsewhere: refused with a hint (issue 21).
+    for value, hint in (("symmetric_uncertainty",
+                         "to order the pairs, use --sort-pairs symmetric_uncertainty"),
+                        ("region", "for one segment, give its condition with --where")):
+        old = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "--by", value])
+        assert old.exit_code == 2
+        assert f"Error: redundancy takes no --by (segments); {hint}\n" in old.output
     json_out = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "-f", "json",
                                    "--missing", "drop"])
     document = json.loads(json_out.output)

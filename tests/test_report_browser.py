@@ -1,7 +1,8 @@
 """The demo report opened in headless Chromium: one bar per attribute, the numbers of the JSON.
 
-Needs the Debian package ``chromium`` (``make test`` installs it when run as root). Without it
-the test skips with a message, except in CI (CI=true), where it fails.
+Needs the Debian package ``chromium`` (``make browser`` installs it when run as root; CI's
+``.ci/run`` does, ``make test`` never does). Without it the test skips with a message, except in
+CI (CI=true), where it fails.
 """
 
 from __future__ import annotations
@@ -36,7 +37,7 @@ def chromium() -> str:
         found = "/usr/bin/chromium"
     if found is None:
         message = ("headless Chromium not found: install the Debian package 'chromium' "
-                   "(`make test` does so when run as root) to run the browser test")
+                   "(`make browser` does so when run as root) to run the browser test")
         if IN_CI:
             pytest.fail(message)
         pytest.skip(message)

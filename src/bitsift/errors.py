@@ -203,6 +203,16 @@ def suggest(name: str, candidates: Iterable[str]) -> str:
     return f" (did you mean {matches[0]!r}?)"
 
 
+def install_extra(extra: str) -> str:
+    """How to install one of bitsift's extras: the same advice in every message and the README
+    (bitsift is installed from its checkout, not from a public package index).
+
+    >>> install_extra("postgres")
+    "install the extra in the bitsift checkout: .venv/bin/pip install -e '.[postgres]'"
+    """
+    return f"install the extra in the bitsift checkout: .venv/bin/pip install -e '.[{extra}]'"
+
+
 def unknown_names_message(what: str, names: Iterable[str], candidates: Iterable[str]) -> str:
     """Build one line naming every unknown name with a suggestion for each."""
     pool = list(candidates)

@@ -188,102 +188,44 @@ WITH ordered_4 AS (
     END AS a5
   FROM `bitsift_golden` AS src
   CROSS JOIN bounds
+), attribute_index AS (
+  SELECT
+    0 AS i
+  UNION ALL
+  SELECT
+    1 AS i
+  UNION ALL
+  SELECT
+    2 AS i
+  UNION ALL
+  SELECT
+    3 AS i
+  UNION ALL
+  SELECT
+    4 AS i
+  UNION ALL
+  SELECT
+    5 AS i
 ), counts AS (
   SELECT
-    0 AS attr,
-    a1,
-    a2,
-    a3,
-    a4,
-    a5,
-    y,
-    0 AS n
-  FROM base
-  WHERE
-    1 = 0
-  UNION ALL
-  SELECT
-    0 AS attr,
-    NULL AS a1,
-    NULL AS a2,
-    NULL AS a3,
-    NULL AS a4,
-    NULL AS a5,
-    y,
+    k.i AS attr,
+    CASE WHEN k.i = 1 THEN b.a1 END AS a1,
+    CASE WHEN k.i = 2 THEN b.a2 END AS a2,
+    CASE WHEN k.i = 3 THEN b.a3 END AS a3,
+    CASE WHEN k.i = 4 THEN b.a4 END AS a4,
+    CASE WHEN k.i = 5 THEN b.a5 END AS a5,
+    b.y AS y,
     COUNT(*) AS n
-  FROM base
+  FROM base AS b
+  CROSS JOIN attribute_index AS k
   GROUP BY
-    y
-  UNION ALL
-  SELECT
-    1 AS attr,
-    a1 AS a1,
-    NULL AS a2,
-    NULL AS a3,
-    NULL AS a4,
-    NULL AS a5,
-    y,
-    COUNT(*) AS n
-  FROM base
-  GROUP BY
-    a1,
-    y
-  UNION ALL
-  SELECT
-    2 AS attr,
-    NULL AS a1,
-    a2 AS a2,
-    NULL AS a3,
-    NULL AS a4,
-    NULL AS a5,
-    y,
-    COUNT(*) AS n
-  FROM base
-  GROUP BY
-    a2,
-    y
-  UNION ALL
-  SELECT
-    3 AS attr,
-    NULL AS a1,
-    NULL AS a2,
-    a3 AS a3,
-    NULL AS a4,
-    NULL AS a5,
-    y,
-    COUNT(*) AS n
-  FROM base
-  GROUP BY
-    a3,
-    y
-  UNION ALL
-  SELECT
-    4 AS attr,
-    NULL AS a1,
-    NULL AS a2,
-    NULL AS a3,
-    a4 AS a4,
-    NULL AS a5,
-    y,
-    COUNT(*) AS n
-  FROM base
-  GROUP BY
-    a4,
-    y
-  UNION ALL
-  SELECT
-    5 AS attr,
-    NULL AS a1,
-    NULL AS a2,
-    NULL AS a3,
-    NULL AS a4,
-    a5 AS a5,
-    y,
-    COUNT(*) AS n
-  FROM base
-  GROUP BY
-    a5,
-    y
+    k.i,
+    CASE WHEN k.i = 1 THEN b.a1 END,
+    CASE WHEN k.i = 2 THEN b.a2 END,
+    CASE WHEN k.i = 3 THEN b.a3 END,
+    CASE WHEN k.i = 4 THEN b.a4 END,
+    CASE WHEN k.i = 5 THEN b.a5 END,
+    b.y
 ), cells AS (
   SELECT
     attr,

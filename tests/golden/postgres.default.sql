@@ -69,38 +69,100 @@ WITH bound_aggregates AS (
   CROSS JOIN bounds
 ), counts AS (
   SELECT
-    CASE
-      WHEN GROUPING(a1) = 0
-      THEN 1
-      WHEN GROUPING(a2) = 0
-      THEN 2
-      WHEN GROUPING(a3) = 0
-      THEN 3
-      WHEN GROUPING(a4) = 0
-      THEN 4
-      WHEN GROUPING(a5) = 0
-      THEN 5
-      ELSE 0
-    END AS attr,
+    0 AS attr,
     a1,
     a2,
     a3,
     a4,
     a5,
     y,
+    0 AS n
+  FROM base
+  WHERE
+    1 = 0
+  UNION ALL
+  SELECT
+    0 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
     COUNT(*) AS n
   FROM base
   GROUP BY
-    GROUPING SETS (
-      (
-        y
-      ),
-      (a1, y),
-      (a2, y),
-      (a3, y),
-      (a4, y),
-      (a5, y)
-    )
+    y
+  UNION ALL
+  SELECT
+    1 AS attr,
+    a1 AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    a1,
+    y
+  UNION ALL
+  SELECT
+    2 AS attr,
+    NULL AS a1,
+    a2 AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    a2,
+    y
+  UNION ALL
+  SELECT
+    3 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    a3 AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    a3,
+    y
+  UNION ALL
+  SELECT
+    4 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    a4 AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    a4,
+    y
+  UNION ALL
+  SELECT
+    5 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    a5 AS a5,
+    y,
+    COUNT(*) AS n
+  FROM base
+  GROUP BY
+    a5,
+    y
 ), cells AS (
   SELECT
     attr,

@@ -37,7 +37,6 @@ from bitsift.names import one_line
 from bitsift.output.formatting import FORMATS, render
 from bitsift.output.texttable import aligned
 from bitsift.run import api
-from bitsift.spec.rankspec import timeout_seconds
 from bitsift.sql.dialects import CAPABILITIES
 from bitsift.version import __version__
 
@@ -92,17 +91,16 @@ def sql_command(ctx: click.Context, /, source: str | None, dialect: str | None,
                 **kwargs: Any) -> None:
     """Print the self-contained ranking statement, formatted for pasting into a console.
 
-    Without SOURCE, describe the columns with --table, --attributes and --numeric. With
-    --counts: the statements that keep stored counts inside the warehouse.
+    Without SOURCE, describe the columns with --table, --attributes and --numeric. A data
+    file as SOURCE with --table: the file gives the columns, the statement reads the table.
+    --timeout limits what runs on SOURCE; --limit is refused (every attribute is returned).
+    With --counts: the statements that keep stored counts inside the warehouse.
     """
     pasted = counts_paste_text(ctx, source, dialect, kwargs)
     if pasted is not None:
         click.echo(pasted, nl=False)
         return
     options = library_options(kwargs)
-    # The statement is printed, not run: --timeout is only checked.
-    timeout_seconds(options.pop("timeout", None))
-    options.pop("limit", None)
     click.echo(api.statement(source, dialect=dialect, **options), nl=False)
 
 
@@ -131,7 +129,9 @@ def check_command(source: str, sample_rows: int, engine: str | None, **kwargs: A
         verdict = "agree" if report.ok else "DISAGREE"
         click.echo(f"result: database and reference {verdict} (tolerance {report.tolerance:g})")
     else:
-        click.echo("result: sample only, differences are informative (no exact comparison)")
+        total = report.ranking.rows + report.ranking.rows_excluded
+        click.echo("result: sample only: the differences are the sample's, informative (no exact"
+                   f" comparison); --sample-rows {total} compares the whole table")
     if not report.ok:
         sys.exit(1)
 

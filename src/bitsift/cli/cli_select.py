@@ -101,16 +101,23 @@ def selection_table(selection: Selection) -> str:
 @_format_option
 @click.option("--top", type=click.IntRange(min=0), default=20, show_default=True,
               help="Pairs shown in the table (0: all); csv and json list every pair.")
-@click.option("--by", type=click.Choice(PAIR_METRICS), default="mutual_information",
-              show_default=True, help="Order the pairs by this metric (descending).")
+@click.option("--sort-pairs", "by", type=click.Choice(PAIR_METRICS),
+              default="mutual_information", show_default=True,
+              help="Order the pairs by this metric (descending).")
+# Was the pair order's flag until issue 21; elsewhere --by means segments. Refused, with a hint.
+@click.option("--by", "old_by", hidden=True)
 @_batch_option
-def redundancy_command(source: str, fmt: str, top: int, by: str, batch_pairs: int,
-                       **kwargs: Any) -> None:
+def redundancy_command(source: str, fmt: str, top: int, by: str, old_by: str | None,
+                       batch_pairs: int, **kwargs: Any) -> None:
     """Show which attributes of SOURCE tell the same thing: mutual information between pairs.
 
     Computed in the database on the ranking's rows and bins; with --limit N only the top N
     ranked attributes are paired.
     """
+    if old_by is not None:
+        hint = (f"to order the pairs, use --sort-pairs {old_by}" if old_by in PAIR_METRICS
+                else "for one segment, give its condition with --where")
+        raise click.UsageError(f"redundancy takes no --by (segments); {hint}")
     result = redundancy(source, batch_pairs=batch_pairs, **library_options(kwargs))
     print_statements(result.ranking.dialect, result.statements)
     print_notes(result.notes)

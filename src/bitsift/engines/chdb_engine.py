@@ -19,7 +19,7 @@ from sqlglot import exp
 
 from bitsift.engines.base import Engine, FetchResult, query_error, unreadable_table
 from bitsift.engines.policy import RunPolicy
-from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line
+from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line, install_extra
 from bitsift.spec.schema import Column, Family, family_of
 from bitsift.sql.dialects import capabilities
 
@@ -37,7 +37,7 @@ def import_chdb() -> Any:
         import chdb.session
     except ImportError:
         raise MissingDriverError(
-            "the ClickHouse engine needs chdb: pip install 'bitsift[clickhouse]'"
+            f"the ClickHouse engine needs chdb: {install_extra('clickhouse')}"
         ) from None
     return chdb.session
 

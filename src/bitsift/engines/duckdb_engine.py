@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import contextlib
 import threading
-from dataclasses import dataclass
+import uuid
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import ClassVar
 
@@ -29,6 +30,22 @@ FILE_READERS: dict[str, str] = {
 }
 
 
+#: Settings of every DuckDB connection bitsift opens: DuckDB would otherwise download and load
+#: an extension when a statement or file needs one (a SQLite file, an https:// path), sending
+#: requests and running fetched code although bitsift promises to send nothing anywhere.
+#: Parquet, CSV and JSON readers are built in. Also used by the DuckDB history store.
+SAFE_CONFIG: dict[str, str | bool | int | float | list[str]] = {
+    "autoinstall_known_extensions": False,
+    "autoload_known_extensions": False,
+    "allow_community_extensions": False,
+}
+
+
+def connect(database: str, *, read_only: bool = False) -> duckdb.DuckDBPyConnection:
+    """A DuckDB connection with :data:`SAFE_CONFIG` (no extension is fetched or loaded)."""
+    return duckdb.connect(database, read_only=read_only, config=dict(SAFE_CONFIG))
+
+
 def file_reader(path: str) -> str | None:
     """The DuckDB table function that reads ``path`` in place, or None for a database file."""
     suffixes = Path(path).suffixes
@@ -44,9 +61,33 @@ def file_table(path: str) -> exp.Expression:
     return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path)]))
 
 
+#: Modules whose data frames DuckDB scans in place (pandas, Arrow tables and record batches,
+#: tested; Polars, which DuckDB reads through Arrow, untested here: not installed), registered
+#: on bitsift's own in-memory connection: no rows are copied.
+FRAME_MODULES: tuple[str, ...] = ("pandas", "pyarrow", "polars")
+
+
+def is_frame(source: object) -> bool:
+    """Whether ``source`` is a data frame DuckDB can scan in place."""
+    return type(source).__module__.partition(".")[0] in FRAME_MODULES
+
+
+def _frame_columns(frame: object) -> list[object]:
+    """A frame's own column names: Arrow's ``column_names``/``schema.names``, else ``columns``."""
+    for attribute in ("column_names", "columns"):
+        names = getattr(frame, attribute, None)
+        if names is not None and not callable(names):
+            return list(names)
+    schema = getattr(frame, "schema", None)
+    return list(getattr(schema, "names", []) or [])
+
+
 @dataclass
 class DuckDBEngine(Engine):
     connection: duckdb.DuckDBPyConnection | None = None
+    #: Data frames registered by name on this session (:meth:`open_frame`); a sibling session
+    #: registers them again, since a registration is visible to its own connection only.
+    frames: dict[str, object] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         super().__post_init__()
@@ -59,7 +100,35 @@ class DuckDBEngine(Engine):
 
     def _new_session(self) -> DuckDBEngine:
         # cursor(): a new connection to the same database instance, read-only if it is.
-        return DuckDBEngine(caps=self.caps, connection=self.con.cursor(), owned=True)
+        sibling = DuckDBEngine(caps=self.caps, connection=self.con.cursor(), owned=True,
+                               frames=dict(self.frames))
+        for name, frame in self.frames.items():
+            sibling.con.register(name, frame)
+        return sibling
+
+    @classmethod
+    def open_frame(cls, frame: object) -> tuple[DuckDBEngine, exp.Table]:
+        """A pandas/Arrow/Polars data frame, scanned in place by an in-memory session (DuckDB's
+        ``register``: a view over the caller's memory, no copy), and the view's name."""
+        name = f"bitsift_frame_{uuid.uuid4().hex}"
+        connection = connect(":memory:")
+        try:
+            connection.register(name, frame)
+        except (duckdb.Error, TypeError, ValueError) as error:
+            connection.close()
+            raise SourceError(f"cannot read the {type(frame).__name__}: {first_line(error)}"
+                              ) from None
+        view = exp.Table(this=exp.to_identifier(name, quoted=True))
+        read = connection.sql(exp.select(exp.Star()).from_(view).limit(0).sql("duckdb")).columns
+        own = [str(c) for c in _frame_columns(frame)]
+        if own and own != read:
+            connection.close()
+            renamed = [f"{o!r} (read as {r!r})" for o, r in zip(own, read, strict=False) if o != r]
+            raise SourceError(f"the {type(frame).__name__}'s column names collide apart from "
+                              f"case or repeat: {', '.join(renamed)}; rename them (bitsift will "
+                              "not guess which one a name means)")
+        engine = cls(caps=capabilities("duckdb"), connection=connection, frames={name: frame})
+        return engine, view
 
     @classmethod
     def open_file(cls, path: str) -> DuckDBEngine:
@@ -68,11 +137,11 @@ class DuckDBEngine(Engine):
         if file_reader(path) is not None:
             if not any(ch in path for ch in "*?[") and not Path(path).exists():
                 raise SourceError(f"no such file: {path}")
-            return cls(caps=caps, connection=duckdb.connect(":memory:"))
+            return cls(caps=caps, connection=connect(":memory:"))
         if not Path(path).exists():
             raise SourceError(f"no such file: {path}")
         try:
-            connection = duckdb.connect(path, read_only=True)
+            connection = connect(path, read_only=True)
         except duckdb.Error as error:
             message = f"cannot open {path} as a DuckDB database: {first_line(error)}"
             raise SourceError(message) from None

@@ -13,8 +13,9 @@ import sqlglot
 from sqlglot import exp
 
 from bitsift.engines.base import Engine
-from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table
+from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table, is_frame
 from bitsift.engines.masking import mask_url
+from bitsift.engines.sqlite_support import is_sqlite_file
 from bitsift.errors import SourceError, SpecError
 from bitsift.names import quoted
 
@@ -74,7 +75,8 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
     """Open ``source`` read-only.
 
     ``source`` may be a DuckDB database file, a Parquet/CSV/JSON file (read in place), a
-    SQLAlchemy URL, an open DuckDB connection, a SQLAlchemy Engine or Connection, a
+    SQLite file, a SQLAlchemy URL, a pandas/Arrow/Polars data frame (scanned in place by
+    DuckDB), an open DuckDB connection, a SQLAlchemy Engine or Connection, a
     ``pyspark.sql.SparkSession`` (with ``table``) or DataFrame, a ``chdb.session.Session``
     (with ``table``), or an :class:`EngineSource`.
     """
@@ -93,6 +95,11 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         from bitsift.engines.chdb_engine import ChdbEngine
 
         return _with_table(ChdbEngine.wrap(source), table, "the chdb session")
+    if is_frame(source):
+        if table:
+            raise SpecError.option("table", " is not used with a data frame")
+        engine, view = DuckDBEngine.open_frame(source)
+        return OpenSource(engine=engine, table=view, display=f"the {type(source).__name__}")
     try:
         import duckdb
 
@@ -129,6 +136,12 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
             engine.close()
             raise
         return OpenSource(engine=engine, table=file_table(text), display=text)
+    if is_sqlite_file(text):
+        # DuckDB would open it through its sqlite extension, downloading it (SAFE_CONFIG).
+        from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
+
+        engine = SqlAlchemyEngine.open_sqlite_file(text)
+        return _with_table(engine, table, text)
     engine = DuckDBEngine.open_file(text)
     return _with_table(engine, table, text)
 

@@ -32,7 +32,7 @@ from sqlglot import exp
 
 from bitsift.engines.base import Engine, FetchResult, query_error, unreadable_table
 from bitsift.engines.masking import mask_text
-from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line
+from bitsift.errors import MissingDriverError, SourceError, SpecError, first_line, install_extra
 from bitsift.spec.schema import Column, Family, family_by_class
 from bitsift.sql.dialects import capabilities
 
@@ -63,7 +63,7 @@ def import_pyspark() -> Any:
             import pyspark.sql
     except ImportError:
         raise MissingDriverError(
-            "the Spark engine needs pyspark: pip install 'bitsift[spark]' (and Java 17+)"
+            f"the Spark engine needs pyspark: {install_extra('spark')} (and Java 17+)"
         ) from None
     return pyspark.sql
 

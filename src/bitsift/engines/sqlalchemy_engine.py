@@ -9,6 +9,7 @@ import warnings
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, ClassVar
 
 import sqlalchemy as sa
@@ -36,6 +37,7 @@ from bitsift.errors import (
     SourceError,
     TableNotFoundError,
     first_line,
+    install_extra,
     suggest,
 )
 from bitsift.names import resolve_name
@@ -74,7 +76,7 @@ def missing_driver_message(drivername: str, backend: str, error: BaseException) 
     line = f"no driver for {drivername}:// (module {module!r} is not installed)"
     if backend in DRIVER_EXTRAS:
         extra, scheme = DRIVER_EXTRAS[backend]
-        line += f"; pip install 'bitsift[{extra}]' and use {scheme}://"
+        line += f"; {install_extra(extra)} and use {scheme}://"
     return line
 
 
@@ -152,10 +154,17 @@ class SqlAlchemyEngine(Engine):
         except sa.exc.NoSuchModuleError:
             raise MissingDriverError(
                 f"SQLAlchemy has no dialect {parsed.drivername!r} installed"
-                + (f"; pip install 'bitsift[{DRIVER_EXTRAS[backend][0]}]' and use "
+                + (f"; {install_extra(DRIVER_EXTRAS[backend][0])} and use "
                    f"{DRIVER_EXTRAS[backend][1]}://" if backend in DRIVER_EXTRAS else "")
             ) from None
         return cls._from_engine(engine, owned=True, secret=secret)
+
+    @classmethod
+    def open_sqlite_file(cls, path: str) -> SqlAlchemyEngine:
+        """A SQLite database file given as a path (no URL parsing: any character may be in it)."""
+        url = sa.URL.create("sqlite", database=str(Path(path).resolve()))
+        return cls._from_engine(sa.create_engine(url, poolclass=sa.pool.NullPool), owned=True,
+                                secret=())
 
     @classmethod
     def wrap(cls, source: sa.Engine | sa.Connection) -> SqlAlchemyEngine:

@@ -119,6 +119,19 @@ def missing_database(database: str, query: Mapping[str, Any]) -> str | None:
     return None if Path(path).exists() else path
 
 
+#: The first 16 bytes of every SQLite 3 database file (sqlite.org/fileformat.html, 1.3).
+SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def is_sqlite_file(path: str) -> bool:
+    """Whether ``path`` is a readable file starting with the SQLite 3 header."""
+    try:
+        with open(path, "rb") as file:
+            return file.read(len(SQLITE_HEADER)) == SQLITE_HEADER
+    except OSError:
+        return False
+
+
 def _listed(value: Any) -> list[str]:
     if value is None:
         return []

@@ -63,7 +63,6 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
     store = open_counts_store(Destination(into, counts_table))
     stored, newest = (None, None) if refit else store.state()
     with session_for(source, table) as session:
-        mark = session.mark()
         spec, partitioning, rank_options = _resolved(session, target, partition, grain,
                                                      options)
         # From the checked options: a comma string and a list of the same names agree.
@@ -90,7 +89,7 @@ def build_counts(source: Any, *, target: str, partition: str, into: str,
         statement = counting_statement(spec, session.engine.caps, cuts, partitioning,
                                        after=after, from_=start)
         fetched = session.engine.fetch(statement.sql)
-        statements = session.statements_since(mark)
+        statements = session.record().statements
         notes = list(session.notes)
         dialect = session.engine.caps.name
     rows, partitions = _rows(fetched.columns, fetched.rows, spec, partitioning.kind)

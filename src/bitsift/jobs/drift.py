@@ -16,8 +16,8 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 from bitsift import jsonout
-from bitsift.errors import BitsiftError, Option, Problem, SpecError
-from bitsift.jobs.history import Destination, RunInfo
+from bitsift.errors import BitsiftError, Option, Problem, SpecError, suggest
+from bitsift.jobs.history import Destination, HistoryError, RunInfo
 from bitsift.jobs.history_open import open_store
 from bitsift.numformat import format_bits
 from bitsift.output.texttable import aligned
@@ -270,13 +270,21 @@ def drift(destination: Destination, job: str, *, old: str | None = None, new: st
     """Compare two runs of ``job`` in the history at ``destination``.
 
     Without run ids: the two newest runs. With ``new`` only: that run and the one before it.
-    Fewer than two runs gives an empty report with a note.
+    One run gives an empty report with a note. A missing table, a job without runs and a
+    ``new`` run with none before it raise :class:`BitsiftError`: a monitor that found nothing
+    to compare must not report "no drift".
     """
     limits = thresholds or DriftThresholds()
     with open_store(destination) as store:
-        store.check()
+        if not store.check():
+            raise HistoryError(_nothing_there(destination, "table", store.tables()))
         runs = store.runs(job)
+        if not runs:
+            raise HistoryError(_nothing_there(destination, "job", store.jobs(), job))
         older, newer = _pick_runs(runs, old, new, job)
+        if older is None and new is not None:
+            raise BitsiftError(f"run {new!r} is the oldest run of job {job!r} in "
+                               f"{destination.table}: there is no earlier run to compare it with")
         report = DriftReport(job=job, old=older, new=newer, thresholds=limits)
         if older is None or newer is None:
             report.notes.append(
@@ -291,6 +299,27 @@ def drift(destination: Destination, job: str, *, old: str | None = None, new: st
         limits,
     )
     return report
+
+
+#: At most this many existing jobs or tables are named in the error.
+LISTED_NAMES = 10
+
+
+def _nothing_there(destination: Destination, what: str, existing: Sequence[str],
+                   job: str = "") -> str:
+    """The error line for a missing results table (``what="table"``) or a job without runs."""
+    where = f"{destination.table} in {destination.display}"
+    if what == "table":
+        head = f"results table {where} does not exist: no run has written to it"
+        pool = [name for name in existing if name != destination.table]
+    else:
+        head = f"job {job!r} has no runs in results table {where}{suggest(job, existing)}"
+        pool = list(existing)
+    if not pool:
+        return f"{head}; it has no {what}s"
+    shown = ", ".join(repr(name) for name in pool[:LISTED_NAMES])
+    more = f" and {len(pool) - LISTED_NAMES} more" if len(pool) > LISTED_NAMES else ""
+    return f"{head}; {what}s there: {shown}{more}"
 
 
 _LABELS = {

@@ -10,6 +10,7 @@ import duckdb
 import sqlglot
 from sqlglot import exp
 
+from bitsift.engines.duckdb_engine import connect
 from bitsift.errors import first_line
 from bitsift.jobs.history import (
     COLUMN_NAMES,
@@ -43,7 +44,7 @@ def _connect_duckdb(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection
 
     def attempt() -> bool:
         try:
-            opened.append(duckdb.connect(str(path), read_only=read_only))
+            opened.append(connect(str(path), read_only=read_only))
         except duckdb.IOException as error:
             if "lock" not in str(error).lower():
                 message = f"cannot open results file {path}: {first_line(error)}"
@@ -216,6 +217,23 @@ class DuckDBStore(HistoryStore):
         with _ctrl_c_as_interrupt():
             fetched = self.connection.execute(self._sql(query), [job, *ids]).fetchall()
         return _rows_to_dicts(COLUMN_NAMES, fetched)
+
+    def jobs(self) -> list[str]:
+        if self.existing_columns() is None:
+            return []
+        assert self.connection is not None
+        query = exp.select(_col("job")).distinct().from_(self.table.copy())
+        with _ctrl_c_as_interrupt():
+            fetched = self.connection.execute(self._sql(query)).fetchall()
+        return sorted(str(r[0]) for r in fetched)
+
+    def tables(self) -> list[str]:
+        if self.connection is None:
+            return []
+        query = ("SELECT table_name FROM information_schema.tables "
+                 "WHERE lower(table_schema) = lower(?)")
+        fetched = self.connection.execute(query, [self.table.db or "main"]).fetchall()
+        return sorted(str(r[0]) for r in fetched)
 
     def close(self) -> None:
         if self.connection is not None:

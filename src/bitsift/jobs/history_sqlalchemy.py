@@ -274,5 +274,19 @@ class SqlAlchemyStore(HistoryStore):
             ).all()
         return _rows_to_dicts(COLUMN_NAMES, result)
 
+    def jobs(self) -> list[str]:
+        table = self.sa_table
+        with self._connection(write=False) as connection:
+            if self._existing(connection) is None:
+                return []
+            # Grouped by the bytes too, so that jobs "sales" and "Sales" stay two jobs.
+            groups = [table.c.job] + ([self._key(table.c.job)] if self._bytewise else [])
+            result = connection.execute(sa.select(table.c.job).group_by(*groups)).all()
+        return sorted(str(r[0]) for r in result)
+
+    def tables(self) -> list[str]:
+        with self._connection(write=False) as connection:
+            return sorted(sa.inspect(connection).get_table_names(schema=self.schema))
+
     def close(self) -> None:
         self.engine.dispose()

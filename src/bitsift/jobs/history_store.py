@@ -54,6 +54,14 @@ class HistoryStore(ABC):
     def read(self, job: str, run_ids: Iterable[str]) -> list[dict[str, Any]]:
         """Every row of the given runs of ``job``."""
 
+    @abstractmethod
+    def jobs(self) -> list[str]:
+        """The names of the jobs with runs in the table, sorted (none when it does not exist)."""
+
+    @abstractmethod
+    def tables(self) -> list[str]:
+        """The names of the tables in the table's schema, sorted."""
+
     def close(self) -> None:  # noqa: B027 - optional hook
         """Release the connection."""
 

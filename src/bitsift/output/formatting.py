@@ -15,6 +15,7 @@ from bitsift.run.result import (
     AttributeScore,
     Ranking,
     SegmentedRanking,
+    segment_columns,
     segment_label,
 )
 from bitsift.spec.rankspec import CONFIDENCE_Z
@@ -238,7 +239,7 @@ def segmented_json(segmented: SegmentedRanking) -> str:
 def segmented_csv(segmented: SegmentedRanking) -> str:
     """One row per segment and attribute: the segment columns (renamed ``segment_<name>``
     where they clash with an attribute key), then the attribute keys."""
-    heads = [f"segment_{b}" if b in ATTRIBUTE_KEYS else b for b in segmented.by]
+    heads = segment_columns(segmented.by)
     rows = [[*((ranking.segment or {}).get(b) for b in segmented.by), *_csv_row(a)]
             for ranking in segmented.segments for a in ranking.attributes]
     return csv_text([*heads, *ATTRIBUTE_KEYS], rows)

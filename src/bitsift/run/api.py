@@ -6,13 +6,15 @@ The CLI is a thin shell over these functions; they never print and never exit.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from pathlib import Path
 from typing import Any
 
 import sqlglot
 from sqlglot import exp
 
 from bitsift.engines.base import Engine
+from bitsift.engines.duckdb_engine import file_reader, is_frame
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import Option, Problem, SpecError
 from bitsift.names import split_names
@@ -141,18 +143,42 @@ def statement(
 
     With a ``source``, column types are introspected; without one, ``table`` plus
     ``attributes`` and ``numeric`` describe the columns (``numeric`` columns are binned).
+    A data file (Parquet, CSV, JSON) as ``source`` with ``table``: the file gives the columns
+    and the statement reads ``table``, e.g. the warehouse table the file was exported from;
+    without ``table`` the statement reads the file, which only DuckDB can. A data frame
+    likewise gives the columns, and needs ``table``.
+    ``timeout`` applies to the statements run on ``source`` (catalog, MDL cut points); the
+    printed statement carries none, and ``limit`` is refused: it returns every attribute.
 
     >>> print(statement(table="sales.orders", target="late", attributes="region",
     ...                 numeric="amount", dialect="postgres").splitlines()[1])
     -- table: sales.orders
     """
     spec_options = make_options(target, **options)
+    _refuse_unprinted(spec_options, has_source=source is not None)
     if source is not None:
-        with session_for(source, table) as session:
+        frame = is_frame(source)
+        schema_file = frame or (isinstance(source, str | Path)
+                                and file_reader(str(source)) is not None)
+        if frame and not table:
+            # The frame's view exists only in bitsift's own session: nothing to paste it into.
+            raise SpecError(problems=[Problem("table", (
+                "a statement from a data frame needs ", Option("table"), " naming the table "
+                "it should read (the frame then only gives the columns)"))])
+        with session_for(source, None if schema_file else table) as session:
             caps = capabilities(dialect) if dialect else session.engine.caps
+            if schema_file and not table and not caps.reads_files:
+                raise SpecError(problems=[Problem("table", (
+                    f"a {caps.name} statement cannot read the file {source} in place: name the "
+                    f"{caps.name} table it should read with ", Option("table"),
+                    " (the file then only gives the columns)"))])
+            session.set_timeout(spec_options.timeout)
             spec = session.resolve(spec_options)
             # MDL's cut points need a Python step: computed here and inlined as literals.
             cuts = fetch_mdl_cuts(session.engine, spec)
+            if schema_file and table:
+                spec = replace(spec, source=parse_table_name(table, caps.sqlglot_dialect),
+                               source_name=table)
             text = _unshadowed(paste_statement(spec, caps, cuts=cuts), spec, caps)
             return _with_notes(text, session.notes)
     if not table:
@@ -171,6 +197,21 @@ def statement(
     source_table = parse_table_name(table, caps.sqlglot_dialect)
     spec = resolve(spec_options, columns, source_table, table, caps.sqlglot_dialect)
     return _unshadowed(paste_statement(spec, caps), spec, caps)
+
+
+def _refuse_unprinted(options: RankOptions, *, has_source: bool) -> None:
+    """``limit`` and a ``timeout`` with nothing to run: refused, never silently ignored."""
+    problems = []
+    if options.limit is not None:
+        problems.append(Problem("limit", (
+            Option("limit"), " is not used for a printed statement: it returns every attribute, "
+            "ordered by ", Option("sort"), " (add a LIMIT when you paste it)")))
+    if options.timeout is not None and not has_source:
+        problems.append(Problem("timeout", (
+            Option("timeout"), " applies to the statements bitsift runs, and without a SOURCE "
+            "it runs none: set a timeout in the console that runs the printed statement")))
+    if problems:
+        raise SpecError(problems=problems)
 
 
 def _with_notes(text: str, notes: Sequence[str]) -> str:

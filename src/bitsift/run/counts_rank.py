@@ -58,7 +58,6 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
     options = RankOptions(target="-", sort=sort, limit=limit, missing=missing,  # type: ignore[arg-type]
                           thresholds=thresholds or Thresholds(), timeout=timeout)
     with session_for(dest, counts_table) as session:
-        mark = session.mark()
         session.set_timeout(options.timeout)
         engine = session.engine
         shown = _display(dest, session.display)
@@ -91,17 +90,10 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
         result: Ranking | SegmentedRanking
         if by_partition:
             result = read_segments(records, spec, meta.cuts, dialect=engine.caps.name)
-            rankings = result.segments
         else:
             result = read_ranking(records, spec, meta.cuts, dialect=engine.caps.name)
-            rankings = [result]
-        binning = {a["name"]: a.get("binning") for a in meta.attributes}
-        for ranking in rankings:
-            for scored in ranking.attributes:
-                scored.binning = binning.get(scored.attribute)
-        result.notes = [*session.notes, *result.notes]
-        result.statements = session.statements_since(mark)
-        return result
+        # Each score's binning comes from the stored attributes (the spec above).
+        return session.record().stamp(result)
 
 
 def _display(dest: Any, fallback: str) -> str:

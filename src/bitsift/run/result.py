@@ -2,10 +2,14 @@
 
 from __future__ import annotations
 
+import html
 import math
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any
+
+from bitsift.errors import install_extra
+from bitsift.numformat import format_bits, format_p_value
 
 #: Keys of one attribute in the JSON contract, in order.
 ATTRIBUTE_KEYS: tuple[str, ...] = (
@@ -133,7 +137,7 @@ class Ranking:
         try:
             import pandas as pd
         except ImportError as error:  # pragma: no cover - depends on the environment
-            raise ImportError("to_pandas() needs pandas: pip install 'bitsift[pandas]'") from error
+            raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
         return pd.DataFrame([a.to_dict() for a in self.attributes], columns=list(ATTRIBUTE_KEYS))
 
     def __getitem__(self, name: str) -> AttributeScore:
@@ -141,6 +145,69 @@ class Ranking:
             if a.attribute == name:
                 return a
         raise KeyError(name)
+
+    def __iter__(self) -> Iterator[AttributeScore]:
+        """The attributes, best first."""
+        return iter(self.attributes)
+
+    def __len__(self) -> int:
+        """The number of ranked attributes."""
+        return len(self.attributes)
+
+    def _repr_html_(self) -> str:
+        """The ranking as an HTML table, for notebooks (every name escaped)."""
+        return _html_summary(self) + _html_table(self.attributes)
+
+
+#: Columns of the notebook table: (heading, cell of one attribute).
+_HTML_COLUMNS: tuple[tuple[str, Any], ...] = (
+    ("#", None),
+    ("attribute", lambda a: a.attribute),
+    ("kind", lambda a: a.kind),
+    ("distinct", lambda a: f"{a.distinct:,}"),
+    ("IG (bits)", lambda a: format_bits(a.information_gain)),
+    ("gain ratio", lambda a: format_bits(a.gain_ratio)),
+    ("SU", lambda a: format_bits(a.symmetric_uncertainty)),
+    ("p-value", lambda a: "" if a.p_value is None else format_p_value(a.p_value)),
+    ("flags", lambda a: ", ".join(a.flags)),
+)
+
+
+def _html_summary(ranking: Ranking) -> str:
+    where = f", segment {segment_label(ranking.segment)}" if ranking.segment is not None else ""
+    text = (f"{ranking.table}{where}: target {ranking.target!r}, {ranking.rows:,} rows, "
+            f"{ranking.classes} classes, H(Y) = {format_bits(ranking.target_entropy)} bits")
+    if ranking.status != "ok":
+        text += f"; {SEGMENT_STATUS[ranking.status]}"
+    return f"<p>{html.escape(text)}</p>"
+
+
+def _html_table(scores: Sequence[AttributeScore]) -> str:
+    head = "".join(f"<th>{html.escape(h)}</th>" for h, _ in _HTML_COLUMNS)
+    rows = []
+    for position, score in enumerate(scores, start=1):
+        cells = [str(position)] + [cell(score) for _, cell in _HTML_COLUMNS[1:]]
+        rows.append("<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in cells) + "</tr>")
+    return (f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>")
+
+
+def segment_columns(by: Sequence[str]) -> list[str]:
+    """The names of the segment columns in CSV output and ``to_pandas()``: each column's own
+    name, prefixed ``segment_`` (again, if need be) where it would clash with an attribute key
+    (:data:`ATTRIBUTE_KEYS`) or an earlier segment column.
+
+    >>> segment_columns(["region", "kind", "segment_kind"])
+    ['region', 'segment_kind', 'segment_segment_kind']
+    """
+    taken = set(ATTRIBUTE_KEYS)
+    names = []
+    for column in by:
+        name = column
+        while name in taken:
+            name = f"segment_{name}"
+        taken.add(name)
+        names.append(name)
+    return names
 
 
 #: Why a segment's ranking may be empty or trivial; ``ok`` otherwise.
@@ -211,16 +278,18 @@ class SegmentedRanking:
         return out
 
     def to_pandas(self) -> Any:
-        """One DataFrame row per segment and attribute: the segment columns, then
-        :data:`ATTRIBUTE_KEYS` (needs the ``pandas`` extra)."""
+        """One DataFrame row per segment and attribute: the segment columns, named as in CSV
+        output (:func:`segment_columns`), then :data:`ATTRIBUTE_KEYS` (needs the ``pandas``
+        extra)."""
         try:
             import pandas as pd
         except ImportError as error:  # pragma: no cover - depends on the environment
-            raise ImportError("to_pandas() needs pandas: pip install 'bitsift[pandas]'") from error
-        rows = [{**{f"segment:{k}": v for k, v in (r.segment or {}).items()}, **a.to_dict()}
+            raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
+        heads = segment_columns(self.by)
+        rows = [[*((r.segment or {}).get(b) for b in self.by),
+                 *(a.to_dict()[k] for k in ATTRIBUTE_KEYS)]
                 for r in self.segments for a in r.attributes]
-        columns = [f"segment:{b}" for b in self.by] + list(ATTRIBUTE_KEYS)
-        return pd.DataFrame(rows, columns=columns)
+        return pd.DataFrame(rows, columns=[*heads, *ATTRIBUTE_KEYS])
 
     def segment(self, **values: Any) -> Ranking:
         """The ranking of the segment with these values (``None`` for NULL).
@@ -237,3 +306,11 @@ class SegmentedRanking:
 
     def __len__(self) -> int:
         return len(self.segments)
+
+    def _repr_html_(self) -> str:
+        """One HTML table per segment, for notebooks."""
+        parts = [f"<p>{html.escape(f'{self.table}: target {self.target!r}, by ')}"
+                 f"{html.escape(', '.join(self.by))}: {len(self.segments)} segments</p>"]
+        for ranking in self.segments:
+            parts.append(_html_summary(ranking) + _html_table(ranking.attributes))
+        return "".join(parts)

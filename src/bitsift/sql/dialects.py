@@ -40,6 +40,11 @@ SQLite 3.40.1          (not available)  9.5 s            37.7 s
   at 5M rows; per-attribute statements were faster still, but need several statements).
 - Not executed here: every dialect with GROUPING SETS uses them (one scan); sqlglot cannot
   emit them for the others.
+- Pasted statements that compute their own cut points (a ``bounds`` CTE joined into
+  ``base``) use ``paste_count_strategy`` where it is set: MariaDB ``cross_join`` (``base`` is
+  evaluated once per reference there, so ``union_all`` recomputed every quantile per
+  attribute: 172 s against 33 s), PostgreSQL ``union_all`` (at a console's default work_mem:
+  5.6 s against 13.2 s for GROUPING SETS). benchmarks/RESULTS.md, "Paste mode".
 
 Text grouping: MySQL/MariaDB compare text under the column's collation; their defaults are
 case-insensitive and PAD SPACE, so ``GROUP BY`` would merge 'a' with 'A' and 'x' with 'x '.
@@ -103,6 +108,12 @@ class Capabilities:
     name: str
     sqlglot_dialect: str
     count_strategy: CountStrategy = "grouping_sets"
+    #: The count strategy of a pasted statement (``bitsift sql``, job models) that computes
+    #: its own cut points: ``base`` then joins the ``bounds`` CTE, and an engine that evaluates
+    #: ``base`` once per reference (``union_all`` reads it once per attribute) recomputes
+    #: every quantile each time. ``None``: :attr:`count_strategy`. Measured in
+    #: benchmarks/RESULTS.md ("Paste mode"; benchmarks/paste_strategies.py).
+    paste_count_strategy: CountStrategy | None = None
     quantile: QuantileMethod = "window"
     #: Type (spelled in the dialect) that grouped text values are cast to so that they compare
     #: byte-exactly. ``None``: the engine's default comparison already tells 'a' from 'A'
@@ -128,6 +139,16 @@ class Capabilities:
     table_options: str | None = None
     #: Dates and timestamps as epoch seconds or parts (``--numeric``, ``--date-part``).
     dates: DateFunctions = DateFunctions()
+    #: A pasted statement may read a data file in place (DuckDB's read_parquet/read_csv_auto/
+    #: read_json_auto); elsewhere ``bitsift sql FILE`` needs ``--table`` naming the table.
+    reads_files: bool = False
+
+    @property
+    def for_paste(self) -> Capabilities:
+        """These capabilities with the pasted statement's count strategy."""
+        if self.paste_count_strategy is None:
+            return self
+        return replace(self, count_strategy=self.paste_count_strategy, paste_count_strategy=None)
 
 
 #: Each dialect's date functions where the standard EXTRACT forms do not serve. Executed in
@@ -219,18 +240,26 @@ def _dialect(name: str, sqlglot_dialect: str | None = None, **traits: Any) -> Ca
 CAPABILITIES: dict[str, Capabilities] = {
     c.name: c
     for c in [
-        _dialect("duckdb", quantile="quantile_cont"),
+        _dialect("duckdb", quantile="quantile_cont", reads_files=True),
         # No GROUPING SETS, no quantile aggregate; math functions only in builds with
         # SQLITE_ENABLE_MATH_FUNCTIONS (Python's 3.40 has them).
         _dialect("sqlite", count_strategy="union_all"),
-        _dialect("postgres", quantile="percentile_cont"),
+        # Pasted with its own cut points (and the console's default work_mem): 500k rows x
+        # 3 categorical + 4 numeric took 13.2 s with GROUPING SETS, 5.6 s with UNION ALL,
+        # 4.8 s in run mode; without cut points GROUPING SETS stays ahead, 0.4 s against
+        # 1.1 s (benchmarks/paste_strategies.py, RESULTS.md).
+        _dialect("postgres", quantile="percentile_cont", paste_count_strategy="union_all"),
         # WITH ROLLUP only (sqlglot would emit GROUPING SETS anyway); PERCENTILE_CONT is a
         # window function only; default collations are case-insensitive.
         _dialect("mysql", count_strategy="union_all", exact_key_type="BINARY"),
         # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect) and has no GROUPING() at all;
         # its default utf8mb4_general_ci is case-insensitive and PAD SPACE, so text is
         # grouped as BINARY.
-        _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY"),
+        # Pasted with its own cut points, union_all recomputed the window quantiles once per
+        # attribute: 200k rows x 3 categorical + 4 numeric took 172 s, 33 s with the cross
+        # join, 6 s in run mode (benchmarks/paste_strategies.py, RESULTS.md).
+        _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY",
+                 paste_count_strategy="cross_join"),
         _dialect("snowflake", quantile="percentile_cont"),
         _dialect("bigquery"),
         # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.

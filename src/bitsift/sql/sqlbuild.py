@@ -437,6 +437,8 @@ def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | N
     ``cuts``: literal cut points of some numeric attributes (mdl's, computed beforehand from
     the table); the statement computes the others' itself.
     """
+    if any(a.kind == "numeric" and (cuts is None or a.name not in cuts) for a in spec.attributes):
+        caps = caps.for_paste  # the statement computes cut points: a bounds CTE in `base`
     statement = rank_statement(spec, caps, cuts, pretty=True, order_by=spec.options.sort)
     attrs = ", ".join(f"{a.name} ({a.kind}{', ' + a.date_part if a.date_part else ''})"
                       for a in spec.attributes)
