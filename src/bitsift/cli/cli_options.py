@@ -100,6 +100,12 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
                           "sown_on=month, or a bare PART for every date column. Dates named "
                           'in --numeric are binned as epoch seconds instead. A name holding '
                           '= or , in double quotes: "d=1"=month.'),
+        click.option("--target-bins", "target_bins", type=int, metavar="N",
+                     help="Rank against N quantile bins of a numeric target (cut in the "
+                          "database; a float or decimal target needs this)."),
+        click.option("--max-classes", "max_classes", type=int, default=100, show_default=True,
+                     help="Refuse a target with more classes than this (it looks continuous "
+                          "or like an identifier)."),
         click.option("--where", help="Only rows matching this condition (checked by sqlglot)."),
         click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
                      show_default=True, help="Metric to sort by (descending)."),

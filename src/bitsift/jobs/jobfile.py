@@ -52,13 +52,13 @@ RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
 RANKING_KEYS: tuple[str, ...] = (
     "name", "table", "target", "attributes", "exclude", "categorical", "numeric", "missing",
     "bins", "where", "sort", "limit", "timeout", "high_cardinality", "by", "weight",
-    "binning", "binning_for", "date_part",
+    "binning", "binning_for", "date_part", "target_bins", "max_classes",
 )
 DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
 NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric", "by")
 _STRINGS = ("name", "table", "target", "where", "missing", "sort", "weight", "binning",
             "binning_for", "date_part")
-_INTEGERS = ("bins", "limit", "high_cardinality")
+_INTEGERS = ("bins", "limit", "high_cardinality", "target_bins", "max_classes")
 _NUMBERS = ("timeout",)
 MAX_NAME = 200
 MAX_RUN_ID = 100

@@ -55,6 +55,20 @@ def _rows(ranking: Ranking) -> list[list[str]]:
 
 
 def _summary(ranking: Ranking) -> str:
+    return _plain_summary(ranking) + _target_bins_line(ranking)
+
+
+def _target_bins_line(ranking: Ranking) -> str:
+    """A binned target (``--target-bins``): its classes' cut points, on a line of their own."""
+    binning = ranking.target_binning
+    if binning is None:
+        return ""
+    cuts = [float(c) for c in binning["cuts"]]
+    return (f"\ntarget {ranking.target!r} binned by {binning['method']} into {len(cuts) + 1} "
+            f"classes at: {format_cuts(cuts)}")
+
+
+def _plain_summary(ranking: Ranking) -> str:
     if ranking.weight is not None:
         return (
             f"{escape_text(ranking.table)}: target {ranking.target!r}, weight"

@@ -89,10 +89,13 @@ class Ranking:
     weight_total: float | None = None
     #: Weighted: rows with a target whose weight is NULL or 0, left out.
     rows_without_weight: int = 0
+    #: ``--target-bins``: method, bins, cuts and labels of the target's classes; else None.
+    target_binning: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON contract: target, table, rows, rows_excluded, target_entropy, classes,
-        attributes (each with the keys of :data:`ATTRIBUTE_KEYS`).
+        attributes (each with the keys of :data:`ATTRIBUTE_KEYS`). A binned target
+        (``--target-bins``) adds ``target_binning`` after classes.
 
         Weighted rankings add ``weight`` (after table), ``rows_without_weight`` and
         ``weight_total`` (after rows_excluded); unweighted ones have exactly the keys above."""
@@ -106,6 +109,8 @@ class Ranking:
             out["weight_total"] = self.weight_total
         out["target_entropy"] = self.target_entropy
         out["classes"] = self.classes
+        if self.target_binning is not None:
+            out["target_binning"] = self.target_binning
         out["attributes"] = [a.to_dict() for a in self.attributes]
         return out
 

@@ -23,6 +23,8 @@ BINNING_METHODS: tuple[str, ...] = ("quantile", "equal-width", "best-split", "md
 DATE_PARTS: tuple[str, ...] = ("year", "month", "dow", "hour")
 #: Column type families holding dates and times (numeric as epoch seconds with --numeric).
 TEMPORAL_FAMILIES: frozenset[str] = frozenset({"date", "timestamp"})
+#: ``--max-classes``' default: more target classes than this is refused.
+DEFAULT_MAX_CLASSES = 100
 #: One column's binning override: (column, method, bins or None for the run's --bins).
 ColumnBinning = tuple[str, str, int | None]
 
@@ -196,6 +198,10 @@ class RankOptions:
     by: tuple[str, ...] = ()
     #: A non-negative weight column (``--weight``): sums of weights instead of row counts.
     weight: str | None = None
+    #: A target with more classes than this is refused (it looks continuous or an identifier).
+    max_classes: int = DEFAULT_MAX_CLASSES
+    #: Rank against this many quantile bins of a numeric target (cut in the database).
+    target_bins: int | None = None
 
     def __post_init__(self) -> None:
         try:
@@ -240,6 +246,16 @@ class RankOptions:
         date_numeric = sorted({n for n, _ in self.date_part if n} & set(self.numeric))
         if date_numeric:
             problems.append(_named_both("date_part", "numeric", date_numeric))
+        if isinstance(self.max_classes, bool) or not isinstance(self.max_classes, int) \
+                or self.max_classes < 2:
+            problems.append(Problem.option(
+                "max_classes", f" must be a whole number of at least 2, not {self.max_classes!r}"))
+        if self.target_bins is not None and (
+                isinstance(self.target_bins, bool) or not isinstance(self.target_bins, int)
+                or not 2 <= self.target_bins <= 1000):
+            problems.append(Problem.option(
+                "target_bins", f" must be a whole number between 2 and 1000, "
+                f"not {self.target_bins!r}"))
         if self.limit is not None and self.limit < 1:
             problems.append(Problem.option("limit", f" must be at least 1, not {self.limit}"))
         return problems
@@ -299,6 +315,9 @@ class RankSpec:
     by: tuple[AttributeSpec, ...] = ()
     #: The weight column (``--weight``), catalog spelling.
     weight: str | None = None
+    #: ``--target-bins``: the cut points the target was binned at (run mode); ``source`` then
+    #: reads the target as its bin labels (see :mod:`bitsift.run.target_bins`).
+    target_cuts: tuple[float, ...] | None = None
 
     @property
     def numeric(self) -> tuple[AttributeSpec, ...]:
@@ -346,6 +365,7 @@ def resolve(
             unknown_names_message("column", unknown, by_name) + f" in {source_name}"
         )
     target = target_found[0]
+    _check_target_type(options, by_name[target])
     weight = weight_found[0] if weight_found else None
     _check_segments_and_weight(target, segment_names, weight, picked, by_name)
     refuse_ungroupable(by_name, {"target": [target], "attributes": picked,
@@ -414,6 +434,21 @@ def resolve(
                  for n in dict.fromkeys(segment_names)),
         weight=weight,
     )
+
+
+def _check_target_type(options: RankOptions, column: Column) -> None:
+    """A float or decimal target is refused (every value would be a class of its own) unless
+    ``target_bins`` cuts it; ``target_bins`` needs a number column."""
+    typed = f"{column.name!r} ({column.type_name or column.family})"
+    if options.target_bins is None and column.family in ("float", "decimal"):
+        raise SpecError(problems=[Problem("target", (
+            f"the target {typed} holds continuous numbers, not classes: rank against "
+            "quantile bins of it with ", Option("target_bins"), " N (e.g. 5), or choose a "
+            "categorical target"))])
+    # "other": a column described without a connection (paste mode) is not refused here.
+    if options.target_bins is not None and column.family not in NUMERIC_FAMILIES | {"other"}:
+        raise SpecError(problems=[Problem("target_bins", (
+            Option("target_bins"), f" needs a number target; {typed} is not one"))])
 
 
 def _typed_names(names: Sequence[str], by_name: dict[str, Column]) -> str:

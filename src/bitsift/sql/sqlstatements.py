@@ -29,6 +29,7 @@ from bitsift.sql.sqlbuild import (
     literal,
     literal_cuts,
     measured_entry,
+    name_derived_tables,
     parsed_value,
     qualified_where_sql,
     quote,
@@ -289,4 +290,5 @@ def rows_statement(spec: RankSpec, caps: Capabilities, limit: int | None = None)
         query = query.where(spec.where.expression.copy())
     if limit is not None:
         query = query.limit(limit)
+    name_derived_tables(query)
     return Statement(sql=query.sql(caps.sqlglot_dialect), tree=query, dialect=caps.name)
