@@ -1,5 +1,6 @@
 """Issue 21: inputs that used to get a confident answer to a wrong question are refused or
-qualified. Item 1: continuous targets (refused by type or by class count; ``target_bins``)."""
+qualified. Item 1: continuous targets (refused by type or by class count; ``target_bins``);
+item 4: redundancy and selection without identifiers, constants and noise."""
 
 from __future__ import annotations
 
@@ -14,6 +15,7 @@ from helpers import run_main
 
 import bitsift
 from bitsift.analysis.redundancy import redundancy
+from bitsift.analysis.selection import select_attributes
 from bitsift.errors import DataError, SpecError
 from bitsift.run.target_bins import target_labels
 
@@ -199,3 +201,86 @@ def test_target_bins_on_servers_equal_duckdb(request, engine, con):
     want = bitsift.rank(con, target="growth", table="trays", target_bins=4, attributes="shade")
     assert got.target_binning == want.target_binning
     assert got["shade"].information_gain == want["shade"].information_gain
+
+
+# Item 4: redundancy and selection leave out identifiers, constants and noise by default.
+
+@pytest.fixture(scope="module")
+def screened(tmp_path_factory) -> Path:
+    """Invented trays: 'tray_id' an identifier, 'site' a constant, 'noise' unrelated to the
+    target, 'bench' and 'bench_copy' informative and redundant with each other, 'light'
+    informative on its own."""
+    rng = np.random.default_rng(4)
+    rows = 2000
+    bench = rng.integers(0, 4, rows)
+    light = rng.integers(0, 3, rows)
+    outcome = np.where(rng.uniform(size=rows) < 0.7, (bench // 2) * 2 + (light == 0),
+                       rng.integers(0, 4, rows))
+    path = tmp_path_factory.mktemp("screened") / "trays.duckdb"
+    with duckdb.connect(str(path)) as connection:
+        connection.execute("CREATE TABLE trays (tray_id INTEGER, site VARCHAR, noise INTEGER, "
+                           "bench INTEGER, bench_copy VARCHAR, light INTEGER, outcome INTEGER)")
+        connection.executemany("INSERT INTO trays VALUES (?, ?, ?, ?, ?, ?, ?)", [
+            (i, "north", int(rng.integers(0, 5)), int(bench[i]), f"b{bench[i]}", int(light[i]),
+             int(outcome[i])) for i in range(rows)])
+    return path
+
+
+def test_select_leaves_out_identifiers_constants_and_noise(screened: Path):
+    selection = select_attributes(str(screened), target="outcome", table="trays", k=5)
+    assert set(selection.candidates) == {"bench", "bench_copy", "light"}
+    assert selection.left_out["tray_id"] == "id_like"
+    assert selection.left_out["site"] == "constant"
+    assert selection.left_out["noise"].startswith("not significant, p = ")
+    notes = [n for n in selection.notes if n.startswith("left out 3 attribute(s)")]
+    assert len(notes) == 1 and "--include-flagged keeps them" in notes[0]
+    assert selection.to_dict()["left_out"][0] == {"attribute": "tray_id", "reason": "id_like"}
+    everything = select_attributes(str(screened), target="outcome", table="trays", k=2,
+                                   include_flagged=True)
+    assert everything.attributes[0] == "tray_id"  # what the guard rail is for
+    assert everything.left_out == {}
+
+
+def test_redundancy_pairs_only_the_candidates(screened: Path):
+    result = redundancy(str(screened), target="outcome", table="trays")
+    assert result.matrix.attributes == ("bench", "bench_copy", "light")
+    assert [r["attribute"] for r in result.to_dict()["left_out"]] == ["tray_id", "noise", "site"]
+    full = redundancy(str(screened), target="outcome", table="trays", include_flagged=True)
+    assert len(full.matrix.pairs) == 15
+
+
+def test_nothing_left_to_select_is_an_error(screened: Path):
+    with pytest.raises(DataError, match="no candidate attribute left.*tray_id \\(id_like\\)"):
+        select_attributes(str(screened), target="outcome", table="trays", k=2,
+                          attributes="tray_id,site")
+
+
+@pytest.mark.slow
+def test_the_cli_says_so_in_one_line_and_keeps_them_when_asked(screened: Path, capsys,
+                                                                tmp_path: Path):
+    base = (str(screened), "-t", "trays", "-y", "outcome")
+    chosen = run_main(capsys, "select", *base, "--k", "2")
+    assert chosen.code == 0 and "tray_id" not in chosen.out
+    assert sum(line.startswith("note: left out 3") for line in chosen.err.splitlines()) == 1
+    kept = run_main(capsys, "select", *base, "--k", "2", "--include-flagged")
+    assert "tray_id" in kept.out and "left out" not in kept.err
+    pairs = run_main(capsys, "redundancy", *base, "--format", "json")
+    assert len(json.loads(pairs.out)["pairs"]) == 3
+    html = tmp_path / "r.html"
+    report = run_main(capsys, "report", *base, "-o", str(html), "--select", "2")
+    assert report.code == 0, report.err
+    assert "left out 3 attribute(s)" in html.read_text()
+
+
+def test_high_cardinality_pairs_go_in_batches_of_their_own(screened: Path, monkeypatch):
+    from bitsift.analysis import redundancy as module
+    monkeypatch.setattr(module, "MAX_BATCH_CELLS", 100)
+    result = redundancy(str(screened), target="outcome", table="trays", include_flagged=True,
+                        attributes="tray_id,bench,light,site")
+    pairs_statements = [s for s in result.statements if "pair" in s.lower()]
+    # 6 pairs: the three with tray_id (2,000 cells each) alone, then bench x light (20 cells),
+    # bench x site and light x site (5 and 4): one statement for the last three.
+    assert len(pairs_statements) == 4
+    unbounded = redundancy(str(screened), target="outcome", table="trays", include_flagged=True,
+                           attributes="tray_id,bench,light,site")
+    assert unbounded.matrix.pairs == result.matrix.pairs

@@ -264,8 +264,8 @@ def test_html_report_shows_escapes(evil_file: Path, tmp_path: Path,
 @pytest.mark.slow
 @pytest.mark.parametrize("command", [
     ["profile", "--attribute", EVIL],
-    ["redundancy"],
-    ["select", "--k", "2"],
+    ["redundancy", "--include-flagged"],
+    ["select", "--include-flagged", "--k", "2"],
 ])
 def test_other_text_outputs_escape_control_characters(evil_file: Path, command: list[str],
                                                       capsys: pytest.CaptureFixture[str]

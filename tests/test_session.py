@@ -186,11 +186,12 @@ COMMANDS = {
     "sql": ["sql", "{db}", "-t", "t", "-y", "y"],
     "profile": ["profile", "{db}", "-t", "t", "-y", "y", "--attribute", "a,n"],
     "report": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}"],
-    "report --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2"],
+    "report --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2",
+                        "--include-flagged"],
     "report --by --select": ["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--by", "s",
-                             "--select", "2"],
-    "redundancy": ["redundancy", "{db}", "-t", "t", "-y", "y"],
-    "select": ["select", "{db}", "-t", "t", "-y", "y", "--k", "2"],
+                             "--select", "2", "--include-flagged"],
+    "redundancy": ["redundancy", "--include-flagged", "{db}", "-t", "t", "-y", "y"],
+    "select": ["select", "--include-flagged", "{db}", "-t", "t", "-y", "y", "--k", "2"],
     "run": ["run", "{job}"],
     "run --dry-run": ["run", "{job}", "--dry-run"],
 }
@@ -223,7 +224,7 @@ def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
     with Session.open(str(small_db), "t") as session:
         ranked = bitsift.rank(session, "y")
         runs = [rank_and_profile(session, "y")]
-        select_for_runs(session, runs, "y", k=2)
+        select_for_runs(session, runs, "y", k=2, include_flagged=True)
         assert session.engine.fetch("SELECT 1 AS one").rows == [(1,)]  # still open
     assert (calls.opened, calls.resolved) == (1, 1)
     assert runs[0].selection is not None

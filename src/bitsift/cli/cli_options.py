@@ -130,6 +130,14 @@ weight_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option
                      "(NULL or 0: the row is left out).")
 
 
+#: --include-flagged, for the commands that choose among attributes (redundancy, select,
+#: report --select).
+include_flagged_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option(
+    "--include-flagged", "include_flagged", is_flag=True,
+    help="Keep id_like and constant attributes and those at noise level (G-test p > 0.05 or "
+         "no information), which are left out by default.",
+)
+
 def segment_options(command: Callable[..., Any]) -> Callable[..., Any]:
     """--by and --weight, for the commands that support both (rank, sql)."""
     return by_option(weight_option(command))
