@@ -1,6 +1,7 @@
 """Issue 21: inputs that used to get a confident answer to a wrong question are refused or
 qualified. Item 1: continuous targets (refused by type or by class count; ``target_bins``);
-item 4: redundancy and selection without identifiers, constants and noise."""
+item 4: redundancy and selection without identifiers, constants and noise; item 12: a table
+in another schema."""
 
 from __future__ import annotations
 
@@ -16,7 +17,7 @@ from helpers import run_main
 import bitsift
 from bitsift.analysis.redundancy import redundancy
 from bitsift.analysis.selection import select_attributes
-from bitsift.errors import DataError, SpecError
+from bitsift.errors import DataError, SpecError, TableNotFoundError
 from bitsift.run.target_bins import target_labels
 
 ROWS = 400
@@ -124,7 +125,7 @@ def test_target_bins_keep_nulls_out_and_reach_every_command(con):
     ranking = bitsift.rank(con, target="growth", table="trays", target_bins=3, attributes="shade")
     assert ranking.rows == ROWS - 10 and ranking.rows_excluded == 10
     pairs = redundancy(con, target="growth", table="trays", target_bins=3,
-                               attributes="shade,moisture")
+                       attributes="shade,moisture", include_flagged=True)
     assert [p.first for p in pairs.matrix.ordered()] == ["shade"]
 
 
@@ -284,3 +285,51 @@ def test_high_cardinality_pairs_go_in_batches_of_their_own(screened: Path, monke
     unbounded = redundancy(str(screened), target="outcome", table="trays", include_flagged=True,
                            attributes="tray_id,bench,light,site")
     assert unbounded.matrix.pairs == result.matrix.pairs
+
+
+# Item 12: a table missing from the schema searched but present in others says where.
+
+def test_duckdb_names_the_schemas_holding_the_table():
+    connection = duckdb.connect()
+    connection.execute("CREATE SCHEMA crm; CREATE SCHEMA archive; CREATE SCHEMA \"a.b\"")
+    for schema in ("crm", "archive", '"a.b"'):
+        connection.execute(f"CREATE TABLE {schema}.Accounts (region VARCHAR, churned BOOLEAN)")
+    with pytest.raises(TableNotFoundError) as caught:
+        bitsift.rank(connection, target="churned", table="accounts")
+    message = str(caught.value)
+    assert message.startswith("unknown table: 'accounts'")
+    assert ('a table of that name exists as "a.b".Accounts, archive.Accounts, crm.Accounts: '
+            "give that to table") in message
+    with pytest.raises(TableNotFoundError) as nowhere:
+        bitsift.rank(connection, target="churned", table="ledger")
+    assert "exists as" not in str(nowhere.value)
+
+
+def test_the_cli_spells_the_flag(tmp_path: Path, capsys):
+    path = tmp_path / "customers.duckdb"
+    with duckdb.connect(str(path)) as connection:
+        connection.execute("CREATE SCHEMA crm; CREATE TABLE crm.accounts (r INTEGER, y INTEGER)")
+    outcome = run_main(capsys, "rank", str(path), "-t", "accounts", "-y", "y")
+    assert outcome.code == 1
+    assert outcome.err == ("Error: unknown table: 'accounts'; a table of that name exists as "
+                           "crm.accounts: give that to --table\n")
+
+
+def test_postgres_names_the_schemas_holding_the_table(postgres_engine, pg_schema):
+    with postgres_engine.begin() as connection:
+        connection.exec_driver_sql(f'CREATE TABLE "{pg_schema}".accounts (r INTEGER, y INTEGER)')
+    with pytest.raises(TableNotFoundError) as caught:
+        bitsift.rank(postgres_engine, target="y", table="accounts")
+    assert f"exists as {pg_schema}.accounts" in str(caught.value)
+    with pytest.raises(TableNotFoundError) as other:
+        bitsift.rank(postgres_engine, target="y", table="public.accounts")
+    assert f"in schema 'public'; a table of that name exists as {pg_schema}.accounts" in str(
+        other.value)
+
+
+def test_mariadb_names_the_databases_holding_the_table(mariadb_engine, mariadb_database):
+    with mariadb_engine.begin() as connection:
+        connection.exec_driver_sql(f"CREATE TABLE `{mariadb_database}`.accounts (r INT, y INT)")
+    with pytest.raises(TableNotFoundError) as caught:
+        bitsift.rank(mariadb_engine, target="y", table="accounts")
+    assert f"exists as {mariadb_database}.accounts" in str(caught.value)

@@ -11,9 +11,52 @@ from typing import Any, ClassVar
 
 from sqlglot import exp
 
-from bitsift.errors import QueryCancelledError, QueryError, SpecError
+from bitsift.errors import (
+    Option,
+    Problem,
+    QueryCancelledError,
+    QueryError,
+    SpecError,
+    TableNotFoundError,
+)
+from bitsift.names import resolve_name
 from bitsift.spec.schema import Column
 from bitsift.sql.dialects import Capabilities
+
+#: Schemas searched for a table of the name that was not found (the error path only).
+MAX_SCHEMAS_SEARCHED = 200
+
+
+def tables_elsewhere(name: str, places: Sequence[tuple[str, Sequence[str]]]) -> list[str]:
+    """``schema.table`` for every schema in ``places`` (schema, its tables) holding a table
+    named ``name`` (by :func:`bitsift.names.resolve_name`), in the order given.
+
+    >>> tables_elsewhere("Accounts", [("crm", ["accounts", "x"]), ("ops", ["y"])])
+    ['crm.accounts']
+    """
+    found = []
+    for schema, tables in places:
+        real = resolve_name(name, list(tables))
+        if real is not None:
+            found.append(f"{_dotted(schema)}.{_dotted(real)}")
+    return found
+
+
+def _dotted(part: str) -> str:
+    """A name part as ``--table`` takes it: double-quoted when it holds a dot or a quote."""
+    if "." in part or '"' in part:
+        return '"' + part.replace('"', '""') + '"'
+    return part
+
+
+def missing_table_error(message: str, elsewhere: Sequence[str]) -> TableNotFoundError:
+    """"unknown table ..." plus, when a table of that name exists in other schemas, where
+    (issue 21, item 12: the usual cause is a table in a schema not on the search path)."""
+    if not elsewhere:
+        return TableNotFoundError(message)
+    listed = ", ".join(elsewhere)
+    return TableNotFoundError(problems=[Problem("table", (
+        f"{message}; a table of that name exists as {listed}: give that to ", Option("table")))])
 
 
 @dataclass(frozen=True)

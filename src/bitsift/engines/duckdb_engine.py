@@ -11,13 +11,19 @@ from typing import ClassVar
 import duckdb
 from sqlglot import exp
 
-from bitsift.engines.base import Engine, FetchResult, check_timeout_limit
+from bitsift.engines.base import (
+    MAX_SCHEMAS_SEARCHED,
+    Engine,
+    FetchResult,
+    check_timeout_limit,
+    missing_table_error,
+    tables_elsewhere,
+)
 from bitsift.errors import (
     QueryCancelledError,
     QueryError,
     QueryTimeoutError,
     SourceError,
-    TableNotFoundError,
     first_line,
     unknown_names_message,
 )
@@ -103,7 +109,10 @@ class DuckDBEngine(Engine):
             relation = self.con.sql(query)
             names, types = relation.columns, relation.types
         except duckdb.CatalogException:
-            raise TableNotFoundError(self._missing_table_message(table, display)) from None
+            elsewhere = self._tables_elsewhere(table)
+            message = (f"unknown table: {display!r}" if elsewhere
+                       else self._missing_table_message(table, display))
+            raise missing_table_error(message, elsewhere) from None
         except duckdb.IOException as error:
             raise SourceError(f"cannot read {display}: {first_line(error)}") from None
         except duckdb.Error as error:
@@ -131,6 +140,21 @@ class DuckDBEngine(Engine):
         ).fetchall()
         if len(places) == 1 and places[0][0]:
             table.set("db", exp.to_identifier(places[0][1], quoted=True))
+
+    def _tables_elsewhere(self, table: exp.Expression) -> list[str]:
+        """Other schemas (of any attached database) holding a table of this name."""
+        if not isinstance(table, exp.Table):
+            return []
+        rows = self.con.execute(
+            "SELECT table_catalog, table_schema, list(table_name ORDER BY table_name) "
+            "FROM information_schema.tables GROUP BY ALL ORDER BY ALL LIMIT ?",
+            [MAX_SCHEMAS_SEARCHED]).fetchall()
+        current = self.con.execute("SELECT current_database()").fetchone()
+        here = current[0] if current else None
+        # The schema searched holds no such table (or it would have been found): no filter.
+        places = [(schema if catalog == here else f"{catalog}.{schema}", tables)
+                  for catalog, schema, tables in rows]
+        return tables_elsewhere(table.name, places)
 
     def _missing_table_message(self, table: exp.Expression, display: str) -> str:
         rows = self.con.execute(
