@@ -333,3 +333,104 @@ def test_mariadb_names_the_databases_holding_the_table(mariadb_engine, mariadb_d
     with pytest.raises(TableNotFoundError) as caught:
         bitsift.rank(mariadb_engine, target="y", table="accounts")
     assert f"exists as {mariadb_database}.accounts" in str(caught.value)
+
+
+# Item 3: reader options for CSV files, and a note when a text column holds numbers.
+
+SEMICOLON_CSV = "tray;weight_g;ratio;grp\n" + "".join(
+    f"{i};{100 + i % 7},{i % 10};{'inf' if i % 50 == 0 else str((i % 9) / 4).replace('.', ',')};"
+    f"{'ab'[i % 7 > 3]}\n"
+    for i in range(200))
+
+
+@pytest.fixture
+def semicolon_csv(tmp_path: Path) -> Path:
+    path = tmp_path / "trays.csv"
+    path.write_text(SEMICOLON_CSV)
+    return path
+
+
+def test_a_decimal_comma_file_gets_a_note_and_reads_as_numbers_with_options(semicolon_csv):
+    plain = bitsift.rank(str(semicolon_csv), target="grp")
+    assert plain["weight_g"].kind == "categorical"  # read as text: what the note is for
+    notes = " | ".join(plain.notes)
+    assert "column 'weight_g' is read as text" in notes and "decimal=," in notes
+    assert "column 'ratio' is read as text" in notes
+    commas = bitsift.rank(bitsift.FileSource.of(str(semicolon_csv), ["delimiter=;", "decimal=,"]),
+                          target="grp")
+    assert commas["weight_g"].kind == "numeric"
+    assert [n for n in commas.notes if "'ratio'" in n and "double=ratio" in n]  # inf: still text
+    read = bitsift.rank(bitsift.FileSource.of(str(semicolon_csv), ["delimiter=;", "decimal=,",
+                                                                   "double=ratio"]),
+                        target="grp")
+    assert read["weight_g"].kind == "numeric" and read["ratio"].kind == "numeric"
+    assert read.notes == []
+    # The reference: the same numbers computed by Python from the text.
+    weights = sorted(float(line.split(";")[1].replace(",", "."))
+                     for line in SEMICOLON_CSV.splitlines()[1:])
+    assert read["weight_g"].cuts == pytest.approx(
+        sorted(set(np.quantile(weights, [j / 10 for j in range(1, 10)]))), abs=1e-12)
+
+
+def test_read_options_are_checked_all_at_once():
+    from bitsift.engines.read_options import parse_read_options
+    with pytest.raises(SpecError) as caught:
+        parse_read_options(["delim=;", "decimal=;", "header=maybe", "skip=-1", "quote=ab",
+                            "delimiter"])
+    message = str(caught.value)
+    assert "takes KEY=VALUE" in message
+    with pytest.raises(SpecError) as caught:
+        parse_read_options(["delim=;", "decimal=;", "header=maybe", "skip=-1", "quote=ab"])
+    message = str(caught.value)
+    for part in ("unknown key 'delim' (did you mean 'delimiter'?)", "decimal: must be one of",
+                 "header: must be true or false", "skip: must be a whole number",
+                 "quote: must be 1 to 1 character"):
+        assert part in message
+    assert parse_read_options(["delimiter==", "null=it's"]) == (("delimiter", "="),
+                                                                 ("null", "it's"))
+
+
+def test_read_option_values_reach_sql_as_literals(tmp_path: Path):
+    path = tmp_path / "odd.csv"
+    path.write_text("a|y\nit's|1\nx|0\nit's|1\n")
+    ranking = bitsift.rank(bitsift.FileSource.of(str(path), {"delimiter": "|", "null": "it's"}),
+                           target="y")
+    assert ranking["a"].distinct == 2  # NULL and 'x': the null string was read as one
+    assert any("nullstr = 'it''s'" in s.lower() for s in ranking.statements)
+
+
+def test_read_options_only_for_csv_files(tmp_path: Path):
+    parquet = tmp_path / "t.parquet"
+    duckdb.sql(f"COPY (SELECT 1 AS a, 2 AS y) TO '{parquet}' (FORMAT parquet)")
+    with pytest.raises(SpecError, match="read_option applies to CSV files only"):
+        bitsift.rank(bitsift.FileSource.of(str(parquet), {"header": "yes"}), target="y")
+
+
+@pytest.mark.slow
+def test_read_options_on_the_cli_and_in_job_files(semicolon_csv, tmp_path: Path, capsys):
+    refused = run_main(capsys, "rank", str(semicolon_csv), "-y", "grp", "--read-option",
+                       "delim=;")
+    assert refused.code == 1 and refused.err.startswith("Error: --read-option unknown key")
+    read = run_main(capsys, "rank", str(semicolon_csv), "-y", "grp", "--read-option",
+                    "delimiter=;", "--read-option", "decimal=,", "--format", "json")
+    assert read.code == 0, read.err
+    kinds = {a["attribute"]: a["kind"] for a in json.loads(read.out)["attributes"]}
+    assert kinds["weight_g"] == "numeric"
+    assert "note: column 'ratio' is read as text" in read.err
+    spark = run_main(capsys, "rank", str(semicolon_csv), "-y", "grp", "--engine", "spark",
+                     "--read-option", "delimiter=;")
+    assert spark.code == 1 and "not with --engine spark" in spark.err
+    job = tmp_path / "job.toml"
+    job.write_text(f'job = "csv"\nsource = "{semicolon_csv}"\n'
+                   'read_options = {delimiter = ";", decimal = ",", double = "ratio"}\n'
+                   f'[results]\ndestination = "{tmp_path / "h.duckdb"}"\n'
+                   '[[ranking]]\ntarget = "grp"\n')
+    ran = run_main(capsys, "run", str(job))
+    assert ran.code == 0, ran.err
+    with duckdb.connect(str(tmp_path / "h.duckdb")) as history:
+        tables = [t for (t,) in history.execute("SHOW TABLES").fetchall()]
+        kinds = dict(history.execute(f"SELECT attribute, kind FROM {tables[0]}").fetchall())
+    assert kinds["weight_g"] == "numeric" and kinds["ratio"] == "numeric"
+    job.write_text(job.read_text().replace('decimal = ","', 'decimal = ";"'))
+    checked = run_main(capsys, "run", str(job))
+    assert checked.code == 1 and "decimal: must be one of" in checked.err

@@ -9,13 +9,16 @@ a module global, so two invocations in one process (tests) cannot see each other
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import click
 
+from bitsift.engines.read_options import FileSource
 from bitsift.engines.sources import ENGINE_NAMES, EngineSource
+from bitsift.errors import SpecError
 from bitsift.names import one_line
 from bitsift.spec.rankspec import (
     BINNING_METHODS,
@@ -113,10 +116,33 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--timeout", type=float, help="Statement timeout in seconds."),
         click.option("--high-cardinality", "high_cardinality", type=int, default=1000,
                      show_default=True, help="Flag attributes with more distinct values."),
+        click.option("--read-option", "read_options", multiple=True, metavar="KEY=VALUE",
+                     help="How to read a CSV SOURCE (repeatable): delimiter, decimal, header, "
+                          "null, date_format, timestamp_format, quote, escape, comment, skip, "
+                          "encoding, double (a column to read as a number)."),
     ]
     for option in reversed(options):
         command = option(command)
-    return command
+    return _with_read_options(command)
+
+
+def _with_read_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """The command with SOURCE wrapped in a :class:`FileSource` when ``--read-option`` is
+    given (the library takes the reader options with the file, wherever it takes a source)."""
+
+    @functools.wraps(command)
+    def with_reader(*args: Any, **kwargs: Any) -> Any:
+        options = kwargs.pop("read_options", ())
+        if options:
+            if kwargs.get("source") is None:
+                raise SpecError.option("read_option", " needs a SOURCE file to read")
+            if kwargs.get("engine") not in (None, "duckdb"):
+                raise SpecError.option("read_option", " applies to CSV files read by DuckDB, "
+                                       f"not with --engine {kwargs['engine']}")
+            kwargs["source"] = FileSource.of(kwargs["source"], options)
+        return command(*args, **kwargs)
+
+    return with_reader
 
 
 #: --by: segments, for the commands that support them (rank, sql, report).

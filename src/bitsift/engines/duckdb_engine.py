@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import threading
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import ClassVar
@@ -51,11 +52,13 @@ def file_reader(path: str) -> str | None:
     return FILE_READERS.get(suffixes[-1].lower()) if suffixes else None
 
 
-def file_table(path: str) -> exp.Expression:
-    """``read_parquet('path')``: the path is a string literal, never an identifier."""
+def file_table(path: str, arguments: Sequence[exp.Expression] = ()) -> exp.Expression:
+    """``read_parquet('path')``: the path is a string literal, never an identifier;
+    ``arguments``: the reader's named arguments (:mod:`bitsift.engines.read_options`)."""
     reader = file_reader(path)
     assert reader is not None
-    return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path)]))
+    return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path),
+                                                                  *arguments]))
 
 
 @dataclass

@@ -50,7 +50,7 @@ def model_text(job: Job, ranking: JobRanking, dialect: str | None = None,
     """The content of one model file: header comment, then one SELECT (no semicolon).
     ``session``: the ranking's source already open (default: the job's source is opened)."""
     options = {k: v for k, v in ranking.options.items() if k not in ("limit", "timeout")}
-    source = session if session is not None else job.source
+    source = session if session is not None else job.opened_source
     statement = api.statement(source, ranking.target, ranking.table, dialect=dialect,
                               **options)
     header = [
