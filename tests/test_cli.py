@@ -27,7 +27,8 @@ from bitsift.run.result import ATTRIBUTE_KEYS
 TOP_KEYS = ["target", "table", "rows", "rows_excluded", "target_entropy", "classes", "attributes"]
 #: Keys the table and Markdown formats show as columns; the binning (method, bin count, cut
 #: points) of numeric attributes is listed below the table instead.
-TABLE_KEYS = tuple(k for k in ATTRIBUTE_KEYS if k not in ("binning", "bins", "cuts"))
+TABLE_KEYS = tuple(k for k in ATTRIBUTE_KEYS
+                   if k not in ("binning", "bins", "cuts", "date_part"))
 SCRIPT = Path(sys.executable).with_name("bitsift")
 
 # A generated table (values are functions of the row number): an id, a text channel, an

@@ -17,7 +17,7 @@ from helpers import run_main
 import bitsift
 from bitsift.analysis.redundancy import redundancy
 from bitsift.analysis.selection import select_attributes
-from bitsift.errors import DataError, SpecError, TableNotFoundError
+from bitsift.errors import ColumnError, DataError, SpecError, TableNotFoundError
 from bitsift.run.target_bins import target_labels
 
 ROWS = 400
@@ -434,3 +434,111 @@ def test_read_options_on_the_cli_and_in_job_files(semicolon_csv, tmp_path: Path,
     job.write_text(job.read_text().replace('decimal = ","', 'decimal = ";"'))
     checked = run_main(capsys, "run", str(job))
     assert checked.code == 1 and "decimal: must be one of" in checked.err
+
+
+# Item 2: dates and timestamps default to binned time, cut points in ISO 8601 everywhere; a
+# date part the type cannot have is refused; the part used is shown.
+
+@pytest.fixture
+def dated() -> duckdb.DuckDBPyConnection:
+    connection = duckdb.connect()
+    connection.execute(
+        "CREATE TABLE trays AS SELECT DATE '2024-01-01' + CAST(i % 366 AS INTEGER) AS sown_on, "
+        "TIMESTAMP '2024-01-01 00:00:00' + to_seconds(i * 3607) AS checked_at, "
+        "CASE WHEN i % 366 < 183 THEN 'early' ELSE 'late' END AS season FROM range(2000) r(i)")
+    return connection
+
+
+def test_dates_and_timestamps_are_binned_as_time_with_iso_cuts(dated):
+    ranking = bitsift.rank(dated, target="season", table="trays")
+    sown, checked = ranking["sown_on"], ranking["checked_at"]
+    assert sown.kind == checked.kind == "numeric" and "id_like" not in checked.flags
+    assert sown.temporal == "date" and checked.temporal == "timestamp"
+    # The reference: numpy.quantile of the epoch days/seconds, shown as the first day on the
+    # right of each cut (dates) or the instant (timestamps), by Python's datetime.
+    import datetime as dt
+    days = np.array([(dt.date(2024, 1, 1) + dt.timedelta(days=i % 366)
+                      - dt.date(1970, 1, 1)).days for i in range(2000)]) * 86400.0
+    levels = [j / 10 for j in range(1, 10)]
+    want = sorted(set(np.quantile(days, levels)))
+    assert sown.cuts == pytest.approx(want, abs=1e-6)
+    assert sown.to_dict()["cuts"] == [
+        (dt.date(1970, 1, 1) + dt.timedelta(days=int(np.ceil(c / 86400)))).isoformat()
+        for c in want]
+    seconds = np.array([i * 3607 for i in range(2000)], dtype=float) + 1704067200.0
+    instants = [dt.datetime(1970, 1, 1) + dt.timedelta(microseconds=round(c * 1e6))
+                for c in np.quantile(seconds, levels)]
+    assert checked.to_dict()["cuts"] == [t.isoformat() for t in instants]
+    assert sown.information_gain > 0.85  # the season is a range of dates
+
+
+def test_iso_cuts_in_every_format(dated, tmp_path: Path, capsys):
+    path = tmp_path / "dated.duckdb"
+    dated.execute(f"ATTACH '{path}' AS out; CREATE TABLE out.trays AS SELECT * FROM trays; "
+                  "DETACH out")
+    base = ("rank", str(path), "-t", "trays", "-y", "season")
+    data = json.loads(run_main(capsys, *base, "--format", "json").out)
+    cuts = {a["attribute"]: a["cuts"] for a in data["attributes"]}
+    assert all(isinstance(c, str) and len(c) == 10 for c in cuts["sown_on"])
+    assert all("T" in c for c in cuts["checked_at"])
+    table = run_main(capsys, *base).out
+    assert "sown_on     quantile of time, 10 bins: 2024-" in table
+    csv_text = run_main(capsys, *base, "--format", "csv").out
+    assert ";".join(cuts["sown_on"]) in csv_text
+    markdown = run_main(capsys, *base, "--format", "markdown").out
+    assert cuts["checked_at"][0] in markdown
+
+
+def test_a_date_part_the_type_cannot_have_is_refused(dated, tmp_path: Path, capsys):
+    with pytest.raises(ColumnError, match=r"hour of 'sown_on' \(DATE\)$"):
+        bitsift.rank(dated, target="season", table="trays", date_part="sown_on=hour")
+    with pytest.raises(ColumnError, match="name the columns that have it instead"):
+        bitsift.rank(dated, target="season", table="trays", date_part="hour")
+    hours = bitsift.rank(dated, target="season", table="trays", date_part="checked_at=hour")
+    assert hours["checked_at"].kind == "categorical" and hours["checked_at"].date_part == "hour"
+    assert hours["checked_at"].distinct == 24 and hours["sown_on"].kind == "numeric"
+    assert hours["checked_at"].to_dict()["date_part"] == "hour"
+    months = bitsift.rank(dated, target="season", table="trays", date_part="month")
+    assert {a.attribute: a.date_part for a in months.attributes} == {
+        "sown_on": "month", "checked_at": "month"}
+    exact = bitsift.rank(dated, target="season", table="trays", categorical="sown_on")
+    assert exact["sown_on"].kind == "categorical" and exact["sown_on"].distinct == 366
+
+
+@pytest.mark.slow
+def test_the_cli_refuses_hour_on_a_date_in_one_line_and_shows_the_part(dated, tmp_path, capsys):
+    path = tmp_path / "dated.duckdb"
+    dated.execute(f"ATTACH '{path}' AS out; CREATE TABLE out.trays AS SELECT * FROM trays; "
+                  "DETACH out")
+    base = ("rank", str(path), "-t", "trays", "-y", "season")
+    refused = run_main(capsys, *base, "--date-part", "sown_on=hour")
+    assert refused.code == 1 and refused.err == (
+        "Error: --date-part asks for a part these columns cannot have: hour of 'sown_on' "
+        "(DATE)\n")
+    shown = run_main(capsys, *base, "--date-part", "checked_at=hour")
+    assert "date parts ranked as categories:\n  checked_at  hour" in shown.out
+
+
+@pytest.mark.parametrize("engine", ["postgres", "mariadb"])
+def test_dates_are_binned_as_time_on_servers(request, engine, dated):
+    if engine == "postgres":
+        server, schema, quote = (request.getfixturevalue("postgres_engine"),
+                                 request.getfixturevalue("pg_schema"), '"')
+        stamp = "TIMESTAMP"
+    else:
+        server, schema, quote = (request.getfixturevalue("mariadb_engine"),
+                                 request.getfixturevalue("mariadb_database"), "`")
+        stamp = "DATETIME"
+    rows = dated.execute("SELECT sown_on, checked_at, season FROM trays").fetchall()
+    table = f"{quote}{schema}{quote}.trays"
+    with server.begin() as connection:
+        connection.exec_driver_sql(f"CREATE TABLE {table} (sown_on DATE, checked_at {stamp}, "
+                                   "season VARCHAR(8))")
+        connection.execute(sa.text(f"INSERT INTO {table} VALUES (:d, :t, :s)"),
+                           [{"d": d, "t": t, "s": s} for d, t, s in rows])
+    got = bitsift.rank(server, target="season", table=f"{schema}.trays")
+    want = bitsift.rank(dated, target="season", table="trays")
+    for name in ("sown_on", "checked_at"):
+        assert got[name].to_dict()["cuts"] == want[name].to_dict()["cuts"]
+    with pytest.raises(ColumnError, match="hour of 'sown_on'"):
+        bitsift.rank(server, target="season", table=f"{schema}.trays", date_part="sown_on=hour")

@@ -83,7 +83,8 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--categorical", multiple=True, callback=comma_list,
                      help="Treat these columns as categories even if numeric."),
         click.option("--numeric", multiple=True, callback=comma_list,
-                     help="Bin these number columns (floats and decimals always are)."),
+                     help="Bin these number columns (floats, decimals, dates and timestamps "
+                          "always are)."),
         click.option("--missing", type=click.Choice(MISSING_MODES), default="category",
                      show_default=True,
                      help="NULL attribute values: their own category, or dropped per attribute."),
@@ -99,10 +100,9 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
                           'a name holding = or , in double quotes: "p=q"=mdl.'),
         click.option("--date-part", "date_part", multiple=True, callback=pair_list,
                      metavar="[COL=]PART",
-                     help="Rank dates as categories of a part (year, month, dow, hour): "
-                          "sown_on=month, or a bare PART for every date column. Dates named "
-                          'in --numeric are binned as epoch seconds instead. A name holding '
-                          '= or , in double quotes: "d=1"=month.'),
+                     help="Rank dates as categories of a part (year, month, dow, hour) instead "
+                          "of binned time: sown_on=month, or a bare PART for every date column. "
+                          'A name holding = or , in double quotes: "d=1"=month.'),
         click.option("--target-bins", "target_bins", type=int, metavar="N",
                      help="Rank against N quantile bins of a numeric target (cut in the "
                           "database; a float or decimal target needs this)."),

@@ -89,10 +89,16 @@ def rank(source: Any, target: str, table: str | None = None, **options: Any,
 
 
 def _label_binning(ranking: Ranking, spec: RankSpec) -> None:
-    """Name each numeric attribute's binning method on its score."""
-    methods = {a.name: a.binning for a in spec.attributes}
+    """Name each numeric attribute's binning method, each dated attribute's part or time
+    binning, on its score."""
+    attributes = {a.name: a for a in spec.attributes}
     for scored in ranking.attributes:
-        scored.binning = methods.get(scored.attribute)
+        attribute = attributes.get(scored.attribute)
+        if attribute is None:
+            continue
+        scored.binning = attribute.binning
+        scored.date_part = attribute.date_part
+        scored.temporal = attribute.family if attribute.epoch else None
 
 
 #: Attributes per ranking statement in run mode; wider tables are ranked in batches, one

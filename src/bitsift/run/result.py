@@ -7,6 +7,8 @@ from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
+from bitsift.numformat import iso_cut
+
 #: Keys of one attribute in the JSON contract, in order.
 ATTRIBUTE_KEYS: tuple[str, ...] = (
     "attribute",
@@ -24,6 +26,7 @@ ATTRIBUTE_KEYS: tuple[str, ...] = (
     "binning",
     "bins",
     "cuts",
+    "date_part",
 )
 
 
@@ -52,14 +55,27 @@ class AttributeScore:
     cuts: list[float] | None = None
     #: How a numeric attribute was binned: quantile, equal-width, best-split or mdl.
     binning: str | None = None
+    #: A date or timestamp ranked as categories of this part (year, month, dow, hour).
+    date_part: str | None = None
+    #: "date" or "timestamp" for a dated attribute binned as time: its cut points are epoch
+    #: seconds here and ISO 8601 strings in every output (:meth:`shown_cuts`).
+    temporal: str | None = None
 
     @property
     def bins(self) -> int | None:
         """The number of bins the cut points make (numeric attributes; some may be empty)."""
         return len(self.cuts) + 1 if self.cuts is not None else None
 
+    def shown_cuts(self) -> list[float] | list[str] | None:
+        """The cut points as outputs show them: numbers, or ISO 8601 for dated attributes."""
+        if self.cuts is None or self.temporal is None:
+            return self.cuts
+        return [iso_cut(c, self.temporal) for c in self.cuts]
+
     def to_dict(self) -> dict[str, Any]:
-        return {key: getattr(self, key) for key in ATTRIBUTE_KEYS}
+        out = {key: getattr(self, key) for key in ATTRIBUTE_KEYS}
+        out["cuts"] = self.shown_cuts()
+        return out
 
 
 @dataclass

@@ -400,9 +400,13 @@ def resolve(
     for n in names:
         col = by_name[n]
         kind: Kind
+        part = part_of.get(n)
+        if (part is None and n not in forced_cat and n not in forced_num
+                and col.family in TEMPORAL_FAMILIES):
+            part = every_date_part  # a bare --date-part PART: every date column not named
         if n in forced_num:
             kind = "numeric"
-        elif n in forced_cat:
+        elif n in forced_cat or part is not None:
             kind = "categorical"
         else:
             kind = col.default_kind
@@ -411,10 +415,8 @@ def resolve(
             attributes.append(AttributeSpec(name=n, kind=kind, family=col.family,
                                             binning=method, bins=bins or options.bins))
             continue
-        part = part_of.get(n)
-        if part is None and n not in forced_cat and col.family in TEMPORAL_FAMILIES:
-            part = every_date_part  # a bare --date-part PART: every date column not named
         attributes.append(AttributeSpec(name=n, kind=kind, family=col.family, date_part=part))
+    _refuse_impossible_parts(attributes, part_of, by_name)
     unbinned = [a.name for a in attributes if a.name in binning_of and a.kind != "numeric"]
     if unbinned:
         raise SpecError(problems=[Problem("binning_for", (
@@ -434,6 +436,26 @@ def resolve(
                  for n in dict.fromkeys(segment_names)),
         weight=weight,
     )
+
+
+#: Date parts a column of each family cannot have (a DATE has no hour: it would be constant).
+IMPOSSIBLE_PARTS: dict[str, frozenset[str]] = {"date": frozenset({"hour"})}
+
+
+def _refuse_impossible_parts(attributes: Sequence[AttributeSpec], named: dict[str, str],
+                             by_name: dict[str, Column]) -> None:
+    """Refuse a ``date_part`` the column's type cannot have, naming each column and type (a
+    bare part too: ``--date-part hour`` would make every DATE column a constant)."""
+    wrong = [a for a in attributes
+             if a.date_part and a.date_part in IMPOSSIBLE_PARTS.get(a.family, frozenset())]
+    if not wrong:
+        return
+    how = ("" if all(a.name in named for a in wrong)
+           else "; name the columns that have it instead (COLUMN=PART)")
+    raise ColumnError(problems=[Problem("date_part", (
+        Option("date_part"), " asks for a part these columns cannot have: " + ", ".join(
+            f"{a.date_part} of {a.name!r} ({by_name[a.name].type_name or a.family})"
+            for a in wrong) + how))])
 
 
 def _check_target_type(options: RankOptions, column: Column) -> None:
