@@ -542,3 +542,12 @@ def test_dates_are_binned_as_time_on_servers(request, engine, dated):
         assert got[name].to_dict()["cuts"] == want[name].to_dict()["cuts"]
     with pytest.raises(ColumnError, match="hour of 'sown_on'"):
         bitsift.rank(server, target="season", table=f"{schema}.trays", date_part="sown_on=hour")
+
+
+def test_the_drill_down_labels_dated_bins_in_iso(dated):
+    from bitsift.analysis.profile import profile
+    run = profile(dated, target="season", table="trays", attributes="sown_on,checked_at")
+    sown = run.profiles.attributes["sown_on"]
+    assert sown.temporal == "date" and sown.values[0].label.startswith("< 2024-")
+    assert sown.to_dict()["cuts"][0].startswith("2024-")
+    assert "T" in run.profiles.attributes["checked_at"].values[1].label

@@ -149,3 +149,16 @@ def iso_cut(seconds: float, family: str) -> str:
     if family == "date":
         return (_EPOCH + _dt.timedelta(days=math.ceil(seconds / _DAY))).date().isoformat()
     return (_EPOCH + _dt.timedelta(microseconds=round(seconds * 1_000_000))).isoformat()
+
+
+def cut_texts(cuts: Sequence[float], temporal: str | None = None, min_digits: int = 6,
+              ) -> list[str]:
+    """Cut points as text: :func:`cut_labels`, or ISO 8601 (:func:`iso_cut`) for a date or
+    timestamp binned as time (``temporal``: its family).
+
+    >>> cut_texts([1709596800.0], "date"), cut_texts([2.5])
+    (['2024-03-05'], ['2.5'])
+    """
+    if temporal is None:
+        return cut_labels(cuts, min_digits)
+    return [iso_cut(c, temporal) for c in cuts]
