@@ -15,14 +15,12 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import replace
 
-from sqlglot import exp
-
 from bitsift.engines.base import Engine
 from bitsift.numformat import cut_labels
 from bitsift.run.cuts import fetch_cuts
 from bitsift.spec.rankspec import AttributeSpec, RankSpec
 from bitsift.spec.schema import Column
-from bitsift.sql.sqlbuild import value_literal
+from bitsift.sql.sqlstatements import binned_target_source
 
 #: How the target is cut (the only method: equal-frequency bins are what a class needs).
 TARGET_BINNING = "quantile"
@@ -46,25 +44,6 @@ def target_labels(cuts: Sequence[float]) -> list[str]:
     return [f"{index:0{width}d}: {text}" for index, text in enumerate(ranges, start=1)]
 
 
-def binned_source(spec: RankSpec, columns: Sequence[Column],
-                  cuts: Sequence[float]) -> exp.Expression:
-    """``(SELECT <every column but the target>, CASE ... END AS <target> FROM <table>)``: the
-    target as its bin label (NULL stays NULL; NaN, like an attribute's, lands in the last bin).
-    Cut points and labels enter as typed sqlglot literals, names quoted by sqlglot."""
-    target = exp.column(exp.to_identifier(spec.target, quoted=True))
-    labels = target_labels(cuts)
-    case = exp.Case().when(exp.Is(this=target.copy(), expression=exp.Null()), exp.Null())
-    for cut, label in zip(cuts, labels, strict=False):
-        below = exp.LT(this=exp.cast(target.copy(), exp.DataType.build("DOUBLE")),
-                       expression=value_literal(float(cut)))
-        case = case.when(below, value_literal(label))
-    case = case.else_(value_literal(labels[-1]))
-    selected = [exp.column(exp.to_identifier(c.name, quoted=True)) for c in columns
-                if c.name != spec.target]
-    query = exp.select(*selected, exp.alias_(case, exp.to_identifier(spec.target, quoted=True)))
-    return exp.Subquery(this=query.from_(spec.source.copy()))
-
-
 def bin_target(engine: Engine, spec: RankSpec, columns: Sequence[Column]) -> RankSpec:
     """``spec`` with its target read as ``options.target_bins`` quantile bins (see the module
     docstring); unchanged without ``target_bins``."""
@@ -75,7 +54,9 @@ def bin_target(engine: Engine, spec: RankSpec, columns: Sequence[Column]) -> Ran
                                  binning=TARGET_BINNING, bins=bins)
     probe = replace(spec, attributes=(as_attribute,), by=(), weight=None)
     cuts = fetch_cuts(engine, probe).get(spec.target, [])
-    return replace(spec, source=binned_source(spec, columns, cuts), target_family="text",
+    return replace(spec, source=binned_target_source(spec, [c.name for c in columns], cuts,
+                                                     target_labels(cuts)),
+                   target_family="text",
                    target_cuts=tuple(cuts))
 
 
