@@ -379,12 +379,15 @@ def test_date_parts_as_categories() -> None:
         assert ranking[column].distinct == expected["distinct"]
 
 
-def test_dates_stay_categorical_by_default() -> None:
+def test_dates_are_binned_as_time_by_default_and_categorical_when_asked() -> None:
+    # Issue 21, item 2 (was: dates stay categorical by default).
     dataset = dated_dataset(3, rows=60)
     with duckdb_with(dataset) as connection:
         ranking = bitsift.rank(connection, table="t", target="y")
-    assert ranking["day"].kind == "categorical"
-    assert ranking["day"].distinct == len(set(dataset.column("day")))
+        exact = bitsift.rank(connection, table="t", target="y", categorical="day")
+    assert ranking["day"].kind == "numeric" and ranking["day"].temporal == "date"
+    assert exact["day"].kind == "categorical"
+    assert exact["day"].distinct == len(set(dataset.column("day")))
 
 
 # --- options -----------------------------------------------------------------------------------
@@ -434,7 +437,9 @@ def test_cli_mdl_on_the_demo_shows_cuts_a_numpy_search_confirms(demo_db: Path) -
     assert shown.exit_code == 0, shown.output
     as_json = CliRunner().invoke(cli, [*args, "--format", "json"])
     payload = json.loads(as_json.stdout)
-    numeric = {a["attribute"]: a for a in payload["attributes"] if a["kind"] == "numeric"}
+    # Numbers only: dates are binned too, their cuts shown as ISO dates (tests/test_guard_rails).
+    numeric = {a["attribute"]: a for a in payload["attributes"] if a["kind"] == "numeric"
+               and not any(isinstance(c, str) for c in a["cuts"] or [])}
     assert {"moisture_pct", "light_hours"} <= set(numeric)
     with duckdb.connect(str(demo_db), read_only=True) as connection:
         for name, attribute in numeric.items():

@@ -33,7 +33,8 @@ UNCERTAINTY_KEYS = ("information_gain_se", "information_gain_corrected", "inform
 #: Keys the table and Markdown formats show as columns; the binning (method, bin count, cut
 #: points) of numeric attributes is listed below the table instead.
 TABLE_KEYS = (*(k for k in ATTRIBUTE_KEYS
-                if k not in ("binning", "bins", "cuts", *UNCERTAINTY_KEYS)), "interval", "rank")
+                if k not in ("binning", "bins", "cuts", "date_part", *UNCERTAINTY_KEYS)),
+              "interval", "rank")
 SCRIPT = Path(sys.executable).with_name("bitsift")
 
 # A generated table (values are functions of the row number): an id, a text channel, an

@@ -224,7 +224,7 @@ def shapes() -> duckdb.DuckDBPyConnection:
 
 
 def test_known_mutual_information(shapes: duckdb.DuckDBPyConnection) -> None:
-    m = redundancy(shapes, target="y", table="t").matrix
+    m = redundancy(shapes, target="y", table="t", include_flagged=True).matrix
     # I(X; X) = H(X) = log2 4 = 2 bits, SU 1; a coarsening shares all of its own entropy
     # (I(a; a mod 2) = H(a mod 2) = 1 bit); 4 and 3 are coprime over 120 rows: independent.
     assert m.mutual_information("a", "a_copy") == pytest.approx(2.0, abs=1e-12)
@@ -238,8 +238,9 @@ def test_known_mutual_information(shapes: duckdb.DuckDBPyConnection) -> None:
 @pytest.mark.slow
 def test_missing_drop_measures_rows_where_both_are_present(
         shapes: duckdb.DuckDBPyConnection) -> None:
-    kept = redundancy(shapes, target="y", table="t", missing="category").matrix
-    dropped = redundancy(shapes, target="y", table="t", missing="drop").matrix
+    kept = redundancy(shapes, target="y", table="t", missing="category",
+                      include_flagged=True).matrix
+    dropped = redundancy(shapes, target="y", table="t", missing="drop", include_flagged=True).matrix
     assert kept.pair("holes", "a").rows == 120
     assert dropped.pair("holes", "a").rows == 96  # 1 in 5 rows is NULL
     # Dropped, holes is a on the rows kept: I = H(a on those rows) = 2 bits (24 of each value).
@@ -251,14 +252,15 @@ def test_missing_drop_measures_rows_where_both_are_present(
 
 
 def test_limit_pairs_only_the_top_attributes(shapes: duckdb.DuckDBPyConnection) -> None:
-    result = redundancy(shapes, target="y", table="t", limit=3)
+    result = redundancy(shapes, target="y", table="t", limit=3, include_flagged=True)
     assert len(result.matrix.attributes) == 3
     assert len(result.matrix.pairs) == 3
     assert list(result.matrix.attributes) == [s.attribute for s in result.ranking.attributes]
 
 
 def test_matrix_is_symmetric_with_an_empty_diagonal(shapes: duckdb.DuckDBPyConnection) -> None:
-    m = redundancy(shapes, target="y", table="t", attributes="a,half,third").matrix
+    m = redundancy(shapes, target="y", table="t", attributes="a,half,third",
+                   include_flagged=True).matrix
     table = m.matrix()
     assert [row[i] for i, row in enumerate(table)] == [None, None, None]
     assert all(table[i][j] == table[j][i] for i in range(3) for j in range(3))
@@ -277,11 +279,12 @@ def test_dates_are_paired_as_the_ranking_measured_them() -> None:
     con.executemany("INSERT INTO t VALUES (?, ?, ?)",
                     [(d, (d.month - 1) // 3, i % 2) for i, d in enumerate(days)])
     quarter = [(d.month - 1) // 3 for d in days]
-    by_month = redundancy(con, target="y", table="t", date_part="d=month").matrix
+    by_month = redundancy(con, target="y", table="t", date_part="d=month",
+                          include_flagged=True).matrix
     # scikit-learn on the months themselves: I(month; quarter) = H(quarter).
     want = mutual_info_score([d.month for d in days], quarter) / math.log(2)
     assert by_month.mutual_information("d", "q") == pytest.approx(want, abs=TOLERANCE)
-    binned_dates = redundancy(con, target="y", table="t", numeric="d", bins=4)
+    binned_dates = redundancy(con, target="y", table="t", numeric="d", bins=4, include_flagged=True)
     cuts = binned_dates.ranking["d"].cuts
     assert cuts is not None and len(cuts) == 3
     epoch = [(d - datetime.date(1970, 1, 1)).days * 86400 for d in days]
@@ -295,7 +298,7 @@ def test_odd_column_names_are_quoted() -> None:
     con.execute('CREATE TABLE "my table" ("sel""ect" INTEGER, "a b" VARCHAR, "y" VARCHAR)')
     con.execute("""INSERT INTO "my table" SELECT i % 3, CAST(i % 3 AS VARCHAR) || '''',
                    CAST(i % 2 AS VARCHAR) FROM range(30) r(i)""")
-    m = redundancy(con, target="y", table='"my table"').matrix
+    m = redundancy(con, target="y", table='"my table"', include_flagged=True).matrix
     assert m.mutual_information('sel"ect', "a b") == pytest.approx(math.log2(3), abs=1e-12)
 
 
@@ -334,9 +337,9 @@ def test_statement_rejects_bad_pairs() -> None:
 
 def test_segments_and_weights_are_refused(shapes: duckdb.DuckDBPyConnection) -> None:
     with pytest.raises(SpecError, match="do not take by: they count rows"):
-        redundancy(shapes, target="y", table="t", by="third")
+        redundancy(shapes, target="y", table="t", by="third", include_flagged=True)
     with pytest.raises(SpecError, match="do not take weight"):
-        redundancy(shapes, target="y", table="t", weight="half")
+        redundancy(shapes, target="y", table="t", weight="half", include_flagged=True)
 
 
 # --- the command -------------------------------------------------------------------------------
@@ -367,14 +370,15 @@ def assert_same_document(got: Any, want: Any, path: str = "") -> None:
 
 @pytest.mark.slow
 def test_command_table_lists_the_top_pairs(source: str) -> None:
-    result = CliRunner().invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "--top", "3"])
+    result = CliRunner().invoke(cli, ["redundancy", "--include-flagged", source, "-t", "t", "-y",
+                                      "y", "--top", "3"])
     assert result.exit_code == 0, result.output
     lines = result.output.splitlines()
     assert lines[0].startswith("t: target 'y', ") and "15 pair(s) of 6 attribute(s)" in lines[0]
     assert "top 3 by mutual information" in lines[0]
     assert lines[2].split() == ["first", "second", "I", "(bits)", "sym", "unc", "H(first)",
                                 "H(second)", "rows"]
-    api = redundancy(source, target="y", table="t").matrix.ordered()
+    api = redundancy(source, target="y", table="t", include_flagged=True).matrix.ordered()
     shown = [line.split() for line in lines[4:7]]
     assert [(r[0], r[1], r[2]) for r in shown] == [
         (p.first, p.second, f"{p.mutual_information:.4f}") for p in api[:3]]
@@ -384,8 +388,9 @@ def test_command_table_lists_the_top_pairs(source: str) -> None:
 @pytest.mark.slow
 def test_command_csv_and_json_list_every_pair(source: str) -> None:
     runner = CliRunner()
-    csv_out = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "-f", "csv",
-                                  "--sort-pairs", "symmetric_uncertainty", "--missing", "drop"])
+    csv_out = runner.invoke(cli, ["redundancy", "--include-flagged", source, "-t", "t", "-y",
+                                  "y", "-f", "csv", "--sort-pairs", "symmetric_uncertainty",
+                                  "--missing", "drop"])
     assert csv_out.exit_code == 0, csv_out.output
     rows = csv_out.output.splitlines()
     assert rows[0].split(",") == list(PAIR_KEYS) and len(rows) == 16
@@ -398,11 +403,12 @@ def test_command_csv_and_json_list_every_pair(source: str) -> None:
         old = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "--by", value])
         assert old.exit_code == 2
         assert f"Error: redundancy takes no --by (segments); {hint}\n" in old.output
-    json_out = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "-f", "json",
+    json_out = runner.invoke(cli, ["redundancy", "--include-flagged", source, "-t", "t", "-y",
+                                   "y", "-f", "json",
                                    "--missing", "drop"])
     document = json.loads(json_out.output)
     assert document["missing"] == "drop" and len(document["pairs"]) == 15
-    api = redundancy(source, target="y", table="t", missing="drop")
+    api = redundancy(source, target="y", table="t", missing="drop", include_flagged=True)
     assert_same_document(document, json.loads(json.dumps(api.to_dict())))
     assert [a["attribute"] for a in document["attributes"]] == [
         s.attribute for s in api.ranking.attributes]
@@ -410,8 +416,10 @@ def test_command_csv_and_json_list_every_pair(source: str) -> None:
 
 def test_command_errors(source: str) -> None:
     runner = CliRunner()
-    bad = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "--batch-pairs", "0"])
+    bad = runner.invoke(cli, ["redundancy", "--include-flagged", source, "-t", "t", "-y", "y",
+                              "--batch-pairs", "0"])
     assert bad.exit_code == 2 and "--batch-pairs" in bad.output
-    unknown = runner.invoke(cli, ["redundancy", source, "-t", "t", "-y", "y", "-a", "wrod"])
+    unknown = runner.invoke(cli, ["redundancy", "--include-flagged", source, "-t", "t", "-y",
+                                  "y", "-a", "wrod"])
     assert unknown.exit_code == 1
     assert "wrod" in str(unknown.exception) and "word" in str(unknown.exception)

@@ -163,7 +163,7 @@ def test_random_data_selection_equals_numpy(criterion: str,
     dataset = near_copies(seed=21)
     with loaded("duckdb", dataset, request) as where:
         selection = select_attributes(where.source, target="y", table=where.table, k=5,
-                                      criterion=criterion, bins=6)
+                                      criterion=criterion, bins=6, include_flagged=True)
     assert_selection_matches_oracle(selection, dataset, "y", f"random/{criterion}")
     by_relevance = [s.attribute for s in selection.ranking.attributes][:5]
     # The twins are redundant: mRMR departs from the plain relevance order.
@@ -180,7 +180,7 @@ def test_wine_selection_equals_numpy_with_both_criteria(engine: str,
     with loaded(engine, dataset, request) as where:
         for criterion in ("mid", "miq"):
             selection = select_attributes(where.source, target="cultivar", table=where.table,
-                                          k=8, criterion=criterion)
+                                          k=8, criterion=criterion, include_flagged=True)
             assert len(selection.steps) == 8 and selection.ranking.rows == 178
             assert all(s.cuts for s in selection.ranking.attributes)  # all 13 were binned
             assert_selection_matches_oracle(selection, dataset, "cultivar",
@@ -192,7 +192,8 @@ def test_missing_drop_selection_equals_numpy_on_rows_where_both_are_present(
     dataset = near_copies(seed=22, rows=800)
     with loaded("duckdb", dataset, request) as where:
         selection = select_attributes(where.source, target="y", table=where.table, k=4,
-                                      missing="drop", attributes="strong,flag,weak,noise")
+                                      missing="drop", attributes="strong,flag,weak,noise",
+                                          include_flagged=True)
     # The oracle, by hand for --missing drop: relevance on rows where f is present, each
     # redundancy on rows where both are present.
     y = dataset.column("y")
@@ -282,8 +283,8 @@ def test_bad_requests() -> None:
 def test_a_measured_matrix_gives_the_same_steps() -> None:
     con = duckdb.connect()
     fill_duckdb(con, ["t"], near_copies(seed=23, rows=600))
-    full = redundancy(con, target="y", table="t")
-    lazy = select_attributes(con, target="y", table="t", k=4)
+    full = redundancy(con, target="y", table="t", include_flagged=True)
+    lazy = select_attributes(con, target="y", table="t", k=4, include_flagged=True)
     relevance = {s.attribute: s.information_gain for s in full.ranking.attributes}
     steps = greedy_mrmr(relevance, 4, matrix_lookup(full.matrix))
     assert [s.attribute for s in steps] == lazy.attributes
@@ -307,13 +308,14 @@ def source(tmp_path: Any) -> str:
 
 @pytest.mark.slow
 def test_command_table(source: str) -> None:
-    result = CliRunner().invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "3"])
+    result = CliRunner().invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y",
+                                      "y", "--k", "3"])
     assert result.exit_code == 0, result.output
     lines = result.stdout.splitlines()
     assert lines[0].startswith("t: target 'y', ")
     assert "greedy mRMR (MID) chose 3 of 7 candidate attribute(s)" in lines[0]
     assert lines[2].split()[:5] == ["#", "attribute", "relevance", "redundancy", "mid"]
-    api = select_attributes(source, target="y", table="t", k=3)
+    api = select_attributes(source, target="y", table="t", k=3, include_flagged=True)
     for line, step in zip(lines[4:7], api.steps, strict=True):
         cells = line.split()
         assert cells[:4] == [str(step.position), step.attribute, f"{step.relevance:.4f}",
@@ -325,15 +327,18 @@ def test_command_table(source: str) -> None:
 @pytest.mark.slow
 def test_command_json_and_csv(source: str) -> None:
     runner = CliRunner()
-    out = runner.invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "4",
+    out = runner.invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y", "y", "--k",
+                              "4",
                               "--criterion", "miq", "-f", "json", "--limit", "5"])
     assert out.exit_code == 0, out.output
     document = json.loads(out.stdout)
     assert (document["criterion"], document["k"], len(document["candidates"])) == ("miq", 4, 5)
     assert [list(s) for s in document["selected"]] == [list(STEP_KEYS)] * 4
-    api = select_attributes(source, target="y", table="t", k=4, criterion="miq", limit=5)
+    api = select_attributes(source, target="y", table="t", k=4, criterion="miq", limit=5,
+                            include_flagged=True)
     assert [s["attribute"] for s in document["selected"]] == api.attributes
-    csv_out = runner.invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "2", "-f", "csv"])
+    csv_out = runner.invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y", "y",
+                                  "--k", "2", "-f", "csv"])
     rows = csv_out.stdout.splitlines()
     assert rows[0].split(",") == list(STEP_KEYS) and len(rows) == 3
     assert rows[1].split(",")[5:] == ["", "0.0"]
@@ -341,7 +346,8 @@ def test_command_json_and_csv(source: str) -> None:
 
 @pytest.mark.slow
 def test_command_k_beyond_the_candidates_lists_them_all(source: str) -> None:
-    result = CliRunner().invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "9",
+    result = CliRunner().invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y",
+                                      "y", "--k", "9",
                                       "-a", "strong,flag,noise"])
     assert result.exit_code == 0, result.output
     assert "chose 3 of 3 candidate" in result.stdout
@@ -350,10 +356,13 @@ def test_command_k_beyond_the_candidates_lists_them_all(source: str) -> None:
 
 def test_command_usage_errors(source: str) -> None:
     runner = CliRunner()
-    assert runner.invoke(cli, ["select", source, "-t", "t", "-y", "y"]).exit_code == 2
-    zero = runner.invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "0"])
+    assert runner.invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y",
+                               "y"]).exit_code == 2
+    zero = runner.invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y", "y",
+                               "--k", "0"])
     assert zero.exit_code == 2 and "--k" in zero.output
-    bad = runner.invoke(cli, ["select", source, "-t", "t", "-y", "y", "--k", "2",
+    bad = runner.invoke(cli, ["select", "--include-flagged", source, "-t", "t", "-y", "y", "--k",
+                              "2",
                               "--criterion", "maxrel"])
     assert bad.exit_code == 2
 
@@ -380,7 +389,7 @@ def elements(html: str) -> list[tuple[str, dict[str, str]]]:
 @pytest.mark.slow
 def test_report_shows_the_selection_and_every_pair_of_the_heatmap(source: str) -> None:
     run = rank_and_profile(source, target="y", table="t", top=2)
-    select_for_runs(source, [run], target="y", table="t", k=3, candidates=6)
+    select_for_runs(source, [run], target="y", table="t", k=3, candidates=6, include_flagged=True)
     selection = run.selection
     assert isinstance(selection, Selection) and len(selection.candidates) == 6
     found = elements(render_report([run]))
@@ -420,7 +429,8 @@ def test_report_command_adds_the_section_only_when_asked(source: str, tmp_path: 
     html = out.read_text(encoding="utf-8")
     assert 'id="r1-redundancy" data-criterion="miq"' in html
     assert "<script" not in html and "http://" not in html and "https://" not in html
-    api = select_attributes(source, target="y", table="t", k=2, criterion="miq")
+    api = select_attributes(source, target="y", table="t", k=2, criterion="miq",
+                            include_flagged=True)
     tags = elements(html)
     assert [a["data-attribute"] for _, a in tags
             if _inside(tags, a, "r1-redundancy") and "data-attribute" in a] == api.attributes
@@ -434,7 +444,7 @@ def test_report_segments_measure_pairs_within_each_segment(tmp_path: Any) -> Non
     runs = rank_and_profile_segments(con, target="y", table="t", by="flag", top=1,
                                      attributes="strong,strong_twin,number,noise")
     select_for_runs(con, runs, target="y", table="t", k=2, by="flag",
-                    attributes="strong,strong_twin,number,noise")
+                    attributes="strong,strong_twin,number,noise", include_flagged=True)
     assert sorted(r.ranking.segment["flag"] for r in runs) == ["no", "yes"]
     for run in runs:
         value = run.ranking.segment["flag"]
@@ -458,10 +468,11 @@ def test_flagged_candidates_are_named_in_a_note(tmp_path: Any) -> None:
     with duckdb.connect(str(path)) as con:
         con.execute("CREATE TABLE t AS SELECT i AS id, 'k' AS fixed, i % 3 AS a, i % 2 AS y "
                     "FROM range(100) r(i)")
-    result = CliRunner().invoke(cli, ["select", str(path), "-t", "t", "-y", "y", "--k", "2"])
+    result = CliRunner().invoke(cli, ["select", "--include-flagged", str(path), "-t", "t", "-y",
+                                      "y", "--k", "2"])
     assert result.exit_code == 0, result.output
     assert "note: flagged candidates: id_like id (" in result.stderr
     assert "constant fixed (" in result.stderr
     run = rank_and_profile(str(path), target="y", table="t", top=1)
-    select_for_runs(str(path), [run], target="y", table="t", k=2)
+    select_for_runs(str(path), [run], target="y", table="t", k=2, include_flagged=True)
     assert "Note: flagged candidates: id_like id" in render_report([run])

@@ -192,12 +192,12 @@ COMMANDS: dict[str, tuple[list[str], tuple[int, int]]] = {
     "sql without a source": (["sql", "-t", "t", "-y", "y", "--attributes", "a"], (0, 1)),
     "profile": (["profile", "{db}", "-t", "t", "-y", "y", "--attribute", "a,n"], (1, 1)),
     "report": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}"], (1, 1)),
-    "report --select": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2"],
-                        (1, 1)),
+    "report --select": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--select", "2",
+                         "--include-flagged"], (1, 1)),
     "report --by --select": (["report", "{db}", "-t", "t", "-y", "y", "-o", "{out}", "--by", "s",
-                              "--select", "2"], (1, 1)),
-    "redundancy": (["redundancy", "{db}", "-t", "t", "-y", "y"], (1, 1)),
-    "select": (["select", "{db}", "-t", "t", "-y", "y", "--k", "2"], (1, 1)),
+                              "--select", "2", "--include-flagged"], (1, 1)),
+    "redundancy": (["redundancy", "--include-flagged", "{db}", "-t", "t", "-y", "y"], (1, 1)),
+    "select": (["select", "--include-flagged", "{db}", "-t", "t", "-y", "y", "--k", "2"], (1, 1)),
     "run": (["run", "{job}"], (1, 1)),
     "run --dry-run": (["run", "{job}", "--dry-run"], (1, 1)),
     "models": (["models", "{job}", "--out", "{models}"], (1, 1)),
@@ -253,7 +253,7 @@ def test_a_session_passed_in_stays_open_and_is_reused(small_db: Path,
     with Session.open(str(small_db), "t") as session:
         ranked = bitsift.rank(session, "y")
         runs = [rank_and_profile(session, "y")]
-        select_for_runs(session, runs, "y", k=2)
+        select_for_runs(session, runs, "y", k=2, include_flagged=True)
         assert session.engine.fetch("SELECT 1 AS one").rows == [(1,)]  # still open
     assert (calls.opened, calls.resolved) == (1, 1)
     assert runs[0].selection is not None

@@ -6,6 +6,7 @@ computed inside the database.
 '0.1.0'
 """
 
+from bitsift.engines.read_options import FileSource
 from bitsift.errors import BitsiftError, Problem
 from bitsift.run.api import CheckReport, check, rank, statement
 from bitsift.run.result import AttributeScore, Ranking, SegmentedRanking
@@ -16,6 +17,7 @@ __all__ = [
     "AttributeScore",
     "BitsiftError",
     "CheckReport",
+    "FileSource",
     "Problem",
     "Ranking",
     "SegmentedRanking",

@@ -7,6 +7,8 @@ layer (the profile's bin labels included) may use it.
 
 from __future__ import annotations
 
+import datetime as _dt
+import math
 from collections.abc import Sequence
 
 #: Decimals of a metric in bits (information gain, entropies, ratios).
@@ -127,3 +129,36 @@ def format_selection_score(score: float, criterion: str) -> str:
     ('0.1235', '1234')
     """
     return f"{score:.4g}" if criterion == "miq" else format_bits(score)
+
+
+_EPOCH = _dt.datetime(1970, 1, 1)
+_DAY = 86_400
+
+
+def iso_cut(seconds: float, family: str) -> str:
+    """A cut point of a date or timestamp binned as epoch seconds, in ISO 8601. A DATE's cut
+    is the first day on its right (its values are whole days, so ``x < cut`` holds for the
+    same days); a timestamp's is the instant, to the microsecond, without a zone (epochs are
+    of the value as written).
+
+    >>> iso_cut(1709596800.0, "date"), iso_cut(1709640000.0, "date")
+    ('2024-03-05', '2024-03-06')
+    >>> iso_cut(1709640000.0, "timestamp"), iso_cut(1709640000.25, "timestamp")
+    ('2024-03-05T12:00:00', '2024-03-05T12:00:00.250000')
+    """
+    if family == "date":
+        return (_EPOCH + _dt.timedelta(days=math.ceil(seconds / _DAY))).date().isoformat()
+    return (_EPOCH + _dt.timedelta(microseconds=round(seconds * 1_000_000))).isoformat()
+
+
+def cut_texts(cuts: Sequence[float], temporal: str | None = None, min_digits: int = 6,
+              ) -> list[str]:
+    """Cut points as text: :func:`cut_labels`, or ISO 8601 (:func:`iso_cut`) for a date or
+    timestamp binned as time (``temporal``: its family).
+
+    >>> cut_texts([1709596800.0], "date"), cut_texts([2.5])
+    (['2024-03-05'], ['2.5'])
+    """
+    if temporal is None:
+        return cut_labels(cuts, min_digits)
+    return [iso_cut(c, temporal) for c in cuts]

@@ -8,6 +8,7 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
+from bitsift.numformat import cut_texts
 from bitsift.run.result import AttributeScore, Ranking
 
 MISSING_LABEL = "(missing)"
@@ -63,6 +64,8 @@ class AttributeProfile:
     classes: tuple[str, ...]
     values: tuple[ValueProfile, ...]
     cuts: tuple[float, ...] | None = None
+    #: "date" or "timestamp" when the cuts are epoch seconds of a dated attribute.
+    temporal: str | None = None
 
     @property
     def rows(self) -> int:
@@ -102,7 +105,8 @@ class AttributeProfile:
             "target_entropy": self.target_entropy,
             "conditional_entropy": self.conditional_entropy,
             "information_gain": self.information_gain,
-            "cuts": list(self.cuts) if self.cuts is not None else None,
+            "cuts": (None if self.cuts is None else cut_texts(self.cuts, self.temporal)
+                     if self.temporal else list(self.cuts)),
             "values": [v.to_dict(self.classes) for v in self.values],
         }
 

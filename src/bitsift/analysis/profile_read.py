@@ -18,7 +18,7 @@ from bitsift.analysis.profile_model import (
     entropy_bits,
 )
 from bitsift.engines.base import Engine
-from bitsift.numformat import cut_labels
+from bitsift.numformat import cut_texts
 from bitsift.run.metrics import snap_total
 from bitsift.spec.rankspec import RankSpec
 from bitsift.spec.schema import hashable_value
@@ -43,7 +43,8 @@ def class_label(value: Any) -> str:
     return str(value)
 
 
-def bin_label(index: int, cuts: Sequence[float]) -> tuple[str, float | None, float | None]:
+def bin_label(index: int, cuts: Sequence[float], temporal: str | None = None,
+              ) -> tuple[str, float | None, float | None]:
     """Label and bounds of bin ``index``: bin j holds cuts[j-1] <= value < cuts[j].
 
     >>> bin_label(0, [1.5, 3.0])
@@ -55,7 +56,7 @@ def bin_label(index: int, cuts: Sequence[float]) -> tuple[str, float | None, flo
     """
     if not cuts:
         return "all values", None, None
-    labels = cut_labels([float(c) for c in cuts])
+    labels = cut_texts([float(c) for c in cuts], temporal)
     if index <= 0:
         return f"< {labels[0]}", None, float(cuts[0])
     if index >= len(cuts):
@@ -125,7 +126,8 @@ def read_profiles(
                     kind, label = "missing", MISSING_LABEL
                 elif attribute_cuts is not None:
                     kind = "bin"
-                    label, low, high = bin_label(int(raw), attribute_cuts)
+                    label, low, high = bin_label(int(raw), attribute_cuts,
+                                                 attribute.family if attribute.epoch else None)
                 else:
                     kind, label = "value", class_label(raw)
                 entropy = entropy_bits(counts)
@@ -141,6 +143,7 @@ def read_profiles(
             classes=classes,
             values=tuple(v for _, v in rows),
             cuts=tuple(attribute_cuts) if attribute_cuts is not None else None,
+            temporal=attribute.family if attribute.epoch else None,
         )
     return Profiles(classes=classes, class_rows=tuple(class_totals[c] for c in ordered),
                     attributes=profiles)

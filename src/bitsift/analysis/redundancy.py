@@ -12,7 +12,16 @@ with ``drop`` a pair is measured on the rows where both attributes are present (
 pair may differ from the ranking's H(Xi), which used the rows where Xi alone is present).
 
 Many pairs are split into batches of at most :data:`DEFAULT_BATCH_PAIRS` (one statement each):
-with grouping sets a batch is one scan with one set per pair.
+with grouping sets a batch is one scan with one set per pair. A batch also holds at most
+:data:`MAX_BATCH_CELLS` joint cells, estimated from the ranking (min(rows, distinct values of
+one x of the other) per pair): high-cardinality pairs go in batches of their own, so the
+engine's grouping memory is bounded by about that many cells, or one pair's rows.
+
+Identifiers and constants (flags ``id_like``, ``constant``) and attributes whose relevance is at
+or below noise (information gain 0 after snapping, or a G-test of independence not significant
+at :data:`NOISE_P_VALUE`) are left out of redundancy and selection unless ``include_flagged``
+(:func:`screen_candidates`): an identifier shares all of every other attribute's entropy and
+would be chosen first, a constant and a noise column carry nothing to select.
 """
 
 from __future__ import annotations
@@ -24,9 +33,10 @@ from typing import Any
 
 from bitsift.engines.base import Engine
 from bitsift.errors import SpecError
+from bitsift.numformat import format_p_value
 from bitsift.run.api import make_options, run_ranking
 from bitsift.run.metrics import snap
-from bitsift.run.result import Ranking
+from bitsift.run.result import AttributeScore, Ranking
 from bitsift.run.session import Session, session_for
 from bitsift.spec.rankspec import RankSpec
 from bitsift.sql.sqlstatements import pairs_statement, refuse_segments_and_weights
@@ -34,6 +44,12 @@ from bitsift.sql.sqlstatements import pairs_statement, refuse_segments_and_weigh
 #: Pairs per statement: one grouping set each. Engines cap the number of grouping sets
 #: (PostgreSQL at 4096) and a wide GROUP BY costs memory, so large matrices go in batches.
 DEFAULT_BATCH_PAIRS = 64
+#: Estimated joint cells per pairs statement (see the module docstring).
+MAX_BATCH_CELLS = 2_000_000
+#: Relevance at or below noise: a G-test p-value above this (or an IG of exactly 0).
+NOISE_P_VALUE = 0.05
+#: Flags that leave an attribute out of redundancy and selection unless ``include_flagged``.
+LEFT_OUT_FLAGS: tuple[str, ...] = ("id_like", "constant")
 
 #: The metrics a pair can be ordered by.
 PAIR_METRICS: tuple[str, ...] = ("mutual_information", "symmetric_uncertainty")
@@ -89,6 +105,72 @@ def batches(pairs: Sequence[tuple[str, str]], size: int) -> Iterator[list[tuple[
         raise SpecError.option("batch_pairs", f" must be at least 1, not {size}")
     for start in range(0, len(pairs), size):
         yield list(pairs[start:start + size])
+
+
+def batches_within(pairs: Sequence[tuple[str, str]], size: int, cells: Mapping[str, int],
+                   rows: int, budget: int | None = None) -> Iterator[list[tuple[str, str]]]:
+    """``pairs`` in consecutive batches of at most ``size`` pairs and about ``budget`` joint
+    cells, a pair's cells estimated as min(rows, cells[a] * cells[b]); a pair over the budget
+    goes alone. ``budget``: default :data:`MAX_BATCH_CELLS`.
+
+    >>> values = {"id": 10_000, "a": 3, "b": 4, "c": 5}
+    >>> [len(b) for b in batches_within(all_pairs(["id", "a", "b", "c"]), 64, values,
+    ...                                 rows=10_000, budget=15_000)]
+    [1, 1, 4]
+    """
+    if size < 1:
+        raise SpecError.option("batch_pairs", f" must be at least 1, not {size}")
+    cap = MAX_BATCH_CELLS if budget is None else budget
+    batch: list[tuple[str, str]] = []
+    used = 0
+    for pair in pairs:
+        estimate = min(max(rows, 1), max(cells.get(pair[0], 1), 1) * max(cells.get(pair[1], 1), 1))
+        if batch and (len(batch) >= size or used + estimate > cap):
+            yield batch
+            batch, used = [], 0
+        batch.append(pair)
+        used += estimate
+    if batch:
+        yield batch
+
+
+def left_out_reason(score: AttributeScore) -> str | None:
+    """Why an attribute is left out of redundancy and selection (None: it is a candidate)."""
+    for flag in LEFT_OUT_FLAGS:
+        if flag in score.flags:
+            return flag
+    if score.information_gain == 0:
+        return "no information"
+    if score.p_value is not None and score.p_value > NOISE_P_VALUE:
+        return f"not significant, p = {format_p_value(score.p_value)}"
+    return None
+
+
+def screen_candidates(ranking: Ranking, names: Sequence[str], include_flagged: bool,
+                      ) -> tuple[list[str], dict[str, str]]:
+    """``names`` without the identifiers, constants and noise (see the module docstring), and
+    the reason each one left out was; everything kept with ``include_flagged``."""
+    if include_flagged:
+        return list(names), {}
+    scores = {s.attribute: s for s in ranking.attributes}
+    reasons = {n: scores[n] for n in names if n in scores}
+    left = {n: why for n, s in reasons.items() if (why := left_out_reason(s)) is not None}
+    return [n for n in names if n not in left], left
+
+
+def left_out_note(left: Mapping[str, str]) -> str | None:
+    """The one line saying which attributes were left out and how to keep them."""
+    if not left:
+        return None
+    listed = ", ".join(f"{name} ({why})" for name, why in left.items())
+    return (f"left out {len(left)} attribute(s) flagged id_like or constant, or at noise level "
+            f"(G-test p > {NOISE_P_VALUE} or no information): {listed}; "
+            "--include-flagged keeps them")
+
+
+def left_out_list(left: Mapping[str, str]) -> list[dict[str, str]]:
+    """``left_out`` in JSON: one ``{"attribute", "reason"}`` per attribute left out."""
+    return [{"attribute": name, "reason": why} for name, why in left.items()]
 
 
 @dataclass
@@ -199,20 +281,27 @@ def ranking_cuts(ranking: Ranking) -> dict[str, list[float]]:
 @dataclass(frozen=True)
 class PairMeasurer:
     """Measures pairs of a ranking's attributes on an open engine, binned as the ranking binned
-    them, at most ``batch_pairs`` pairs per statement."""
+    them, at most ``batch_pairs`` pairs per statement (and, given the ``ranking`` for the
+    attributes' distinct values, about :data:`MAX_BATCH_CELLS` joint cells)."""
 
     engine: Engine
     spec: RankSpec
     #: The ranking's cut points of its numeric attributes (:func:`ranking_cuts`).
     cuts: Mapping[str, Sequence[float]]
     batch_pairs: int = DEFAULT_BATCH_PAIRS
+    ranking: Ranking | None = None
 
     def fill(self, matrix: RedundancyMatrix, pairs: Iterable[tuple[str, str]]) -> None:
         """Measure those of ``pairs`` that ``matrix`` lacks, and add them to it."""
         needed = [p for p in pairs if frozenset(p) not in matrix.pairs]
         if not needed:
             return
-        for batch in batches(needed, self.batch_pairs):
+        ranking = self.ranking
+        chunks = (batches(needed, self.batch_pairs) if ranking is None else
+                  batches_within(needed, self.batch_pairs,
+                                 {s.attribute: s.distinct + 1 for s in ranking.attributes},
+                                 ranking.rows))
+        for batch in chunks:
             statement = pairs_statement(self.spec, self.engine.caps, self.cuts, batch)
             matrix.add(read_pairs(self.engine.fetch(statement.sql).records(), batch))
 
@@ -229,7 +318,8 @@ def measure_matrix(
     names = tuple(attributes if attributes is not None else
                   [s.attribute for s in ranking.attributes])
     matrix = RedundancyMatrix(attributes=names)
-    PairMeasurer(engine, spec, ranking_cuts(ranking), batch_pairs).fill(matrix, all_pairs(names))
+    PairMeasurer(engine, spec, ranking_cuts(ranking), batch_pairs, ranking).fill(
+        matrix, all_pairs(names))
     return matrix
 
 
@@ -243,9 +333,12 @@ class Redundancy:
     #: Every statement sent (the ranking's and the pairs'), for --debug.
     statements: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    #: Attributes left out of the pairs, with the reason (see :func:`screen_candidates`).
+    left_out: dict[str, str] = field(default_factory=dict)
 
     def to_dict(self, by: str = "mutual_information") -> dict[str, Any]:
-        """One JSON-ready object: the attributes with their relevance, and every pair."""
+        """One JSON-ready object: the attributes with their relevance, the attributes left out
+        of the pairs (``left_out``: attribute and reason), and every pair."""
         ranking = self.ranking
         return {
             **ranking_keys(ranking),
@@ -256,6 +349,7 @@ class Redundancy:
                  "attribute_entropy": s.attribute_entropy}
                 for s in ranking.attributes
             ],
+            "left_out": left_out_list(self.left_out),
             "pairs": [p.to_dict() for p in self.matrix.ordered(by)],
         }
 
@@ -270,8 +364,11 @@ def rank_on_session(session: Session, target: str, options: dict[str, Any],
 
 
 def redundancy(source: Any, target: str, table: str | None = None, *,
-               batch_pairs: int = DEFAULT_BATCH_PAIRS, **options: Any) -> Redundancy:
-    """Rank like :func:`bitsift.rank`, then measure every pair of the ranked attributes.
+               batch_pairs: int = DEFAULT_BATCH_PAIRS, include_flagged: bool = False,
+               **options: Any) -> Redundancy:
+    """Rank like :func:`bitsift.rank`, then measure every pair of the ranked attributes,
+    identifiers, constants and noise left out unless ``include_flagged`` (see
+    :func:`screen_candidates`).
 
     With ``limit``, only the top ``limit`` attributes (by ``sort``) are paired. Takes the
     options of :func:`bitsift.rank`.
@@ -282,13 +379,16 @@ def redundancy(source: Any, target: str, table: str | None = None, *,
     ...                 "i % 2 = 0 AS y FROM range(120) r(i)")
     >>> r = redundancy(con, target="y", table="t")
     >>> [(p.first, p.second, round(p.mutual_information, 6)) for p in r.matrix.ordered()]
-    [('a', 'b', 1.0), ('a', 'c', 0.0), ('b', 'c', 0.0)]
+    [('a', 'b', 1.0)]
+    >>> r.left_out  # c tells nothing about y
+    {'c': 'no information'}
     """
     with session_for(source, table) as session:
         spec, ranking = rank_on_session(session, target, options)
-        matrix = measure_matrix(session.engine, spec, ranking, batch_pairs=batch_pairs)
+        names, left = screen_candidates(ranking, [s.attribute for s in ranking.attributes],
+                                        include_flagged)
+        matrix = measure_matrix(session.engine, spec, ranking, names, batch_pairs=batch_pairs)
         record = session.record()
-    flagged = flagged_candidates_note(ranking, matrix.attributes)
+    notes = [n for n in (left_out_note(left), flagged_candidates_note(ranking, names)) if n]
     return record.stamp(Redundancy(ranking=record.stamp(ranking), matrix=matrix,
-                                   missing=spec.options.missing,
-                                   notes=[flagged] if flagged else []))
+                                   missing=spec.options.missing, notes=notes, left_out=left))

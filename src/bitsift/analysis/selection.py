@@ -35,13 +35,16 @@ from bitsift.analysis.redundancy import (
     PairMeasurer,
     RedundancyMatrix,
     flagged_candidates_note,
+    left_out_list,
+    left_out_note,
     measure_matrix,
     rank_on_session,
     ranking_cuts,
     ranking_keys,
+    screen_candidates,
 )
 from bitsift.engines.base import Engine
-from bitsift.errors import SpecError
+from bitsift.errors import DataError, SpecError
 from bitsift.run.api import make_options
 from bitsift.run.result import Ranking
 from bitsift.run.session import session_for
@@ -201,6 +204,8 @@ class Selection:
     matrix: RedundancyMatrix
     statements: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    #: Attributes left out of the candidates, with the reason (``include_flagged`` keeps them).
+    left_out: dict[str, str] = field(default_factory=dict)
 
     @property
     def attributes(self) -> list[str]:
@@ -215,6 +220,7 @@ class Selection:
             "k": self.k,
             "missing": self.missing,
             "candidates": list(self.candidates),
+            "left_out": left_out_list(self.left_out),
             "selected": [s.to_dict() for s in self.steps],
         }
 
@@ -229,8 +235,13 @@ def select_on_engine(
     candidates: Sequence[str] | None = None,
     matrix: RedundancyMatrix | None = None,
     batch_pairs: int = DEFAULT_BATCH_PAIRS,
+    include_flagged: bool = False,
+    left_out: Mapping[str, str] | None = None,
 ) -> Selection:
-    """Greedy mRMR over ``candidates`` (default: the ranking's attributes, in its order).
+    """Greedy mRMR over ``candidates`` (default: the ranking's attributes, in its order),
+    identifiers, constants and noise left out unless ``include_flagged``
+    (:func:`~bitsift.analysis.redundancy.screen_candidates`); ``left_out``: those a caller
+    already left out, for the note.
 
     With a measured ``matrix`` no statement is sent; otherwise each step measures the pairs
     between the attribute just chosen and the remaining candidates, in batches.
@@ -240,33 +251,34 @@ def select_on_engine(
     unknown = [n for n in names if n not in scores]
     if unknown:
         raise SpecError("not ranked: " + ", ".join(unknown))
+    kept, screened = screen_candidates(ranking, names, include_flagged)
+    names, left = tuple(kept), {**(left_out or {}), **screened}
     relevance = {n: scores[n].information_gain for n in names}
     measured = matrix if matrix is not None else RedundancyMatrix(attributes=names)
-    measurer = PairMeasurer(engine, spec, ranking_cuts(ranking), batch_pairs)
+    measurer = PairMeasurer(engine, spec, ranking_cuts(ranking), batch_pairs, ranking)
 
     def lookup(chosen: str, rest: Sequence[str]) -> dict[str, float]:
         measurer.fill(measured, [(chosen, n) for n in rest])
         return {n: measured.mutual_information(chosen, n) for n in rest}
 
     steps = greedy_mrmr(relevance, k, lookup, criterion=criterion, order=names)
-    notes = []
-    flagged = flagged_candidates_note(ranking, names)
-    if flagged:
-        notes.append(flagged)
+    notes = [n for n in (left_out_note(left), flagged_candidates_note(ranking, names)) if n]
     if k > len(names):
         notes.append(f"--k {k} is more than the {len(names)} candidate attribute(s): "
                      "every candidate is listed")
     return Selection(ranking=ranking, criterion=criterion, k=k, steps=steps, candidates=names,
-                     missing=spec.options.missing, matrix=measured, notes=notes)
+                     missing=spec.options.missing, matrix=measured, notes=notes, left_out=left)
 
 
 def select_attributes(source: Any, target: str, table: str | None = None, *, k: int,
                       criterion: str = "mid", batch_pairs: int = DEFAULT_BATCH_PAIRS,
-                      **options: Any) -> Selection:
+                      include_flagged: bool = False, **options: Any) -> Selection:
     """Rank like :func:`bitsift.rank`, then choose ``k`` attributes by greedy mRMR.
 
-    The candidates are the ranked attributes (with ``limit``: the top ``limit`` by ``sort``).
-    Takes the options of :func:`bitsift.rank`.
+    The candidates are the ranked attributes (with ``limit``: the top ``limit`` by ``sort``)
+    but identifiers, constants and noise, unless ``include_flagged`` (see
+    :func:`~bitsift.analysis.redundancy.screen_candidates`); :class:`DataError` when none is
+    left. Takes the options of :func:`bitsift.rank`.
 
     >>> import duckdb
     >>> con = duckdb.connect()
@@ -282,8 +294,13 @@ def select_attributes(source: Any, target: str, table: str | None = None, *, k: 
         raise SpecError.option("k", f" must be at least 1, not {k}")
     with session_for(source, table) as session:
         spec, ranking = rank_on_session(session, target, options)
+        kept, left = screen_candidates(ranking, [s.attribute for s in ranking.attributes],
+                                       include_flagged)
+        if not kept:
+            raise DataError(f"no candidate attribute left to select from: {left_out_note(left)}")
         selection = select_on_engine(session.engine, spec, ranking, k, criterion=criterion,
-                                     batch_pairs=batch_pairs)
+                                     batch_pairs=batch_pairs, candidates=kept, left_out=left,
+                                     include_flagged=include_flagged)
         record = session.record()
     return replace(record.stamp(selection), ranking=record.stamp(ranking))
 
@@ -300,6 +317,7 @@ def select_for_runs(
     candidates: int = REPORT_CANDIDATES,
     batch_pairs: int = DEFAULT_BATCH_PAIRS,
     progress: Progress | None = None,
+    include_flagged: bool = False,
     **options: Any,
 ) -> None:
     """Give each run of a report a :class:`Selection` with the full redundancy matrix of its
@@ -331,13 +349,16 @@ def select_for_runs(
             if spec.by:  # the segment's rows: its values as a --where
                 run_spec = replace(spec, by=(), where=segment_predicate(spec, ranking.segment
                                                                         or {}))
-            names = [s.attribute for s in ranking.attributes][: max(k, candidates)]
+            kept, left = screen_candidates(ranking, [s.attribute for s in ranking.attributes],
+                                           include_flagged)
+            names = kept[: max(k, candidates)]
             pairs = len(names) * (len(names) - 1) // 2
             say(f"measuring {pairs} pair(s) of attributes"
                 + (f" in {run.segment}" if run.segment else ""))
             matrix = measure_matrix(engine, run_spec, ranking, names, batch_pairs=batch_pairs)
             run.selection = select_on_engine(engine, run_spec, ranking, k, criterion=criterion,
-                                             candidates=names, matrix=matrix)
+                                             candidates=names, matrix=matrix, left_out=left,
+                                             include_flagged=include_flagged)
         # Only this step's statements: a session shared with the ranking (report) has
         # already given the runs the ones before.
         statements = session.record().statements

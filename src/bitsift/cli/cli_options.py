@@ -9,13 +9,16 @@ a module global, so two invocations in one process (tests) cannot see each other
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import click
 
+from bitsift.engines.read_options import FileSource
 from bitsift.engines.sources import ENGINE_NAMES, EngineSource
+from bitsift.errors import SpecError
 from bitsift.names import one_line
 from bitsift.spec.rankspec import (
     BINNING_METHODS,
@@ -81,7 +84,8 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--categorical", multiple=True, callback=comma_list,
                      help="Treat these columns as categories even if numeric."),
         click.option("--numeric", multiple=True, callback=comma_list,
-                     help="Bin these number columns (floats and decimals always are)."),
+                     help="Bin these number columns (floats, decimals, dates and timestamps "
+                          "always are)."),
         click.option("--missing", type=click.Choice(MISSING_MODES), default="category",
                      show_default=True,
                      help="NULL attribute values: their own category, or dropped per attribute."),
@@ -97,10 +101,15 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
                           'a name holding = or , in double quotes: "p=q"=mdl.'),
         click.option("--date-part", "date_part", multiple=True, callback=pair_list,
                      metavar="[COL=]PART",
-                     help="Rank dates as categories of a part (year, month, dow, hour): "
-                          "sown_on=month, or a bare PART for every date column. Dates named "
-                          'in --numeric are binned as epoch seconds instead. A name holding '
-                          '= or , in double quotes: "d=1"=month.'),
+                     help="Rank dates as categories of a part (year, month, dow, hour) instead "
+                          "of binned time: sown_on=month, or a bare PART for every date column. "
+                          'A name holding = or , in double quotes: "d=1"=month.'),
+        click.option("--target-bins", "target_bins", type=int, metavar="N",
+                     help="Rank against N quantile bins of a numeric target (cut in the "
+                          "database; a float or decimal target needs this)."),
+        click.option("--max-classes", "max_classes", type=int, default=100, show_default=True,
+                     help="Refuse a target with more classes than this (it looks continuous "
+                          "or like an identifier)."),
         click.option("--where", help="Only rows matching this condition (checked by sqlglot)."),
         click.option("--sort", type=click.Choice(SORT_METRICS), default="information_gain",
                      show_default=True, help="Metric to sort by (descending)."),
@@ -112,10 +121,33 @@ def rank_options(command: Callable[..., Any]) -> Callable[..., Any]:
         click.option("--timeout", type=float, help="Statement timeout in seconds."),
         click.option("--high-cardinality", "high_cardinality", type=int, default=1000,
                      show_default=True, help="Flag attributes with more distinct values."),
+        click.option("--read-option", "read_options", multiple=True, metavar="KEY=VALUE",
+                     help="How to read a CSV SOURCE (repeatable): delimiter, decimal, header, "
+                          "null, date_format, timestamp_format, quote, escape, comment, skip, "
+                          "encoding, double (a column to read as a number)."),
     ]
     for option in reversed(options):
         command = option(command)
-    return command
+    return _with_read_options(command)
+
+
+def _with_read_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """The command with SOURCE wrapped in a :class:`FileSource` when ``--read-option`` is
+    given (the library takes the reader options with the file, wherever it takes a source)."""
+
+    @functools.wraps(command)
+    def with_reader(*args: Any, **kwargs: Any) -> Any:
+        options = kwargs.pop("read_options", ())
+        if options:
+            if kwargs.get("source") is None:
+                raise SpecError.option("read_option", " needs a SOURCE file to read")
+            if kwargs.get("engine") not in (None, "duckdb"):
+                raise SpecError.option("read_option", " applies to CSV files read by DuckDB, "
+                                       f"not with --engine {kwargs['engine']}")
+            kwargs["source"] = FileSource.of(kwargs["source"], options)
+        return command(*args, **kwargs)
+
+    return with_reader
 
 
 #: --by: segments, for the commands that support them (rank, sql, report).
@@ -128,6 +160,14 @@ weight_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option
     "--weight", help="Sum this column of non-negative weights instead of counting rows "
                      "(NULL or 0: the row is left out).")
 
+
+#: --include-flagged, for the commands that choose among attributes (redundancy, select,
+#: report --select).
+include_flagged_option: Callable[[Callable[..., Any]], Callable[..., Any]] = click.option(
+    "--include-flagged", "include_flagged", is_flag=True,
+    help="Keep id_like and constant attributes and those at noise level (G-test p > 0.05 or "
+         "no information), which are left out by default.",
+)
 
 def segment_options(command: Callable[..., Any]) -> Callable[..., Any]:
     """--by and --weight, for the commands that support both (rank, sql)."""

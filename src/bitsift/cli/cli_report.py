@@ -18,6 +18,7 @@ from bitsift.analysis.selection import CRITERIA, REPORT_CANDIDATES, select_for_r
 from bitsift.cli.cli_options import (
     by_option,
     comma_list,
+    include_flagged_option,
     library_options,
     print_statements,
     rank_options,
@@ -78,9 +79,10 @@ _quiet_option = click.option("--quiet", "-q", is_flag=True, help="No progress or
                    f"top {REPORT_CANDIDATES} (0: neither; one more scan per 64 pairs).")
 @click.option("--criterion", type=click.Choice(CRITERIA), default="mid", show_default=True,
               help="The mRMR criterion of --select: relevance − or / mean redundancy.")
+@include_flagged_option
 def report_command(source: str, out: str, top: int, max_values: int,
                    sensitive: tuple[str, ...], title: str | None, quiet: bool,
-                   select_k: int, criterion: str, **kwargs: Any) -> None:
+                   select_k: int, criterion: str, include_flagged: bool, **kwargs: Any) -> None:
     """Write a self-contained HTML report: ranking chart, every metric, per-value drill-down.
 
     With --by, one section per segment.
@@ -103,7 +105,7 @@ def report_command(source: str, out: str, top: int, max_values: int,
                                      sensitive=sensitive, progress=say, **options)]
         if select_k:
             select_for_runs(session, runs, k=select_k, criterion=criterion, by=by,
-                            progress=say, **options)
+                            progress=say, include_flagged=include_flagged, **options)
     run = runs[0]  # the segments share one connection: same statements and notes
     _after_run(run, quiet)
     if say:

@@ -19,7 +19,13 @@ from bitsift.analysis.redundancy import (
     redundancy,
 )
 from bitsift.analysis.selection import CRITERIA, STEP_KEYS, Selection, select_attributes
-from bitsift.cli.cli_options import library_options, print_notes, print_statements, rank_options
+from bitsift.cli.cli_options import (
+    include_flagged_option,
+    library_options,
+    print_notes,
+    print_statements,
+    rank_options,
+)
 from bitsift.names import escape_text
 from bitsift.numformat import format_bits, format_selection_score
 from bitsift.output.texttable import aligned, csv_text
@@ -63,7 +69,7 @@ def redundancy_table(result: Redundancy, top: int, by: str) -> str:
                          format_bits(p.second_entropy), f"{p.rows:,}"])
         out += aligned(rows, left={0, 1}, rule=True)
     else:
-        out.append("(a single attribute: no pairs)")
+        out.append("(fewer than two attributes: no pairs)")
     out += ["", "I: mutual information between the two attributes; sym unc: 2·I / (H(first) +"
             " H(second)), 0 (independent) to 1 (each determines the other)."]
     return "\n".join(map(escape_text, out)) + "\n"
@@ -107,8 +113,9 @@ def selection_table(selection: Selection) -> str:
 # Was the pair order's flag until issue 21; elsewhere --by means segments. Refused, with a hint.
 @click.option("--by", "old_by", hidden=True)
 @_batch_option
+@include_flagged_option
 def redundancy_command(source: str, fmt: str, top: int, by: str, old_by: str | None,
-                       batch_pairs: int, **kwargs: Any) -> None:
+                       batch_pairs: int, include_flagged: bool, **kwargs: Any) -> None:
     """Show which attributes of SOURCE tell the same thing: mutual information between pairs.
 
     Computed in the database on the ranking's rows and bins; with --limit N only the top N
@@ -118,7 +125,8 @@ def redundancy_command(source: str, fmt: str, top: int, by: str, old_by: str | N
         hint = (f"to order the pairs, use --sort-pairs {old_by}" if old_by in PAIR_METRICS
                 else "for one segment, give its condition with --where")
         raise click.UsageError(f"redundancy takes no --by (segments); {hint}")
-    result = redundancy(source, batch_pairs=batch_pairs, **library_options(kwargs))
+    result = redundancy(source, batch_pairs=batch_pairs, include_flagged=include_flagged,
+                        **library_options(kwargs))
     print_statements(result.ranking.dialect, result.statements)
     print_notes(result.notes)
     if fmt == "json":
@@ -140,15 +148,16 @@ def redundancy_command(source: str, fmt: str, top: int, by: str, old_by: str | N
               help="mid: relevance − mean redundancy; miq: relevance / mean redundancy.")
 @_format_option
 @_batch_option
+@include_flagged_option
 def select_command(source: str, k: int, criterion: str, fmt: str, batch_pairs: int,
-                   **kwargs: Any) -> None:
+                   include_flagged: bool, **kwargs: Any) -> None:
     """Choose K relevant, non-redundant attributes of SOURCE by greedy mRMR (Peng et al. 2005).
 
     Candidates are the ranked attributes (with --limit N: the top N); each step picks the one
     with the best relevance to --target against its mean redundancy with those already chosen.
     """
     selection = select_attributes(source, k=k, criterion=criterion, batch_pairs=batch_pairs,
-                                  **library_options(kwargs))
+                                  include_flagged=include_flagged, **library_options(kwargs))
     print_statements(selection.ranking.dialect, selection.statements)
     print_notes(selection.notes)
     if fmt == "json":

@@ -14,6 +14,8 @@ from sqlglot import exp
 
 from bitsift.engines.policy import RunPolicy, run_policy
 from bitsift.errors import (
+    Option,
+    Problem,
     QueryCancelledError,
     QueryError,
     QueryTimeoutError,
@@ -23,8 +25,44 @@ from bitsift.errors import (
     first_line,
     unknown_names_message,
 )
+from bitsift.names import resolve_name
 from bitsift.spec.schema import Column
 from bitsift.sql.dialects import Capabilities
+
+#: Schemas searched for a table of the name that was not found (the error path only).
+MAX_SCHEMAS_SEARCHED = 200
+
+
+def tables_elsewhere(name: str, places: Sequence[tuple[str, Sequence[str]]]) -> list[str]:
+    """``schema.table`` for every schema in ``places`` (schema, its tables) holding a table
+    named ``name`` (by :func:`bitsift.names.resolve_name`), in the order given.
+
+    >>> tables_elsewhere("Accounts", [("crm", ["accounts", "x"]), ("ops", ["y"])])
+    ['crm.accounts']
+    """
+    found = []
+    for schema, tables in places:
+        real = resolve_name(name, list(tables))
+        if real is not None:
+            found.append(f"{_dotted(schema)}.{_dotted(real)}")
+    return found
+
+
+def _dotted(part: str) -> str:
+    """A name part as ``--table`` takes it: double-quoted when it holds a dot or a quote."""
+    if "." in part or '"' in part:
+        return '"' + part.replace('"', '""') + '"'
+    return part
+
+
+def missing_table_error(message: str, elsewhere: Sequence[str]) -> TableNotFoundError:
+    """"unknown table ..." plus, when a table of that name exists in other schemas, where
+    (issue 21, item 12: the usual cause is a table in a schema not on the search path)."""
+    if not elsewhere:
+        return TableNotFoundError(message)
+    listed = ", ".join(elsewhere)
+    return TableNotFoundError(problems=[Problem("table", (
+        f"{message}; a table of that name exists as {listed}: give that to ", Option("table")))])
 
 
 @dataclass(frozen=True)
@@ -124,10 +162,20 @@ class Engine(ABC):
         return QueryTimeoutError(f"the query ran longer than --timeout {self.timeout:g} s and "
                                  "was cancelled" + (f" ({detail})" if detail else ""))
 
-    def missing_table(self, display: str) -> TableNotFoundError:
-        """No table ``display`` in the catalog: the error, with close matches among the
-        catalog's tables (:meth:`_table_names`)."""
+    def missing_table(self, display: str, table: exp.Expression | None = None
+                      ) -> TableNotFoundError:
+        """No table ``display`` in the catalog: the error, naming the other schemas holding a
+        table of that name (:meth:`_tables_elsewhere`), else close matches among the catalog's
+        tables (:meth:`_table_names`)."""
+        elsewhere = self._tables_elsewhere(table) if table is not None else []
+        if elsewhere:
+            return missing_table_error(f"unknown table: {display!r}", elsewhere)
         return TableNotFoundError(unknown_names_message("table", [display], self._table_names()))
+
+    def _tables_elsewhere(self, table: exp.Expression) -> list[str]:
+        """``schema.table`` in other schemas holding a table named as ``table``; none by
+        default (engines that can list other schemas say where)."""
+        return []
 
     def _table_names(self) -> list[str]:
         """The tables (plain and schema-qualified) a missing table's name is matched against;

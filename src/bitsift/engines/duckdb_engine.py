@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextlib
 import threading
 import uuid
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import ClassVar
@@ -12,7 +13,15 @@ from typing import ClassVar
 import duckdb
 from sqlglot import exp
 
-from bitsift.engines.base import Engine, FetchResult, cancelled_error, query_error, unreadable_table
+from bitsift.engines.base import (
+    MAX_SCHEMAS_SEARCHED,
+    Engine,
+    FetchResult,
+    cancelled_error,
+    query_error,
+    tables_elsewhere,
+    unreadable_table,
+)
 from bitsift.errors import QueryError, SourceError, first_line
 from bitsift.spec.schema import Column, family_of
 from bitsift.sql.dialects import capabilities
@@ -54,11 +63,13 @@ def file_reader(path: str) -> str | None:
     return FILE_READERS.get(suffixes[-1].lower()) if suffixes else None
 
 
-def file_table(path: str) -> exp.Expression:
-    """``read_parquet('path')``: the path is a string literal, never an identifier."""
+def file_table(path: str, arguments: Sequence[exp.Expression] = ()) -> exp.Expression:
+    """``read_parquet('path')``: the path is a string literal, never an identifier;
+    ``arguments``: the reader's named arguments (:mod:`bitsift.engines.read_options`)."""
     reader = file_reader(path)
     assert reader is not None
-    return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path)]))
+    return exp.Table(this=exp.Anonymous(this=reader, expressions=[exp.Literal.string(path),
+                                                                  *arguments]))
 
 
 #: Modules whose data frames DuckDB scans in place (pandas, Arrow tables and record batches,
@@ -163,7 +174,7 @@ class DuckDBEngine(Engine):
             relation = self.con.sql(query)
             names, types = relation.columns, relation.types
         except duckdb.CatalogException:
-            raise self.missing_table(display) from None
+            raise self.missing_table(display, table) from None
         except duckdb.Error as error:  # IOException and the others alike
             raise unreadable_table(display, error) from None
         self._qualify(table)
@@ -189,6 +200,21 @@ class DuckDBEngine(Engine):
         ).fetchall()
         if len(places) == 1 and places[0][0]:
             table.set("db", exp.to_identifier(places[0][1], quoted=True))
+
+    def _tables_elsewhere(self, table: exp.Expression) -> list[str]:
+        """Other schemas (of any attached database) holding a table of this name."""
+        if not isinstance(table, exp.Table):
+            return []
+        rows = self.con.execute(
+            "SELECT table_catalog, table_schema, list(table_name ORDER BY table_name) "
+            "FROM information_schema.tables GROUP BY ALL ORDER BY ALL LIMIT ?",
+            [MAX_SCHEMAS_SEARCHED]).fetchall()
+        current = self.con.execute("SELECT current_database()").fetchone()
+        here = current[0] if current else None
+        # The schema searched holds no such table (or it would have been found): no filter.
+        places = [(schema if catalog == here else f"{catalog}.{schema}", tables)
+                  for catalog, schema, tables in rows]
+        return tables_elsewhere(table.name, places)
 
     def _table_names(self) -> list[str]:
         rows = self.con.execute(

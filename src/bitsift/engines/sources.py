@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import re
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -14,7 +14,9 @@ from sqlglot import exp
 
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table, is_frame
+from bitsift.engines.file_checks import numeric_text_notes
 from bitsift.engines.masking import mask_url
+from bitsift.engines.read_options import FileSource, ReadValue, reader_arguments
 from bitsift.engines.sqlite_support import is_sqlite_file
 from bitsift.errors import SourceError, SpecError
 from bitsift.names import quoted
@@ -83,6 +85,8 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
     engine: Engine
     if isinstance(source, EngineSource):
         return _open_with_engine(source, table)
+    if isinstance(source, FileSource):
+        return _open_file(source.path, table, source.options)
     module = type(source).__module__
     if module.startswith("pyspark."):
         from bitsift.engines.spark_engine import open_spark_object
@@ -127,15 +131,7 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         engine = SqlAlchemyEngine.open_url(text)
         return _with_table(engine, table, mask_url(text))
     if file_reader(text) is not None:
-        if table:
-            raise SpecError.option("table", f" is not used with a data file ({Path(text).name})")
-        engine = DuckDBEngine.open_file(text)
-        try:
-            refuse_renamed_columns(engine, text)
-        except SourceError:
-            engine.close()
-            raise
-        return OpenSource(engine=engine, table=file_table(text), display=text)
+        return _open_file(text, table, ())
     if is_sqlite_file(text):
         # DuckDB would open it through its sqlite extension, downloading it (SAFE_CONFIG).
         from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
@@ -144,6 +140,27 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         return _with_table(engine, table, text)
     engine = DuckDBEngine.open_file(text)
     return _with_table(engine, table, text)
+
+
+def _open_file(path: str, table: str | None,
+               options: tuple[tuple[str, ReadValue], ...]) -> OpenSource:
+    """A data file read in place by DuckDB, with its reader ``options`` (CSV only); a note
+    for each text column holding numbers (:mod:`bitsift.engines.file_checks`)."""
+    reader = file_reader(path)
+    if options and reader != "read_csv_auto":
+        raise SpecError.option("read_option", f" applies to CSV files only, not {path!r}")
+    if table:
+        raise SpecError.option("table", f" is not used with a data file ({Path(path).name})")
+    arguments = reader_arguments(options)
+    engine = DuckDBEngine.open_file(path)
+    try:
+        refuse_renamed_columns(engine, path, arguments)
+        if reader == "read_csv_auto":
+            engine.notes += numeric_text_notes(engine, file_table(path, arguments), options)
+    except SourceError:
+        engine.close()
+        raise
+    return OpenSource(engine=engine, table=file_table(path, arguments), display=path)
 
 
 def _open_with_engine(source: EngineSource, table: str | None) -> OpenSource:
@@ -189,7 +206,8 @@ _RENAMED = re.compile(r"^(?P<base>.+)_[0-9]+$", re.DOTALL)
 _JSON_SAMPLE = 20_480
 
 
-def refuse_renamed_columns(engine: DuckDBEngine, path: str) -> None:
+def refuse_renamed_columns(engine: DuckDBEngine, path: str,
+                           arguments: Sequence[exp.Expression] = ()) -> None:
     """Refuse a data file with column names that differ only in case (``Y`` and ``y``).
 
     DuckDB matches names ignoring case and so renames one of the twins on read; ranking against
@@ -198,7 +216,7 @@ def refuse_renamed_columns(engine: DuckDBEngine, path: str) -> None:
     cannot be read to tell; a file the reader cannot open is left to the reader's own errors.
     """
     try:
-        names = engine.con.sql(exp.select(exp.Star()).from_(file_table(path)).limit(0)
+        names = engine.con.sql(exp.select(exp.Star()).from_(file_table(path, arguments)).limit(0)
                                .sql("duckdb")).columns
     except duckdb.Error:
         return  # the reader's own error, reported when the columns are described

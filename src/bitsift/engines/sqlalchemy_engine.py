@@ -18,11 +18,14 @@ from sqlglot import exp
 
 from bitsift.engines import sqlite_support
 from bitsift.engines.base import (
+    MAX_SCHEMAS_SEARCHED,
     Engine,
     FetchResult,
     cancelled_error,
     check_timeout_limit,
+    missing_table_error,
     query_error,
+    tables_elsewhere,
 )
 from bitsift.engines.masking import (
     environment_secrets,
@@ -265,8 +268,9 @@ class SqlAlchemyEngine(Engine):
             real = resolve_name(name, tables)
             if real is None:
                 where = f" in schema {schema!r}" if schema else ""
-                raise TableNotFoundError(f"unknown table: {display!r}{where}"
-                                         f"{suggest(name, tables)}")
+                raise missing_table_error(f"unknown table: {display!r}{where}"
+                                          f"{suggest(name, tables)}",
+                                          _tables_elsewhere(inspector, name, schema))
             columns, unrecognized = _reflect_columns(inspector, real, schema)
             default_schema = None if schema else inspector.default_schema_name
         except sa.exc.DBAPIError as error:  # unknown schema and friends
@@ -419,6 +423,29 @@ class SqlAlchemyEngine(Engine):
 #: SQLAlchemy's warning for a column type its dialect does not know (PostgreSQL xml, point;
 #: MariaDB geometry): the only place the catalog's own type name is still given.
 _UNRECOGNIZED_TYPE = re.compile(r"Did not recognize type '(?P<type>.*)' of column '(?P<column>.*)'")
+
+
+#: Schemas that hold the database's own catalog, never a user's table.
+_SYSTEM_SCHEMAS = frozenset({"information_schema", "pg_catalog", "pg_toast", "mysql",
+                             "performance_schema", "sys"})
+
+
+def _tables_elsewhere(inspector: Any, name: str, searched: str | None) -> list[str]:
+    """Other schemas (MariaDB/MySQL: databases) holding a table or view of this name; only on
+    the error path, at most :data:`MAX_SCHEMAS_SEARCHED` schemas."""
+    searched = searched or inspector.default_schema_name
+    schemas = [s for s in inspector.get_schema_names()
+               if s != searched and s.lower() not in _SYSTEM_SCHEMAS
+               and not s.startswith("pg_temp") and not s.startswith("pg_toast")]
+    places = []
+    for schema in sorted(schemas)[:MAX_SCHEMAS_SEARCHED]:
+        try:
+            tables = inspector.get_table_names(schema=schema) + inspector.get_view_names(
+                schema=schema)
+        except sa.exc.DBAPIError:  # a schema this user may not read
+            continue
+        places.append((schema, tables))
+    return tables_elsewhere(name, places)
 
 
 def _reflect_columns(inspector: Any, table: str, schema: str | None

@@ -59,7 +59,7 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
     for number, ranking in enumerate(job.rankings):
         where = f"ranking {ranking.name!r}: "
         try:
-            session = Session.open(job.source, ranking.table)
+            session = Session.open(job.opened_source, ranking.table)
         except SourceError as error:
             problems.append(_at(source_line, str(error)))
             break

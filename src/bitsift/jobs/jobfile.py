@@ -30,6 +30,7 @@ from typing import Any
 import sqlalchemy as sa
 
 from bitsift.engines.duckdb_engine import file_reader
+from bitsift.engines.read_options import FileSource, ReadValue, parse_read_options
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import (
     BitsiftError,
@@ -46,19 +47,19 @@ from bitsift.names import one_line
 from bitsift.run import api
 from bitsift.spec.rankspec import RankOptions, Thresholds
 
-TOP_KEYS: tuple[str, ...] = ("job", "source", "results", "defaults", "ranking")
+TOP_KEYS: tuple[str, ...] = ("job", "source", "read_options", "results", "defaults", "ranking")
 RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
 #: A ranking's settings: the CLI's rank options, plus a name.
 RANKING_KEYS: tuple[str, ...] = (
     "name", "table", "target", "attributes", "exclude", "categorical", "numeric", "missing",
     "bins", "where", "sort", "limit", "timeout", "high_cardinality", "by", "weight",
-    "binning", "binning_for", "date_part", "confidence",
+    "binning", "binning_for", "date_part", "confidence", "target_bins", "max_classes",
 )
 DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
 NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric", "by")
 _STRINGS = ("name", "table", "target", "where", "missing", "sort", "weight", "binning",
             "binning_for", "date_part")
-_INTEGERS = ("bins", "limit", "high_cardinality")
+_INTEGERS = ("bins", "limit", "high_cardinality", "target_bins", "max_classes")
 _NUMBERS = ("timeout", "confidence")
 MAX_NAME = 200
 MAX_RUN_ID = 100
@@ -116,6 +117,13 @@ class Job:
     destination: Destination
     rankings: tuple[JobRanking, ...]
     lines: LineMap = field(default_factory=LineMap)
+    #: ``[read_options]``: how a CSV source is read (:mod:`bitsift.engines.read_options`).
+    read_options: tuple[tuple[str, ReadValue], ...] = ()
+
+    @property
+    def opened_source(self) -> str | FileSource:
+        """What the rankings open: the source, with its reader options if any."""
+        return FileSource(self.source, self.read_options) if self.read_options else self.source
 
     def ranking(self, name: str) -> JobRanking:
         for ranking in self.rankings:
@@ -177,13 +185,32 @@ class _Reader:
         if len(name) > MAX_NAME:
             self.problem(self.lines.of("", 0, "job"), f"job name longer than {MAX_NAME} characters")
         source = self.source()
+        read_options = self.read_options(source)
         destination = self.destination()
         rankings = self.rankings(source)
         if self.problems:
             raise JobError(self.path, self.problems)
         assert source is not None and destination is not None
         return Job(path=self.path, name=name, source=source, destination=destination,
-                   rankings=tuple(rankings), lines=self.lines)
+                   rankings=tuple(rankings), lines=self.lines, read_options=read_options)
+
+    def read_options(self, source: str | None) -> tuple[tuple[str, ReadValue], ...]:
+        """``[read_options]``: checked like ``--read-option``; a CSV source only."""
+        table = self.data.get("read_options")
+        if table is None:
+            return ()
+        line = self.lines.of("", 0, "read_options")
+        if not isinstance(table, dict):
+            self.problem(line, "read_options must be a table of KEY = VALUE")
+            return ()
+        if source is not None and file_reader(source) != "read_csv_auto":
+            self.problem(line, "read_options apply to a CSV source only")
+            return ()
+        try:
+            return parse_read_options(table)
+        except SpecError as error:
+            self.problem(line, str(error))
+            return ()
 
     def source(self) -> str | None:
         text = self.string(self.data, "source", "", 0, required=True)

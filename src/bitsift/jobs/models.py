@@ -118,7 +118,7 @@ def model_text(job: Job, ranking: JobRanking, dialect: str | None = None,
     """The content of one model file: header comment, then one SELECT (no semicolon).
     ``session``: the ranking's source already open (default: the job's source is opened)."""
     if session is None:
-        with Session.open(job.source, ranking.table) as opened:
+        with Session.open(job.opened_source, ranking.table) as opened:
             return model_text(job, ranking, dialect, opened)
     statement, header, _ = model_statement(job, ranking, dialect, session)
     return f"{_comments(header)}\n{statement.sql}\n"

@@ -95,6 +95,20 @@ def _rows(ranking: Ranking) -> list[list[str]]:
 
 
 def _summary(ranking: Ranking) -> str:
+    return _plain_summary(ranking) + _target_bins_line(ranking)
+
+
+def _target_bins_line(ranking: Ranking) -> str:
+    """A binned target (``--target-bins``): its classes' cut points, on a line of their own."""
+    binning = ranking.target_binning
+    if binning is None:
+        return ""
+    cuts = [float(c) for c in binning["cuts"]]
+    return (f"\ntarget {ranking.target!r} binned by {binning['method']} into {len(cuts) + 1} "
+            f"classes at: {format_cuts(cuts)}")
+
+
+def _plain_summary(ranking: Ranking) -> str:
     if ranking.weight is not None:
         return (
             f"{escape_text(ranking.table)}: target {ranking.target!r}, weight"
@@ -130,12 +144,26 @@ def as_table(ranking: Ranking) -> str:
 def _cut_lines(ranking: Ranking) -> list[str]:
     """One line per numeric attribute: its binning, bin count and cut points."""
     binned = [a for a in ranking.attributes if a.cuts is not None]
-    if not binned:
-        return []
-    rows = [[a.attribute, f"{a.binning or 'quantile'}, {a.bins} bin{'s' if a.bins != 1 else ''}:"
-             f" {format_cuts(a.cuts or [])}"] for a in binned]
-    return ["", "cut points (bin k holds cut[k-1] <= x < cut[k]):",
-            *("  " + line for line in aligned(rows, left={0, 1}))]
+    parts = [a for a in ranking.attributes if a.date_part]
+    lines = []
+    if binned:
+        rows = [[a.attribute, f"{a.binning or 'quantile'}{' of time' if a.temporal else ''}, "
+                 f"{a.bins} bin{'s' if a.bins != 1 else ''}: {_shown_cuts(a)}"] for a in binned]
+        lines += ["", "cut points (bin k holds cut[k-1] <= x < cut[k]):",
+                  *("  " + line for line in aligned(rows, left={0, 1}))]
+    if parts:
+        lines += ["", "date parts ranked as categories:",
+                  *("  " + line for line in aligned([[a.attribute, a.date_part or ""]
+                                                     for a in parts], left={0, 1}))]
+    return lines
+
+
+def _shown_cuts(score: AttributeScore) -> str:
+    """An attribute's cut points on one line: numbers, or ISO 8601 for dated attributes."""
+    shown = score.shown_cuts() or []
+    if score.temporal is None:
+        return format_cuts(score.cuts or [])
+    return " | ".join(str(c) for c in shown) or "(none: one bin)"
 
 
 def _csv_row(score: AttributeScore) -> list[object]:
@@ -143,7 +171,9 @@ def _csv_row(score: AttributeScore) -> list[object]:
     with ``;``, cut points in full (``repr``: a program reads them back)."""
     record = score.to_dict()
     record["flags"] = ";".join(score.flags)
-    record["cuts"] = ";".join(repr(c) for c in score.cuts) if score.cuts is not None else None
+    shown = score.shown_cuts()
+    record["cuts"] = (None if shown is None else ";".join(
+        c if isinstance(c, str) else repr(c) for c in shown))
     return [record[k] for k in ATTRIBUTE_KEYS]
 
 
@@ -170,6 +200,7 @@ def as_markdown(ranking: Ranking) -> str:
                                 for i in range(len(header))) + "|")
     for row in _rows(ranking):
         lines.append("| " + " | ".join(_markdown_escape(c) for c in row) + " |")
+    lines += [_markdown_escape(line) for line in _cut_lines(ranking)]
     return "\n".join(lines) + "\n"
 
 

@@ -17,7 +17,7 @@ from typing import Any
 from bitsift.analysis.profile_model import AttributeProfile, ProfiledRun, ValueProfile
 from bitsift.names import escape_text
 from bitsift.numformat import (
-    cut_labels,
+    cut_texts,
     format_bits,
     format_cuts,
     format_metric,
@@ -259,7 +259,7 @@ def _drilldown(scored: AttributeScore, profile: AttributeProfile, anchor: str,
                sensitive: bool) -> dict[str, Any]:
     cuts = None
     if profile.cuts is not None:
-        cuts = cut_labels(profile.cuts) or ["(none: a single bin)"]
+        cuts = cut_texts(profile.cuts, profile.temporal) or ["(none: a single bin)"]
     return {
         "attribute": scored.attribute,
         "anchor": anchor,
@@ -447,8 +447,9 @@ def profile_text(run: ProfiledRun) -> str:
             f" p {format_metric('p_value', scored.p_value)}",
         ]
         if profile.cuts is not None:
-            cuts = format_cuts(profile.cuts, min_digits=6, separator=", ",
-                               none="none (a single bin)")
+            cuts = (format_cuts(profile.cuts, min_digits=6, separator=", ",
+                                none="none (a single bin)") if profile.temporal is None else
+                    ", ".join(cut_texts(profile.cuts, profile.temporal)) or "none (a single bin)")
             out.append(f"cut points: {cuts}")
         table = [["value", "rows", "share", *class_heads, "H(Y|X=x)", "contribution"]]
         for value in profile.values:

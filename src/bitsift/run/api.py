@@ -183,6 +183,10 @@ def statement(
             return _with_notes(text, session.notes)
     if not table:
         raise SpecError.option("table", " is required without a SOURCE")
+    if spec_options.target_bins is not None:
+        raise SpecError(problems=[Problem("target_bins", (
+            Option("target_bins"), " needs a SOURCE: the target's cut points are computed from "
+            "the table and inlined"))])
     if not spec_options.attributes and not spec_options.numeric:
         raise SpecError(problems=[Problem(None, (
             "without a SOURCE, name the columns with ", Option("attributes"), " and/or ",

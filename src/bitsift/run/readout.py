@@ -16,9 +16,10 @@ from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from typing import Any
 
-from bitsift.errors import DataError
+from bitsift.errors import DataError, Option, Problem
 from bitsift.run.metrics import rank_ranges, score, snap, snap_total, sort_scores
 from bitsift.run.result import Ranking, SegmentedRanking
+from bitsift.run.target_bins import target_binning
 from bitsift.spec.rankspec import RankSpec
 
 Record = Mapping[str, Any]
@@ -118,6 +119,7 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
         weight_total=0.0 if weighted else None,
         rows_without_weight=_count(first, "rows_without_weight"),
         confidence=spec.options.confidence,
+        target_binning=target_binning(spec),
     )
     if target_row is None or _count(target_row, "rows_used") == 0:
         return base
@@ -127,13 +129,14 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
         row = by_index.get(index, _NOTHING_MEASURED)
         scored = score(row, attribute.name, attribute.kind, spec.options.thresholds,
                        cuts.get(attribute.name), z=spec.options.z)
+        # Each score names its binning method, and a dated attribute its part or time binning.
+        scored = replace(scored, binning=attribute.binning, date_part=attribute.date_part,
+                         temporal=attribute.family if attribute.epoch else None)
         # No p-value and no interval where the weights are not whole numbers: both assume counts.
-        if whole_numbers:
-            scores.append(replace(scored, binning=attribute.binning))
-        else:
-            scores.append(replace(scored, binning=attribute.binning, p_value=None,
-                                  information_gain_se=None, information_gain_low=None,
-                                  information_gain_high=None))
+        if not whole_numbers:
+            scored = replace(scored, p_value=None, information_gain_se=None,
+                             information_gain_low=None, information_gain_high=None)
+        scores.append(scored)
     rank_ranges(scores)
     ordered = sort_scores(scores, spec.options.sort)
     if spec.options.limit:
@@ -147,6 +150,27 @@ def _ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, Seque
         status="ok" if classes >= 2 else "single_class",
         weight_total=snap_total(target_row["weight_used"]) if weighted else None,
     )
+
+
+def refuse_many_classes(classes: int, spec: RankSpec) -> None:
+    """:class:`DataError` when the target has more classes than ``max_classes`` (in the
+    whole table, or in the largest segment): it looks continuous or like an identifier, and
+    every metric against it would be confidently wrong.
+
+    Read from the ranking's own target row, so the check costs no pass of its own: a float
+    or decimal target is refused from its type before anything runs, and what is left (an
+    integer or text target with many values) costs one ranking, whose cells are bounded by
+    the rows like any other (decided for issue 21, item 1)."""
+    cap = spec.options.max_classes
+    if classes <= cap:
+        return
+    way_out: tuple[str | Option, ...] = (
+        (" rank against quantile bins of it with ", Option("target_bins"), " N, or")
+        if spec.target_family in ("integer", "float", "decimal") else ())
+    raise DataError(problems=[Problem("max_classes", (
+        f"the target {spec.target!r} has {classes:,} classes in {spec.source_name}, more than "
+        "the ", Option("max_classes"), f" {cap}: it looks continuous or like an identifier;",
+        *way_out, " choose a categorical target (or raise ", Option("max_classes"), ")"))])
 
 
 def _weight_notes(spec: RankSpec, whole_numbers: bool) -> list[str]:
@@ -175,6 +199,7 @@ def read_ranking(records: Sequence[Record], spec: RankSpec, cuts: Mapping[str, S
         _negative_weights(records, spec)
     whole = spec.weight is None or not _fractional_weights(records, spec)
     ranking = _ranking(records, spec, cuts, dialect, whole_numbers=whole, segment=None)
+    refuse_many_classes(ranking.classes, spec)
     if ranking.status == "no_rows":
         if ranking.rows_without_weight and not ranking.rows_excluded:
             raise DataError(f"no row of {spec.source_name} has a positive {spec.weight!r} "
@@ -206,6 +231,7 @@ def read_segments(records: Sequence[Record], spec: RankSpec,
                  segment=dict(zip(names, key, strict=True)))
         for key in sorted(groups, key=_sort_key)
     ]
+    refuse_many_classes(max((s.classes for s in segments), default=0), spec)
     if not any(s.rows for s in segments):
         raise _no_rows_error(spec, sum(s.rows_excluded for s in segments))
     return SegmentedRanking(

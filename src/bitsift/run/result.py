@@ -9,7 +9,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from bitsift.errors import install_extra
-from bitsift.numformat import format_bits, format_p_value
+from bitsift.numformat import format_bits, format_p_value, iso_cut
 
 #: Keys of one attribute in the JSON contract, in order.
 ATTRIBUTE_KEYS: tuple[str, ...] = (
@@ -34,6 +34,7 @@ ATTRIBUTE_KEYS: tuple[str, ...] = (
     "binning",
     "bins",
     "cuts",
+    "date_part",
 )
 
 
@@ -72,14 +73,27 @@ class AttributeScore:
     #: The best and worst plausible rank among the ranking's attributes (by the intervals).
     rank_low: int | None = None
     rank_high: int | None = None
+    #: A date or timestamp ranked as categories of this part (year, month, dow, hour).
+    date_part: str | None = None
+    #: "date" or "timestamp" for a dated attribute binned as time: its cut points are epoch
+    #: seconds here and ISO 8601 strings in every output (:meth:`shown_cuts`).
+    temporal: str | None = None
 
     @property
     def bins(self) -> int | None:
         """The number of bins the cut points make (numeric attributes; some may be empty)."""
         return len(self.cuts) + 1 if self.cuts is not None else None
 
+    def shown_cuts(self) -> list[float] | list[str] | None:
+        """The cut points as outputs show them: numbers, or ISO 8601 for dated attributes."""
+        if self.cuts is None or self.temporal is None:
+            return self.cuts
+        return [iso_cut(c, self.temporal) for c in self.cuts]
+
     def to_dict(self) -> dict[str, Any]:
-        return {key: getattr(self, key) for key in ATTRIBUTE_KEYS}
+        out = {key: getattr(self, key) for key in ATTRIBUTE_KEYS}
+        out["cuts"] = self.shown_cuts()
+        return out
 
 
 @dataclass
@@ -111,10 +125,13 @@ class Ranking:
     rows_without_weight: int = 0
     #: The level of every attribute's interval (``--confidence``).
     confidence: float = 0.95
+    #: ``--target-bins``: method, bins, cuts and labels of the target's classes; else None.
+    target_binning: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON contract: target, table, rows, rows_excluded, target_entropy, classes,
-        confidence, attributes (each with the keys of :data:`ATTRIBUTE_KEYS`).
+        confidence, attributes (each with the keys of :data:`ATTRIBUTE_KEYS`). A binned target
+        (``--target-bins``) adds ``target_binning`` after classes.
 
         Weighted rankings add ``weight`` (after table), ``rows_without_weight`` and
         ``weight_total`` (after rows_excluded); unweighted ones have exactly the keys above."""
@@ -128,6 +145,8 @@ class Ranking:
             out["weight_total"] = self.weight_total
         out["target_entropy"] = self.target_entropy
         out["classes"] = self.classes
+        if self.target_binning is not None:
+            out["target_binning"] = self.target_binning
         out["confidence"] = self.confidence
         out["attributes"] = [a.to_dict() for a in self.attributes]
         return out

@@ -31,6 +31,7 @@ from sqlglot import exp
 
 from bitsift.engines import sources
 from bitsift.engines.base import Engine
+from bitsift.run.target_bins import bin_target
 from bitsift.spec import rankspec as spec
 from bitsift.spec.schema import Column
 
@@ -100,11 +101,13 @@ class Session:
         return self.engine.caps.sqlglot_dialect
 
     def resolve(self, options: spec.RankOptions) -> spec.RankSpec:
-        """``options`` checked against the columns: resolved once per distinct request."""
+        """``options`` checked against the columns: resolved once per distinct request (a
+        ``target_bins`` request also cuts its target then: :mod:`bitsift.run.target_bins`)."""
         for known, resolved in self._resolved:
             if known == options:
                 return resolved
         resolved = spec.resolve(options, self.columns, self.table, self.display, self.dialect)
+        resolved = bin_target(self.engine, resolved, self.columns)
         self._resolved.append((options, resolved))
         return resolved
 

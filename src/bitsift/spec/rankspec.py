@@ -9,7 +9,7 @@ from typing import Literal
 
 from sqlglot import exp
 
-from bitsift.errors import Option, Problem, SpecError
+from bitsift.errors import ColumnError, Option, Problem, SpecError
 from bitsift.spec.named_columns import (
     NamedColumns,
     check_binnable,
@@ -17,7 +17,13 @@ from bitsift.spec.named_columns import (
     named_columns,
 )
 from bitsift.spec.predicate import Predicate, parse_predicate
-from bitsift.spec.schema import TEMPORAL_FAMILIES, Column, Kind, refuse_ungroupable
+from bitsift.spec.schema import (
+    NUMERIC_FAMILIES,
+    TEMPORAL_FAMILIES,
+    Column,
+    Kind,
+    refuse_ungroupable,
+)
 
 Missing = Literal["category", "drop"]
 SORT_METRICS: tuple[str, ...] = ("information_gain", "gain_ratio", "symmetric_uncertainty",
@@ -34,6 +40,8 @@ MISSING_MODES: tuple[str, ...] = ("category", "drop")
 BINNING_METHODS: tuple[str, ...] = ("quantile", "equal-width", "best-split", "mdl")
 #: Parts of a date or timestamp that ``--date-part`` turns into categories.
 DATE_PARTS: tuple[str, ...] = ("year", "month", "dow", "hour")
+#: ``--max-classes``' default: more target classes than this is refused.
+DEFAULT_MAX_CLASSES = 100
 #: One column's binning override: (column, method, bins or None for the run's --bins).
 ColumnBinning = tuple[str, str, int | None]
 
@@ -207,6 +215,10 @@ class RankOptions:
     by: tuple[str, ...] = ()
     #: A non-negative weight column (``--weight``): sums of weights instead of row counts.
     weight: str | None = None
+    #: A target with more classes than this is refused (it looks continuous or an identifier).
+    max_classes: int = DEFAULT_MAX_CLASSES
+    #: Rank against this many quantile bins of a numeric target (cut in the database).
+    target_bins: int | None = None
     #: The level of each gain's interval (``--confidence``), one of :data:`CONFIDENCE_Z`.
     confidence: float = 0.95
 
@@ -262,6 +274,16 @@ class RankOptions:
         date_numeric = sorted({n for n, _ in self.date_part if n} & set(self.numeric))
         if date_numeric:
             problems.append(_named_both("date_part", "numeric", date_numeric))
+        if isinstance(self.max_classes, bool) or not isinstance(self.max_classes, int) \
+                or self.max_classes < 2:
+            problems.append(Problem.option(
+                "max_classes", f" must be a whole number of at least 2, not {self.max_classes!r}"))
+        if self.target_bins is not None and (
+                isinstance(self.target_bins, bool) or not isinstance(self.target_bins, int)
+                or not 2 <= self.target_bins <= 1000):
+            problems.append(Problem.option(
+                "target_bins", f" must be a whole number between 2 and 1000, "
+                f"not {self.target_bins!r}"))
         if self.limit is not None and self.limit < 1:
             problems.append(Problem.option("limit", f" must be at least 1, not {self.limit}"))
         return problems
@@ -321,6 +343,9 @@ class RankSpec:
     by: tuple[AttributeSpec, ...] = ()
     #: The weight column (``--weight``), catalog spelling.
     weight: str | None = None
+    #: ``--target-bins``: the cut points the target was binned at (run mode); ``source`` then
+    #: reads the target as its bin labels (see :mod:`bitsift.run.target_bins`).
+    target_cuts: tuple[float, ...] | None = None
 
     @property
     def numeric(self) -> tuple[AttributeSpec, ...]:
@@ -350,6 +375,7 @@ def resolve(
         "binned": [name for name, _, _ in options.binning_for],
         "dated": [name for name, _ in options.date_part if name],
     }, by_name, source_name)
+    _check_target_type(options, by_name[named.target])
     check_segments_and_weight(named.target, named.by, named.weight, named.picked, by_name)
     refuse_ungroupable(by_name, {"target": [named.target], "attributes": named.picked,
                                  "by": named.by,
@@ -400,9 +426,13 @@ def _attribute_specs(names: Sequence[str], options: RankOptions, named: NamedCol
     for n in names:
         col = by_name[n]
         kind: Kind
+        part = part_of.get(n)
+        if (part is None and n not in named.categorical and n not in named.numeric
+                and col.family in TEMPORAL_FAMILIES):
+            part = every_date_part  # a bare --date-part PART: every date column not named
         if n in named.numeric:
             kind = "numeric"
-        elif n in named.categorical:
+        elif n in named.categorical or part is not None:
             kind = "categorical"
         else:
             kind = col.default_kind
@@ -411,10 +441,8 @@ def _attribute_specs(names: Sequence[str], options: RankOptions, named: NamedCol
             attributes.append(AttributeSpec(name=n, kind=kind, family=col.family,
                                             binning=method, bins=bins or options.bins))
             continue
-        part = part_of.get(n)
-        if part is None and n not in named.categorical and col.family in TEMPORAL_FAMILIES:
-            part = every_date_part  # a bare --date-part PART: every date column not named
         attributes.append(AttributeSpec(name=n, kind=kind, family=col.family, date_part=part))
+    _refuse_impossible_parts(attributes, part_of, by_name)
     unbinned = [a.name for a in attributes if a.name in binning_of and a.kind != "numeric"]
     if unbinned:
         raise SpecError(problems=[Problem("binning_for", (
@@ -422,3 +450,38 @@ def _attribute_specs(names: Sequence[str], options: RankOptions, named: NamedCol
             Option("categorical"), " columns are categories unless named in ", Option("numeric"),
             "): " + ", ".join(unbinned)))])
     return attributes
+
+
+#: Date parts a column of each family cannot have (a DATE has no hour: it would be constant).
+IMPOSSIBLE_PARTS: dict[str, frozenset[str]] = {"date": frozenset({"hour"})}
+
+
+def _refuse_impossible_parts(attributes: Sequence[AttributeSpec], named: dict[str, str],
+                             by_name: dict[str, Column]) -> None:
+    """Refuse a ``date_part`` the column's type cannot have, naming each column and type (a
+    bare part too: ``--date-part hour`` would make every DATE column a constant)."""
+    wrong = [a for a in attributes
+             if a.date_part and a.date_part in IMPOSSIBLE_PARTS.get(a.family, frozenset())]
+    if not wrong:
+        return
+    how = ("" if all(a.name in named for a in wrong)
+           else "; name the columns that have it instead (COLUMN=PART)")
+    raise ColumnError(problems=[Problem("date_part", (
+        Option("date_part"), " asks for a part these columns cannot have: " + ", ".join(
+            f"{a.date_part} of {a.name!r} ({by_name[a.name].type_name or a.family})"
+            for a in wrong) + how))])
+
+
+def _check_target_type(options: RankOptions, column: Column) -> None:
+    """A float or decimal target is refused (every value would be a class of its own) unless
+    ``target_bins`` cuts it; ``target_bins`` needs a number column."""
+    typed = f"{column.name!r} ({column.type_name or column.family})"
+    if options.target_bins is None and column.family in ("float", "decimal"):
+        raise SpecError(problems=[Problem("target", (
+            f"the target {typed} holds continuous numbers, not classes: rank against "
+            "quantile bins of it with ", Option("target_bins"), " N (e.g. 5), or choose a "
+            "categorical target"))])
+    # "other": a column described without a connection (paste mode) is not refused here.
+    if options.target_bins is not None and column.family not in NUMERIC_FAMILIES | {"other"}:
+        raise SpecError(problems=[Problem("target_bins", (
+            Option("target_bins"), f" needs a number target; {typed} is not one"))])

@@ -49,8 +49,10 @@ class Column:
 
     @property
     def default_kind(self) -> Kind:
-        """Floating and decimal columns are numeric; everything else is categorical."""
-        return "numeric" if self.family in ("float", "decimal") else "categorical"
+        """Floating, decimal, date and timestamp columns are numeric (dates binned as time:
+        a timestamp has about as many values as rows); everything else is categorical."""
+        return ("numeric" if self.family in ("float", "decimal", "date", "timestamp")
+                else "categorical")
 
 
 def refuse_ungroupable(by_name: Mapping[str, Column],

@@ -310,12 +310,26 @@ def finish(text: str, caps: Capabilities, pretty: bool) -> Statement:
     parsed = trees[0]
     if any(isinstance(node, _WRITES) for node in parsed.walk()):
         raise BuildError(f"generated SQL contains a write or command:\n{text}")
+    name_derived_tables(parsed)
     # The tree is this call's own: neither the hooks nor the generator need to copy it first
     # (two deep copies were a third of the Python time of a counted ranking).
     tree = _apply_hooks(parsed, caps, copy=False)
     sql = tree.sql(dialect=caps.sqlglot_dialect, pretty=pretty, copy=False,
                    unsupported_level=sqlglot.ErrorLevel.RAISE)
     return Statement(sql=sql, tree=tree, dialect=caps.name)
+
+
+#: The name given to a derived table read without one (a ``--target-bins`` source).
+DERIVED_SOURCE = "bitsift_source"
+
+
+def name_derived_tables(tree: exp.Expression) -> None:
+    """Name every unnamed derived table in a FROM or JOIN: PostgreSQL and MySQL refuse a
+    subquery without a name, and a ``--target-bins`` source is one (templates write
+    ``FROM {{ source }}`` without naming it)."""
+    for node in list(tree.find_all(exp.Subquery)):
+        if not node.alias and isinstance(node.parent, exp.From | exp.Join):
+            node.set("alias", exp.TableAlias(this=exp.to_identifier(DERIVED_SOURCE)))
 
 
 def _apply_hooks(tree: exp.Expression, caps: Capabilities, copy: bool = True) -> exp.Expression:
@@ -426,6 +440,15 @@ def binning_summary(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None =
     return "; ".join(parts) or "none"
 
 
+def _target_bins_note(spec: RankSpec) -> str:
+    """The paste header's word on a binned target (``--target-bins``)."""
+    if spec.target_cuts is None:
+        return ""
+    inlined = ", ".join(f"{c:.12g}" for c in spec.target_cuts) or "none"
+    return (f" in {spec.options.target_bins} quantile bins (cut points computed by bitsift "
+            f"from the table and inlined: {inlined})")
+
+
 def _comment_safe(text: str) -> str:
     return " ".join(str(text).split()).replace("*/", "* /")
 
@@ -446,7 +469,7 @@ def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | N
     header = [
         f"bitsift {__version__} - information-gain ranking, dialect {caps.name}, {stamp}",
         f"table: {spec.source_name}",
-        f"target: {spec.target}",
+        f"target: {spec.target}" + _target_bins_note(spec),
         f"attributes: {attrs}",
         f"missing values: {spec.options.missing}; numeric binning: {binning_summary(spec, cuts)}",
     ]

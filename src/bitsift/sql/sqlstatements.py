@@ -29,6 +29,7 @@ from bitsift.sql.sqlbuild import (
     literal,
     literal_cuts,
     measured_entry,
+    name_derived_tables,
     parsed_value,
     qualified_where_sql,
     quote,
@@ -289,4 +290,25 @@ def rows_statement(spec: RankSpec, caps: Capabilities, limit: int | None = None)
         query = query.where(spec.where.expression.copy())
     if limit is not None:
         query = query.limit(limit)
+    name_derived_tables(query)
     return Statement(sql=query.sql(caps.sqlglot_dialect), tree=query, dialect=caps.name)
+
+
+def binned_target_source(spec: RankSpec, columns: Sequence[str], cuts: Sequence[float],
+                         labels: Sequence[str]) -> exp.Expression:
+    """``(SELECT <every column but the target>, CASE ... END AS <target> FROM <table>)``: a
+    numeric target as its bin label (``--target-bins``, :mod:`bitsift.run.target_bins`); NULL
+    stays NULL, NaN lands in the last bin like an attribute's. Cut points and labels enter as
+    typed sqlglot literals, names quoted by sqlglot; the derived table is named by
+    :func:`~bitsift.sql.sqlbuild.finish`."""
+    target = exp.column(exp.to_identifier(spec.target, quoted=True))
+    case = exp.Case().when(exp.Is(this=target.copy(), expression=exp.Null()), exp.Null())
+    for cut, label in zip(cuts, labels, strict=False):
+        below = exp.LT(this=exp.cast(target.copy(), exp.DataType.build("DOUBLE")),
+                       expression=value_literal(float(cut)))
+        case = case.when(below, value_literal(label))
+    case = case.else_(value_literal(labels[-1]))
+    selected = [exp.column(exp.to_identifier(name, quoted=True)) for name in columns
+                if name != spec.target]
+    query = exp.select(*selected, exp.alias_(case, exp.to_identifier(spec.target, quoted=True)))
+    return exp.Subquery(this=query.from_(spec.source.copy()))
