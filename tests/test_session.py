@@ -202,7 +202,22 @@ COMMANDS: dict[str, tuple[list[str], tuple[int, int]]] = {
     "run --dry-run": (["run", "{job}", "--dry-run"], (1, 1)),
     "models": (["models", "{job}", "--out", "{models}"], (1, 1)),
     "drift": (["drift", "{job}"], (0, 0)),
+    "counts": (["counts", "{db}", "-t", "t", "-y", "y", "--partition", "s", "--grain", "value",
+                "--into", "{counts}"], (1, 1)),
+    # Ranked from stored counts (built first, see ``_stored_counts``): nothing to resolve.
+    "rank --from-counts": (["rank", "{counts}", "--from-counts"], (1, 0)),
 }
+
+
+def _stored_counts(db: str, counts: str) -> None:
+    """Counts of the small table stored in ``counts``, for ``rank --from-counts``."""
+    from click.testing import CliRunner
+
+    from bitsift.cli import cli
+
+    result = CliRunner().invoke(cli, ["counts", db, "-t", "t", "-y", "y", "--partition", "s",
+                                      "--grain", "value", "--into", counts])
+    assert result.exit_code == 0, result.output
 
 
 def _two_runs(job: str) -> None:
@@ -231,11 +246,14 @@ def test_each_command_opens_and_resolves_its_source_once(
     from bitsift.cli import cli
 
     places = {"db": str(small_db), "out": str(tmp_path / "report.html"),
-              "job": str(_job(tmp_path, small_db)), "models": str(tmp_path / "models")}
+              "job": str(_job(tmp_path, small_db)), "models": str(tmp_path / "models"),
+              "counts": str(tmp_path / "counts.duckdb")}
     template, expected = COMMANDS[command]
     args = [a.format(**places) for a in template]
     if command == "drift":
         _two_runs(places["job"])
+    if command == "rank --from-counts":
+        _stored_counts(places["db"], places["counts"])
     calls = Calls(monkeypatch)
     result = CliRunner().invoke(cli, args)
     assert result.exit_code == 0, result.output
@@ -316,7 +334,10 @@ def test_no_result_gets_its_statements_or_notes_after_it_was_built() -> None:
             assigned[str(path.relative_to(PACKAGE))] = found
     # The engine's own log, shared with the sibling sessions it opens; drift's report is
     # not a ranking's result (it compares history rows).
+    # The notes a file source gets when opened (text columns holding numbers) are the
+    # engine's own too, set before any result exists.
     assert assigned == {"engines/base.py": ["sibling.statements"],
+                        "engines/sources.py": ["engine.notes"],
                         "jobs/drift.py": ["report.notes"]}
 
 

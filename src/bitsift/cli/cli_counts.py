@@ -120,7 +120,8 @@ def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
                        until=window["until"], by_partition=window["by_partition"],
                        sort=options["sort"], limit=options["limit"],
                        missing=options["missing"], thresholds=options["thresholds"],
-                       timeout=options["timeout"])
+                       timeout=options["timeout"],
+                       confidence=options.get("confidence", 0.95))
 
 
 _PASTE_ONLY = ("partition", "grain", "counts_table", "since", "until")

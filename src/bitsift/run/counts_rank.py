@@ -50,13 +50,14 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
                 by_partition: bool = False, sort: str = "information_gain",
                 limit: int | None = None, missing: str = "category",
                 thresholds: Thresholds | None = None, timeout: float | None = None,
-                ) -> Ranking | SegmentedRanking:
+                confidence: float = 0.95) -> Ranking | SegmentedRanking:
     """Rank the window ``[since, until)`` of the counts stored in ``dest`` (a DuckDB file, a
     SQLAlchemy URL or connection): the same result as ranking the source's rows of those
     partitions with numeric attributes cut at the stored cut points. ``by_partition``: one
     ranking per partition (a :class:`SegmentedRanking` whose segment is the partition)."""
     options = RankOptions(target="-", sort=sort, limit=limit, missing=missing,  # type: ignore[arg-type]
-                          thresholds=thresholds or Thresholds(), timeout=timeout)
+                          thresholds=thresholds or Thresholds(), timeout=timeout,
+                          confidence=confidence)
     with session_for(dest, counts_table) as session:
         session.set_timeout(options.timeout)
         engine = session.engine
@@ -77,7 +78,8 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
                       for i, a in enumerate(meta.attributes, start=1)]
         statement = stored_rank_statement(
             engine.caps, session.table, meta.target, attributes, window=window,
-            by_partition=by_partition, drop_missing=missing == "drop", order_by=None)
+            by_partition=by_partition, drop_missing=missing == "drop", order_by=None,
+            z=options.z)
         records = engine.fetch(statement.sql).records()
         spec = RankSpec(
             source=session.table, source_name=f"{meta.source} {described}",

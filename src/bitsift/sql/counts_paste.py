@@ -122,7 +122,8 @@ def window_rank_statement(spec: RankSpec, caps: Capabilities, table: exp.Express
     statement = stored_rank_statement(
         caps, table, spec.target, attributes,
         window=window_condition(since, until, partitioning.kind), by_partition=False,
-        drop_missing=spec.options.missing == "drop", order_by=spec.options.sort)
+        drop_missing=spec.options.missing == "drop", order_by=spec.options.sort,
+        z=spec.options.z)
     tree = sqlglot.parse_one(statement.sql, read=caps.sqlglot_dialect)
     assert isinstance(tree, exp.Expression)
     return tree.sql(caps.sqlglot_dialect, pretty=True)

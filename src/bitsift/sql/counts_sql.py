@@ -220,7 +220,8 @@ def window_condition(since: str | int | None, until: str | int | None,
 def stored_rank_statement(caps: Capabilities, table: exp.Expression, target: str,
                           attributes: Sequence[StoredAttribute], *,
                           window: exp.Expression | None, by_partition: bool,
-                          drop_missing: bool, order_by: str | None) -> Statement:
+                          drop_missing: bool, order_by: str | None,
+                          z: float) -> Statement:
     """The ranking statement over the counts in ``table`` (rank.sql.j2 from ``cells`` on)."""
     exact = exact_grouping("text", caps)
     stored = render(
@@ -240,6 +241,7 @@ def stored_rank_statement(caps: Capabilities, table: exp.Expression, target: str
         "weight": None,
         "drop_missing": drop_missing,
         "order_by_gain": order_by,
+        "z": literal(z),
     }
     return finish(render("rank.sql.j2", **context), caps, pretty=False)
 
