@@ -29,7 +29,7 @@ from test_jobs import POSTGRES_URL, duckdb_source, history_count, random_rows, t
 
 import bitsift
 import bitsift.run.api
-from bitsift.jobs import history_duckdb
+from bitsift.jobs import duckdb_file
 from bitsift.jobs.drift import drift
 from bitsift.jobs.history import (
     ADDED_IN_2,
@@ -340,7 +340,7 @@ def test_a_results_file_held_too_long_fails_before_ranking(tmp_path: Path,
                     "print('held', flush=True)\ntime.sleep(30)\n", str(destination.path))
     try:
         assert holder.stdout is not None and holder.stdout.readline() == "held\n"
-        monkeypatch.setattr(history_duckdb, "WRITE_WAIT_SECONDS", 0.5)
+        monkeypatch.setattr(duckdb_file, "WRITE_WAIT_SECONDS", 0.5)
         ranked: list[object] = []
         monkeypatch.setattr(bitsift.run.api, "rank", lambda *a, **k: ranked.append(a))
         with pytest.raises(JobError) as caught:

@@ -1,6 +1,6 @@
 """The counts table and its metadata in the destination (docs/stored-counts.md): a DuckDB file
 or a SQLAlchemy URL, written in one transaction while the table's other writers wait, with the
-history's writer lock and file waiting (:mod:`bitsift.jobs.history_duckdb`,
+history's writer lock and file waiting (:mod:`bitsift.jobs.duckdb_file`,
 :mod:`bitsift.jobs.history_sqlalchemy`).
 
 A write replaces the partitions it carries (and, with ``recount_from``, every partition from
@@ -17,11 +17,9 @@ import sqlalchemy as sa
 from sqlalchemy.dialects import mysql
 from sqlglot import exp
 
-from bitsift.errors import first_line
+from bitsift.jobs.duckdb_file import connect_file, write_transaction
 from bitsift.jobs.history import Destination, HistoryError
-from bitsift.jobs.history_duckdb import _connect_duckdb
 from bitsift.jobs.history_sqlalchemy import SqlAlchemyStore
-from bitsift.jobs.history_store import _interrupted
 from bitsift.run.counts_meta import CountsMeta
 from bitsift.sql.counts_sql import COUNTS_COLUMNS, META_COLUMNS, META_SUFFIX
 
@@ -118,7 +116,7 @@ class DuckDBCounts(CountsStore):
     def state(self) -> tuple[CountsMeta | None, str | int | None]:
         if not self.destination.path.exists():
             return None, None
-        con = _connect_duckdb(self.destination.path, read_only=True)
+        con = connect_file(self.destination.path, read_only=True)
         try:
             return self._read(con)
         finally:
@@ -138,48 +136,43 @@ class DuckDBCounts(CountsStore):
             con.execute(exp.Create(this=exp.Schema(this=table.copy(), expressions=definitions),
                                    kind="TABLE", exists=True).sql("duckdb"))
 
-    def write(self, write: Write) -> int:
-        con = _connect_duckdb(self.destination.path, read_only=False)
+    def _replace(self, con: duckdb.DuckDBPyConnection, write: Write) -> None:
+        """The write's statements, in the caller's transaction."""
         partition = exp.column(_ident("partition"))
+        if write.refit:  # the partition column's type may change with the rebuild
+            for table in (self.table, self._meta_table()):
+                con.execute(exp.Drop(tables=[table.copy()], kind="TABLE", exists=True
+                                     ).sql("duckdb"))
+        self._create(con, write.meta.partition_kind)
+        stored, _ = self._read(con)
+        _check_meta(stored, write, self.where)
+        if write.recount_from is not None:
+            later = partition.copy() >= exp.Placeholder()
+            con.execute(exp.delete(self.table.copy(), where=later).sql("duckdb"),
+                        [write.recount_from])
+        for chunk in _chunks(write.partitions, _IN_BATCH):
+            con.execute(exp.delete(self.table.copy(), where=partition.copy().isin(
+                *(exp.Placeholder() for _ in chunk))).sql("duckdb"), list(chunk))
+        # One list parameter per column, unnested side by side: DuckDB inserts row by
+        # row executemany() at about a thousand rows a second.
+        types = self._types(write.meta.partition_kind)
+        insert = exp.insert(exp.select(*(
+            exp.func("UNNEST", exp.cast(exp.Placeholder(), exp.DataType.build(
+                f"{types[c]}[]", dialect="duckdb"))) for c in COUNTS_COLUMNS)),
+            self.table.copy(), columns=[_ident(c) for c in COUNTS_COLUMNS]).sql("duckdb")
+        for batch in _chunks(write.rows, _BATCH):
+            con.execute(insert, [list(column) for column in zip(*batch, strict=True)])
+        con.execute(exp.delete(self._meta_table()).sql("duckdb"))
+        con.executemany(exp.insert(exp.Values(expressions=[exp.tuple_(
+            exp.Placeholder(), exp.Placeholder())]), self._meta_table(),
+            columns=[_ident(c) for c in META_COLUMNS]).sql("duckdb"),
+            [list(r) for r in write.meta.rows()])
+
+    def write(self, write: Write) -> int:
+        con = connect_file(self.destination.path, read_only=False)
         try:
-            con.begin()
-            if write.refit:  # the partition column's type may change with the rebuild
-                for table in (self.table, self._meta_table()):
-                    con.execute(exp.Drop(tables=[table.copy()], kind="TABLE", exists=True
-                                         ).sql("duckdb"))
-            self._create(con, write.meta.partition_kind)
-            stored, _ = self._read(con)
-            _check_meta(stored, write, self.where)
-            if write.recount_from is not None:
-                later = partition.copy() >= exp.Placeholder()
-                con.execute(exp.delete(self.table.copy(), where=later).sql("duckdb"),
-                            [write.recount_from])
-            for chunk in _chunks(write.partitions, _IN_BATCH):
-                con.execute(exp.delete(self.table.copy(), where=partition.copy().isin(
-                    *(exp.Placeholder() for _ in chunk))).sql("duckdb"), list(chunk))
-            # One list parameter per column, unnested side by side: DuckDB inserts row by
-            # row executemany() at about a thousand rows a second.
-            types = self._types(write.meta.partition_kind)
-            insert = exp.insert(exp.select(*(
-                exp.func("UNNEST", exp.cast(exp.Placeholder(), exp.DataType.build(
-                    f"{types[c]}[]", dialect="duckdb"))) for c in COUNTS_COLUMNS)),
-                self.table.copy(), columns=[_ident(c) for c in COUNTS_COLUMNS]).sql("duckdb")
-            for batch in _chunks(write.rows, _BATCH):
-                con.execute(insert, [list(column) for column in zip(*batch, strict=True)])
-            con.execute(exp.delete(self._meta_table()).sql("duckdb"))
-            con.executemany(exp.insert(exp.Values(expressions=[exp.tuple_(
-                exp.Placeholder(), exp.Placeholder())]), self._meta_table(),
-                columns=[_ident(c) for c in META_COLUMNS]).sql("duckdb"),
-                [list(r) for r in write.meta.rows()])
-            con.commit()
-        except BaseException as error:
-            con.rollback()
-            if _interrupted(error):
-                raise KeyboardInterrupt from None
-            if isinstance(error, duckdb.Error):
-                raise HistoryError(f"writing to {self.where} failed, nothing was written: "
-                                   f"{first_line(error)}") from None
-            raise
+            with write_transaction(con, self.where):
+                self._replace(con, write)
         finally:
             con.close()
         return len(write.rows)

@@ -2,66 +2,20 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
-from pathlib import Path
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import duckdb
 import sqlglot
 from sqlglot import exp
 
-from bitsift.engines.duckdb_engine import connect
-from bitsift.errors import first_line
-from bitsift.jobs.history import (
-    COLUMN_NAMES,
-    COLUMNS,
-    Destination,
-    HistoryColumn,
-    HistoryError,
-    RunInfo,
-    columns_to_add,
-)
-from bitsift.jobs.history_store import (
-    WRITE_WAIT_SECONDS,
-    HistoryStore,
-    _ctrl_c_as_interrupt,
-    _interrupted,
-    _newest_first,
-    _rows_to_dicts,
-    _wait_until,
-)
+from bitsift.jobs.duckdb_file import connect_file, ctrl_c_as_interrupt, write_transaction
+from bitsift.jobs.history import COLUMN_NAMES, COLUMNS, Destination, HistoryColumn, columns_to_add
+from bitsift.jobs.history_store import HistoryStore
 from bitsift.spec.schema import family_of
 
 _DUCKDB_TYPES = {"text": "VARCHAR", "integer": "BIGINT", "float": "DOUBLE",
                  "timestamp": "TIMESTAMP"}
-
-
-def _connect_duckdb(path: Path, *, read_only: bool) -> duckdb.DuckDBPyConnection:
-    """Open the results file, waiting up to :data:`WRITE_WAIT_SECONDS` while another process
-    holds it: DuckDB lets one process write a file, and nobody else open it meanwhile."""
-    opened: list[duckdb.DuckDBPyConnection] = []
-    conflicts: list[duckdb.Error] = []
-
-    def attempt() -> bool:
-        try:
-            opened.append(connect(str(path), read_only=read_only))
-        except duckdb.IOException as error:
-            if "lock" not in str(error).lower():
-                message = f"cannot open results file {path}: {first_line(error)}"
-                raise HistoryError(message) from None
-            conflicts.append(error)
-            return False
-        except duckdb.Error as error:
-            message = f"cannot open results file {path}: {first_line(error)}"
-            raise HistoryError(message) from None
-        return True
-
-    if not _wait_until(attempt, WRITE_WAIT_SECONDS):
-        raise HistoryError(
-            f"results file {path} was held by another process for more than "
-            f"{WRITE_WAIT_SECONDS:g} s, so nothing was written to it: {first_line(conflicts[-1])}"
-        )
-    return opened[0]
 
 
 def _ident(name: str) -> exp.Identifier:
@@ -101,7 +55,7 @@ class DuckDBStore(HistoryStore):
         self.connection: duckdb.DuckDBPyConnection | None = None
         if not write and not path.exists():
             return
-        self.connection = _connect_duckdb(path, read_only=not write)
+        self.connection = connect_file(path, read_only=not write)
 
     def _sql(self, tree: exp.Expression) -> str:
         return tree.sql("duckdb")
@@ -161,9 +115,8 @@ class DuckDBStore(HistoryStore):
             self.table.copy(),
             columns=[_ident(n) for n in COLUMN_NAMES],
         )
-        # This process holds the file alone (see _connect_duckdb): writers take turns.
-        con.begin()
-        try:
+        where = f"{self.destination.table} in {self.destination.display}"
+        with write_transaction(con, where):
             if not self.check():
                 con.execute(self._create_sql())
             else:
@@ -172,20 +125,9 @@ class DuckDBStore(HistoryStore):
             con.execute(self._sql(delete), [job, run_id])
             if rows:
                 con.executemany(self._sql(insert), [[r[n] for n in COLUMN_NAMES] for r in rows])
-            con.commit()
-        except BaseException as error:
-            con.rollback()
-            if _interrupted(error):
-                raise KeyboardInterrupt from None
-            if isinstance(error, duckdb.Error):
-                raise HistoryError(
-                    f"writing to {self.destination.table} in {self.destination.display} failed, "
-                    f"nothing was written: {first_line(error)}"
-                ) from None
-            raise
         return len(rows)
 
-    def runs(self, job: str) -> list[RunInfo]:
+    def _run_rows(self, job: str) -> list[tuple[Any, ...]]:
         if self.existing_columns() is None:
             return []
         assert self.connection is not None
@@ -196,36 +138,32 @@ class DuckDBStore(HistoryStore):
             .where(_col("job").eq(exp.Placeholder()))
             .group_by(_col("run_id"))
         )
-        with _ctrl_c_as_interrupt():
-            result = self.connection.execute(self._sql(query), [job]).fetchall()
-        return _newest_first(RunInfo(r[0], r[1], int(r[2])) for r in result)
+        with ctrl_c_as_interrupt():
+            return self.connection.execute(self._sql(query), [job]).fetchall()
 
-    def read(self, job: str, run_ids: Iterable[str]) -> list[dict[str, Any]]:
-        ids = list(run_ids)
-        if not ids or self.existing_columns() is None:
+    def _read_rows(self, job: str, run_ids: Sequence[str]) -> list[tuple[Any, ...]]:
+        existing = self.existing_columns()
+        if existing is None:
             return []
         assert self.connection is not None
-        existing = {name.lower() for name in self.existing_columns() or {}}
+        names = {name.lower() for name in existing}
         # A schema version 1 table, not yet migrated: its rows have no interval (NULL).
         query = (
-            exp.select(*(_col(n) if n in existing else exp.Null().as_(n)
-                         for n in COLUMN_NAMES))
+            exp.select(*(_col(n) if n in names else exp.Null().as_(n) for n in COLUMN_NAMES))
             .from_(self.table.copy())
             .where(exp.and_(_col("job").eq(exp.Placeholder()),
-                            _col("run_id").isin(*(exp.Placeholder() for _ in ids))))
+                            _col("run_id").isin(*(exp.Placeholder() for _ in run_ids))))
         )
-        with _ctrl_c_as_interrupt():
-            fetched = self.connection.execute(self._sql(query), [job, *ids]).fetchall()
-        return _rows_to_dicts(COLUMN_NAMES, fetched)
+        with ctrl_c_as_interrupt():
+            return self.connection.execute(self._sql(query), [job, *run_ids]).fetchall()
 
-    def jobs(self) -> list[str]:
+    def _job_rows(self) -> list[tuple[Any, ...]]:
         if self.existing_columns() is None:
             return []
         assert self.connection is not None
         query = exp.select(_col("job")).distinct().from_(self.table.copy())
-        with _ctrl_c_as_interrupt():
-            fetched = self.connection.execute(self._sql(query)).fetchall()
-        return sorted(str(r[0]) for r in fetched)
+        with ctrl_c_as_interrupt():
+            return self.connection.execute(self._sql(query)).fetchall()
 
     def tables(self) -> list[str]:
         if self.connection is None:

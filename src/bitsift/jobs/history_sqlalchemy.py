@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import hashlib
 import os
-from collections.abc import Iterable, Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from typing import Any
 
@@ -19,22 +19,8 @@ from bitsift.engines.masking import (
 )
 from bitsift.engines.sqlalchemy_engine import sqlalchemy_family
 from bitsift.errors import first_line
-from bitsift.jobs.history import (
-    COLUMN_NAMES,
-    COLUMNS,
-    Destination,
-    HistoryColumn,
-    HistoryError,
-    RunInfo,
-    columns_to_add,
-)
-from bitsift.jobs.history_store import (
-    WRITE_WAIT_SECONDS,
-    HistoryStore,
-    _newest_first,
-    _rows_to_dicts,
-    _wait_until,
-)
+from bitsift.jobs.history import COLUMNS, Destination, HistoryColumn, HistoryError, columns_to_add
+from bitsift.jobs.history_store import WRITE_WAIT_SECONDS, HistoryStore, _wait_until
 
 #: Environment variable that may hold the destination's password instead of its URL.
 PASSWORD_VARIABLE = "BITSIFT_RESULTS_PASSWORD"
@@ -244,45 +230,42 @@ class SqlAlchemyStore(HistoryStore):
                 connection.execute(table.insert(), [dict(r) for r in rows])
         return len(rows)
 
-    def runs(self, job: str) -> list[RunInfo]:
+    def _run_rows(self, job: str) -> Sequence[sa.Row[Any]]:
         table = self.sa_table
         with self._connection(write=False) as connection:
             if self._existing(connection) is None:
                 return []
             # Grouped by the bytes too, so that runs R1 and r1 stay two runs.
             groups = [table.c.run_id] + ([self._key(table.c.run_id)] if self._bytewise else [])
-            result = connection.execute(
+            return connection.execute(
                 sa.select(table.c.run_id, sa.func.max(table.c.run_at), sa.func.count())
                 .where(self._same(table.c.job, job))
                 .group_by(*groups)
             ).all()
-        return _newest_first(RunInfo(r[0], r[1], int(r[2])) for r in result)
 
-    def read(self, job: str, run_ids: Iterable[str]) -> list[dict[str, Any]]:
-        ids = list(run_ids)
+    def _read_rows(self, job: str, run_ids: Sequence[str]) -> Sequence[sa.Row[Any]]:
         table = self.sa_table
         with self._connection(write=False) as connection:
-            if not ids or self._existing(connection) is None:
+            existing = self._existing(connection)
+            if existing is None:
                 return []
-            existing = {name.lower() for name in self._existing(connection) or {}}
-            keys = [self._key_value(run_id) for run_id in ids]
+            names = {name.lower() for name in existing}
+            keys = [self._key_value(run_id) for run_id in run_ids]
             # A schema version 1 table, not yet migrated: its rows have no interval (NULL).
-            columns = [c if c.name in existing else sa.null().label(c.name) for c in table.c]
-            result = connection.execute(
+            columns = [c if c.name in names else sa.null().label(c.name) for c in table.c]
+            return connection.execute(
                 sa.select(*columns).where(self._same(table.c.job, job),
                                           self._key(table.c.run_id).in_(keys))
             ).all()
-        return _rows_to_dicts(COLUMN_NAMES, result)
 
-    def jobs(self) -> list[str]:
+    def _job_rows(self) -> Sequence[sa.Row[Any]]:
         table = self.sa_table
         with self._connection(write=False) as connection:
             if self._existing(connection) is None:
                 return []
             # Grouped by the bytes too, so that jobs "sales" and "Sales" stay two jobs.
             groups = [table.c.job] + ([self._key(table.c.job)] if self._bytewise else [])
-            result = connection.execute(sa.select(table.c.job).group_by(*groups)).all()
-        return sorted(str(r[0]) for r in result)
+            return connection.execute(sa.select(table.c.job).group_by(*groups)).all()
 
     def tables(self) -> list[str]:
         with self._connection(write=False) as connection:

@@ -1,15 +1,13 @@
-"""The open results destination's common part: the store interface, its schema checks, and
-the waiting and Ctrl-C handling every engine family's store shares."""
+"""The open results destination's common part: the store interface, its schema checks, the
+reading every engine family's store shares (runs, rows, jobs), and the waiting for a turn to
+write."""
 
 from __future__ import annotations
 
 import time
 from abc import ABC, abstractmethod
-from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from typing import Any
-
-import duckdb
 
 from bitsift.jobs.history import (
     COLUMN_NAMES,
@@ -46,17 +44,36 @@ class HistoryStore(ABC):
         """In one transaction, with the table's other writers waiting: create the table if
         missing, delete the run, insert ``rows``."""
 
-    @abstractmethod
     def runs(self, job: str) -> list[RunInfo]:
         """The job's runs, newest first."""
+        runs = (RunInfo(r[0], r[1], int(r[2])) for r in self._run_rows(job))
+        # Ties on run_at (coarse clocks) fall back to the run id, which is time-based by default.
+        return sorted(runs, key=lambda r: (r.run_at, r.run_id), reverse=True)
 
-    @abstractmethod
     def read(self, job: str, run_ids: Iterable[str]) -> list[dict[str, Any]]:
         """Every row of the given runs of ``job``."""
+        ids = list(run_ids)
+        if not ids:
+            return []
+        return [dict(zip(COLUMN_NAMES, row, strict=True)) for row in self._read_rows(job, ids)]
 
-    @abstractmethod
     def jobs(self) -> list[str]:
         """The names of the jobs with runs in the table, sorted (none when it does not exist)."""
+        return sorted(str(r[0]) for r in self._job_rows())
+
+    @abstractmethod
+    def _run_rows(self, job: str) -> Sequence[Sequence[Any]]:
+        """(run_id, newest run_at, rows) of each of the job's runs, in any order (none when
+        the table does not exist)."""
+
+    @abstractmethod
+    def _read_rows(self, job: str, run_ids: Sequence[str]) -> Sequence[Sequence[Any]]:
+        """The values of :data:`COLUMN_NAMES`, in that order, of every row of the given runs
+        (NULL for a column a schema version 1 table lacks; none when there is no table)."""
+
+    @abstractmethod
+    def _job_rows(self) -> Sequence[Sequence[Any]]:
+        """One row per job with runs in the table, its name first, in any order."""
 
     @abstractmethod
     def tables(self) -> list[str]:
@@ -150,10 +167,6 @@ class HistoryStore(ABC):
             )
 
 
-def _rows_to_dicts(names: Sequence[str], rows: Iterable[Sequence[Any]]) -> list[dict[str, Any]]:
-    return [dict(zip(names, row, strict=True)) for row in rows]
-
-
 def _wait_until(attempt: Callable[[], bool], seconds: float) -> bool:
     """Call ``attempt`` until it returns True (then True), pausing a little longer each time,
     or until ``seconds`` have passed (then False)."""
@@ -165,28 +178,3 @@ def _wait_until(attempt: Callable[[], bool], seconds: float) -> bool:
         time.sleep(pause)
         pause = min(pause * 2, 0.25)
     return True
-
-
-def _interrupted(error: BaseException) -> bool:
-    """Whether ``error`` is DuckDB reporting Ctrl-C during a statement: it raises
-    ``RuntimeError("Query interrupted")`` (or InterruptException), not KeyboardInterrupt."""
-    return isinstance(error, duckdb.InterruptException) or (
-        isinstance(error, RuntimeError) and "interrupted" in str(error).lower()
-    )
-
-
-@contextmanager
-def _ctrl_c_as_interrupt() -> Iterator[None]:
-    """Turn DuckDB's report of Ctrl-C into KeyboardInterrupt, which the CLI reports as
-    "Interrupted." with exit code 130."""
-    try:
-        yield
-    except (duckdb.Error, RuntimeError) as error:
-        if _interrupted(error):
-            raise KeyboardInterrupt from None
-        raise
-
-
-def _newest_first(runs: Iterable[RunInfo]) -> list[RunInfo]:
-    # Ties on run_at (coarse clocks) fall back to the run id, which is time-based by default.
-    return sorted(runs, key=lambda r: (r.run_at, r.run_id), reverse=True)

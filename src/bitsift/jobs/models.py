@@ -29,7 +29,8 @@ from bitsift.run.session import Session
 from bitsift.spec.rankspec import RankSpec
 from bitsift.sql.dialects import Capabilities, capabilities
 from bitsift.sql.history_select import history_select, job_history_select
-from bitsift.sql.sqlbuild import Statement, binning_summary
+from bitsift.sql.paste import binning_summary
+from bitsift.sql.sqlbuild import Statement
 from bitsift.version import __version__
 
 

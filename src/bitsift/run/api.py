@@ -33,7 +33,7 @@ from bitsift.spec.rankspec import (
 )
 from bitsift.spec.schema import Column, hashable_value
 from bitsift.sql.dialects import Capabilities, capabilities
-from bitsift.sql.sqlbuild import paste_statement
+from bitsift.sql.paste import paste_statement
 from bitsift.sql.sqlstatements import rows_statement
 
 

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import html
 import math
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Generic, TypeVar
 
 from bitsift.errors import install_extra
 from bitsift.numformat import format_bits, format_p_value, iso_cut
@@ -96,9 +96,45 @@ class AttributeScore:
         return out
 
 
+_Member = TypeVar("_Member")
+
+
+class _Members(Generic[_Member]):
+    """What a result does with what it holds (a ranking its attributes, a segmented ranking
+    its segments): iterate over them in order, count them, find one."""
+
+    def _members(self) -> list[_Member]:
+        raise NotImplementedError
+
+    def __iter__(self) -> Iterator[_Member]:
+        return iter(self._members())
+
+    def __len__(self) -> int:
+        return len(self._members())
+
+    def _find(self, matches: Callable[[_Member], bool], key: object) -> _Member:
+        """The first member that ``matches``; KeyError(``key``) when there is none."""
+        for member in self._members():
+            if matches(member):
+                return member
+        raise KeyError(key)
+
+
+def _pandas() -> Any:
+    """The pandas module, or an ImportError saying how to install it."""
+    try:
+        import pandas as pd
+    except ImportError as error:  # pragma: no cover - depends on the environment
+        raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
+    return pd
+
+
 @dataclass
-class Ranking:
-    """The ranking of a table's attributes by what they tell about the target."""
+class Ranking(_Members[AttributeScore]):
+    """The ranking of a table's attributes by what they tell about the target.
+
+    Iterating gives the attributes, best first; ``len()`` counts them; ``ranking[name]`` is
+    the attribute of that name (KeyError when there is none)."""
 
     target: str
     table: str
@@ -153,25 +189,14 @@ class Ranking:
 
     def to_pandas(self) -> Any:
         """One DataFrame row per attribute (needs the ``pandas`` extra)."""
-        try:
-            import pandas as pd
-        except ImportError as error:  # pragma: no cover - depends on the environment
-            raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
-        return pd.DataFrame([a.to_dict() for a in self.attributes], columns=list(ATTRIBUTE_KEYS))
+        return _pandas().DataFrame([a.to_dict() for a in self.attributes],
+                                   columns=list(ATTRIBUTE_KEYS))
+
+    def _members(self) -> list[AttributeScore]:
+        return self.attributes
 
     def __getitem__(self, name: str) -> AttributeScore:
-        for a in self.attributes:
-            if a.attribute == name:
-                return a
-        raise KeyError(name)
-
-    def __iter__(self) -> Iterator[AttributeScore]:
-        """The attributes, best first."""
-        return iter(self.attributes)
-
-    def __len__(self) -> int:
-        """The number of ranked attributes."""
-        return len(self.attributes)
+        return self._find(lambda a: a.attribute == name, name)
 
     def _repr_html_(self) -> str:
         """The ranking as an HTML table, for notebooks (every name escaped)."""
@@ -259,11 +284,12 @@ def _same_segment(segment: dict[str, Any], values: dict[str, Any]) -> bool:
 
 
 @dataclass
-class SegmentedRanking:
+class SegmentedRanking(_Members[Ranking]):
     """One :class:`Ranking` per segment (``--by``), all computed by one statement.
 
-    Segments are ordered by their values, NULL last. Each ranking carries its
-    :attr:`Ranking.segment` and :attr:`Ranking.status`.
+    Segments are ordered by their values, NULL last; iterating gives them in that order,
+    ``len()`` counts them. Each ranking carries its :attr:`Ranking.segment` and
+    :attr:`Ranking.status`.
     """
 
     target: str
@@ -300,31 +326,21 @@ class SegmentedRanking:
         """One DataFrame row per segment and attribute: the segment columns, named as in CSV
         output (:func:`segment_columns`), then :data:`ATTRIBUTE_KEYS` (needs the ``pandas``
         extra)."""
-        try:
-            import pandas as pd
-        except ImportError as error:  # pragma: no cover - depends on the environment
-            raise ImportError(f"to_pandas() needs pandas: {install_extra('pandas')}") from error
         heads = segment_columns(self.by)
         rows = [[*((r.segment or {}).get(b) for b in self.by),
                  *(a.to_dict()[k] for k in ATTRIBUTE_KEYS)]
                 for r in self.segments for a in r.attributes]
-        return pd.DataFrame(rows, columns=[*heads, *ATTRIBUTE_KEYS])
+        return _pandas().DataFrame(rows, columns=[*heads, *ATTRIBUTE_KEYS])
 
     def segment(self, **values: Any) -> Ranking:
         """The ranking of the segment with these values (``None`` for NULL).
 
         Raises KeyError when no segment has them.
         """
-        for ranking in self.segments:
-            if _same_segment(ranking.segment or {}, values):
-                return ranking
-        raise KeyError(values)
+        return self._find(lambda r: _same_segment(r.segment or {}, values), values)
 
-    def __iter__(self) -> Iterator[Ranking]:
-        return iter(self.segments)
-
-    def __len__(self) -> int:
-        return len(self.segments)
+    def _members(self) -> list[Ranking]:
+        return self.segments
 
     def _repr_html_(self) -> str:
         """One HTML table per segment, for notebooks."""
