@@ -4,7 +4,8 @@
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Sequence
+import datetime as _dt
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -203,20 +204,45 @@ def _plain(value: Any) -> Any:
     return value
 
 
+#: Types whose equal values convert alike (unlike, say, datetimes of one instant in two
+#: time zones): their conversions are remembered.
+_PLAIN_TYPES = (str, int, float, _dt.date)
+
+
+def _remembered(convert: Callable[[Any], Any]) -> Callable[[Any], Any]:
+    """``convert``, run once per distinct value of a plain type."""
+    seen: dict[tuple[type, Any], Any] = {}
+
+    def converted(value: Any) -> Any:
+        if type(value) not in _PLAIN_TYPES:
+            return convert(value)
+        key = (type(value), value)
+        if key not in seen:
+            seen[key] = convert(value)
+        return seen[key]
+
+    return converted
+
+
 def _rows(columns: Sequence[str], fetched: Sequence[Sequence[Any]], spec: RankSpec,
           kind: str) -> tuple[list[list[Any]], list[str | int]]:
     """The counting statement's rows as counts-table rows, and their partitions in order."""
     at = {name: i for i, name in enumerate(columns)}
     names = {i: a.name for i, a in enumerate(spec.attributes, start=1)}
+    value_at = {i: at[f"a{i}"] for i in names}
+    attr, part, cls, count = at["attr"], at["s1"], at["y"], at["n"]
+    # Partitions and values repeat over many rows: each is converted once.
+    tag = _remembered(encode)
+    key_of = _remembered(lambda raw: partition_value(raw, kind))
     rows = []
     partitions: set[str | int] = set()
     for record in fetched:
-        index = int(record[at["attr"]])
-        key = partition_value(record[at["s1"]], kind)
+        index = int(record[attr])
+        key = key_of(record[part])
         partitions.add(key)
-        value = record[at[f"a{index}"]] if index else None
-        rows.append([key, index, names.get(index, spec.target), encode(value),
-                     encode(record[at["y"]]), int(record[at["n"]])])
+        rows.append([key, index, names.get(index, spec.target),
+                     tag(record[value_at[index]]) if index else None, tag(record[cls]),
+                     int(record[count])])
     rows.sort(key=lambda r: (r[0], r[1], r[3] is None, r[3] or "", r[4] is None, r[4] or ""))
     return rows, sorted(partitions)
 

@@ -8,11 +8,13 @@ there on), so two runs counting the same partition leave it once."""
 
 from __future__ import annotations
 
+import uuid
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 import duckdb
+import numpy as np
 import sqlalchemy as sa
 from sqlalchemy.dialects import mysql
 from sqlglot import exp
@@ -136,6 +138,25 @@ class DuckDBCounts(CountsStore):
             con.execute(exp.Create(this=exp.Schema(this=table.copy(), expressions=definitions),
                                    kind="TABLE", exists=True).sql("duckdb"))
 
+    def _insert(self, con: duckdb.DuckDBPyConnection, rows: Sequence[Row], kind: str) -> None:
+        """The rows in one statement, read from NumPy columns registered on the connection:
+        executemany() inserts about a thousand rows a second, list parameters about 300,000,
+        a registered column scan (no per-value conversion) over a million."""
+        types = self._types(kind)
+        columns = list(zip(*rows, strict=True))
+        arrays = {c: np.array(values, dtype=np.int64 if types[c] in ("BIGINT", "INTEGER")
+                              else object)
+                  for c, values in zip(COUNTS_COLUMNS, columns, strict=True)}
+        view = f"bitsift_rows_{uuid.uuid4().hex}"
+        con.register(view, arrays)
+        try:
+            con.execute(exp.insert(exp.select(*(
+                exp.cast(exp.column(_ident(c)), exp.DataType.build(types[c], dialect="duckdb"))
+                for c in COUNTS_COLUMNS)).from_(exp.Table(this=_ident(view))),
+                self.table.copy(), columns=[_ident(c) for c in COUNTS_COLUMNS]).sql("duckdb"))
+        finally:
+            con.unregister(view)
+
     def _replace(self, con: duckdb.DuckDBPyConnection, write: Write) -> None:
         """The write's statements, in the caller's transaction."""
         partition = exp.column(_ident("partition"))
@@ -153,15 +174,8 @@ class DuckDBCounts(CountsStore):
         for chunk in _chunks(write.partitions, _IN_BATCH):
             con.execute(exp.delete(self.table.copy(), where=partition.copy().isin(
                 *(exp.Placeholder() for _ in chunk))).sql("duckdb"), list(chunk))
-        # One list parameter per column, unnested side by side: DuckDB inserts row by
-        # row executemany() at about a thousand rows a second.
-        types = self._types(write.meta.partition_kind)
-        insert = exp.insert(exp.select(*(
-            exp.func("UNNEST", exp.cast(exp.Placeholder(), exp.DataType.build(
-                f"{types[c]}[]", dialect="duckdb"))) for c in COUNTS_COLUMNS)),
-            self.table.copy(), columns=[_ident(c) for c in COUNTS_COLUMNS]).sql("duckdb")
-        for batch in _chunks(write.rows, _BATCH):
-            con.execute(insert, [list(column) for column in zip(*batch, strict=True)])
+        if write.rows:
+            self._insert(con, write.rows, write.meta.partition_kind)
         con.execute(exp.delete(self._meta_table()).sql("duckdb"))
         con.executemany(exp.insert(exp.Values(expressions=[exp.tuple_(
             exp.Placeholder(), exp.Placeholder())]), self._meta_table(),
@@ -229,6 +243,22 @@ class SqlAlchemyCounts(CountsStore):
         with self._store._connection(write=False) as connection:
             return self._read(connection)
 
+    def _insert(self, connection: sa.Connection, counts: sa.Table, rows: Sequence[Row]) -> None:
+        """The rows by PostgreSQL's COPY where the driver is psycopg (a tenth of the time of
+        batched INSERTs), else by batched INSERTs; in the connection's transaction either way."""
+        driver = connection.connection.driver_connection
+        copying = (connection.dialect.name, connection.dialect.driver) == ("postgresql", "psycopg")
+        if not copying or driver is None:
+            for batch in _chunks(rows, _BATCH):
+                connection.execute(sa.insert(counts),
+                                   [dict(zip(COUNTS_COLUMNS, r, strict=True)) for r in batch])
+            return
+        statement = exp.Copy(this=exp.Schema(this=self.table.copy(), expressions=[
+            _ident(c) for c in COUNTS_COLUMNS]), kind=True, files=[exp.to_identifier("STDIN")])
+        with driver.cursor() as cursor, cursor.copy(statement.sql("postgres")) as copy:
+            for row in rows:
+                copy.write_row(row)
+
     def write(self, write: Write) -> int:
         counts, meta = self._tables(write.meta.partition_kind)
         with self._store._connection(write=True) as connection:
@@ -242,9 +272,7 @@ class SqlAlchemyCounts(CountsStore):
                     counts.c.partition >= write.recount_from))
             for chunk in _chunks(write.partitions, _IN_BATCH):
                 connection.execute(sa.delete(counts).where(counts.c.partition.in_(list(chunk))))
-            for batch in _chunks(write.rows, _BATCH):
-                connection.execute(sa.insert(counts),
-                                   [dict(zip(COUNTS_COLUMNS, r, strict=True)) for r in batch])
+            self._insert(connection, counts, write.rows)
             connection.execute(sa.delete(meta))
             connection.execute(sa.insert(meta), [{"key": k, "value": v}
                                                  for k, v in write.meta.rows()])
