@@ -17,6 +17,9 @@ from bitsift.cli.cli_options import (
     rank_options,
 )
 from bitsift.jobs.counts_build import build_counts, paste_counts
+from bitsift.jobs.counts_drift import drift_counts
+from bitsift.jobs.drift import DriftReport, DriftThresholds
+from bitsift.jobs.jobfile import load_job
 from bitsift.names import one_line
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
 from bitsift.run.counts_rank import rank_counts
@@ -63,11 +66,7 @@ def counts_command(ctx: click.Context, /, source: str, **kwargs: Any) -> None:
     report = build_counts(source, **options)
     print_statements(report.dialect, report.statements)
     print_notes(report.notes)
-    added = (f"{len(report.partitions)} partition(s), {report.partitions[0]} to "
-             f"{report.partitions[-1]}" if report.partitions else "no new partitions")
-    click.echo(one_line(f"counted {added}: {report.rows} rows written to "
-                        f"{options['counts_table']} in {report.destination} "
-                        f"({len(report.attributes)} attributes)"))
+    click.echo(report.summary())
 
 
 def from_counts_options(command: Callable[..., Any]) -> Callable[..., Any]:
@@ -168,3 +167,60 @@ def counts_paste_text(ctx: click.Context, source: str | None, dialect: str | Non
     return paste_counts(source, dialect=dialect, partition=settings["partition"],
                         grain=settings["grain"], counts_table=settings["counts_table"],
                         since=settings["since"], until=settings["until"], **options)
+
+
+#: drift's options that choose runs in the history, not windows of stored counts.
+_HISTORY_ONLY = ("results", "results_table", "job_name", "old", "new")
+_DRIFT_WINDOW = ("counts_table", "since", "until", "against_since", "against_until")
+
+
+def drift_counts_options(command: Callable[..., Any]) -> Callable[..., Any]:
+    """``drift``'s options for comparing two windows of stored counts."""
+    options = [
+        click.option("--from-counts", "from_counts", is_flag=True,
+                     help="Compare two windows of stored counts: JOB_FILE is then a counts "
+                          "DEST (see `bitsift counts`) or a job file with [counts]."),
+        click.option("--counts-table", help="With --from-counts: the counts table in DEST "
+                     f"(default: the job's, else {DEFAULT_COUNTS_TABLE})."),
+        click.option("--since", metavar="P", help="With --from-counts: first partition of the "
+                     "newer window (inclusive)."),
+        click.option("--until", metavar="P", help="With --from-counts: end of the newer "
+                     "window (exclusive)."),
+        click.option("--against-since", metavar="P", help="With --from-counts: first "
+                     "partition of the window compared with (default: the window of the "
+                     "same length just before)."),
+        click.option("--against-until", metavar="P", help="With --from-counts: end of the "
+                     "window compared with (exclusive)."),
+    ]
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
+def counts_drift(ctx: click.Context, place: str | None, thresholds: DriftThresholds,
+                 window: dict[str, Any]) -> DriftReport | None:
+    """The drift between two windows of stored counts with --from-counts, else None (after
+    checking that no window option was given)."""
+    given = {name for name in ctx.params
+             if ctx.get_parameter_source(name) is not ParameterSource.DEFAULT}
+    if not window.pop("from_counts"):
+        stray = sorted(given & set(_DRIFT_WINDOW))
+        if stray:
+            raise click.UsageError(f"--{stray[0].replace('_', '-')} needs --from-counts")
+        return None
+    history = sorted(given & set(_HISTORY_ONLY))
+    if history:
+        flag = "--job" if history[0] == "job_name" else f"--{history[0].replace('_', '-')}"
+        raise click.UsageError(f"{flag} chooses runs in the history: leave it out with "
+                               "--from-counts")
+    if place is None:
+        raise click.UsageError("--from-counts needs the counts' DEST (a DuckDB file or URL) "
+                               "or a job file with [counts]")
+    asked = window.pop("counts_table")
+    dest, table = place, asked or DEFAULT_COUNTS_TABLE
+    if place.endswith(".toml"):
+        job = load_job(place)
+        if job.counts is None:
+            raise click.UsageError(f"{one_line(place)} has no [counts] section")
+        dest, table = job.counts.into.location, asked or job.counts.into.table
+    return drift_counts(dest, counts_table=table, thresholds=thresholds, **window)

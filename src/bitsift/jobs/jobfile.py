@@ -17,6 +17,11 @@ the text. The format is documented in docs/scheduled-runs.md::
 
     [[ranking]]
     name = "all-trays"
+
+    [counts]                                 # optional: stored counts (jobs/job_counts.py)
+    partition = "sown_on"
+
+A job needs rankings, a [counts] section or both; [results] is needed with rankings.
 """
 
 from __future__ import annotations
@@ -42,12 +47,14 @@ from bitsift.jobs.history import (
     DEFAULT_TABLE,
     Destination,
 )
+from bitsift.jobs.job_counts import JobCounts, read_counts
 from bitsift.jobs.job_lines import LineMap, _at, _toml_problem, scan_lines
 from bitsift.names import one_line
 from bitsift.run import api
 from bitsift.spec.rankspec import RankOptions, Thresholds
 
-TOP_KEYS: tuple[str, ...] = ("job", "source", "read_options", "results", "defaults", "ranking")
+TOP_KEYS: tuple[str, ...] = ("job", "source", "read_options", "results", "defaults", "ranking",
+                             "counts")
 RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
 #: A ranking's settings: the CLI's rank options, plus a name.
 RANKING_KEYS: tuple[str, ...] = (
@@ -114,11 +121,14 @@ class Job:
     name: str
     #: A SQLAlchemy URL, or a file path resolved against the job file's folder.
     source: str
-    destination: Destination
+    #: ``[results]``: where the rankings' history goes (None: a job of stored counts only).
+    destination: Destination | None
     rankings: tuple[JobRanking, ...]
     lines: LineMap = field(default_factory=LineMap)
     #: ``[read_options]``: how a CSV source is read (:mod:`bitsift.engines.read_options`).
     read_options: tuple[tuple[str, ReadValue], ...] = ()
+    #: ``[counts]``: the stored counts the job keeps, if any.
+    counts: JobCounts | None = None
 
     @property
     def opened_source(self) -> str | FileSource:
@@ -186,13 +196,16 @@ class _Reader:
             self.problem(self.lines.of("", 0, "job"), f"job name longer than {MAX_NAME} characters")
         source = self.source()
         read_options = self.read_options(source)
-        destination = self.destination()
-        rankings = self.rankings(source)
+        has_counts = "counts" in data
+        destination = self.destination(required=not has_counts or "ranking" in data)
+        rankings = self.rankings(source, required=not has_counts)
+        counts = read_counts(self, self.defaults(), source, destination)
         if self.problems:
             raise JobError(self.path, self.problems)
-        assert source is not None and destination is not None
+        assert source is not None
         return Job(path=self.path, name=name, source=source, destination=destination,
-                   rankings=tuple(rankings), lines=self.lines, read_options=read_options)
+                   rankings=tuple(rankings), lines=self.lines, read_options=read_options,
+                   counts=counts)
 
     def read_options(self, source: str | None) -> tuple[tuple[str, ReadValue], ...]:
         """``[read_options]``: checked like ``--read-option``; a CSV source only."""
@@ -228,10 +241,11 @@ class _Reader:
             self.problem(line, f"source file not found: {location}")
         return location
 
-    def destination(self) -> Destination | None:
+    def destination(self, *, required: bool = True) -> Destination | None:
         results = self.data.get("results")
         if results is None:
-            self.problem(None, "a [results] table with destination (and table) is required")
+            if required:
+                self.problem(None, "a [results] table with destination (and table) is required")
             return None
         if not isinstance(results, dict):
             self.problem(self.lines.of("", 0, "results"),
@@ -247,15 +261,21 @@ class _Reader:
             self.problem(self.lines.of("results", 0, problem.key or ""), problem.message)
         return destination
 
-    def rankings(self, source: str | None) -> list[JobRanking]:
+    def defaults(self) -> dict[str, Any]:
+        """``[defaults]`` (empty when missing or not a table: reported by :meth:`rankings`)."""
         defaults = self.data.get("defaults", {})
-        if not isinstance(defaults, dict):
+        return defaults if isinstance(defaults, dict) else {}
+
+    def rankings(self, source: str | None, *, required: bool = True) -> list[JobRanking]:
+        if not isinstance(self.data.get("defaults", {}), dict):
             self.problem(self.lines.of("", 0, "defaults"), "defaults must be a table: [defaults]")
-            defaults = {}
+        defaults = self.defaults()
         self.unknown_keys(defaults, DEFAULT_KEYS, "defaults", 0, "[defaults]")
         entries = self.data.get("ranking")
         if entries is None:
-            self.problem(None, "no rankings: add at least one [[ranking]] table")
+            if required:
+                self.problem(None, "no rankings: add at least one [[ranking]] table, or a "
+                             "[counts] section")
             return []
         if not isinstance(entries, list) or not all(isinstance(e, dict) for e in entries):
             self.problem(self.lines.of("ranking", 0) or self.lines.of("", 0, "ranking"),
