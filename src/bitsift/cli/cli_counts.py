@@ -10,6 +10,8 @@ from typing import Any
 import click
 from click.core import ParameterSource
 
+from bitsift.analysis.counts_report import report_counts
+from bitsift.analysis.profile_model import ProfiledRun
 from bitsift.cli.cli_options import (
     library_options,
     print_notes,
@@ -93,15 +95,14 @@ def from_counts_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
-def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
-                   ) -> Ranking | SegmentedRanking | None:
-    """The ranking of stored counts when --from-counts is given, else None (after checking
-    that no --from-counts option and a --target were given)."""
+def _counts_window(ctx: click.Context, kwargs: dict[str, Any]) -> dict[str, Any] | None:
+    """The window options when --from-counts is given (popped from ``kwargs``), else None
+    after checking that no window option was given and that --target was."""
     window = {k: kwargs.pop(k) for k in ("from_counts", "counts_table", "since", "until",
                                           "by_partition")}
     given = {name for name in ctx.params
              if ctx.get_parameter_source(name) is not ParameterSource.DEFAULT}
-    if not window["from_counts"]:
+    if not window.pop("from_counts"):
         stray = sorted(given & {"counts_table", "since", "until", "by_partition"})
         if stray:
             raise click.UsageError(f"--{stray[0].replace('_', '-')} needs --from-counts")
@@ -115,12 +116,30 @@ def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
             f"--{counted[0].replace('_', '-')} decides what is counted: give it to "
             "`bitsift counts`; the counts name their own target and attributes")
     options = library_options(kwargs)
-    return rank_counts(source, counts_table=window["counts_table"], since=window["since"],
-                       until=window["until"], by_partition=window["by_partition"],
-                       sort=options["sort"], limit=options["limit"],
-                       missing=options["missing"], thresholds=options["thresholds"],
-                       timeout=options["timeout"],
-                       confidence=options.get("confidence", 0.95))
+    return {**window, "sort": options["sort"], "limit": options["limit"],
+            "missing": options["missing"], "thresholds": options["thresholds"],
+            "timeout": options["timeout"], "confidence": options.get("confidence", 0.95)}
+
+
+def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
+                   ) -> Ranking | SegmentedRanking | None:
+    """The ranking of stored counts when --from-counts is given, else None (after checking
+    that no --from-counts option and a --target were given)."""
+    window = _counts_window(ctx, kwargs)
+    return None if window is None else rank_counts(source, **window)
+
+
+def counts_report(ctx: click.Context, source: str, kwargs: dict[str, Any],
+                  **report: Any) -> list[ProfiledRun] | None:
+    """The report's runs from stored counts when --from-counts is given, else None (after
+    the same checks as :func:`counts_ranking`). ``report``: top, max_values, sensitive."""
+    window = _counts_window(ctx, kwargs)
+    if window is None:
+        return None
+    if ctx.params.get("select_k"):
+        raise click.UsageError("--select measures pairs of attributes on the rows: not "
+                               "available with --from-counts")
+    return report_counts(source, **window, **report)
 
 
 _PASTE_ONLY = ("partition", "grain", "counts_table", "since", "until")
