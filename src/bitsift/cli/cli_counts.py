@@ -193,27 +193,32 @@ _HISTORY_ONLY = ("results", "results_table", "job_name", "old", "new")
 _DRIFT_WINDOW = ("counts_table", "since", "until", "against_since", "against_until")
 
 
-def drift_counts_options(command: Callable[..., Any]) -> Callable[..., Any]:
-    """``drift``'s options for comparing two windows of stored counts."""
-    options = [
-        click.option("--from-counts", "from_counts", is_flag=True,
-                     help="Compare two windows of stored counts: JOB_FILE is then a counts "
-                          "DEST (see `bitsift counts`) or a job file with [counts]."),
-        click.option("--counts-table", help="With --from-counts: the counts table in DEST "
-                     f"(default: the job's, else {DEFAULT_COUNTS_TABLE})."),
-        click.option("--since", metavar="P", help="With --from-counts: first partition of the "
-                     "newer window (inclusive)."),
-        click.option("--until", metavar="P", help="With --from-counts: end of the newer "
-                     "window (exclusive)."),
-        click.option("--against-since", metavar="P", help="With --from-counts: first "
-                     "partition of the window compared with (default: the window of the "
-                     "same length just before)."),
-        click.option("--against-until", metavar="P", help="With --from-counts: end of the "
-                     "window compared with (exclusive)."),
-    ]
-    for option in reversed(options):
-        command = option(command)
-    return command
+def _decorator(options: list[Callable[..., Any]]) -> Callable[..., Any]:
+    """A decorator adding ``options`` to a command, in the order listed."""
+    def apply(command: Callable[..., Any]) -> Callable[..., Any]:
+        for option in reversed(options):
+            command = option(command)
+        return command
+    return apply
+
+
+#: ``drift``'s options for comparing two windows of stored counts.
+drift_counts_options = _decorator([
+    click.option("--from-counts", "from_counts", is_flag=True,
+                 help="Compare two windows of stored counts: JOB_FILE is then a counts DEST "
+                      "(see `bitsift counts`) or a job file with [counts]."),
+    click.option("--counts-table", help="With --from-counts: the counts table in DEST "
+                 f"(default: the job's, else {DEFAULT_COUNTS_TABLE})."),
+    click.option("--since", metavar="P", help="With --from-counts: first partition of the "
+                 "newer window (inclusive)."),
+    click.option("--until", metavar="P", help="With --from-counts: end of the newer window "
+                 "(exclusive)."),
+    click.option("--against-since", metavar="P", help="With --from-counts: first partition "
+                 "of the window compared with (default: the window of the same length just "
+                 "before)."),
+    click.option("--against-until", metavar="P", help="With --from-counts: end of the "
+                 "window compared with (exclusive)."),
+])
 
 
 def counts_drift(ctx: click.Context, place: str | None, thresholds: DriftThresholds,
