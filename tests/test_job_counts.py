@@ -222,6 +222,10 @@ def test_models_run_in_the_warehouse_like_the_client_path(
         client = str(tmp_path / "client.duckdb")
         job = load_job(_counts_job(tmp_path, str(where.source), _source_table(engine, where),
                                    client, table, ranking=False))
+        # The client path keeps its counts in a DuckDB file (no schema there).
+        client_job = load_job(_counts_job(tmp_path, str(where.source),
+                                          _source_table(engine, where), client,
+                                          "bitsift_counts", ranking=False))
         (model,) = write_models(job, tmp_path / "models")
         assert model.kind == "counts"
         text = model.path.read_text(encoding="utf-8")
@@ -236,8 +240,8 @@ def test_models_run_in_the_warehouse_like_the_client_path(
                                                where="sown IS NOT NULL"))
             cuts = fetch_cuts(session.engine, dataclasses.replace(spec, where=None))
             pasted = read_ranking(records, spec, cuts, dialect=engine)
-        run_job(job)
-        stored = rank_counts(client, counts_table=table)
+        run_job(client_job)
+        stored = rank_counts(client)
         assert isinstance(stored, Ranking)
         assert_same_ranking(pasted, stored, f"{engine} models")
 

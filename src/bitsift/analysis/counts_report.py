@@ -19,11 +19,18 @@ from bitsift.analysis.profile_read import read_profiles
 from bitsift.errors import ColumnError, Option, Problem, SpecError, unknown_names_message
 from bitsift.names import resolve_names, split_names
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
-from bitsift.run.counts_rank import StoredWindow, open_window, rank_window, window_spec
+from bitsift.run.counts_rank import (
+    StoredWindow,
+    display_of,
+    open_window,
+    rank_window,
+    window_options,
+    window_spec,
+)
 from bitsift.run.counts_values import decode, partition_value
 from bitsift.run.result import SEGMENT_STATUS, SegmentedRanking, segment_label
 from bitsift.run.session import Session, session_for
-from bitsift.spec.rankspec import RankOptions, RankSpec, Thresholds
+from bitsift.spec.rankspec import RankSpec, Thresholds
 from bitsift.sql.counts_sql import window_cells_statement
 from bitsift.sql.sqlstatements import DEFAULT_MAX_VALUES
 
@@ -48,12 +55,12 @@ def report_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
         raise SpecError.option("top", f" must be at least 1, not {top}")
     if max_values < 1:
         raise SpecError.option("max_values", f" must be at least 1, not {max_values}")
-    options = RankOptions(target="-", sort=sort, limit=limit, missing=missing,  # type: ignore[arg-type]
-                          thresholds=thresholds or Thresholds(), timeout=timeout,
-                          confidence=confidence)
+    options = window_options(sort=sort, limit=limit, missing=missing, thresholds=thresholds,
+                             timeout=timeout, confidence=confidence)
     with session_for(dest, counts_table) as session:
         session.set_timeout(timeout)
-        window = open_window(session, since, until, counts_table, session.display)
+        window = open_window(session, since, until, counts_table,
+                             display_of(dest, session.display))
         spec = window_spec(session, window, options, by_partition)
         marked = _sensitive(sensitive, spec)
         result = rank_window(session, window, options, by_partition)

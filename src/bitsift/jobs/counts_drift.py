@@ -12,7 +12,14 @@ from bitsift.errors import Option, Problem, SpecError
 from bitsift.jobs.drift import DriftReport, DriftThresholds, compare
 from bitsift.jobs.history import ranking_rows
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
-from bitsift.run.counts_rank import parse_window, rank_counts, read_meta
+from bitsift.run.counts_rank import (
+    display_of,
+    open_window,
+    parse_window,
+    rank_window,
+    read_meta,
+    window_options,
+)
 from bitsift.run.result import Ranking
 from bitsift.run.session import session_for
 
@@ -52,16 +59,18 @@ def drift_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
     Both are ranked on one session; an empty window or a window whose start is not before
     its end is an error, never "no drift"."""
     limits = thresholds or DriftThresholds()
+    options = window_options(sort=sort, missing=missing, confidence=confidence)
     with session_for(dest, counts_table) as session:
-        meta = read_meta(session.engine, session.table, session.display)
+        shown = display_of(dest, session.display)
+        meta = read_meta(session.engine, session.table, shown)
         low, high = parse_window(since, until, meta.partition_kind)
         if against_since is None and against_until is None:
             against_since, against_until = previous_window(low, high, meta.partition_kind)
-        options: dict[str, Any] = {"counts_table": counts_table, "sort": sort,
-                                   "missing": missing, "confidence": confidence}
-        newer = rank_counts(session, since=low, until=high, **options)
-        older = rank_counts(session, since=against_since, until=against_until,
-                            keys=("against_since", "against_until"), **options)
+        newer = rank_window(session, open_window(session, low, high, counts_table, shown),
+                            options, False)
+        older = rank_window(session, open_window(
+            session, against_since, against_until, counts_table, shown,
+            ("against_since", "against_until")), options, False)
     assert isinstance(newer, Ranking) and isinstance(older, Ranking)
     report = DriftReport(job=counts_table, old=None, new=None, thresholds=limits,
                          windows={"new": _window(newer), "old": _window(older)})

@@ -59,13 +59,12 @@ def rank_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
     ranking per partition (a :class:`SegmentedRanking` whose segment is the partition).
     ``dest``: also an open session on the counts table (left open). ``keys``: the options
     naming the window's ends, for messages."""
-    options = RankOptions(target="-", sort=sort, limit=limit, missing=missing,  # type: ignore[arg-type]
-                          thresholds=thresholds or Thresholds(), timeout=timeout,
-                          confidence=confidence)
+    options = window_options(sort=sort, limit=limit, missing=missing, thresholds=thresholds,
+                             timeout=timeout, confidence=confidence)
     with session_for(dest, counts_table) as session:
         session.set_timeout(options.timeout)
-        window = open_window(session, since, until, counts_table, _display(dest, session.display),
-                             keys)
+        window = open_window(session, since, until, counts_table,
+                             display_of(dest, session.display), keys)
         result = rank_window(session, window, options, by_partition)
         # Each score's binning comes from the stored attributes (the window's spec).
         return session.record().stamp(result)
@@ -146,7 +145,16 @@ def parse_window(since: str | int | None, until: str | int | None, kind: str,
     return low, high
 
 
-def _display(dest: Any, fallback: str) -> str:
+def window_options(*, sort: str = "information_gain", limit: int | None = None,
+                   missing: str = "category", thresholds: Thresholds | None = None,
+                   timeout: float | None = None, confidence: float = 0.95) -> RankOptions:
+    """The options of ranking a window (the target comes from the counts)."""
+    return RankOptions(target="-", sort=sort, limit=limit, missing=missing,  # type: ignore[arg-type]
+                       thresholds=thresholds or Thresholds(), timeout=timeout,
+                       confidence=confidence)
+
+
+def display_of(dest: Any, fallback: str) -> str:
     """The destination for messages: a file's path, a URL without its password."""
     if isinstance(dest, str | Path):
         text = str(dest)
