@@ -326,7 +326,7 @@ def test_report_from_counts(tmp_path: Path, capsys: pytest.CaptureFixture[str]) 
     assert abs(stored.information_gain - want.information_gain) <= 1e-9
     assert runs[0].profiles.classes == direct_run.profiles.classes
     trend = report_counts(str(dest), by_partition=True, top=1)
-    assert [r.segment for r in trend] == [f"day = {d}" for d in
+    assert [r.segment for r in trend] == [f"day = '{d}'" for d in
                                           ("2026-03-01", "2026-03-02", "2026-03-03",
                                            "2026-03-04")]
     assert all(len(r.profiles.attributes) == 1 for r in trend)

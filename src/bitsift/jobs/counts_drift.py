@@ -72,10 +72,10 @@ def drift_counts(dest: Any, *, counts_table: str = DEFAULT_COUNTS_TABLE,
             session, against_since, against_until, counts_table, shown,
             ("against_since", "against_until")), options, False)
     assert isinstance(newer, Ranking) and isinstance(older, Ranking)
-    report = DriftReport(job=counts_table, old=None, new=None, thresholds=limits,
-                         windows={"new": _window(newer), "old": _window(older)})
-    report.changes, report.notes = compare(_rows(older, sort), _rows(newer, sort), limits)
-    return report
+    changes, notes = compare(_rows(older, sort), _rows(newer, sort), limits)
+    return DriftReport(job=counts_table, old=None, new=None, thresholds=limits,
+                       changes=changes, notes=notes,
+                       windows={"new": _window(newer), "old": _window(older)})
 
 
 def _window(ranking: Ranking) -> dict[str, Any]:
