@@ -14,22 +14,20 @@ may come from ``[defaults]`` as the rankings' do::
 from __future__ import annotations
 
 import datetime as _dt
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import Any, Protocol
 
 from bitsift.errors import BitsiftError, Problem, SourceError
 from bitsift.jobs.counts_build import CountsPlan, plan_counts
 from bitsift.jobs.history import Destination
-from bitsift.jobs.job_lines import _at
+from bitsift.jobs.job_keys import _keyed, _type_problem
+from bitsift.jobs.job_lines import LineMap, _at
 from bitsift.run import api
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
 from bitsift.run.session import Session
 from bitsift.spec.rankspec import Thresholds
 from bitsift.sql.counts_sql import GRAINS
-
-if TYPE_CHECKING:
-    from bitsift.jobs.jobfile import _Reader
 
 #: The keys of ``bitsift counts`` that decide what is counted (also read from [defaults]).
 COUNTED_KEYS: tuple[str, ...] = (
@@ -39,6 +37,24 @@ COUNTED_KEYS: tuple[str, ...] = (
 #: Every key of [counts].
 COUNTS_KEYS: tuple[str, ...] = ("partition", "grain", "into", "counts_table", "recount_from",
                                 *COUNTED_KEYS)
+
+
+class _Reader(Protocol):
+    """What [counts] needs of the job file's reader (:class:`bitsift.jobs.jobfile._Reader`)."""
+
+    data: dict[str, Any]
+    lines: LineMap
+    problems: list[Problem]
+
+    def problem(self, line: int | None, message: str) -> None: ...
+
+    def unknown_keys(self, table: Mapping[str, Any], allowed: Sequence[str], section: str,
+                     index: int, where: str) -> None: ...
+
+    def location(self, text: str) -> str: ...
+
+    def table_problems(self, table: Any, source: str | None, line: int | None,
+                       where: str) -> None: ...
 
 
 @dataclass(frozen=True)
@@ -73,8 +89,6 @@ def read_counts(reader: _Reader, defaults: Mapping[str, Any], source: str | None
                 results: Destination | None) -> JobCounts | None:
     """The ``[counts]`` section checked (None when absent or invalid; problems go to
     ``reader``)."""
-    from bitsift.jobs.jobfile import _keyed, _type_problem
-
     section = reader.data.get("counts")
     if section is None:
         return None
@@ -165,8 +179,6 @@ def check_counts(counts: JobCounts, opened: Any, source_line: int | None,
                  sessions: dict[int, Session] | None) -> list[Problem]:
     """The [counts] section's problems against the source and the destination (nothing is
     counted); with ``sessions``, its open session is kept there (:data:`COUNTS_SESSION`)."""
-    from bitsift.jobs.jobfile import _keyed
-
     try:
         session = Session.open(opened, counts.table)
     except SourceError as error:

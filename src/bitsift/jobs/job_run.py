@@ -25,15 +25,14 @@ from bitsift.jobs.history import (
 )
 from bitsift.jobs.history_open import open_store
 from bitsift.jobs.job_counts import COUNTS_SESSION, check_counts
+from bitsift.jobs.job_keys import NAME_LISTS, _keyed
 from bitsift.jobs.job_lines import _at
 from bitsift.jobs.jobfile import (
     MAX_RUN_ID,
-    NAME_LISTS,
     Job,
     JobError,
     JobRanking,
     RunError,
-    _keyed,
 )
 from bitsift.names import resolve_name
 from bitsift.run import api

@@ -27,7 +27,7 @@ A job needs rankings, a [counts] section or both; [results] is needed with ranki
 from __future__ import annotations
 
 import tomllib
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -48,6 +48,7 @@ from bitsift.jobs.history import (
     Destination,
 )
 from bitsift.jobs.job_counts import JobCounts, read_counts
+from bitsift.jobs.job_keys import MAX_NAME, _keyed, _type_problem
 from bitsift.jobs.job_lines import LineMap, _at, _toml_problem, scan_lines
 from bitsift.names import one_line
 from bitsift.run import api
@@ -63,12 +64,6 @@ RANKING_KEYS: tuple[str, ...] = (
     "binning", "binning_for", "date_part", "confidence", "target_bins", "max_classes",
 )
 DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
-NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric", "by")
-_STRINGS = ("name", "table", "target", "where", "missing", "sort", "weight", "binning",
-            "binning_for", "date_part")
-_INTEGERS = ("bins", "limit", "high_cardinality", "target_bins", "max_classes")
-_NUMBERS = ("timeout", "confidence")
-MAX_NAME = 200
 MAX_RUN_ID = 100
 
 
@@ -352,36 +347,6 @@ class _Reader:
                 parse_table_name(table, "")
             except SpecError:
                 self.problem(line, where + f"table must be [schema.]table, not {table!r}")
-
-
-def _keyed(problems: Sequence[Problem], where: str,
-           line_of: Callable[[str], int | None]) -> list[Problem]:
-    """The library's problems in a job file: each at the line setting the key it is about
-    (the file's keys are the library's parameter names, and so is its spelling of them),
-    prefixed with ``where`` (the ranking)."""
-    return [Problem.of(where + p.message, key=p.key, line=line_of(p.key or ""))
-            for p in problems]
-
-
-def _type_problem(key: str, value: Any) -> str | None:
-    """Why ``value`` has the wrong type for ``key``, or None."""
-    if key in _STRINGS:
-        if not isinstance(value, str) or not value.strip():
-            return f"{key} must be a non-empty string, not {value!r}"
-        if key == "name" and len(value) > MAX_NAME:
-            return f"name longer than {MAX_NAME} characters"
-    elif key in NAME_LISTS:
-        names = [value] if isinstance(value, str) else value
-        if not isinstance(names, list) or not all(isinstance(n, str) and n for n in names):
-            return f"{key} must be a list of column names (or one comma-separated string)"
-    elif key in _INTEGERS:
-        if isinstance(value, bool) or not isinstance(value, int):
-            return f"{key} must be a whole number, not {value!r}"
-        if key == "high_cardinality" and value < 1:
-            return f"high_cardinality must be at least 1, not {value}"
-    elif key in _NUMBERS and (isinstance(value, bool) or not isinstance(value, int | float)):
-        return f"{key} must be a number of seconds, not {value!r}"
-    return None
 
 
 def load_job(path: str | Path) -> Job:
