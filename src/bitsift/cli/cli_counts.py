@@ -10,6 +10,8 @@ from typing import Any
 import click
 from click.core import ParameterSource
 
+from bitsift.analysis.counts_report import report_counts
+from bitsift.analysis.profile_model import ProfiledRun
 from bitsift.cli.cli_options import (
     library_options,
     print_notes,
@@ -17,6 +19,9 @@ from bitsift.cli.cli_options import (
     rank_options,
 )
 from bitsift.jobs.counts_build import build_counts, paste_counts
+from bitsift.jobs.counts_drift import drift_counts
+from bitsift.jobs.drift import DriftReport, DriftThresholds
+from bitsift.jobs.jobfile import load_job
 from bitsift.names import one_line
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
 from bitsift.run.counts_rank import rank_counts
@@ -63,11 +68,7 @@ def counts_command(ctx: click.Context, /, source: str, **kwargs: Any) -> None:
     report = build_counts(source, **options)
     print_statements(report.dialect, report.statements)
     print_notes(report.notes)
-    added = (f"{len(report.partitions)} partition(s), {report.partitions[0]} to "
-             f"{report.partitions[-1]}" if report.partitions else "no new partitions")
-    click.echo(one_line(f"counted {added}: {report.rows} rows written to "
-                        f"{options['counts_table']} in {report.destination} "
-                        f"({len(report.attributes)} attributes)"))
+    click.echo(report.summary())
 
 
 def from_counts_options(command: Callable[..., Any]) -> Callable[..., Any]:
@@ -94,15 +95,14 @@ def from_counts_options(command: Callable[..., Any]) -> Callable[..., Any]:
     return command
 
 
-def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
-                   ) -> Ranking | SegmentedRanking | None:
-    """The ranking of stored counts when --from-counts is given, else None (after checking
-    that no --from-counts option and a --target were given)."""
+def _counts_window(ctx: click.Context, kwargs: dict[str, Any]) -> dict[str, Any] | None:
+    """The window options when --from-counts is given (popped from ``kwargs``), else None
+    after checking that no window option was given and that --target was."""
     window = {k: kwargs.pop(k) for k in ("from_counts", "counts_table", "since", "until",
                                           "by_partition")}
     given = {name for name in ctx.params
              if ctx.get_parameter_source(name) is not ParameterSource.DEFAULT}
-    if not window["from_counts"]:
+    if not window.pop("from_counts"):
         stray = sorted(given & {"counts_table", "since", "until", "by_partition"})
         if stray:
             raise click.UsageError(f"--{stray[0].replace('_', '-')} needs --from-counts")
@@ -116,12 +116,30 @@ def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
             f"--{counted[0].replace('_', '-')} decides what is counted: give it to "
             "`bitsift counts`; the counts name their own target and attributes")
     options = library_options(kwargs)
-    return rank_counts(source, counts_table=window["counts_table"], since=window["since"],
-                       until=window["until"], by_partition=window["by_partition"],
-                       sort=options["sort"], limit=options["limit"],
-                       missing=options["missing"], thresholds=options["thresholds"],
-                       timeout=options["timeout"],
-                       confidence=options.get("confidence", 0.95))
+    return {**window, "sort": options["sort"], "limit": options["limit"],
+            "missing": options["missing"], "thresholds": options["thresholds"],
+            "timeout": options["timeout"], "confidence": options.get("confidence", 0.95)}
+
+
+def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
+                   ) -> Ranking | SegmentedRanking | None:
+    """The ranking of stored counts when --from-counts is given, else None (after checking
+    that no --from-counts option and a --target were given)."""
+    window = _counts_window(ctx, kwargs)
+    return None if window is None else rank_counts(source, **window)
+
+
+def counts_report(ctx: click.Context, source: str, kwargs: dict[str, Any],
+                  **report: Any) -> list[ProfiledRun] | None:
+    """The report's runs from stored counts when --from-counts is given, else None (after
+    the same checks as :func:`counts_ranking`). ``report``: top, max_values, sensitive."""
+    window = _counts_window(ctx, kwargs)
+    if window is None:
+        return None
+    if ctx.params.get("select_k"):
+        raise click.UsageError("--select measures pairs of attributes on the rows: not "
+                               "available with --from-counts")
+    return report_counts(source, **window, **report)
 
 
 _PASTE_ONLY = ("partition", "grain", "counts_table", "since", "until")
@@ -168,3 +186,65 @@ def counts_paste_text(ctx: click.Context, source: str | None, dialect: str | Non
     return paste_counts(source, dialect=dialect, partition=settings["partition"],
                         grain=settings["grain"], counts_table=settings["counts_table"],
                         since=settings["since"], until=settings["until"], **options)
+
+
+#: drift's options that choose runs in the history, not windows of stored counts.
+_HISTORY_ONLY = ("results", "results_table", "job_name", "old", "new")
+_DRIFT_WINDOW = ("counts_table", "since", "until", "against_since", "against_until")
+
+
+def _decorator(options: list[Callable[..., Any]]) -> Callable[..., Any]:
+    """A decorator adding ``options`` to a command, in the order listed."""
+    def apply(command: Callable[..., Any]) -> Callable[..., Any]:
+        for option in reversed(options):
+            command = option(command)
+        return command
+    return apply
+
+
+#: ``drift``'s options for comparing two windows of stored counts.
+drift_counts_options = _decorator([
+    click.option("--from-counts", "from_counts", is_flag=True,
+                 help="Compare two windows of stored counts: JOB_FILE is then a counts DEST "
+                      "(see `bitsift counts`) or a job file with [counts]."),
+    click.option("--counts-table", help="With --from-counts: the counts table in DEST "
+                 f"(default: the job's, else {DEFAULT_COUNTS_TABLE})."),
+    click.option("--since", metavar="P", help="With --from-counts: first partition of the "
+                 "newer window (inclusive)."),
+    click.option("--until", metavar="P", help="With --from-counts: end of the newer window "
+                 "(exclusive)."),
+    click.option("--against-since", metavar="P", help="With --from-counts: first partition "
+                 "of the window compared with (default: the window of the same length just "
+                 "before)."),
+    click.option("--against-until", metavar="P", help="With --from-counts: end of the "
+                 "window compared with (exclusive)."),
+])
+
+
+def counts_drift(ctx: click.Context, place: str | None, thresholds: DriftThresholds,
+                 window: dict[str, Any]) -> DriftReport | None:
+    """The drift between two windows of stored counts with --from-counts, else None (after
+    checking that no window option was given)."""
+    given = {name for name in ctx.params
+             if ctx.get_parameter_source(name) is not ParameterSource.DEFAULT}
+    if not window.pop("from_counts"):
+        stray = sorted(given & set(_DRIFT_WINDOW))
+        if stray:
+            raise click.UsageError(f"--{stray[0].replace('_', '-')} needs --from-counts")
+        return None
+    history = sorted(given & set(_HISTORY_ONLY))
+    if history:
+        flag = "--job" if history[0] == "job_name" else f"--{history[0].replace('_', '-')}"
+        raise click.UsageError(f"{flag} chooses runs in the history: leave it out with "
+                               "--from-counts")
+    if place is None:
+        raise click.UsageError("--from-counts needs the counts' DEST (a DuckDB file or URL) "
+                               "or a job file with [counts]")
+    asked = window.pop("counts_table")
+    dest, table = place, asked or DEFAULT_COUNTS_TABLE
+    if place.endswith(".toml"):
+        job = load_job(place)
+        if job.counts is None:
+            raise click.UsageError(f"{one_line(place)} has no [counts] section")
+        dest, table = job.counts.into.location, asked or job.counts.into.table
+    return drift_counts(dest, counts_table=table, thresholds=thresholds, **window)

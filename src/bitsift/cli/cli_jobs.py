@@ -7,13 +7,15 @@ call the library and print.
 from __future__ import annotations
 
 import sys
+from typing import Any
 
 import click
 
+from bitsift.cli.cli_counts import counts_drift, drift_counts_options
 from bitsift.cli.cli_options import print_notes
 from bitsift.jobs import drift as drift_lib
 from bitsift.jobs.history import DEFAULT_TABLE, Destination
-from bitsift.jobs.job_run import check_run_id, preflight, run_job
+from bitsift.jobs.job_run import check_run_id, dry_run_check, run_job
 from bitsift.jobs.jobfile import load_job
 from bitsift.jobs.models import write_models
 from bitsift.names import one_line
@@ -29,20 +31,28 @@ from bitsift.sql.dialects import CAPABILITIES
 @click.option("--dry-run", is_flag=True,
               help="Check the job against its source and results table; rank and write nothing.")
 def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
-    """Run every ranking of JOB_FILE and append the results to its history table.
+    """Run every ranking of JOB_FILE and append the results to its history table; with a
+    [counts] section, also count the partitions not yet stored.
 
     All rows of a run are written in one transaction: a run that fails writes nothing.
     """
     job = load_job(job_file)
-    where = f"{job.destination.table} in {job.destination.display}"
+    where = (f"{job.destination.table} in {job.destination.display}"
+             if job.destination is not None else "")
     if dry_run:
-        preflight(job, run_id=check_run_id(run_id) if run_id is not None else None)
-        click.echo(f"job {job.name}: {len(job.rankings)} ranking(s) checked, results table {where}"
-                   " is usable; nothing was ranked or written")
+        counts = dry_run_check(job, run_id=check_run_id(run_id) if run_id is not None
+                               else None)
+        if job.rankings:
+            click.echo(f"job {job.name}: {len(job.rankings)} ranking(s) checked, results "
+                       f"table {where} is usable; nothing was ranked or written")
+        if counts is not None:
+            click.echo(one_line(f"job {job.name}, counts: {counts}; nothing was counted or "
+                                "written"))
         return
     result = run_job(job, run_id)
     # Each ranking's notes (columns left out...), once each, as rank prints them.
-    print_notes(list(dict.fromkeys(n for _, ranked in result.rankings for n in ranked.notes)))
+    print_notes(list(dict.fromkeys([*(n for _, ranked in result.rankings for n in ranked.notes),
+                                    *(result.counts.notes if result.counts else [])])))
     stamp = result.run_at.strftime("%Y-%m-%d %H:%M:%S UTC")
     click.echo(f"job {job.name}, run {result.run_id} ({stamp})")
     for ranking, ranked in result.rankings:
@@ -55,7 +65,10 @@ def run_command(job_file: str, run_id: str | None, dry_run: bool) -> None:
             continue
         click.echo(one_line(f"  {ranking.name}: {ranked.table}, target {ranked.target}, "
                             f"{_ranked_line(ranked)}"))
-    click.echo(f"wrote {result.rows_written} rows to {where}")
+    if result.counts is not None:
+        click.echo(f"  counts: {result.counts.summary()}")
+    if job.rankings:
+        click.echo(f"wrote {result.rows_written} rows to {where}")
 
 
 def _ranked_line(ranked: Ranking) -> str:
@@ -85,16 +98,38 @@ def _ranked_line(ranked: Ranking) -> str:
               help="Move in the ranking, in places, that counts as drift.")
 @click.option("--format", "-f", "fmt", type=click.Choice(["text", "json"]), default="text",
               show_default=True)
-def drift_command(job_file: str | None, results: str | None, results_table: str,
-                  job_name: str | None, old: str | None, new: str | None, ig_rule: str,
-                  ig_change: float, rank_change: int, fmt: str) -> None:
-    """Compare the two newest runs of a job (or --old and --new) in its history table.
+@drift_counts_options
+@click.pass_context
+def drift_command(ctx: click.Context, /, job_file: str | None, results: str | None,
+                  results_table: str, job_name: str | None, old: str | None, new: str | None,
+                  ig_rule: str, ig_change: float, rank_change: int, fmt: str,
+                  **window: Any) -> None:
+    """Compare the two newest runs of a job (or --old and --new) in its history table; with
+    --from-counts, two windows of stored counts (--since/--until against
+    --against-since/--against-until).
 
     Exits 3 when an attribute's information gain or rank moved beyond the thresholds, or an
     attribute appeared, disappeared, gained or lost a flag; 0 otherwise.
     """
+    thresholds = drift_lib.DriftThresholds(ig_change=ig_change, rank_change=rank_change,
+                                           ig_rule=ig_rule)
+    report = counts_drift(ctx, job_file, thresholds, window) or _history_drift(
+        job_file, results, results_table, job_name, old, new, thresholds)
+    render = drift_lib.render_json if fmt == "json" else drift_lib.render_text
+    click.echo(render(report), nl=False)
+    if report.drifted:
+        sys.exit(drift_lib.DRIFT_EXIT_CODE)
+
+
+def _history_drift(job_file: str | None, results: str | None, results_table: str,
+                   job_name: str | None, old: str | None, new: str | None,
+                   thresholds: drift_lib.DriftThresholds) -> drift_lib.DriftReport:
     if job_file:
         job = load_job(job_file)
+        if job.destination is None:
+            raise click.UsageError(f"{one_line(job_file)} has no [results]: drift compares "
+                                   "the history of its rankings (for its counts: "
+                                   "--from-counts)")
         destination = job.destination
         name = job_name or job.name
     elif results and job_name:
@@ -102,13 +137,7 @@ def drift_command(job_file: str | None, results: str | None, results_table: str,
         name = job_name
     else:
         raise click.UsageError("give a JOB_FILE, or --results and --job")
-    thresholds = drift_lib.DriftThresholds(ig_change=ig_change, rank_change=rank_change,
-                                           ig_rule=ig_rule)
-    report = drift_lib.drift(destination, name, old=old, new=new, thresholds=thresholds)
-    render = drift_lib.render_json if fmt == "json" else drift_lib.render_text
-    click.echo(render(report), nl=False)
-    if report.drifted:
-        sys.exit(drift_lib.DRIFT_EXIT_CODE)
+    return drift_lib.drift(destination, name, old=old, new=new, thresholds=thresholds)
 
 
 @click.command("models")
@@ -126,7 +155,8 @@ def models_command(job_file: str, dialect: str | None, out_dir: str, insert: boo
     job = load_job(job_file)
     models = write_models(job, out_dir, dialect.lower() if dialect else None, insert=insert)
     for model in models:
-        click.echo(f"{model.path}  (ranking {model.ranking})")
+        click.echo(f"{model.path}  (ranking {model.ranking})" if model.kind == "ranking" else
+                   f"{model.path}  (stored counts: create the table, add new partitions, rank)")
     if models and models[0].script is not None:
         click.echo(f"{models[0].script}  (every ranking, one run per execution)")
 

@@ -15,6 +15,7 @@ from bitsift import jsonout
 from bitsift.analysis.profile import profile, rank_and_profile, rank_and_profile_segments
 from bitsift.analysis.profile_model import ProfiledRun, Progress
 from bitsift.analysis.selection import CRITERIA, REPORT_CANDIDATES, select_for_runs
+from bitsift.cli.cli_counts import counts_report, from_counts_options
 from bitsift.cli.cli_options import (
     by_option,
     comma_list,
@@ -64,6 +65,7 @@ _quiet_option = click.option("--quiet", "-q", is_flag=True, help="No progress or
 
 @click.command("report")
 @click.argument("source")
+@from_counts_options
 @rank_options
 @by_option
 @click.option("--out", "-o", required=True, type=click.Path(dir_okay=False, allow_dash=True),
@@ -80,16 +82,25 @@ _quiet_option = click.option("--quiet", "-q", is_flag=True, help="No progress or
 @click.option("--criterion", type=click.Choice(CRITERIA), default="mid", show_default=True,
               help="The mRMR criterion of --select: relevance − or / mean redundancy.")
 @include_flagged_option
-def report_command(source: str, out: str, top: int, max_values: int,
+@click.pass_context
+def report_command(ctx: click.Context, /, source: str, out: str, top: int, max_values: int,
                    sensitive: tuple[str, ...], title: str | None, quiet: bool,
                    select_k: int, criterion: str, include_flagged: bool, **kwargs: Any) -> None:
     """Write a self-contained HTML report: ranking chart, every metric, per-value drill-down.
 
-    With --by, one section per segment.
+    With --by, one section per segment. With --from-counts, SOURCE holds stored counts
+    (`bitsift counts`): a window is reported from them (--by-partition: one section per
+    partition).
     """
     if top < 0:
         raise click.BadParameter("must be 0 (all) or more", param_hint="--top")
     say = progress_printer(quiet)
+    stored = counts_report(ctx, source, kwargs, top=top or None, max_values=max_values,
+                           sensitive=sensitive)
+    if stored is not None:
+        _write_report(stored, out, title, quiet, say, by=len(stored) > 1 or bool(
+            stored and stored[0].segment))
+        return
     options = library_options(kwargs)
     by = options.pop("by", ())
     table = options.pop("table", None)
@@ -106,6 +117,11 @@ def report_command(source: str, out: str, top: int, max_values: int,
         if select_k:
             select_for_runs(session, runs, k=select_k, criterion=criterion, by=by,
                             progress=say, include_flagged=include_flagged, **options)
+    _write_report(runs, out, title, quiet, say, by=bool(by))
+
+
+def _write_report(runs: list[ProfiledRun], out: str, title: str | None, quiet: bool,
+                  say: Progress | None, *, by: bool) -> None:
     run = runs[0]  # the segments share one connection: same statements and notes
     _after_run(run, quiet)
     if say:

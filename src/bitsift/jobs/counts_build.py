@@ -11,9 +11,9 @@ from typing import Any
 
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import SpecError
-from bitsift.jobs.counts_store import CountsConflict, Write, open_counts_store
+from bitsift.jobs.counts_store import CountsConflict, CountsStore, Write, open_counts_store
 from bitsift.jobs.history import Destination
-from bitsift.names import resolve_name, split_names
+from bitsift.names import one_line, resolve_name, split_names
 from bitsift.run.api import make_options
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE, CountsMeta
 from bitsift.run.counts_values import encode, parse_partition, partition_value
@@ -48,67 +48,154 @@ class CountsReport:
     statements: list[str] = field(default_factory=list)
     #: The source's dialect (the statements' language).
     dialect: str = ""
+    counts_table: str = DEFAULT_COUNTS_TABLE
+
+    def summary(self) -> str:
+        """One line saying what was counted and written."""
+        added = (f"{len(self.partitions)} partition(s), {self.partitions[0]} to "
+                 f"{self.partitions[-1]}" if self.partitions else "no new partitions")
+        return one_line(f"counted {added}: {self.rows} rows written to {self.counts_table} "
+                        f"in {self.destination} ({len(self.attributes)} attributes)")
 
 
-def build_counts(source: Any, *, target: str, partition: str, into: str,
-                 table: str | None = None, grain: str = "day",
-                 counts_table: str = DEFAULT_COUNTS_TABLE, refit: bool = False,
-                 recount_from: str | None = None, **options: Any) -> CountsReport:
-    """Count the partitions of ``partition`` not yet stored (from ``recount_from`` on, or all
-    of them with ``refit``) in the source, and store them in ``into``."""
+@dataclass
+class CountsPlan:
+    """What a ``counts`` run will do, checked against the source and the destination before
+    anything is counted: the counted attributes, the stored state, which partitions."""
+
+    store: CountsStore
+    #: The stored metadata (None: nothing stored yet, or a refit) and newest partition.
+    stored: CountsMeta | None
+    newest: str | int | None
+    spec: RankSpec
+    partitioning: Partitioning
+    rank_options: RankOptions
+    asked: CountsMeta
+    #: ``recount_from``, checked against the partition kind.
+    start: str | int | None
+    refit: bool
+    counts_table: str
+
+    @property
+    def after(self) -> str | int | None:
+        """Only partitions newer than this one are counted (None: no such limit)."""
+        return self.newest if self.stored is not None and self.start is None else None
+
+    def describe(self) -> str:
+        """What the run would do, in one line (``bitsift run --dry-run``)."""
+        where = f"{self.counts_table} in {self.store.destination.display}"
+        column = f"{self.partitioning.column} ({self.partitioning.grain})"
+        if self.refit or self.stored is None:
+            what = f"every partition of {column} would be counted into {where}"
+        elif self.start is not None:
+            what = (f"the partitions of {column} from {self.start} on would be counted again "
+                    f"into {where}")
+        elif self.newest is None:
+            what = f"every partition of {column} would be counted into {where}"
+        else:
+            what = (f"the partitions of {column} after {self.newest} would be added to {where}")
+        return f"{what} ({len(self.spec.attributes)} attributes, target {self.spec.target})"
+
+
+def plan_counts(session: Session, *, target: str, partition: str, into: str,
+                grain: str = "day", counts_table: str = DEFAULT_COUNTS_TABLE,
+                refit: bool = False, recount_from: str | int | None = None,
+                **options: Any) -> CountsPlan:
+    """Check a ``counts`` request against the open source and the destination's stored
+    counts (same target, partitioning and options unless ``refit``); nothing is counted."""
     for unsupported in ("by", "weight"):
         if options.get(unsupported):
             raise SpecError.option(unsupported, " is not available for stored counts")
     if refit and recount_from is not None:
         raise SpecError("--refit recounts every partition: leave out --recount-from")
     store = open_counts_store(Destination(into, counts_table))
+    spec, partitioning, rank_options = _resolved(session, target, partition, grain, options)
     stored, newest = (None, None) if refit else store.state()
-    with session_for(source, table) as session:
-        spec, partitioning, rank_options = _resolved(session, target, partition, grain,
-                                                     options)
-        # From the checked options: a comma string and a list of the same names agree.
-        requested = {k: _plain(getattr(rank_options, k)) for k in COUNTED_OPTIONS}
-        column = partitioning.column
-        asked = CountsMeta(source=session.display, target=spec.target, partition=column,
-                           grain=grain, partition_kind=partitioning.kind, attributes=(),
-                           options=requested)
-        if stored is not None:
-            mismatch = stored.mismatch(asked)
-            if mismatch:
-                raise CountsConflict(
-                    f"counts table {counts_table} in {store.destination.display} was built "
-                    f"otherwise ({mismatch}): ask for the same counts, or rebuild them with "
-                    "--refit")
-            spec = _stored_order(spec, stored, f"counts table {counts_table} in "
-                                 f"{store.destination.display}")
-            cuts = stored.cuts
-        else:
-            cuts = fetch_cuts(session.engine, spec)
-        start = (None if recount_from is None
-                 else parse_partition(recount_from, partitioning.kind, "recount-from"))
-        after = newest if stored is not None and start is None else None
-        statement = counting_statement(spec, session.engine.caps, cuts, partitioning,
-                                       after=after, from_=start)
-        fetched = session.engine.fetch(statement.sql)
-        statements = session.record().statements
-        notes = list(session.notes)
-        dialect = session.engine.caps.name
+    # From the checked options: a comma string and a list of the same names agree.
+    requested = {k: _plain(getattr(rank_options, k)) for k in COUNTED_OPTIONS}
+    asked = CountsMeta(source=session.display, target=spec.target, partition=partitioning.column,
+                       grain=grain, partition_kind=partitioning.kind, attributes=(),
+                       options=requested)
+    if stored is not None:
+        mismatch = stored.mismatch(asked)
+        if mismatch:
+            raise CountsConflict(
+                f"counts table {counts_table} in {store.destination.display} was built "
+                f"otherwise ({mismatch}): ask for the same counts, or rebuild them with "
+                "--refit")
+        spec = _stored_order(spec, stored, f"counts table {counts_table} in "
+                             f"{store.destination.display}")
+    start = (None if recount_from is None
+             else parse_partition(recount_from, partitioning.kind, "recount-from"))
+    return CountsPlan(store=store, stored=stored, newest=newest, spec=spec,
+                      partitioning=partitioning, rank_options=rank_options, asked=asked,
+                      start=start, refit=refit, counts_table=counts_table)
+
+
+@dataclass
+class Counted:
+    """The counts of one run, read from the source, not yet stored."""
+
+    plan: CountsPlan
+    spec: RankSpec
+    cuts: dict[str, list[float]]
+    rows: list[list[Any]]
+    partitions: list[str | int]
+    notes: list[str]
+    statements: list[str]
+    dialect: str
+
+
+def count_partitions(session: Session, plan: CountsPlan) -> Counted:
+    """Count the plan's partitions in the source (one statement); nothing is written."""
+    spec, partitioning = plan.spec, plan.partitioning
+    cuts = plan.stored.cuts if plan.stored is not None else fetch_cuts(session.engine, spec)
+    statement = counting_statement(spec, session.engine.caps, cuts, partitioning,
+                                   after=plan.after, from_=plan.start)
+    fetched = session.engine.fetch(statement.sql)
     rows, partitions = _rows(fetched.columns, fetched.rows, spec, partitioning.kind)
-    if stored is None:
-        spec, rows, dropped = _capped(spec, rows, rank_options.thresholds.high_cardinality)
+    return Counted(plan=plan, spec=spec, cuts={k: list(v) for k, v in cuts.items()}, rows=rows,
+                   partitions=partitions, notes=list(session.notes),
+                   statements=session.record().statements, dialect=session.engine.caps.name)
+
+
+def store_counts(counted: Counted) -> CountsReport:
+    """Write counted partitions to the plan's destination, in one transaction."""
+    plan, spec, rows, cuts = counted.plan, counted.spec, counted.rows, counted.cuts
+    notes = list(counted.notes)
+    cap = plan.rank_options.thresholds.high_cardinality
+    if plan.stored is None:
+        spec, rows, dropped = _capped(spec, rows, cap)
         if dropped:
-            notes.append(
-                f"not stored, more than {rank_options.thresholds.high_cardinality} distinct "
-                "values in a partition (--high-cardinality): " + ", ".join(dropped))
-    meta = dataclasses.replace(asked, attributes=tuple(
+            notes.append(f"not stored, more than {cap} distinct values in a partition "
+                         "(--high-cardinality): " + ", ".join(dropped))
+    meta = dataclasses.replace(plan.asked, attributes=tuple(
         {"name": a.name, "kind": a.kind, "family": a.family, "binning": a.binning,
          "bins": a.bins, "cuts": list(cuts.get(a.name, ())) if a.kind == "numeric" else None}
-        for a in spec.attributes)) if stored is None else stored
-    written = store.write(Write(meta=meta, rows=rows, partitions=partitions,
-                                recount_from=start, refit=refit))
-    return CountsReport(destination=store.destination.display, partitions=partitions,
-                        rows=written, attributes=[a.name for a in spec.attributes],
-                        notes=notes, statements=statements, dialect=dialect)
+        for a in spec.attributes)) if plan.stored is None else plan.stored
+    written = plan.store.write(Write(meta=meta, rows=rows, partitions=counted.partitions,
+                                     recount_from=plan.start, refit=plan.refit))
+    return CountsReport(destination=plan.store.destination.display,
+                        partitions=counted.partitions, rows=written,
+                        attributes=[a.name for a in spec.attributes], notes=notes,
+                        statements=counted.statements, dialect=counted.dialect,
+                        counts_table=plan.counts_table)
+
+
+def build_counts(source: Any, *, target: str, partition: str, into: str,
+                 table: str | None = None, grain: str = "day",
+                 counts_table: str = DEFAULT_COUNTS_TABLE, refit: bool = False,
+                 recount_from: str | int | None = None, **options: Any) -> CountsReport:
+    """Count the partitions of ``partition`` not yet stored (from ``recount_from`` on, or all
+    of them with ``refit``) in the source, and store them in ``into`` (after the source is
+    closed, when this call opened it). ``source``: as :func:`bitsift.rank` takes it, or an
+    open session (left open)."""
+    with session_for(source, table) as session:
+        plan = plan_counts(session, target=target, partition=partition, into=into,
+                           grain=grain, counts_table=counts_table, refit=refit,
+                           recount_from=recount_from, **options)
+        counted = count_partitions(session, plan)
+    return store_counts(counted)
 
 
 def _resolved(session: Session, target: str, partition: str, grain: str,

@@ -19,6 +19,7 @@ from bitsift import jsonout
 from bitsift.errors import BitsiftError, Option, Problem, SpecError, suggest
 from bitsift.jobs.history import Destination, HistoryError, RunInfo
 from bitsift.jobs.history_open import open_store
+from bitsift.names import one_line
 from bitsift.numformat import format_bits
 from bitsift.output.texttable import aligned
 
@@ -81,6 +82,9 @@ class DriftReport:
     changes: list[Change] = field(default_factory=list)
     #: Things worth knowing that are not drift (e.g. a ranking's settings changed).
     notes: list[str] = field(default_factory=list)
+    #: Drift between two windows of stored counts (``drift --from-counts``): ``new`` and
+    #: ``old``, each its ``table`` (with the window) and ``rows``; no runs then.
+    windows: dict[str, dict[str, Any]] | None = None
 
     @property
     def drifted(self) -> bool:
@@ -92,8 +96,10 @@ class DriftReport:
                 return None
             return {"run_id": info.run_id, "run_at": _stamp(info.run_at), "rows": info.rows}
 
+        windows = {"windows": self.windows} if self.windows is not None else {}
         return {
             "job": self.job,
+            **windows,
             "old_run": run(self.old),
             "new_run": run(self.new),
             "thresholds": asdict(self.thresholds),
@@ -361,6 +367,10 @@ def render_text(report: DriftReport) -> str:
     if report.old is not None and report.new is not None:
         lines.append(f"job {report.job}: run {report.new.run_id} ({_stamp(report.new.run_at)}) "
                      f"against run {report.old.run_id} ({_stamp(report.old.run_at)})")
+    if report.windows is not None:
+        new, old = report.windows["new"], report.windows["old"]
+        lines.append(one_line(f"{new['table']}, {new['rows']:,} rows, against "
+                              f"{old['table']}, {old['rows']:,} rows"))
     limits = report.thresholds
     gain_rule = (f"information gain moves > {limits.ig_change:g} bits"
                  if limits.ig_rule == "change" else

@@ -17,21 +17,22 @@ from bitsift.errors import (
     TableNotFoundError,
     unknown_names_message,
 )
+from bitsift.jobs.counts_build import CountsReport, count_partitions, store_counts
 from bitsift.jobs.history import (
     HistoryError,
     ranking_rows,
     segment_json,
 )
 from bitsift.jobs.history_open import open_store
+from bitsift.jobs.job_counts import COUNTS_SESSION, check_counts
+from bitsift.jobs.job_keys import NAME_LISTS, _keyed
 from bitsift.jobs.job_lines import _at
 from bitsift.jobs.jobfile import (
     MAX_RUN_ID,
-    NAME_LISTS,
     Job,
     JobError,
     JobRanking,
     RunError,
-    _keyed,
 )
 from bitsift.names import resolve_name
 from bitsift.run import api
@@ -48,7 +49,9 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
 
     Nothing is ranked and nothing is written; every problem is reported at once. With
     ``sessions``, each ranking's session is kept open there (by its position in the job) for
-    :func:`run_job` to rank on, its request already resolved; the caller closes them.
+    :func:`run_job` to rank on, its request already resolved; the caller closes them. The
+    ``[counts]`` section is checked too (its session kept under
+    :data:`~bitsift.jobs.job_counts.COUNTS_SESSION`).
     """
     problems: list[Problem] = []
     source_line = job.lines.of("", 0, "source")
@@ -72,7 +75,9 @@ def preflight(job: Job, *, destination: bool = True, run_id: str | None = None,
         else:
             with session:
                 problems += _check_on_session(job, ranking, session, written)
-    if destination:
+    if job.counts is not None and not any(p.line == source_line for p in problems):
+        problems += check_counts(job.counts, job.opened_source, source_line, sessions)
+    if destination and job.destination is not None:
         results_line = job.lines.of("results", 0)
         try:
             with open_store(job.destination) as store:
@@ -96,6 +101,15 @@ def checked_sessions(job: Job, *, destination: bool = True,
     finally:
         for session in sessions.values():
             session.close()
+
+
+def dry_run_check(job: Job, *, run_id: str | None = None) -> str | None:
+    """:func:`preflight` (``bitsift run --dry-run``); what the ``[counts]`` section would
+    count, in words (None without one)."""
+    with checked_sessions(job, run_id=run_id) as sessions:
+        if job.counts is None:
+            return None
+        return job.counts.plan(sessions[COUNTS_SESSION]).describe()
 
 
 def _check_on_session(job: Job, ranking: JobRanking, session: Session,
@@ -163,6 +177,8 @@ class RunResult:
     #: Each ranking's result: one :class:`Ranking`, or one per segment when it has ``by``.
     rankings: list[tuple[JobRanking, Ranking | SegmentedRanking]]
     rows_written: int
+    #: What the ``[counts]`` section counted and stored, if the job has one.
+    counts: CountsReport | None = None
 
 
 def default_run_id(run_at: _dt.datetime) -> str:
@@ -190,10 +206,12 @@ def _run_ranking(job: Job, ranking: JobRanking, session: Session,
 
 
 def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = None) -> RunResult:
-    """Rank every ranking of ``job``, then write all rows in one transaction.
+    """Rank every ranking of ``job`` and count its ``[counts]``, then write: the counts in
+    one transaction, then all history rows in one transaction.
 
-    A ranking that fails raises :class:`RunError` and nothing is written. Running again with
-    the same ``run_id`` replaces that run's rows.
+    A ranking or counting that fails raises :class:`RunError` and nothing is written. Running
+    again with the same ``run_id`` replaces that run's rows; counting again adds only the
+    partitions not yet stored.
     """
     run_at = (now or _dt.datetime.now(_dt.UTC)).astimezone(_dt.UTC)
     run_id = check_run_id(run_id) if run_id is not None else default_run_id(run_at)
@@ -201,6 +219,17 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
     with checked_sessions(job, run_id=run_id) as sessions:
         done = [(ranking, _run_ranking(job, ranking, sessions[number], run_id))
                 for number, ranking in enumerate(job.rankings)]
+        counted = None
+        if job.counts is not None:
+            session = sessions[COUNTS_SESSION]
+            try:
+                counted = count_partitions(session, job.counts.plan(session))
+            except BitsiftError as error:
+                raise RunError(f"job {job.name!r}, [counts] ({job.path.name} line "
+                               f"{job.counts.line}) failed, so run {run_id} wrote nothing: "
+                               f"{error}") from error
+    # The sources are closed before anything is written (a DuckDB file may be both).
+    report = store_counts(counted) if counted is not None else None
     # One history row per attribute, and per segment for a ranking with `by`.
     rows = [
         row
@@ -210,6 +239,9 @@ def run_job(job: Job, run_id: str | None = None, *, now: _dt.datetime | None = N
                                 ranking_name=ranking.name, options=ranking.settings,
                                 segment=segment_json(part.segment))
     ]
-    with open_store(job.destination, write=True) as store:
-        written = store.replace_run(job.name, run_id, rows)
-    return RunResult(job=job, run_id=run_id, run_at=run_at, rankings=done, rows_written=written)
+    written = 0
+    if job.destination is not None and job.rankings:
+        with open_store(job.destination, write=True) as store:
+            written = store.replace_run(job.name, run_id, rows)
+    return RunResult(job=job, run_id=run_id, run_at=run_at, rankings=done, rows_written=written,
+                     counts=report)

@@ -17,12 +17,17 @@ the text. The format is documented in docs/scheduled-runs.md::
 
     [[ranking]]
     name = "all-trays"
+
+    [counts]                                 # optional: stored counts (jobs/job_counts.py)
+    partition = "sown_on"
+
+A job needs rankings, a [counts] section or both; [results] is needed with rankings.
 """
 
 from __future__ import annotations
 
 import tomllib
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -42,12 +47,15 @@ from bitsift.jobs.history import (
     DEFAULT_TABLE,
     Destination,
 )
+from bitsift.jobs.job_counts import JobCounts, read_counts
+from bitsift.jobs.job_keys import MAX_NAME, _keyed, _type_problem
 from bitsift.jobs.job_lines import LineMap, _at, _toml_problem, scan_lines
 from bitsift.names import one_line
 from bitsift.run import api
 from bitsift.spec.rankspec import RankOptions, Thresholds
 
-TOP_KEYS: tuple[str, ...] = ("job", "source", "read_options", "results", "defaults", "ranking")
+TOP_KEYS: tuple[str, ...] = ("job", "source", "read_options", "results", "defaults", "ranking",
+                             "counts")
 RESULTS_KEYS: tuple[str, ...] = ("destination", "table")
 #: A ranking's settings: the CLI's rank options, plus a name.
 RANKING_KEYS: tuple[str, ...] = (
@@ -56,12 +64,6 @@ RANKING_KEYS: tuple[str, ...] = (
     "binning", "binning_for", "date_part", "confidence", "target_bins", "max_classes",
 )
 DEFAULT_KEYS: tuple[str, ...] = tuple(k for k in RANKING_KEYS if k != "name")
-NAME_LISTS: tuple[str, ...] = ("attributes", "exclude", "categorical", "numeric", "by")
-_STRINGS = ("name", "table", "target", "where", "missing", "sort", "weight", "binning",
-            "binning_for", "date_part")
-_INTEGERS = ("bins", "limit", "high_cardinality", "target_bins", "max_classes")
-_NUMBERS = ("timeout", "confidence")
-MAX_NAME = 200
 MAX_RUN_ID = 100
 
 
@@ -114,11 +116,14 @@ class Job:
     name: str
     #: A SQLAlchemy URL, or a file path resolved against the job file's folder.
     source: str
-    destination: Destination
+    #: ``[results]``: where the rankings' history goes (None: a job of stored counts only).
+    destination: Destination | None
     rankings: tuple[JobRanking, ...]
     lines: LineMap = field(default_factory=LineMap)
     #: ``[read_options]``: how a CSV source is read (:mod:`bitsift.engines.read_options`).
     read_options: tuple[tuple[str, ReadValue], ...] = ()
+    #: ``[counts]``: the stored counts the job keeps, if any.
+    counts: JobCounts | None = None
 
     @property
     def opened_source(self) -> str | FileSource:
@@ -186,13 +191,16 @@ class _Reader:
             self.problem(self.lines.of("", 0, "job"), f"job name longer than {MAX_NAME} characters")
         source = self.source()
         read_options = self.read_options(source)
-        destination = self.destination()
-        rankings = self.rankings(source)
+        has_counts = "counts" in data
+        destination = self.destination(required=not has_counts or "ranking" in data)
+        rankings = self.rankings(source, required=not has_counts)
+        counts = read_counts(self, self.defaults(), source, destination)
         if self.problems:
             raise JobError(self.path, self.problems)
-        assert source is not None and destination is not None
+        assert source is not None
         return Job(path=self.path, name=name, source=source, destination=destination,
-                   rankings=tuple(rankings), lines=self.lines, read_options=read_options)
+                   rankings=tuple(rankings), lines=self.lines, read_options=read_options,
+                   counts=counts)
 
     def read_options(self, source: str | None) -> tuple[tuple[str, ReadValue], ...]:
         """``[read_options]``: checked like ``--read-option``; a CSV source only."""
@@ -228,10 +236,11 @@ class _Reader:
             self.problem(line, f"source file not found: {location}")
         return location
 
-    def destination(self) -> Destination | None:
+    def destination(self, *, required: bool = True) -> Destination | None:
         results = self.data.get("results")
         if results is None:
-            self.problem(None, "a [results] table with destination (and table) is required")
+            if required:
+                self.problem(None, "a [results] table with destination (and table) is required")
             return None
         if not isinstance(results, dict):
             self.problem(self.lines.of("", 0, "results"),
@@ -247,15 +256,21 @@ class _Reader:
             self.problem(self.lines.of("results", 0, problem.key or ""), problem.message)
         return destination
 
-    def rankings(self, source: str | None) -> list[JobRanking]:
+    def defaults(self) -> dict[str, Any]:
+        """``[defaults]`` (empty when missing or not a table: reported by :meth:`rankings`)."""
         defaults = self.data.get("defaults", {})
-        if not isinstance(defaults, dict):
+        return defaults if isinstance(defaults, dict) else {}
+
+    def rankings(self, source: str | None, *, required: bool = True) -> list[JobRanking]:
+        if not isinstance(self.data.get("defaults", {}), dict):
             self.problem(self.lines.of("", 0, "defaults"), "defaults must be a table: [defaults]")
-            defaults = {}
+        defaults = self.defaults()
         self.unknown_keys(defaults, DEFAULT_KEYS, "defaults", 0, "[defaults]")
         entries = self.data.get("ranking")
         if entries is None:
-            self.problem(None, "no rankings: add at least one [[ranking]] table")
+            if required:
+                self.problem(None, "no rankings: add at least one [[ranking]] table, or a "
+                             "[counts] section")
             return []
         if not isinstance(entries, list) or not all(isinstance(e, dict) for e in entries):
             self.problem(self.lines.of("ranking", 0) or self.lines.of("", 0, "ranking"),
@@ -332,36 +347,6 @@ class _Reader:
                 parse_table_name(table, "")
             except SpecError:
                 self.problem(line, where + f"table must be [schema.]table, not {table!r}")
-
-
-def _keyed(problems: Sequence[Problem], where: str,
-           line_of: Callable[[str], int | None]) -> list[Problem]:
-    """The library's problems in a job file: each at the line setting the key it is about
-    (the file's keys are the library's parameter names, and so is its spelling of them),
-    prefixed with ``where`` (the ranking)."""
-    return [Problem.of(where + p.message, key=p.key, line=line_of(p.key or ""))
-            for p in problems]
-
-
-def _type_problem(key: str, value: Any) -> str | None:
-    """Why ``value`` has the wrong type for ``key``, or None."""
-    if key in _STRINGS:
-        if not isinstance(value, str) or not value.strip():
-            return f"{key} must be a non-empty string, not {value!r}"
-        if key == "name" and len(value) > MAX_NAME:
-            return f"name longer than {MAX_NAME} characters"
-    elif key in NAME_LISTS:
-        names = [value] if isinstance(value, str) else value
-        if not isinstance(names, list) or not all(isinstance(n, str) and n for n in names):
-            return f"{key} must be a list of column names (or one comma-separated string)"
-    elif key in _INTEGERS:
-        if isinstance(value, bool) or not isinstance(value, int):
-            return f"{key} must be a whole number, not {value!r}"
-        if key == "high_cardinality" and value < 1:
-            return f"high_cardinality must be at least 1, not {value}"
-    elif key in _NUMBERS and (isinstance(value, bool) or not isinstance(value, int | float)):
-        return f"{key} must be a number of seconds, not {value!r}"
-    return None
 
 
 def load_job(path: str | Path) -> Job:

@@ -6,8 +6,11 @@ letters, digits and ``_`` turned into ``_`` (so the file name is also a valid mo
 file holds a header comment and one SELECT (:func:`bitsift.sql.history_select.history_select`)
 without a trailing semicolon (most schedulers wrap the SELECT in their own CREATE TABLE ... AS).
 With ``insert``, ``OUT/<job>.insert.sql`` holds the ready-to-schedule script of the whole job
-(:mod:`bitsift.jobs.history_script`): one run, every ranking. Files hold no generation time:
-the same job file and bitsift version give the same bytes.
+(:mod:`bitsift.jobs.history_script`): one run, every ranking. A job with a ``[counts]``
+section also gets ``OUT/<job>.counts.sql``: the statements of ``bitsift sql --counts`` that
+keep its counts table inside the source's database (create it if missing, add the partitions
+newer than the newest stored one, rank the stored partitions). Files hold no generation time:
+the same job file, data and bitsift version give the same bytes.
 """
 
 from __future__ import annotations
@@ -20,7 +23,9 @@ from pathlib import Path
 
 from bitsift.errors import BitsiftError, SpecError
 from bitsift.jobs import history_script
+from bitsift.jobs.counts_build import paste_counts
 from bitsift.jobs.history import COLUMNS, SCHEMA_VERSION, options_json
+from bitsift.jobs.job_counts import COUNTS_SESSION
 from bitsift.jobs.job_run import checked_sessions, preflight
 from bitsift.jobs.jobfile import Job, JobRanking
 from bitsift.run import api
@@ -42,6 +47,8 @@ class ModelFile:
     ranking: str
     path: Path
     script: Path | None = None
+    #: ``ranking`` (a ranking's model) or ``counts`` (the [counts] statements; no ranking).
+    kind: str = "ranking"
 
 
 def slug(text: str) -> str:
@@ -130,12 +137,15 @@ def job_script(job: Job, statements: list[Statement], caps: Capabilities,
     """The ``--insert`` script of a job: every ranking's rows appended in one statement (one
     reading of the clock, so one run, as ``bitsift run`` writes it), after creating the history
     table if it is missing."""
+    destination = job.destination
+    if destination is None:
+        raise SpecError("insert writes the rankings' history script: the job has no [results]")
     header = [
         f"bitsift {__version__} history script: job {job.name}, rankings "
         + ", ".join(r.name for r in job.rankings),
         f"from job file {job.path.name}; regenerate with: bitsift models {job.path.name}"
         + (f" --dialect {dialect}" if dialect else "") + " --insert --out DIR",
-        f"creates {job.destination.table} if missing (the DDL of bitsift run, schema version "
+        f"creates {destination.table} if missing (the DDL of bitsift run, schema version "
         f"{SCHEMA_VERSION}) and appends one run: every ranking's history rows, run_at the "
         "statement's start time in UTC, run_id its text in the engine's form",
         "timeout is not applied (set the scheduler's own); p_value: "
@@ -144,8 +154,7 @@ def job_script(job: Job, statements: list[Statement], caps: Capabilities,
            "unknown)"),
     ]
     combined = job_history_select(statements, caps)
-    return f"{_comments(header)}\n" + history_script.script(job.destination.table, combined,
-                                                             caps)
+    return f"{_comments(header)}\n" + history_script.script(destination.table, combined, caps)
 
 
 def _write_atomically(path: Path, text: str) -> None:
@@ -172,10 +181,14 @@ def write_models(job: Job, out_dir: str | Path, dialect: str | None = None, *,
     if clashes:
         raise SpecError("ranking names give the same model file name: " + ", ".join(clashes)
                         + ": rename the rankings")
+    if insert and not job.rankings:
+        raise SpecError("insert writes the rankings' history script: the job has no rankings")
     # Each ranking's source is opened once: by the checks, then kept for its statement.
     with checked_sessions(job, destination=False) as sessions:
         built = [model_statement(job, r, dialect, sessions[number])
                  for number, r in enumerate(job.rankings)]
+        counts = (counts_model_text(job, dialect, sessions[COUNTS_SESSION])
+                  if job.counts is not None else None)
     texts = [(r, name, f"{_comments(header)}\n{statement.sql}\n")
              for r, name, (statement, header, _) in zip(job.rankings, names, built, strict=True)]
     script = job_script(job, [b[0] for b in built], built[0][2], dialect) if insert else None
@@ -192,7 +205,30 @@ def write_models(job: Job, out_dir: str | Path, dialect: str | None = None, *,
         written.append(ModelFile(ranking=ranking.name, path=path, script=script_path))
     if script_path is not None and script is not None:
         _write_atomically(script_path, script)
+    if counts is not None:
+        path = out / f"{slug(job.name)}.counts.sql"
+        _write_atomically(path, counts)
+        written.append(ModelFile(ranking="", path=path, kind="counts"))
     return written
+
+
+def counts_model_text(job: Job, dialect: str | None, session: Session) -> str:
+    """The job's ``[counts]`` as pasted statements (those of ``bitsift sql --counts``) for
+    its source's database, on the open source (cut points computed from it now)."""
+    counts = job.counts
+    assert counts is not None
+    text = paste_counts(session, target=counts.target, partition=counts.partition,
+                        grain=counts.grain, counts_table=counts.into.table, dialect=dialect,
+                        **counts.options)
+    header = [
+        f"bitsift {__version__} counts model: job {job.name}, [counts]",
+        f"from job file {job.path.name}; regenerate with: bitsift models {job.path.name}"
+        + (f" --dialect {dialect}" if dialect else "") + " --out DIR",
+        f"the counts table {counts.into.table} is kept in the source's own database (bitsift "
+        "run keeps its counts in the job's into instead); the ranking covers every stored "
+        "partition: add a WHERE on \"partition\" for a window",
+    ]
+    return f"{_comments(header)}\n{text}"
 
 
 def preflight_rankings(job: Job) -> None:

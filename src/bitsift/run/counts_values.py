@@ -14,7 +14,7 @@ import datetime as _dt
 import decimal
 from typing import Any
 
-from bitsift.errors import DataError
+from bitsift.errors import DataError, Option, Problem
 
 
 def encode(value: Any) -> str | None:
@@ -88,5 +88,7 @@ def parse_partition(text: str | int, kind: str, option: str) -> str | int:
             return int(text)
     except ValueError:
         expected = "a date, YYYY-MM-DD" if kind == "date" else "an integer"
-        raise DataError(f"--{option} {text!r}: the counts' partitions are {expected}") from None
+        key = option.replace("-", "_")
+        raise DataError(problems=[Problem(key, (
+            Option(key), f" {text!r}: the counts' partitions are {expected}"))]) from None
     return str(text)

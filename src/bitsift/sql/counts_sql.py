@@ -276,3 +276,27 @@ def extent_statement(table: exp.Expression, caps: Capabilities,
     if window is not None:
         query = query.where(window)
     return query.sql(caps.sqlglot_dialect)
+
+
+def window_cells_statement(table: exp.Expression, caps: Capabilities,
+                           window: exp.Expression | None, indexes: Sequence[int],
+                           by_partition: bool) -> str:
+    """The counts of a window summed per (attribute, value, class), and per partition with
+    ``by_partition``: the target's own (attribute 0) and those of the attributes ``indexes``,
+    rows with a class only, for the drill-down of a report. Values and classes stay tagged
+    text; the counts tables bitsift creates compare text byte for byte (``utf8mb4_bin`` on
+    MySQL/MariaDB), so a plain GROUP BY keeps 'a' and 'A' apart."""
+    def column(name: str) -> exp.Column:
+        return exp.column(exp.to_identifier(name, quoted=True))
+
+    keys = [column(c) for c in (("partition",) if by_partition else ())
+            + ("attribute_index", "value", "class")]
+    wanted = column("attribute_index").isin(*(value_literal(i) for i in (0, *indexes)))
+    # Rows without a target are counted as excluded by the ranking, never profiled.
+    with_class = exp.Not(this=exp.Is(this=column("class"), expression=exp.Null()))
+    condition = exp.and_(*([window.copy()] if window is not None else []), wanted, with_class)
+    assert isinstance(condition, exp.Expression)
+    total = exp.cast(exp.func("SUM", column("n")), exp.DataType.build("BIGINT")).as_("n")
+    query = exp.select(*keys, total).from_(table.copy()).where(condition).group_by(
+        *(k.copy() for k in keys))
+    return query.sql(caps.sqlglot_dialect)
