@@ -2,9 +2,11 @@
 
 (a) ``bitsift``        bitsift.rank on the table, as a user calls it.
 (b) ``export``         the analyst's export path: the table read into pandas, metrics in NumPy.
-                       ``reader="dbapi"`` is ``pandas.read_sql`` (rows through the DB-API, as on
-                       any database); ``reader="arrow"`` is DuckDB's own ``.df()`` (Arrow, DuckDB
-                       only): the fastest export there is.
+                       ``reader="dbapi"`` is the plain read (``pandas.read_sql``, Spark
+                       ``toPandas``, chdb's DataFrame output); ``reader="arrow"`` the engine's
+                       columnar export (DuckDB ``.df()``, Spark with Arrow, chdb ``ArrowTable``);
+                       ``reader="fetch"`` a bare ``cursor.fetchall()``, where there is no
+                       columnar export (connections.py).
 (c) ``handwritten``    the quantile query for the numeric columns, then K ``GROUP BY attribute,
                        target`` queries run one after the other, metrics from the counts in NumPy.
 (d) ``floor``          one query reading every referenced column once: ``SELECT MIN(a1), …``.
@@ -12,22 +14,29 @@
     session pool, numeric columns by a fixed bucket expression (no cut point searched).
     ``strategy``       bitsift's own builder with one count strategy forced (strategy comparison).
 
-Every contender opens its own connection inside the timed region, like a fresh ``bitsift rank``.
-The SQL here is written by hand on purpose (it is what the analyst would type); the only names in
-it are the generated table's own.
+Every contender opens its own connection inside the timed region, like a fresh ``bitsift rank``
+(Spark's session is started before the clock: connections.prepare). The SQL here is written by
+hand on purpose (it is what the analyst would type); the only names in it are the generated
+table's own. What differs per engine is in connections.py.
 """
 
 from __future__ import annotations
 
-import warnings
-from collections.abc import Callable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Callable, Sequence
 from dataclasses import replace
 from typing import Any
 
 import numpy as np
-from datagen import TARGET, AttributeDef, Dataset, layout
-from sqlglot import exp
+from connections import (
+    bitsift_source,
+    cursor,
+    identifier,
+    quantile_cuts,
+    read_frame,
+    session_pool,
+    table_sql,
+)
+from datagen import TARGET, AttributeDef, Dataset
 
 #: Per attribute: metric name -> value. What the contenders must agree on.
 Metrics = dict[str, dict[str, float]]
@@ -52,29 +61,6 @@ STRATEGIES: tuple[str, ...] = (
     "split_concurrent",
     "counted_concurrent",
 )
-
-
-def _dialect(dataset: Dataset) -> str:
-    return "duckdb" if dataset.engine == "duckdb" else "postgres"
-
-
-def _identifier(name: str, dataset: Dataset) -> str:
-    return exp.to_identifier(name, quoted=True).sql(_dialect(dataset))
-
-
-def _table(dataset: Dataset) -> str:
-    return ".".join(_identifier(part, dataset) for part in dataset.table.split("."))
-
-
-def _bitsift_source(dataset: Dataset) -> str:
-    return dataset.location
-
-
-@contextmanager
-def _dbapi_cursor(dataset: Dataset) -> Iterator[Any]:
-    """A plain DB-API cursor, read-only for DuckDB files."""
-    with _session_pool(dataset, 1) as (cursor,):
-        yield cursor
 
 
 def _metrics_from_table(table: np.ndarray) -> dict[str, float]:
@@ -104,7 +90,8 @@ def run_bitsift(dataset: Dataset) -> Metrics:
     """``bitsift.rank`` exactly as a user calls it."""
     import bitsift
 
-    ranking = bitsift.rank(_bitsift_source(dataset), target=TARGET, table=dataset.table)
+    source, table = bitsift_source(dataset)
+    ranking = bitsift.rank(source, target=TARGET, table=table)
     return _scores(ranking.attributes)
 
 
@@ -112,28 +99,8 @@ def run_bitsift(dataset: Dataset) -> Metrics:
 
 
 def _read_frame(dataset: Dataset, reader: str) -> Any:
-    import pandas as pd
-
-    columns = ", ".join(_identifier(n, dataset) for n in [TARGET, *_names(dataset)])
-    query = f"SELECT {columns} FROM {_table(dataset)}"
-    if dataset.engine == "duckdb":
-        import duckdb
-
-        with duckdb.connect(dataset.location, read_only=True) as connection:
-            if reader == "arrow":
-                return connection.sql(query).df()
-            with warnings.catch_warnings():
-                # pandas reads any DB-API connection but warns that it only tests SQLAlchemy's.
-                warnings.simplefilter("ignore", UserWarning)
-                return pd.read_sql(query, connection)
-    import sqlalchemy as sa
-
-    engine = sa.create_engine(dataset.location, poolclass=sa.pool.NullPool)
-    try:
-        with engine.connect() as connection:
-            return pd.read_sql(sa.text(query), connection)
-    finally:
-        engine.dispose()
+    columns = ", ".join(identifier(n, dataset) for n in [TARGET, *_names(dataset)])
+    return read_frame(dataset, f"SELECT {columns} FROM {table_sql(dataset)}", reader)
 
 
 def _codes(series: Any) -> tuple[np.ndarray, int]:
@@ -163,7 +130,7 @@ def run_export(dataset: Dataset, reader: str = "dbapi") -> Metrics:
     frame = frame[y_present]
     y_codes, classes = _codes(frame[TARGET])
     metrics: Metrics = {}
-    for attribute in layout(dataset.attributes):
+    for attribute in dataset.layout():
         column = frame[attribute.name]
         if attribute.kind == "numeric":
             column = _binned(column)
@@ -177,21 +144,7 @@ def run_export(dataset: Dataset, reader: str = "dbapi") -> Metrics:
 
 
 def _names(dataset: Dataset) -> list[str]:
-    return [a.name for a in layout(dataset.attributes)]
-
-
-def _quantile_query(dataset: Dataset, numeric: Sequence[AttributeDef]) -> str:
-    levels = ", ".join(repr(p) for p in PROBABILITIES)
-    target = _identifier(TARGET, dataset)
-    if dataset.engine == "duckdb":
-        parts = [f"quantile_cont({_identifier(a.name, dataset)}, [{levels}])" for a in numeric]
-    else:
-        parts = [
-            f"percentile_cont(ARRAY[{levels}])"
-            f" WITHIN GROUP (ORDER BY {_identifier(a.name, dataset)})"
-            for a in numeric
-        ]
-    return f"SELECT {', '.join(parts)} FROM {_table(dataset)} WHERE {target} IS NOT NULL"
+    return [a.name for a in dataset.layout()]
 
 
 def _bin_expression(column: str, cuts: Sequence[float]) -> str:
@@ -200,11 +153,11 @@ def _bin_expression(column: str, cuts: Sequence[float]) -> str:
 
 
 def _count_query(dataset: Dataset, attribute: AttributeDef, cuts: Sequence[float] | None) -> str:
-    column = _identifier(attribute.name, dataset)
+    column = identifier(attribute.name, dataset)
     value = column if cuts is None else _bin_expression(column, cuts)
-    target = _identifier(TARGET, dataset)
+    target = identifier(TARGET, dataset)
     return (
-        f"SELECT {value} AS v, {target} AS y, COUNT(*) AS n FROM {_table(dataset)}"
+        f"SELECT {value} AS v, {target} AS y, COUNT(*) AS n FROM {table_sql(dataset)}"
         f" WHERE {target} IS NOT NULL GROUP BY 1, 2"
     )
 
@@ -220,18 +173,15 @@ def _table_from_counts(rows: Sequence[tuple[Any, Any, int]]) -> np.ndarray:
 
 def run_handwritten(dataset: Dataset) -> Metrics:
     """The quantile query, then one GROUP BY per attribute, sequentially; metrics in NumPy."""
-    attributes = layout(dataset.attributes)
+    attributes = dataset.layout()
     numeric = [a for a in attributes if a.kind == "numeric"]
     metrics: Metrics = {}
-    with _dbapi_cursor(dataset) as cursor:
-        cuts: dict[str, list[float]] = {}
-        if numeric:
-            cursor.execute(_quantile_query(dataset, numeric))
-            row = cursor.fetchone()
-            cuts = {a.name: _finite_sorted(row[i]) for i, a in enumerate(numeric)}
+    with cursor(dataset) as one:
+        found = quantile_cuts(one, dataset, numeric, PROBABILITIES)
+        cuts = {name: _finite_sorted(values) for name, values in found.items()}
         for attribute in attributes:
-            cursor.execute(_count_query(dataset, attribute, cuts.get(attribute.name)))
-            table = _table_from_counts(cursor.fetchall())
+            one.execute(_count_query(dataset, attribute, cuts.get(attribute.name)))
+            table = _table_from_counts(one.fetchall())
             metrics[attribute.name] = _metrics_from_table(table)
     return metrics
 
@@ -242,14 +192,14 @@ def run_handwritten(dataset: Dataset) -> Metrics:
 def run_floor(dataset: Dataset) -> Metrics:
     """Read every referenced column once: the cost of the scan alone."""
     columns = [TARGET, *_names(dataset)]
-    minima = ", ".join(f"MIN({_identifier(n, dataset)})" for n in columns)
-    with _dbapi_cursor(dataset) as cursor:
+    minima = ", ".join(f"MIN({identifier(n, dataset)})" for n in columns)
+    with cursor(dataset) as one:
         if dataset.engine == "duckdb":
             # DuckDB answers a bare MIN from its per-segment statistics without reading a value;
             # switched off, the query decodes every value once, which is the floor we want.
-            cursor.execute("SET disabled_optimizers = 'statistics_propagation'")
-        cursor.execute(f"SELECT {minima} FROM {_table(dataset)}")
-        cursor.fetchall()
+            one.execute("SET disabled_optimizers = 'statistics_propagation'")
+        one.execute(f"SELECT {minima} FROM {table_sql(dataset)}")
+        one.fetchall()
     return {}
 
 
@@ -260,11 +210,11 @@ BOUND_BUCKETS_PER_UNIT = 16
 
 
 def _bound_query(dataset: Dataset, attribute: AttributeDef) -> str:
-    column = _identifier(attribute.name, dataset)
+    column = identifier(attribute.name, dataset)
     if attribute.kind == "numeric":
         column = f"FLOOR({column} * {BOUND_BUCKETS_PER_UNIT})"
-    target = _identifier(TARGET, dataset)
-    return (f"SELECT {column} AS v, {target} AS y, COUNT(*) AS n FROM {_table(dataset)}"
+    target = identifier(TARGET, dataset)
+    return (f"SELECT {column} AS v, {target} AS y, COUNT(*) AS n FROM {table_sql(dataset)}"
             " GROUP BY 1, 2")
 
 
@@ -279,19 +229,19 @@ def run_counting_bound(dataset: Dataset, workers: int = 2) -> Metrics:
     import queue
     from concurrent.futures import ThreadPoolExecutor
 
-    attributes = layout(dataset.attributes)
-    with _session_pool(dataset, workers) as sessions:
+    attributes = dataset.layout()
+    with session_pool(dataset, workers) as sessions:
         idle: queue.Queue[Any] = queue.Queue()
-        for cursor in sessions:
-            idle.put(cursor)
+        for one in sessions:
+            idle.put(one)
 
         def count(attribute: AttributeDef) -> list[tuple[Any, Any, int]]:
-            cursor = idle.get()
+            one = idle.get()
             try:
-                cursor.execute(_bound_query(dataset, attribute))
-                return cursor.fetchall()
+                one.execute(_bound_query(dataset, attribute))
+                return one.fetchall()
             finally:
-                idle.put(cursor)
+                idle.put(one)
 
         with ThreadPoolExecutor(max_workers=len(sessions)) as pool:
             counted = list(pool.map(count, attributes))
@@ -300,29 +250,6 @@ def run_counting_bound(dataset: Dataset, workers: int = 2) -> Metrics:
         for a, rows in zip(attributes, counted, strict=True)
         if a.kind == "categorical"
     }
-
-
-@contextmanager
-def _session_pool(dataset: Dataset, workers: int) -> Iterator[list[Any]]:
-    """``workers`` cursors on separate sessions (DuckDB: cursors of one read-only database)."""
-    if dataset.engine == "duckdb":
-        import duckdb
-
-        connection = duckdb.connect(dataset.location, read_only=True)
-        try:
-            yield [connection.cursor() for _ in range(workers)]
-        finally:
-            connection.close()
-        return
-    import psycopg
-
-    url = dataset.location.replace("postgresql+psycopg://", "postgresql://", 1)
-    connections = [psycopg.connect(url) for _ in range(workers)]
-    try:
-        yield [c.cursor() for c in connections]
-    finally:
-        for c in connections:
-            c.close()
 
 
 # strategies -----------------------------------------------------------------------------------
@@ -360,7 +287,7 @@ def run_strategy(dataset: Dataset, strategy: str, workers: int = 2) -> Metrics:
     from bitsift.run.readout import read_ranking
     from bitsift.spec.rankspec import resolve
 
-    opened = open_source(_bitsift_source(dataset), dataset.table)
+    opened = open_source(*bitsift_source(dataset))
     with opened.engine as engine:
         columns = engine.columns(opened.table, opened.display)
         spec = resolve(make_options(TARGET), columns, opened.table, opened.display,

@@ -1,8 +1,10 @@
 """Run one contender in this (fresh) process and print one JSON line: time, RSS, metrics.
 
 Usage (by measure.py, not by hand): ``python benchmarks/worker.py '<task as JSON>'``.
-Imports happen before the clock starts; the timed region opens the connection, runs the
-contender and has its metrics in hand. Peak RSS is read by the parent with ``wait4``.
+Imports happen before the clock starts, and so does Spark's session (connections.prepare:
+a JVM per worker); the timed region opens the connection, runs the contender and has its
+metrics in hand. Peak RSS is read by the parent with ``wait4``: this process only, so neither
+a server's memory nor Spark's JVM (a child of this process) is counted.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
+from connections import finish, prepare  # noqa: E402
 from contenders import CONTENDERS  # noqa: E402
 from datagen import Dataset  # noqa: E402
 
@@ -32,6 +35,12 @@ PRELOAD: dict[str, tuple[str, ...]] = {
 DRIVERS: dict[str, tuple[str, ...]] = {
     "duckdb": ("duckdb", "sqlglot.dialects.duckdb"),
     "postgres": ("psycopg", "sqlglot.dialects.postgres"),
+    "mariadb": ("pymysql", "sqlglot.dialects.mysql"),
+    "sqlite": ("sqlite3", "sqlglot.dialects.sqlite"),
+    "spark": ("pyarrow", "sqlglot.dialects.spark", "bitsift.engines.spark_engine"),
+    # chdb imports pandas on a session's first query, whatever the output format (0.5-1 s).
+    "clickhouse": ("chdb.session", "pandas", "pyarrow", "sqlglot.dialects.clickhouse",
+                   "bitsift.engines.chdb_engine"),
 }
 
 
@@ -50,10 +59,12 @@ def main(argv: list[str]) -> None:
     for module in PRELOAD[contender] + DRIVERS[dataset.engine]:
         importlib.import_module(module)
     run = CONTENDERS[contender]
+    prepare(dataset)
     before = rss_kib()
     start = time.perf_counter()
     metrics = run(dataset, **task.get("params", {}))
     seconds = time.perf_counter() - start
+    finish(dataset)
     print(json.dumps({"seconds": seconds, "rss_before_kib": before, "metrics": metrics}))
 
 

@@ -6,7 +6,10 @@ Checks the report's structure and that the contenders compute the same numbers a
 
 from __future__ import annotations
 
+import importlib.util
 import json
+import os
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -14,6 +17,7 @@ from typing import Any
 
 import pytest
 import sqlalchemy as sa
+from conftest import IN_CI
 
 ROOT = Path(__file__).resolve().parents[1]
 RUN = ROOT / "benchmarks" / "run.py"
@@ -21,14 +25,15 @@ RUN = ROOT / "benchmarks" / "run.py"
 TOLERANCE = 1e-9
 
 
-def run_harness(tmp_path: Path, *options: str) -> tuple[str, dict[str, Any]]:
+def run_harness(tmp_path: Path, *options: str, rows: int = 20_000, timeout: float = 120,
+                ) -> tuple[str, dict[str, Any]]:
     out = tmp_path / "result.json"
     completed = subprocess.run(
-        [sys.executable, str(RUN), "--rows", "20000", "--repeats", "1", "--warmup", "0",
+        [sys.executable, str(RUN), "--rows", str(rows), "--repeats", "1", "--warmup", "0",
          "--quiet", "--json", str(out), *options],
         capture_output=True,
         text=True,
-        timeout=120,
+        timeout=timeout,
     )
     assert completed.returncode == 0, completed.stderr
     return completed.stdout, json.loads(out.read_text())
@@ -46,7 +51,7 @@ def assert_agreement(result: dict[str, Any], expected: set[str]) -> None:
 @pytest.mark.slow
 def test_duckdb_side_by_side(tmp_path: Path) -> None:
     stdout, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "4")
-    assert set(result["summaries"]) == {"a", "b", "b_arrow", "c", "d", "e"}
+    assert set(result["summaries"]) == {"a", "b", "b_fast", "c", "d", "e"}
     for label in ("(a) bitsift.rank", "(c) K GROUP BY queries", "(d) scan floor",
                   "(e) counting bound", "ratios:"):
         assert label in stdout
@@ -56,9 +61,81 @@ def test_duckdb_side_by_side(tmp_path: Path) -> None:
         assert summary["runs"] == 1
         assert summary["median_seconds"] > 0
         assert summary["median_peak_rss_mib"] > summary["median_rss_before_mib"] * 0.5
-    assert_agreement(result, {"b", "b_arrow", "c", "e"})
+    assert_agreement(result, {"b", "b_fast", "c", "e"})
     # (e) counts the categorical attributes only (numeric ones fall into fixed buckets).
     assert set(result["agreement"]["e"]) == set(result["agreement"]["c"])
+
+
+@pytest.mark.slow
+def test_duckdb_categorical_only(tmp_path: Path) -> None:
+    # Issue 20's all-categorical table: no numeric attribute, its own a/e target.
+    _, result = run_harness(tmp_path, "--engine", "duckdb", "--attributes", "5",
+                            "--categorical-only", "--no-export")
+    assert result["categorical_only"] is True
+    assert "(0 numeric, 5 categorical)" in result["dataset"]
+    (bound,) = [r for r in result["ratios"] if r["name"].startswith("a/e")]
+    assert bound["target"] == "<= 1.15"
+    assert_agreement(result, {"c", "e"})
+    # With no numeric attribute, the bound counts every attribute exactly as bitsift does.
+    assert len(result["agreement"]["e"]) == len(result["agreement"]["c"])
+
+
+def _require(engine: str) -> None:
+    """pyspark and Java, or chdb: skip without them (fail with CI=true)."""
+    module = {"spark": "pyspark", "clickhouse": "chdb"}.get(engine)
+    missing = None
+    if module and importlib.util.find_spec(module) is None:
+        missing = f"{module} is not installed: pip install -e '.[test-all]' (make test)"
+    elif engine == "spark" and shutil.which("java") is None and not os.environ.get("JAVA_HOME"):
+        missing = "Java is not installed (Spark needs Java 17+)"
+    if missing:
+        if IN_CI:
+            pytest.fail(missing)
+        pytest.skip(missing)
+
+
+#: The engines the table is copied to (benchmarks/copies.py): rows, label of (b'), timeout.
+COPIED: dict[str, tuple[int, str, float]] = {
+    "sqlite": (20_000, "(b') no columnar export: fetchall()", 120),
+    "mariadb": (20_000, "(b') no columnar export: fetchall()", 300),
+    "clickhouse": (20_000, "(b') export: chdb ArrowTable", 300),
+    # A JVM per worker: fewer rows, a longer wait.
+    "spark": (5_000, "(b') export: Spark toPandas, Arrow on", 900),
+}
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("engine", [
+    "sqlite",
+    "mariadb",  # marked mariadb by conftest (an engine parameter naming the server)
+    pytest.param("clickhouse", marks=pytest.mark.clickhouse),
+    pytest.param("spark", marks=pytest.mark.spark),
+])
+def test_copied_engines_side_by_side(engine: str, tmp_path: Path,
+                                     request: pytest.FixtureRequest) -> None:
+    # Issue 20 item 2: every engine against its own counting bound, both export paths.
+    _require(engine)
+    options = []
+    if engine == "mariadb":
+        url = request.getfixturevalue("mariadb_engine").url
+        options = ["--mariadb-url", url.render_as_string(hide_password=False)]
+    rows, fast_label, timeout = COPIED[engine]
+    stdout, result = run_harness(tmp_path, "--engine", engine, "--attributes", "4", *options,
+                                 rows=rows, timeout=timeout)
+    assert set(result["summaries"]) == {"a", "b", "b_fast", "c", "d", "e"}
+    assert result["labels"]["b_fast"].startswith(fast_label)
+    assert f"{engine}, {rows:,} rows x 4 attributes (1 numeric" in stdout
+    (bound,) = [r for r in result["ratios"] if r["name"].startswith("a/e")]
+    assert bound["target"] == "<= 1.3"
+    assert_agreement(result, {"b", "b_fast", "c", "e"})
+    if engine == "mariadb":
+        database = result["dataset_table"].split(".")[0]
+        with request.getfixturevalue("mariadb_engine").connect() as connection:
+            left = connection.exec_driver_sql(
+                "SELECT count(*) FROM information_schema.schemata WHERE schema_name = %(s)s",
+                {"s": database},
+            ).scalar()
+        assert left == 0, f"the benchmark left its database {database} behind"
 
 
 @pytest.mark.slow
@@ -78,9 +155,9 @@ def test_postgres_side_by_side(tmp_path: Path, postgres_engine: sa.Engine) -> No
     url = postgres_engine.url.render_as_string(hide_password=False)
     stdout, result = run_harness(tmp_path, "--engine", "postgres", "--attributes", "4",
                                  "--postgres-url", url)
-    assert set(result["summaries"]) == {"a", "b", "c", "d", "e"}
+    assert set(result["summaries"]) == {"a", "b", "b_fast", "c", "d", "e"}
     assert "postgres" in result["versions"]
-    assert_agreement(result, {"b", "c", "e"})
+    assert_agreement(result, {"b", "b_fast", "c", "e"})
     schema = result["dataset_table"].split(".")[0]
     with postgres_engine.connect() as connection:
         left = connection.exec_driver_sql(
