@@ -34,10 +34,14 @@ import datagen  # noqa: E402 - the harness's own module, next to this file
 SRC = Path(__file__).resolve().parents[1] / "src"
 
 
-def commands(trees: dict[str, Path], database: str, table: str) -> dict[str, tuple[list[str], Path | None]]:
-    """Each contender's command line and the tree it runs (None: no bitsift)."""
+#: A contender: its command line and the bitsift tree it runs (None: no bitsift).
+Contender = tuple[list[str], Path | None]
+
+
+def commands(trees: dict[str, Path], database: str, table: str) -> dict[str, Contender]:
+    """Each contender's command line and the tree it runs."""
     python = sys.executable
-    found: dict[str, tuple[list[str], Path | None]] = {
+    found: dict[str, Contender] = {
         "python -c pass": ([python, "-c", "pass"], None),
         "import duckdb": ([python, "-c", "import duckdb"], None),
     }
@@ -63,7 +67,7 @@ def time_once(command: list[str], tree: Path | None) -> float:
     return seconds
 
 
-def measure(contenders: dict[str, tuple[list[str], Path | None]], repeats: int,
+def measure(contenders: dict[str, Contender], repeats: int,
             warmup: int) -> dict[str, list[float]]:
     """Every contender once per round, the order reversed every other round."""
     seconds: dict[str, list[float]] = {name: [] for name in contenders}

@@ -38,7 +38,20 @@ _PUBLIC: dict[str, str] = {
     "statement": "bitsift.run.api",
 }
 
-__all__ = sorted([*_PUBLIC, "__version__"])
+__all__ = [
+    "AttributeScore",
+    "BitsiftError",
+    "CheckReport",
+    "FileSource",
+    "Problem",
+    "Ranking",
+    "SegmentedRanking",
+    "Thresholds",
+    "__version__",
+    "check",
+    "rank",
+    "statement",
+]
 
 
 def __getattr__(name: str) -> object:

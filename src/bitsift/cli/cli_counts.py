@@ -16,10 +16,8 @@ from bitsift.cli.cli_options import (
     print_statements,
     rank_options,
 )
-from bitsift.jobs.counts_build import build_counts, paste_counts
 from bitsift.names import one_line
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
-from bitsift.run.counts_rank import rank_counts
 from bitsift.run.result import Ranking, SegmentedRanking
 from bitsift.spec.rankspec import timeout_seconds
 from bitsift.sql.counts_sql import GRAINS
@@ -59,6 +57,8 @@ def counts_command(ctx: click.Context, /, source: str, **kwargs: Any) -> None:
             raise click.UsageError(f"--{name} applies when ranking: use it with "
                                    "`bitsift rank DEST --from-counts`")
         kwargs.pop(name)
+    from bitsift.jobs.counts_build import build_counts  # the counts stores: only here
+
     options = library_options(kwargs)
     report = build_counts(source, **options)
     print_statements(report.dialect, report.statements)
@@ -115,6 +115,8 @@ def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
         raise click.UsageError(
             f"--{counted[0].replace('_', '-')} decides what is counted: give it to "
             "`bitsift counts`; the counts name their own target and attributes")
+    from bitsift.run.counts_rank import rank_counts
+
     options = library_options(kwargs)
     return rank_counts(source, counts_table=window["counts_table"], since=window["since"],
                        until=window["until"], by_partition=window["by_partition"],
@@ -163,6 +165,8 @@ def counts_paste_text(ctx: click.Context, source: str | None, dialect: str | Non
                                "points come from the table")
     if settings["partition"] is None:
         raise click.UsageError("--counts needs --partition")
+    from bitsift.jobs.counts_build import paste_counts
+
     options = library_options(kwargs)
     timeout_seconds(options.pop("timeout", None))
     return paste_counts(source, dialect=dialect, partition=settings["partition"],
