@@ -16,13 +16,6 @@ from typing import TYPE_CHECKING
 
 from bitsift.version import __version__
 
-if TYPE_CHECKING:
-    from bitsift.engines.read_options import FileSource
-    from bitsift.errors import BitsiftError, Problem
-    from bitsift.run.api import CheckReport, check, rank, statement
-    from bitsift.run.result import AttributeScore, Ranking, SegmentedRanking
-    from bitsift.spec.rankspec import Thresholds
-
 #: Each public name and the module that defines it.
 _PUBLIC: dict[str, str] = {
     "AttributeScore": "bitsift.run.result",
@@ -37,6 +30,13 @@ _PUBLIC: dict[str, str] = {
     "rank": "bitsift.run.api",
     "statement": "bitsift.run.api",
 }
+
+if TYPE_CHECKING:
+    from bitsift.engines.read_options import FileSource
+    from bitsift.errors import BitsiftError, Problem
+    from bitsift.run.api import CheckReport, check, rank, statement
+    from bitsift.run.result import AttributeScore, Ranking, SegmentedRanking
+    from bitsift.spec.rankspec import Thresholds
 
 __all__ = [
     "AttributeScore",
