@@ -9,7 +9,7 @@ from __future__ import annotations
 import difflib
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, replace
-from typing import Self
+from typing import ClassVar, Self
 
 from bitsift.names import ambiguity_note
 
@@ -104,6 +104,9 @@ class BitsiftError(Exception):
     renders the same line with its flag names (``render(flag_name)``), the job loader one line
     per problem at the line setting its key.
     """
+
+    #: Shown one line per problem (a job file's, each at its line) instead of one line.
+    line_per_problem: ClassVar[bool] = False
 
     def __init__(self, message: str | None = None, *, problems: Sequence[Problem] = ()) -> None:
         # A message alone is one problem about no single option (str(): drivers' messages

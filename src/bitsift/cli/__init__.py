@@ -11,13 +11,11 @@ import click
 
 from bitsift.cli import signals
 from bitsift.cli.cli_counts import (
-    counts_command,
     counts_paste_text,
     counts_ranking,
     counts_sql_options,
     from_counts_options,
 )
-from bitsift.cli.cli_jobs import JOB_COMMANDS
 from bitsift.cli.cli_options import (
     CliState,
     engine_option,
@@ -28,11 +26,9 @@ from bitsift.cli.cli_options import (
     rank_options,
     segment_options,
 )
-from bitsift.cli.cli_report import profile_command, report_command
-from bitsift.cli.cli_select import SELECT_COMMANDS
+from bitsift.cli.lazy_group import LazyGroup
 from bitsift.engines.masking import environment_secrets, mask_text
 from bitsift.errors import BitsiftError, Terminated, flag_name
-from bitsift.jobs.jobfile import JobError
 from bitsift.names import one_line
 from bitsift.output.formatting import FORMATS, render
 from bitsift.output.texttable import aligned
@@ -40,8 +36,22 @@ from bitsift.run import api
 from bitsift.sql.dialects import CAPABILITIES
 from bitsift.version import __version__
 
+#: The commands defined in other modules, imported when one is run or listed (a ranking
+#: never loads the history stores, the report or SQLAlchemy).
+LAZY_COMMANDS: dict[str, str] = {
+    "counts": "bitsift.cli.cli_counts:counts_command",
+    "drift": "bitsift.cli.cli_jobs:drift_command",
+    "models": "bitsift.cli.cli_jobs:models_command",
+    "profile": "bitsift.cli.cli_report:profile_command",
+    "redundancy": "bitsift.cli.cli_select:redundancy_command",
+    "report": "bitsift.cli.cli_report:report_command",
+    "run": "bitsift.cli.cli_jobs:run_command",
+    "select": "bitsift.cli.cli_select:select_command",
+}
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+
+@click.group(cls=LazyGroup, lazy_commands=LAZY_COMMANDS,
+             context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="bitsift")
 @click.option("--debug", is_flag=True, help="Show tracebacks and the SQL sent.")
 @click.pass_context
@@ -140,7 +150,7 @@ def error_text(error: BitsiftError) -> str:
     """The message of ``error`` as one line, its problems joined with ``"; "`` and options
     spelled as flags (``--bins``), control characters escaped so that a column name cannot
     forge lines or act on the terminal; a job file's problems keep one line each."""
-    if isinstance(error, JobError):
+    if error.line_per_problem:
         return "\n".join(one_line(line) for line in str(error).split("\n"))
     return one_line(error.render(flag_name))
 
@@ -206,9 +216,3 @@ def _mask_chain(error: BaseException) -> None:
         if masked != text:
             link.args = (masked,)
         link = link.__cause__ or link.__context__
-
-
-for _command in (*JOB_COMMANDS, report_command, profile_command, *SELECT_COMMANDS,
-                 counts_command):
-    cli.add_command(_command)
-

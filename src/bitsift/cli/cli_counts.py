@@ -64,6 +64,8 @@ def counts_command(ctx: click.Context, /, source: str, **kwargs: Any) -> None:
             raise click.UsageError(f"--{name} applies when ranking: use it with "
                                    "`bitsift rank DEST --from-counts`")
         kwargs.pop(name)
+    from bitsift.jobs.counts_build import build_counts  # the counts stores: only here
+
     options = library_options(kwargs)
     report = build_counts(source, **options)
     print_statements(report.dialect, report.statements)
@@ -181,6 +183,8 @@ def counts_paste_text(ctx: click.Context, source: str | None, dialect: str | Non
                                "points come from the table")
     if settings["partition"] is None:
         raise click.UsageError("--counts needs --partition")
+    from bitsift.jobs.counts_build import paste_counts
+
     options = library_options(kwargs)
     timeout_seconds(options.pop("timeout", None))
     return paste_counts(source, dialect=dialect, partition=settings["partition"],

@@ -12,9 +12,11 @@ from __future__ import annotations
 import os
 import re
 from collections.abc import Iterable
+from typing import TYPE_CHECKING
 from urllib.parse import quote, quote_plus, unquote_plus
 
-from sqlalchemy.engine import URL
+if TYPE_CHECKING:
+    from sqlalchemy.engine import URL
 
 #: What a masked secret is shown as.
 MASK = "***"
@@ -62,7 +64,7 @@ def mask_url(url: str | URL) -> str:
     >>> mask_url("data/shop.duckdb")
     'data/shop.duckdb'
     """
-    if isinstance(url, URL):
+    if not isinstance(url, str):  # a SQLAlchemy URL (not imported here: a DuckDB run needs none)
         url = url.render_as_string(hide_password=True)
     text = str(url)
     scheme, separator, body = text.partition("://")

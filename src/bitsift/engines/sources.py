@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import sys
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -112,9 +113,7 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
             return _with_table(engine, table, "the DuckDB connection")
     except ImportError:  # pragma: no cover - duckdb is a dependency
         pass
-    import sqlalchemy as sa
-
-    if isinstance(source, sa.Engine | sa.Connection):
+    if _is_sqlalchemy_connectable(source):
         from bitsift.engines.sqlalchemy_engine import SqlAlchemyEngine
 
         engine = SqlAlchemyEngine.wrap(source)
@@ -140,6 +139,16 @@ def open_source(source: Any, table: str | None = None) -> OpenSource:
         return _with_table(engine, table, text)
     engine = DuckDBEngine.open_file(text)
     return _with_table(engine, table, text)
+
+
+def _is_sqlalchemy_connectable(source: object) -> bool:
+    """Whether ``source`` is a SQLAlchemy Engine or Connection. Only a process that has
+    imported SQLAlchemy can hold one, so a path or URL never imports it here."""
+    if "sqlalchemy" not in sys.modules:
+        return False
+    import sqlalchemy as sa
+
+    return isinstance(source, sa.Engine | sa.Connection)
 
 
 def _open_file(path: str, table: str | None,

@@ -71,6 +71,8 @@ class JobError(SpecError):
     """The job file is invalid; :attr:`problems` lists every problem found, each at its line,
     options spelled as the file's keys."""
 
+    line_per_problem = True
+
     def __init__(self, path: Path, problems: Sequence[Problem]) -> None:
         self.path = path
         found = sorted(problems, key=lambda p: (p.line or 0))

@@ -18,7 +18,7 @@ from bitsift.engines.duckdb_engine import file_reader, is_frame
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import Option, Problem, SpecError
 from bitsift.names import split_names
-from bitsift.run import concurrent, reference
+from bitsift.run import concurrent
 from bitsift.run.cuts import fetch_cuts, fetch_mdl_cuts  # noqa: F401 - re-exported for callers
 from bitsift.run.readout import read_ranking, read_segments
 from bitsift.run.result import Ranking, SegmentedRanking
@@ -330,6 +330,8 @@ def _pull_rows(engine: Engine, spec: RankSpec, limit: int | None) -> dict[str, l
 
 def _compare(ranking: Ranking, spec: RankSpec, data: Mapping[str, Sequence[Any]],
              whole: bool) -> CheckReport:
+    from bitsift.run import reference  # NumPy and SciPy: only check needs them
+
     absolute: dict[str, float] = dict.fromkeys(METRICS_CHECKED, 0.0)
     relative: dict[str, float] = dict.fromkeys(METRICS_CHECKED, 0.0)
     y = data[spec.target]

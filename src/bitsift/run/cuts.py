@@ -11,7 +11,7 @@ from collections.abc import Iterable
 from typing import Any
 
 from bitsift.engines.base import Engine
-from bitsift.run import discretize, quantiles
+from bitsift.run import quantiles
 from bitsift.spec.rankspec import RankSpec
 from bitsift.sql.sqlbuild import bounds_statement, cut_count, histogram_statement
 
@@ -43,9 +43,17 @@ def _clean(values: Iterable[Any]) -> list[float]:
 
 
 def fetch_mdl_cuts(engine: Engine, spec: RankSpec,
-                   resolution: int = discretize.MDL_RESOLUTION) -> dict[str, list[float]]:
+                   resolution: int | None = None) -> dict[str, list[float]]:
     """MDL cut points of the attributes binned by mdl: the database counts the (fine bin x
-    class) histogram, :mod:`bitsift.run.discretize` splits it (Fayyad & Irani 1993)."""
+    class) histogram, :mod:`bitsift.run.discretize` splits it (Fayyad & Irani 1993).
+    ``resolution``: fine bins at most (default :data:`~bitsift.run.discretize.MDL_RESOLUTION`).
+
+    NumPy (for the splitting) is imported only when an attribute is binned by mdl.
+    """
+    from bitsift.run import discretize
+
+    if resolution is None:
+        resolution = discretize.MDL_RESOLUTION
     statement = histogram_statement(spec, engine.caps, resolution)
     if statement is None:
         return {}

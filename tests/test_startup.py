@@ -1,0 +1,108 @@
+"""Fixed costs (issue 20): what a command imports, structurally (never timings: those are in
+benchmarks/RESULTS.md, "Fixed costs")."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import duckdb
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+#: Modules no ranking of a DuckDB file needs at import time.
+HEAVY = ("pandas", "scipy", "scipy.stats", "numpy", "sqlalchemy", "pyspark", "chdb", "pyarrow",
+         "bitsift.jobs.jobfile", "bitsift.output.report")
+
+
+def _loaded_after(code: str, *args: str) -> set[str]:
+    """The HEAVY modules loaded in a fresh interpreter after running ``code``."""
+    probe = code + "\nimport json, sys\nprint(json.dumps(sorted(sys.modules)))\n"
+    env = {**os.environ, "PYTHONPATH": str(ROOT / "src")}
+    done = subprocess.run([sys.executable, "-c", probe, *args], env=env, capture_output=True,
+                          text=True, timeout=120, check=False)
+    assert done.returncode == 0, done.stderr[-2000:]
+    modules = set(json.loads(done.stdout.strip().splitlines()[-1]))
+    return {m for m in HEAVY if m in modules}
+
+
+def test_importing_the_command_line_loads_no_heavy_module() -> None:
+    assert _loaded_after("import bitsift.cli") == set()
+
+
+def test_importing_the_package_loads_no_heavy_module() -> None:
+    assert _loaded_after("import bitsift") == set()
+
+
+@pytest.mark.slow
+def test_a_duckdb_ranking_loads_neither_sqlalchemy_nor_scipy_stats(tmp_path: Path) -> None:
+    path = tmp_path / "t.duckdb"
+    with duckdb.connect(str(path)) as con:
+        con.execute("CREATE TABLE t AS SELECT i % 3 AS a, i * 0.5 AS x, i % 2 AS y "
+                    "FROM range(60) r(i)")
+    code = ("import sys\nfrom bitsift.cli import main\n"
+            "try:\n    main(['rank', sys.argv[1], '--table', 't', '--target', 'y'])\n"
+            "except SystemExit as exit:\n    assert not exit.code, exit.code\n")
+    loaded = _loaded_after(code, str(path))
+    # The p-value needs scipy.special (and so NumPy); nothing else on the list.
+    assert loaded <= {"scipy", "numpy"}, loaded
+
+
+def test_the_p_value_is_chi2_sf_bit_for_bit() -> None:
+    """metrics.p_value calls scipy.special.chdtrc instead of scipy.stats.chi2.sf: the same
+    function underneath, so the same bits (the output stays byte for byte the same)."""
+    import numpy as np
+    from scipy import stats
+
+    from bitsift.run.metrics import p_value
+
+    rng = np.random.default_rng(20)
+    for dof in [*range(1, 60), 98, 398, 1986, 5000, 100_000]:
+        points = [0.0, 1e-300, 1e-10, float(dof), 3.841458820694124, 1e4, 1e6,
+                  *rng.uniform(0, 3 * dof + 50, 40), *rng.exponential(dof, 20)]
+        for g in points:
+            assert p_value(float(g), dof) == float(stats.chi2.sf(float(g), dof)), (g, dof)
+    assert p_value(5.0, 0) == 1.0 and p_value(float("inf"), 3) == 1.0
+
+
+def test_lazy_commands_name_the_commands_they_load() -> None:
+    import click
+
+    from bitsift.cli import LAZY_COMMANDS, cli
+    from bitsift.cli.lazy_group import load_command
+
+    for name, where in LAZY_COMMANDS.items():
+        assert load_command(name, where).name == name
+    listed = cli.list_commands(click.Context(cli))
+    assert set(LAZY_COMMANDS) <= set(listed) and {"rank", "sql", "check"} <= set(listed)
+    with pytest.raises(TypeError):
+        load_command("run", "bitsift.cli.cli_jobs:drift_command")
+
+
+def test_public_names_load_on_first_use() -> None:
+    import bitsift
+
+    assert set(bitsift.__all__) == {*bitsift._PUBLIC, "__version__"}
+    for name in bitsift.__all__:
+        assert getattr(bitsift, name) is not None
+    with pytest.raises(AttributeError):
+        bitsift.no_such_name  # noqa: B018 - the attribute access is the test
+
+
+@pytest.mark.slow
+def test_the_startup_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
+    """benchmarks/startup.py at a tiny size, so it never rots."""
+    out = tmp_path / "startup.json"
+    done = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "startup.py"), "--rows", "500",
+         "--attributes", "3", "--repeats", "1", "--warmup", "0", "--json", str(out)],
+        capture_output=True, text=True, timeout=300, check=False)
+    assert done.returncode == 0, done.stderr[-2000:]
+    result = json.loads(out.read_text())
+    assert set(result["median_seconds"]) == {
+        "python -c pass", "import duckdb", "bitsift: import bitsift.cli", "bitsift: bitsift rank"}
+    assert all(len(v) == 1 and v[0] > 0 for v in result["seconds"].values())
+    assert "bitsift: bitsift rank" in done.stdout
