@@ -294,6 +294,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "where": where_sql(spec),
         "qualified_where": qualified_where_sql(spec),
         "strategy": caps.count_strategy,
+        "shared": caps.shared_ctes,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
         "z": literal(spec.options.z),
@@ -449,10 +450,6 @@ def _target_bins_note(spec: RankSpec) -> str:
             f"from the table and inlined: {inlined})")
 
 
-def _comment_safe(text: str) -> str:
-    return " ".join(str(text).split()).replace("*/", "* /")
-
-
 def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | None = None,
                     cuts: Mapping[str, Sequence[float]] | None = None) -> str:
     """A formatted, self-contained statement with a header comment of its parameters.
@@ -498,5 +495,5 @@ def paste_statement(spec: RankSpec, caps: Capabilities, *, now: _dt.datetime | N
         "bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped "
         "at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.",
     ]
-    lines = "\n".join(f"-- {_comment_safe(h)}" for h in header)
+    lines = "\n".join("-- " + " ".join(h.split()).replace("*/", "* /") for h in header)
     return f"{lines}\n{statement.sql};\n"
