@@ -44,8 +44,9 @@ SQLite 3.40.1          (not available)  9.5 s            37.7 s
   ``base``) use ``paste_count_strategy`` where it is set: MariaDB ``cross_join`` (``base`` is
   evaluated once per reference there, so ``union_all`` recomputed every quantile per
   attribute: 172 s against 33 s) with ``counts`` shared (``paste_shared_ctes``: each later
-  step's reference recomputed it, 39.5 s against 7.8 s), PostgreSQL ``union_all`` (at a console's default work_mem:
-  5.6 s against 13.2 s for GROUPING SETS). benchmarks/RESULTS.md, "Paste mode".
+  step's reference recomputed it, 39.5 s against 7.8 s), PostgreSQL ``union_all`` (at a
+  console's default work_mem: 5.6 s against 13.2 s for GROUPING SETS).
+  benchmarks/RESULTS.md, "Paste mode".
 
 Text grouping: MySQL/MariaDB compare text under the column's collation; their defaults are
 case-insensitive and PAD SPACE, so ``GROUP BY`` would merge 'a' with 'A' and 'x' with 'x '.
