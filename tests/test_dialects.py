@@ -118,14 +118,16 @@ EXPECTED: dict[str, Expected] = {
             "grouped as BINARY. The timeout is a per-statement prefix (SET STATEMENT "
             "max_statement_time = s FOR ...), leaving no session state.",
         caps={"count_strategy": "union_all", "paste_count_strategy": "cross_join",
-              "exact_key_type": "BINARY"},
+              "paste_shared_ctes": ("counts",), "exact_key_type": "BINARY"},
         policy={"timeout": Timeout("prefix", "SET STATEMENT max_statement_time = {seconds} FOR ",
                                    31_536_000.0),
                 "read_only_statement": "SET TRANSACTION READ ONLY"},
         executed_here=True,
         # Pasted with its own cut points: the cross join reads `base` (and its bounds) once;
         # one UNION ALL branch per attribute recomputed every quantile (RESULTS.md).
-        says=("CROSS JOIN attribute_index AS k", "CROSS JOIN bounds"),
+        # `counts` is a recursive CTE, materialized once for its five readers.
+        says=("CROSS JOIN attribute_index AS k", "CROSS JOIN bounds", "WITH RECURSIVE",
+              "FROM counts\n  WHERE\n    1 = 0"),
         never_says=("UNION ALL\n  SELECT\n    1 AS attr",),
     ),
     "snowflake": Expected(

@@ -115,6 +115,31 @@ def test_compare_thresholds_are_strict_and_ignore_rounding() -> None:
         DriftThresholds(ig_change=-1)
 
 
+def test_moved_cut_points_are_a_note_not_drift() -> None:
+    # Issue 21: history of schema version 3 keeps the cut points; NULL (older rows, models
+    # whose statement computes them, categorical attributes) is unknown, never a move.
+    def cut(attribute: str, position: int, cuts: str | None, ranking: str = "r",
+            segment: str = "") -> dict[str, Any]:
+        return {**row(attribute, position, 0.5 / position, ranking=ranking),
+                "segment": segment, "cut_points": cuts}
+
+    old = [cut("a", 1, "[1.000001,2.5]"), cut("b", 2, '["2026-03-05"]'), cut("c", 3, None),
+           cut("d", 4, "[3.5]"), cut("a", 1, "[1.000001,2.5]", "s", '{"bench":"north"}'),
+           cut("a", 1, "[1.000001,2.5]", "s", '{"bench":"south"}')]
+    new = [cut("a", 1, "[1.000002,2.5]"), cut("b", 2, '["2026-03-06"]'), cut("c", 3, None),
+           cut("d", 4, None), cut("a", 1, "[1.5]", "s", '{"bench":"north"}'),
+           cut("a", 1, "[1.5]", "s", '{"bench":"south"}')]
+    by_change = DriftThresholds(ig_rule="change")  # no interval in these rows: no note of it
+    changes, notes = compare(old, new, by_change)
+    assert changes == []
+    assert notes == ["ranking 'r': the cut points of a, b moved between the runs; their gains "
+                     "compare different bins",
+                     "ranking 's': the cut points of a moved between the runs; their gains "
+                     "compare different bins"]
+    assert compare(old, old, by_change) == ([], [])
+    assert compare([row("a", 1, 0.5)], [cut("a", 1, "[1.5]")], by_change) == ([], [])
+
+
 PLANTED = "UPDATE {table} SET b = 'x' WHERE y = 'yes' AND b = 'y'"
 
 

@@ -19,6 +19,8 @@ from collections.abc import Iterator
 from pathlib import Path
 
 import duckdb
+import numpy as np
+import pandas as pd
 import pytest
 import sqlalchemy as sa
 from conftest import MARIADB_URL, unique_name
@@ -33,6 +35,7 @@ from bitsift.jobs import duckdb_file
 from bitsift.jobs.drift import drift
 from bitsift.jobs.history import (
     ADDED_IN_2,
+    ADDED_IN_3,
     COLUMN_NAMES,
     COLUMNS,
     SCHEMA_VERSION,
@@ -44,6 +47,7 @@ from bitsift.jobs.history import (
 from bitsift.jobs.history_open import open_store
 from bitsift.jobs.job_run import preflight, run_job
 from bitsift.jobs.jobfile import JobError, load_job
+from bitsift.output.formatting import render
 
 ROOT = Path(__file__).resolve().parents[1]
 RUN_AT = _dt.datetime(2026, 3, 1, 4, 5, 6, 789000, tzinfo=_dt.UTC)
@@ -110,6 +114,40 @@ def test_rows_of_a_ranking(ranking: bitsift.Ranking) -> None:
 
 
 @pytest.mark.slow
+def test_cut_points_are_stored_as_the_json_output_writes_them(tmp_path: Path) -> None:
+    """Issue 21: numbers with every digit they need, dates and timestamps in ISO 8601, NULL for
+    categorical attributes. Data: invented seeded trays."""
+    rng = np.random.default_rng(21)
+    n = 400
+    frame = pd.DataFrame({
+        "close": rng.choice([1.0, 1.000001, 1.000002, 1.000003], n),
+        "sown": pd.to_datetime("2026-03-01") + pd.to_timedelta(rng.integers(0, 60, n), "D"),
+        "lit": pd.to_datetime("2026-03-01") + pd.to_timedelta(rng.integers(0, 10**6, n), "s"),
+        "bench": rng.choice(["north", "south"], n),
+        "y": rng.choice(["sprouted", "not"], n),
+    })
+    path = tmp_path / "trays.duckdb"
+    with duckdb.connect(str(path)) as con:
+        con.register("frame", frame)
+        con.execute("CREATE TABLE trays AS SELECT close, CAST(sown AS DATE) AS sown, "
+                    "CAST(lit AS TIMESTAMP) AS lit, bench, y FROM frame")
+    ranking = bitsift.rank(str(path), target="y", table="trays", bins=4)
+    rows = {r["attribute"]: r["cut_points"] for r in rows_of(ranking)}
+    shown = {a["attribute"]: a["cuts"] for a in json.loads(render(ranking, "json"))["attributes"]}
+    assert rows["bench"] is None and shown["bench"] is None
+    for name in ("close", "sown", "lit"):
+        assert rows[name] == json.dumps(shown[name], separators=(",", ":")), name
+    assert "1.000001" in rows["close"] and "1.000002" in rows["close"]
+    assert all(re.fullmatch(r"\d{4}-\d{2}-\d{2}", c) for c in json.loads(rows["sown"]))
+    assert all(re.fullmatch(r"\d{4}-\d{2}-\d{2}T[\d:.]+", c) for c in json.loads(rows["lit"]))
+    destination = Destination(str(tmp_path / "h.duckdb"), "history")
+    with open_store(destination, write=True) as store:
+        store.replace_run("j", "r1", rows_of(ranking))
+        read = {r["attribute"]: r["cut_points"] for r in store.read("j", ["r1"])}
+    assert read == rows
+
+
+@pytest.mark.slow
 def test_creates_the_table_and_round_trips_rows(destination: Destination,
                                                 ranking: bitsift.Ranking) -> None:
     with open_store(destination, write=True) as store:
@@ -171,30 +209,31 @@ def test_an_incompatible_table_is_refused_and_left_alone(destination: Destinatio
 
 
 @pytest.mark.slow
-def test_a_version_1_table_is_read_then_migrated_by_the_next_write(
-        destination: Destination, ranking: bitsift.Ranking) -> None:
-    # Issue 18: schema version 2 added the gain's se, interval and rank range. A version 1
-    # table (made here from a new one) is read with those NULL, and the next write adds them.
-    added = [c.name for c in ADDED_IN_2]
+@pytest.mark.parametrize("version", [1, 2])
+def test_an_older_table_is_read_then_migrated_by_the_next_write(
+        destination: Destination, ranking: bitsift.Ranking, version: int) -> None:
+    # Issue 18: schema version 2 added the gain's se, interval and rank range; issue 21:
+    # version 3 the cut points. An older table (made here from a new one) is read with those
+    # NULL, and the next write adds them.
+    added = [c.name for c in (*ADDED_IN_2, *ADDED_IN_3)[(version - 1) * len(ADDED_IN_2):]]
     table = destination.table_name().sql(destination.sqlglot_dialect())
     with open_store(destination, write=True) as store:
         store.replace_run("j", "r1", rows_of(ranking))
     for name in added:
         execute(destination, f"ALTER TABLE {table} DROP COLUMN {name}")
-    execute(destination, f"UPDATE {table} SET schema_version = 1")
+    execute(destination, f"UPDATE {table} SET schema_version = {version}")
     with open_store(destination) as store:
         assert store.check() is True
         old = store.read("j", ["r1"])
         assert set(store.existing_columns() or {}) == set(COLUMN_NAMES) - set(added)
     assert old and all(row[name] is None for row in old for name in added)
-    assert all(row["schema_version"] == 1 for row in old)
+    assert all(row["schema_version"] == version for row in old)
     with open_store(destination, write=True) as store:
         assert store.replace_run("j", "r2", rows_of(ranking, "r2")) == 4
         existing = store.existing_columns()
         both = store.read("j", ["r1", "r2"])
     assert existing is not None and list(existing) == list(COLUMN_NAMES)
-    assert {c.name: existing[c.name] for c in ADDED_IN_2} == {c.name: c.family
-                                                              for c in ADDED_IN_2}
+    assert {c.name: existing[c.name] for c in COLUMNS} == {c.name: c.family for c in COLUMNS}
     expected = {r["attribute"]: r for r in rows_of(ranking, "r2")}
     for row in both:
         if row["run_id"] == "r2":
@@ -202,14 +241,24 @@ def test_a_version_1_table_is_read_then_migrated_by_the_next_write(
             assert row["information_gain_corrected"] is not None
         else:
             assert all(row[name] is None for name in added)
+            assert row["information_gain_corrected"] is not None or version == 1
+    assert {row["cut_points"] is None for row in both if row["run_id"] == "r2"} == {False, True}
     assert drift(destination, "j").changes is not None  # old and new rows compare
 
 
 def test_a_table_lacking_only_some_new_columns_is_refused() -> None:
     families = {c.name: c.family for c in COLUMNS if c.name != "rank_high"}
     assert compatibility_problems(families) == ["missing column(s) rank_high"]
-    old = {c.name: c.family for c in COLUMNS if c not in ADDED_IN_2}
-    assert compatibility_problems(old) == []
+    version_1 = {c.name: c.family for c in COLUMNS if c not in ADDED_IN_2 + ADDED_IN_3}
+    version_2 = {c.name: c.family for c in COLUMNS if c not in ADDED_IN_3}
+    assert compatibility_problems(version_1) == compatibility_problems(version_2) == []
+    # Version 2's columns without version 3's, less one of version 2's: no older version.
+    partial = {name: family for name, family in version_2.items() if name != "rank_low"}
+    assert compatibility_problems(partial) == ["missing column(s) rank_low"]
+    # Version 3's column without version 2's: no older version either.
+    skipped = {c.name: c.family for c in COLUMNS if c not in ADDED_IN_2}
+    assert compatibility_problems(skipped) == [
+        "missing column(s) " + ", ".join(c.name for c in ADDED_IN_2)]
 
 
 def test_rows_from_a_newer_schema_are_refused(tmp_path: Path, ranking: bitsift.Ranking) -> None:

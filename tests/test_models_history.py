@@ -230,6 +230,9 @@ def check_history_flow(place: Place, tmp_path: Path) -> None:
             assert float(got[name]) == pytest.approx(float(expected[name]), rel=1e-12,
                                                      abs=tolerance), (key, name)
         assert expected["p_value"] is not None and got["p_value"] is None
+        # Quantile cut points are computed by the statement: unknown (NULL) in its rows.
+        assert (expected["cut_points"] is None) == (expected["kind"] != "numeric")
+        assert got["cut_points"] is None
         assert got["run_id"] == runs[0]
         # The statement's start time in UTC, whatever the client's time zone.
         assert abs((got["run_at"] - before).total_seconds()) < 120, (got["run_at"], before)
@@ -548,6 +551,14 @@ binning = "best-split"
             assert by_model[key][name] == pytest.approx(
                 expected[name], rel=1e-12,
                 abs=1e-6 if name in SE_FIELDS else 1e-9), (key, name)
+        # mdl's cut points are inlined, so the model stores the run's JSON; best-split's are
+        # computed by the statement (NULL).
+        computed = key[0] == "dated" and expected["kind"] == "numeric"
+        assert by_model[key]["cut_points"] == (None if computed else expected["cut_points"])
+    weighted = {k[2]: r["cut_points"] for k, r in by_run.items() if k[0] == "weighted"}
+    assert json.loads(weighted["sown_on"]) == []  # binned as time; mdl finds no cut there
+    moisture = json.loads(weighted["moisture_pct"])
+    assert moisture and all(isinstance(c, float) for c in moisture)
     assert CliRunner().invoke(cli, ["drift", str(job.path)]).exit_code == 0
 
 

@@ -11,6 +11,8 @@ import datetime as _dt
 import math
 from collections.abc import Sequence
 
+from bitsift import jsonout
+
 #: Decimals of a metric in bits (information gain, entropies, ratios).
 BITS_DECIMALS = 4
 #: The most significant digits a cut point needs: 17 tell any two doubles apart.
@@ -162,3 +164,28 @@ def cut_texts(cuts: Sequence[float], temporal: str | None = None, min_digits: in
     if temporal is None:
         return cut_labels(cuts, min_digits)
     return [iso_cut(c, temporal) for c in cuts]
+
+
+def shown_cuts(cuts: Sequence[float], temporal: str | None = None) -> list[float] | list[str]:
+    """Cut points as every structured output holds them: the numbers themselves, or ISO 8601
+    strings (:func:`iso_cut`) for a date or timestamp binned as time.
+
+    >>> shown_cuts([2.5, 4.75]), shown_cuts([1709596800.0], "date")
+    ([2.5, 4.75], ['2024-03-05'])
+    """
+    if temporal is None:
+        return list(cuts)
+    return [iso_cut(c, temporal) for c in cuts]
+
+
+def cuts_json(cuts: Sequence[float], temporal: str | None = None) -> str:
+    """Cut points as the history's ``cut_points`` holds them: a compact JSON array of
+    :func:`shown_cuts`, each number written as the JSON output writes it (the shortest text
+    that reads back as the same double).
+
+    >>> cuts_json([1.000001, 1.000002]), cuts_json([1709640000.0], "timestamp")
+    ('[1.000001,1.000002]', '["2024-03-05T12:00:00"]')
+    >>> cuts_json([])  # one bin
+    '[]'
+    """
+    return jsonout.dumps(shown_cuts(cuts, temporal), separators=(",", ":"))

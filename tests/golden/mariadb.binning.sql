@@ -8,7 +8,7 @@
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
 -- information_gain_low/high: an interval at level 0.95 of the bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.
-WITH bound_aggregates AS (
+WITH RECURSIVE bound_aggregates AS (
   SELECT
     MIN(CAST(`ratio` AS DOUBLE)) AS lo4,
     MAX(CAST(`ratio` AS DOUBLE)) AS hi4
@@ -239,6 +239,19 @@ WITH bound_aggregates AS (
     CASE WHEN k.i = 4 THEN b.a4 END,
     CASE WHEN k.i = 5 THEN b.a5 END,
     b.y
+  UNION ALL
+  SELECT
+    attr,
+    a1,
+    a2,
+    a3,
+    a4,
+    a5,
+    y,
+    n
+  FROM counts
+  WHERE
+    1 = 0
 ), cells AS (
   SELECT
     attr,

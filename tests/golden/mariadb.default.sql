@@ -7,7 +7,7 @@
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
 -- information_gain_low/high: an interval at level 0.95 of the bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.
-WITH ordered_4 AS (
+WITH RECURSIVE ordered_4 AS (
   SELECT
     CAST(`score` AS DOUBLE) AS v,
     ROW_NUMBER() OVER (
@@ -226,6 +226,19 @@ WITH ordered_4 AS (
     CASE WHEN k.i = 4 THEN b.a4 END,
     CASE WHEN k.i = 5 THEN b.a5 END,
     b.y
+  UNION ALL
+  SELECT
+    attr,
+    a1,
+    a2,
+    a3,
+    a4,
+    a5,
+    y,
+    n
+  FROM counts
+  WHERE
+    1 = 0
 ), cells AS (
   SELECT
     attr,

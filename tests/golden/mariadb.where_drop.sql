@@ -8,7 +8,7 @@
 -- p-value: chi-square survival function of g_statistic with dof degrees of freedom,
 -- e.g. Python: scipy.stats.chi2.sf(g_statistic, dof).
 -- information_gain_low/high: an interval at level 0.95 of the bias-corrected gain (information_gain_corrected +/- z * information_gain_se, clipped at 0); rank_low/rank_high: the best and worst rank it allows among the attributes.
-WITH ordered_3 AS (
+WITH RECURSIVE ordered_3 AS (
   SELECT
     CAST(`score` AS DOUBLE) AS v,
     ROW_NUMBER() OVER (
@@ -113,6 +113,17 @@ WITH ordered_3 AS (
     CASE WHEN k.i = 2 THEN b.a2 END,
     CASE WHEN k.i = 3 THEN b.a3 END,
     b.y
+  UNION ALL
+  SELECT
+    attr,
+    a1,
+    a2,
+    a3,
+    y,
+    n
+  FROM counts
+  WHERE
+    1 = 0
 ), cells AS (
   SELECT
     attr,

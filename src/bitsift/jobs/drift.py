@@ -4,7 +4,8 @@ An attribute drifts when its information gain moves (by default: when the two ru
 of the gain do not overlap; with ``ig_rule="change"``, or for rows without an interval, by more
 than ``ig_change`` bits), its place in the ranking by more than ``rank_change`` positions,
 when it appears or disappears, or when it gains or loses a trust flag. Rankings that appear
-or disappear between runs are reported too.
+or disappear between runs are reported too. Cut points that moved (history of schema version 3)
+are a note, not drift: quantile bins follow the data.
 """
 
 from __future__ import annotations
@@ -195,12 +196,27 @@ def compare(old_rows: Iterable[Mapping[str, Any]], new_rows: Iterable[Mapping[st
                                       _span_gap(spans[0][key], spans[1][key]))
         if limits.ig_rule == "interval" and not (_interval(before) and _interval(after)):
             without_interval.add(ranking)
+    notes += _moved_cuts(old, new)
     if without_interval:
         notes.append(f"ranking(s) {', '.join(repr(r) for r in sorted(without_interval))}: some "
                      "rows have no interval of the gain (history written before schema "
                      "version 2, or fractional weights); their gains are compared with "
                      f"--ig-change ({limits.ig_change:g} bits) instead")
     return changes, notes
+
+
+def _moved_cuts(old: Mapping[tuple[str, str, str], Mapping[str, Any]],
+                new: Mapping[tuple[str, str, str], Mapping[str, Any]]) -> list[str]:
+    """One note per ranking whose attributes' cut points differ between the runs (rows
+    without them, NULL, compare as unknown): their gains were measured on other bins."""
+    moved: dict[str, set[str]] = {}
+    for key in old.keys() & new.keys():
+        before, after = old[key].get("cut_points"), new[key].get("cut_points")
+        if before is not None and after is not None and before != after:
+            moved.setdefault(key[0], set()).add(key[2])
+    return [f"ranking {ranking!r}: the cut points of {', '.join(sorted(names))} moved between "
+            "the runs; their gains compare different bins"
+            for ranking, names in sorted(moved.items())]
 
 
 def _interval(row: Mapping[str, Any]) -> tuple[float, float] | None:

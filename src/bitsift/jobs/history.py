@@ -2,13 +2,14 @@
 transaction per run.
 
 The schema is :data:`COLUMNS` (documented in docs/scheduled-runs.md) with version
-:data:`SCHEMA_VERSION`, stored in every row. A missing table is created; a table of schema
-version 1 (without :data:`ADDED_IN_2`) is read as it is (those columns NULL) and migrated by the
-first write, under the writer lock, in the write's transaction (ALTER TABLE ... ADD COLUMN of
-nullable columns; MySQL/MariaDB commit DDL at once, so there the columns are added just before
-the write's transaction); an existing table whose columns differ otherwise is an error and is
-never altered. Destinations are a DuckDB file (written through
-DuckDB, SQL built by sqlglot) or a SQLAlchemy URL (written through SQLAlchemy Core).
+:data:`SCHEMA_VERSION`, stored in every row. A missing table is created; a table of an older
+schema version (without the columns of the versions after it, :data:`ADDED_BY_VERSION`) is read
+as it is (those columns NULL) and migrated by the first write, under the writer lock, in the
+write's transaction (ALTER TABLE ... ADD COLUMN of nullable columns; MySQL/MariaDB commit DDL at
+once, so there the columns are added just before the write's transaction); an existing table
+whose columns differ otherwise is an error and is never altered. Destinations are a DuckDB
+file (written through DuckDB, SQL built by sqlglot) or a SQLAlchemy URL (written through
+SQLAlchemy Core).
 
 Writers of one history table take turns: a DuckDB file admits one writing process (the others
 wait for it, up to :data:`WRITE_WAIT_SECONDS`), PostgreSQL and MySQL/MariaDB writers hold a lock
@@ -35,12 +36,13 @@ from bitsift.engines.masking import (
 )
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import BitsiftError, Option, Problem, SpecError, parameter_name
+from bitsift.numformat import cuts_json
 from bitsift.run.result import Ranking
 from bitsift.sql.dialects import SQLALCHEMY_DIALECTS, capabilities
 from bitsift.version import __version__
 
 #: Bumped whenever :data:`COLUMNS` changes; a table holding newer rows is refused.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 DEFAULT_TABLE = "bitsift_history"
 
 
@@ -62,7 +64,7 @@ class HistoryColumn:
 
 
 COLUMNS: tuple[HistoryColumn, ...] = (
-    HistoryColumn("schema_version", "integer", "version of this table layout (currently 2)"),
+    HistoryColumn("schema_version", "integer", "version of this table layout (currently 3)"),
     HistoryColumn("run_id", "text", "the run's id (`--run-id`, or generated from the time)",
                   length=100),
     HistoryColumn("run_at", "timestamp", "when the run started, UTC (stored without a zone)"),
@@ -107,10 +109,19 @@ COLUMNS: tuple[HistoryColumn, ...] = (
                   nullable=True),
     HistoryColumn("rank_high", "integer", "worst plausible rank in the ranking (segment)",
                   nullable=True),
+    # Schema version 3 (issue 21), appended.
+    HistoryColumn("cut_points", "text", "the attribute's cut points as a JSON array: numbers "
+                  "for numeric attributes, ISO 8601 strings for dated ones; NULL for "
+                  "categorical ones and in rows of schema versions 1 and 2", nullable=True),
 )
 COLUMN_NAMES: tuple[str, ...] = tuple(c.name for c in COLUMNS)
-#: The columns schema version 2 added to version 1, at the end of :data:`COLUMNS`.
-ADDED_IN_2: tuple[HistoryColumn, ...] = COLUMNS[-6:]
+#: The columns schema version 2 added to version 1.
+ADDED_IN_2: tuple[HistoryColumn, ...] = COLUMNS[-7:-1]
+#: The columns schema version 3 added to version 2, at the end of :data:`COLUMNS`.
+ADDED_IN_3: tuple[HistoryColumn, ...] = COLUMNS[-1:]
+#: The columns each version after the first added, in order: a table of version v lacks every
+#: group after its own.
+ADDED_BY_VERSION: tuple[tuple[HistoryColumn, ...], ...] = (ADDED_IN_2, ADDED_IN_3)
 
 
 @dataclass(frozen=True)
@@ -237,6 +248,8 @@ def ranking_rows(ranking: Ranking, *, run_id: str, run_at: _dt.datetime, job: st
             "information_gain_high": scored.information_gain_high,
             "rank_low": scored.rank_low,
             "rank_high": scored.rank_high,
+            "cut_points": (None if scored.cuts is None
+                           else cuts_json(scored.cuts, scored.temporal)),
         })
     return rows
 
@@ -269,21 +282,25 @@ def _utc_naive(moment: _dt.datetime) -> _dt.datetime:
 
 
 def columns_to_add(existing: Mapping[str, str]) -> list[HistoryColumn]:
-    """The columns of :data:`ADDED_IN_2` a table of schema version 1 lacks (all or none: a
-    table lacking only some of them is not a version 1 table, see
-    :func:`compatibility_problems`)."""
+    """The columns an older table lacks: every group of :data:`ADDED_BY_VERSION` after its
+    version, whole (a table lacking only some of a group's columns, or a group but not the
+    ones after it, is no older version: :func:`compatibility_problems` names what it misses)."""
     names = {name.lower() for name in existing}
-    return [c for c in ADDED_IN_2 if c.name not in names]
+    lacking: list[HistoryColumn] = []
+    for group in reversed(ADDED_BY_VERSION):
+        if any(c.name in names for c in group):
+            break
+        lacking[:0] = group
+    return lacking
 
 
 def compatibility_problems(existing: Mapping[str, str]) -> list[str]:
     """What makes an existing table (column name -> type family) unusable; empty when fine.
-    A table of schema version 1 (every column but :data:`ADDED_IN_2`) is fine: it is
-    migrated by the first write."""
+    A table of an older schema version (lacking the columns of the versions after it,
+    :func:`columns_to_add`) is fine: it is migrated by the first write."""
     by_lower = {name.lower(): family for name, family in existing.items()}
     problems = []
-    lacking = columns_to_add(existing)
-    optional = {c.name for c in lacking} if len(lacking) == len(ADDED_IN_2) else set()
+    optional = {c.name for c in columns_to_add(existing)}
     missing = [c.name for c in COLUMNS if c.name not in by_lower and c.name not in optional]
     if missing:
         problems.append("missing column(s) " + ", ".join(missing))

@@ -96,7 +96,7 @@ class DuckDBStore(HistoryStore):
         return create_table_sql(self.table, "duckdb")
 
     def _add_column_sql(self, column: HistoryColumn) -> str:
-        """ALTER TABLE ... ADD COLUMN for a column a schema version 1 table lacks."""
+        """ALTER TABLE ... ADD COLUMN for a column an older schema version's table lacks."""
         definition = exp.ColumnDef(this=_ident(column.name),
                                    kind=exp.DataType.build(_DUCKDB_TYPES[column.family]))
         return self._sql(exp.Alter(this=self.table.copy(), kind="TABLE",
@@ -147,7 +147,7 @@ class DuckDBStore(HistoryStore):
             return []
         assert self.connection is not None
         names = {name.lower() for name in existing}
-        # A schema version 1 table, not yet migrated: its rows have no interval (NULL).
+        # A table of an older schema version, not yet migrated: those columns read as NULL.
         query = (
             exp.select(*(_col(n) if n in names else exp.Null().as_(n) for n in COLUMN_NAMES))
             .from_(self.table.copy())

@@ -205,7 +205,7 @@ class SqlAlchemyStore(HistoryStore):
         connection.execute(create_table(self.sa_table, connection.dialect))
 
     def _add_column(self, connection: sa.Connection, column: HistoryColumn) -> None:
-        """ALTER TABLE ... ADD COLUMN for a column a schema version 1 table lacks (in the
+        """ALTER TABLE ... ADD COLUMN for a column an older version's table lacks (in the
         write's transaction; MySQL/MariaDB commit it at once, under the writer lock)."""
         preparer = connection.dialect.identifier_preparer
         name = preparer.format_table(self.sa_table)
@@ -251,7 +251,7 @@ class SqlAlchemyStore(HistoryStore):
                 return []
             names = {name.lower() for name in existing}
             keys = [self._key_value(run_id) for run_id in run_ids]
-            # A schema version 1 table, not yet migrated: its rows have no interval (NULL).
+            # A table of an older schema version, not yet migrated: those columns read as NULL.
             columns = [c if c.name in names else sa.null().label(c.name) for c in table.c]
             return connection.execute(
                 sa.select(*columns).where(self._same(table.c.job, job),

@@ -155,8 +155,8 @@ class HistoryStore(ABC):
             raise HistoryError(
                 f"results table {where} is not a bitsift history table of schema version "
                 f"{SCHEMA_VERSION}: " + "; ".join(problems)
-                + ". bitsift never alters an existing table (but adds schema version 2's "
-                "columns to a table of version 1): choose another results table, "
+                + ". bitsift never alters an existing table (but adds the columns of later "
+                "schema versions to a table of an older one): choose another results table, "
                 "or migrate this one yourself (the schema is in docs/scheduled-runs.md)"
             )
         newest = newest_version()

@@ -9,7 +9,7 @@ from dataclasses import dataclass, field
 from typing import Any, Generic, TypeVar
 
 from bitsift.errors import install_extra
-from bitsift.numformat import format_bits, format_p_value, iso_cut
+from bitsift.numformat import format_bits, format_p_value, shown_cuts
 
 #: Keys of one attribute in the JSON contract, in order.
 ATTRIBUTE_KEYS: tuple[str, ...] = (
@@ -86,9 +86,7 @@ class AttributeScore:
 
     def shown_cuts(self) -> list[float] | list[str] | None:
         """The cut points as outputs show them: numbers, or ISO 8601 for dated attributes."""
-        if self.cuts is None or self.temporal is None:
-            return self.cuts
-        return [iso_cut(c, self.temporal) for c in self.cuts]
+        return None if self.cuts is None else shown_cuts(self.cuts, self.temporal)
 
     def to_dict(self) -> dict[str, Any]:
         out = {key: getattr(self, key) for key in ATTRIBUTE_KEYS}

@@ -43,8 +43,10 @@ SQLite 3.40.1          (not available)  9.5 s            37.7 s
 - Pasted statements that compute their own cut points (a ``bounds`` CTE joined into
   ``base``) use ``paste_count_strategy`` where it is set: MariaDB ``cross_join`` (``base`` is
   evaluated once per reference there, so ``union_all`` recomputed every quantile per
-  attribute: 172 s against 33 s), PostgreSQL ``union_all`` (at a console's default work_mem:
-  5.6 s against 13.2 s for GROUPING SETS). benchmarks/RESULTS.md, "Paste mode".
+  attribute: 172 s against 33 s) with ``counts`` shared (``paste_shared_ctes``: each later
+  step's reference recomputed it, 39.5 s against 7.8 s), PostgreSQL ``union_all`` (at a
+  console's default work_mem: 5.6 s against 13.2 s for GROUPING SETS).
+  benchmarks/RESULTS.md, "Paste mode".
 
 Text grouping: MySQL/MariaDB compare text under the column's collation; their defaults are
 case-insensitive and PAD SPACE, so ``GROUP BY`` would merge 'a' with 'A' and 'x' with 'x '.
@@ -114,6 +116,14 @@ class Capabilities:
     #: every quantile each time. ``None``: :attr:`count_strategy`. Measured in
     #: benchmarks/RESULTS.md ("Paste mode"; benchmarks/paste_strategies.py).
     paste_count_strategy: CountStrategy | None = None
+    #: Steps of the ranking statement (``base``, ``counts``) written as recursive CTEs with an
+    #: empty recursive branch (``WITH RECURSIVE``): MariaDB evaluates a plain CTE once per
+    #: reference (``counts`` is read by ``cells`` and ``excluded``, and the steps after it up
+    #: to five times), but materializes a recursive one once for every reference.
+    shared_ctes: tuple[str, ...] = ()
+    #: :attr:`shared_ctes` of a pasted statement that computes its own cut points (``None``:
+    #: the same). Measured in benchmarks/RESULTS.md ("Paste mode").
+    paste_shared_ctes: tuple[str, ...] | None = None
     quantile: QuantileMethod = "window"
     #: Type (spelled in the dialect) that grouped text values are cast to so that they compare
     #: byte-exactly. ``None``: the engine's default comparison already tells 'a' from 'A'
@@ -146,9 +156,12 @@ class Capabilities:
     @property
     def for_paste(self) -> Capabilities:
         """These capabilities with the pasted statement's count strategy."""
-        if self.paste_count_strategy is None:
+        if self.paste_count_strategy is None and self.paste_shared_ctes is None:
             return self
-        return replace(self, count_strategy=self.paste_count_strategy, paste_count_strategy=None)
+        return replace(self, count_strategy=self.paste_count_strategy or self.count_strategy,
+                       shared_ctes=(self.shared_ctes if self.paste_shared_ctes is None
+                                    else self.paste_shared_ctes),
+                       paste_count_strategy=None, paste_shared_ctes=None)
 
 
 #: Each dialect's date functions where the standard EXTRACT forms do not serve. Executed in
@@ -257,9 +270,10 @@ CAPABILITIES: dict[str, Capabilities] = {
         # grouped as BINARY.
         # Pasted with its own cut points, union_all recomputed the window quantiles once per
         # attribute: 200k rows x 3 categorical + 4 numeric took 172 s, 33 s with the cross
-        # join, 6 s in run mode (benchmarks/paste_strategies.py, RESULTS.md).
+        # join, 6 s in run mode; `counts` shared (one recursive CTE, read five times) brought
+        # the cross join from 39.5 s to 7.8 s (benchmarks/paste_strategies.py, RESULTS.md).
         _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY",
-                 paste_count_strategy="cross_join"),
+                 paste_count_strategy="cross_join", paste_shared_ctes=("counts",)),
         _dialect("snowflake", quantile="percentile_cont"),
         _dialect("bigquery"),
         # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.

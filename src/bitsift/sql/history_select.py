@@ -9,8 +9,10 @@ run`` writes: one row per segment x attribute, in the columns the caller's schem
 - the few columns computed here: ``run_at`` (the dialect's UTC clock, read once by the
   statement), ``run_id`` (its text form), ``segment`` (the segment values as compact JSON),
   ``position`` (a window over the sort metric, ties by name), ``classes`` (the target's),
-  ``flags`` (the trust flags' rules, comma-separated) and ``p_value`` (NULL unless the dialect
-  has a chi-square survival function, :attr:`~bitsift.sql.dialects.Capabilities.chi2_survival`);
+  ``flags`` (the trust flags' rules, comma-separated), ``p_value`` (NULL unless the dialect
+  has a chi-square survival function, :attr:`~bitsift.sql.dialects.Capabilities.chi2_survival`)
+  and ``cut_points`` (the JSON a run stores, for the attributes binned at literal cut points;
+  NULL where the statement computes them itself);
 - every other column: the ranking statement's output column of that name, cast to the column's
   type family. A metric added to the ranking statement and to the schema flows through.
 
@@ -26,6 +28,7 @@ import sqlglot
 from sqlglot import exp
 
 from bitsift import jsonout
+from bitsift.numformat import cuts_json
 from bitsift.spec.rankspec import RankSpec, Thresholds
 from bitsift.sql.dialects import Capabilities
 from bitsift.sql.sqlbuild import BuildError, Statement, rank_statement, value_literal
@@ -141,6 +144,21 @@ def _name_order(spec: RankSpec) -> exp.Expr:
                          for i in sorted(place)])
 
 
+def cut_points_expression(spec: RankSpec, cuts: Mapping[str, Sequence[float]] | None
+                          ) -> exp.Expr:
+    """The history's ``cut_points``: per attribute binned at literal cut points (``cuts``), the
+    JSON array a run stores (:func:`bitsift.numformat.cuts_json`, ISO 8601 for dated ones); NULL
+    for the others: categorical ones, and numeric ones whose cut points the statement computes
+    (their JSON would need the engine to write doubles as Python does)."""
+    known = [(index, cuts_json(cuts[a.name], a.family if a.epoch else None))
+             for index, a in enumerate(spec.attributes, start=1)
+             if a.kind == "numeric" and cuts is not None and a.name in cuts]
+    if not known:
+        return _cast(exp.Null(), "text")
+    return exp.Case(this=_col("attribute_index"),
+                    ifs=[exp.If(this=value_literal(i), true=_text(text)) for i, text in known])
+
+
 def _segments(spec: RankSpec, table: str = "h") -> list[exp.Expr]:
     return [_col(f"segment_{i}", table) for i in range(1, len(spec.by) + 1)]
 
@@ -168,7 +186,7 @@ def history_select(spec: RankSpec, caps: Capabilities, columns: Sequence[History
     # exp.Star() alone would lose the table: every column of r, then the target's classes.
     with_target.expressions[0] = exp.Column(this=exp.Star(), table=exp.to_identifier("r"))
     outputs = set(tree.named_selects)
-    computed = _computed(spec, caps)
+    computed = {**_computed(spec, caps), "cut_points": cut_points_expression(spec, cuts)}
     selected = []
     for column in columns:
         node: exp.Expr

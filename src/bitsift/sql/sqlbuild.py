@@ -292,6 +292,7 @@ def _context(spec: RankSpec, caps: Capabilities, cuts: Mapping[str, Sequence[flo
         "where": where_sql(spec),
         "qualified_where": qualified_where_sql(spec),
         "strategy": caps.count_strategy,
+        "shared": caps.shared_ctes,
         "drop_missing": spec.options.missing == "drop",
         "bounds": bounds,
         "z": literal(spec.options.z),
