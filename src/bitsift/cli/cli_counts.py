@@ -5,29 +5,26 @@ options, call the library and print."""
 from __future__ import annotations
 
 from collections.abc import Callable
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import click
 from click.core import ParameterSource
 
-from bitsift.analysis.counts_report import report_counts
-from bitsift.analysis.profile_model import ProfiledRun
 from bitsift.cli.cli_options import (
     library_options,
     print_notes,
     print_statements,
     rank_options,
 )
-from bitsift.jobs.counts_build import build_counts, paste_counts
-from bitsift.jobs.counts_drift import drift_counts
-from bitsift.jobs.drift import DriftReport, DriftThresholds
-from bitsift.jobs.jobfile import load_job
 from bitsift.names import one_line
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE
-from bitsift.run.counts_rank import rank_counts
 from bitsift.run.result import Ranking, SegmentedRanking
 from bitsift.spec.rankspec import timeout_seconds
 from bitsift.sql.counts_sql import GRAINS
+
+if TYPE_CHECKING:  # the counts' modules are imported by the commands that use them
+    from bitsift.analysis.profile_model import ProfiledRun
+    from bitsift.jobs.drift import DriftReport, DriftThresholds
 
 #: rank's options that decide what is counted: they belong to ``bitsift counts``.
 _COUNTED = ("table", "attributes", "exclude", "categorical", "numeric", "bins", "binning",
@@ -128,7 +125,11 @@ def counts_ranking(ctx: click.Context, source: str, kwargs: dict[str, Any],
     """The ranking of stored counts when --from-counts is given, else None (after checking
     that no --from-counts option and a --target were given)."""
     window = _counts_window(ctx, kwargs)
-    return None if window is None else rank_counts(source, **window)
+    if window is None:
+        return None
+    from bitsift.run.counts_rank import rank_counts
+
+    return rank_counts(source, **window)
 
 
 def counts_report(ctx: click.Context, source: str, kwargs: dict[str, Any],
@@ -141,6 +142,8 @@ def counts_report(ctx: click.Context, source: str, kwargs: dict[str, Any],
     if ctx.params.get("select_k"):
         raise click.UsageError("--select measures pairs of attributes on the rows: not "
                                "available with --from-counts")
+    from bitsift.analysis.counts_report import report_counts
+
     return report_counts(source, **window, **report)
 
 
@@ -244,6 +247,9 @@ def counts_drift(ctx: click.Context, place: str | None, thresholds: DriftThresho
     if place is None:
         raise click.UsageError("--from-counts needs the counts' DEST (a DuckDB file or URL) "
                                "or a job file with [counts]")
+    from bitsift.jobs.counts_drift import drift_counts
+    from bitsift.jobs.jobfile import load_job
+
     asked = window.pop("counts_table")
     dest, table = place, asked or DEFAULT_COUNTS_TABLE
     if place.endswith(".toml"):
