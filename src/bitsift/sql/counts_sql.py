@@ -242,6 +242,7 @@ def stored_rank_statement(caps: Capabilities, table: exp.Expression, target: str
         "drop_missing": drop_missing,
         "order_by_gain": order_by,
         "z": literal(z),
+        "shared": caps.shared_ctes,
     }
     return finish(render("rank.sql.j2", **context), caps, pretty=False)
 
