@@ -73,6 +73,8 @@ def test_wheel_ships_templates_and_type_marker(wheel: Path) -> None:
     with zipfile.ZipFile(wheel) as archive:
         names = archive.namelist()
     assert "bitsift/templates/rank.sql.j2" in names
+    # The SQL templates compiled ahead (bitsift.sql.templates), one module each.
+    assert "bitsift/sql/precompiled/rank.py" in names
     # PEP 561: without py.typed, type checkers ignore the package's annotations.
     assert "bitsift/py.typed" in names
 
@@ -80,11 +82,12 @@ def test_wheel_ships_templates_and_type_marker(wheel: Path) -> None:
 INSPECT = """
 import json, sys
 import bitsift
-from bitsift.sql.templates import templates_dir
+from bitsift.sql.templates import environment, templates_dir
 ranking = bitsift.rank(sys.argv[1], target="growth")
 print(json.dumps({
     "module": bitsift.__file__,
     "templates": str(templates_dir()),
+    "rank_template": environment().get_template("rank.sql.j2").filename,
     "gains": {a.attribute: a.information_gain for a in ranking.attributes},
 }))
 """
@@ -103,6 +106,8 @@ def test_wheel_install_finds_templates_and_ranks(installed: Path, table_file: Pa
     assert ROOT not in module.parents
     assert venv in templates.parents and (templates / "rank.sql.j2").is_file()
     assert ROOT not in templates.parents
+    # The installed templates match their compiled modules, which are used.
+    assert Path(report["rank_template"]).resolve() == module.parent / "sql/precompiled/rank.py"
     # soil decides growth (1 bit); shade (period 3, independent over 240 rows) tells nothing.
     assert report["gains"]["soil"] == pytest.approx(1.0, abs=1e-12)
     assert report["gains"]["shade"] == pytest.approx(0.0, abs=1e-9)
