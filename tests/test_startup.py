@@ -15,7 +15,7 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 #: Modules no ranking of a DuckDB file needs at import time.
 HEAVY = ("pandas", "scipy", "scipy.stats", "numpy", "sqlalchemy", "pyspark", "chdb", "pyarrow",
-         "bitsift.jobs.jobfile", "bitsift.output.report")
+         "bitsift.jobs.jobfile", "bitsift.output.report", "bitsift.run.discretize")
 
 
 def _loaded_after(code: str, *args: str) -> set[str]:
@@ -49,6 +49,69 @@ def test_a_duckdb_ranking_loads_neither_sqlalchemy_nor_scipy_stats(tmp_path: Pat
     loaded = _loaded_after(code, str(path))
     # The p-value needs scipy.special (and so NumPy); nothing else on the list.
     assert loaded <= {"scipy", "numpy"}, loaded
+
+
+@pytest.mark.slow
+def test_a_duckdb_ranking_compiles_no_sql_template(tmp_path: Path) -> None:
+    """Every SQL template a ranking renders (numeric attributes counted in buckets too) comes
+    from its compiled module (bitsift/sql/precompiled/): Jinja2 compiles nothing."""
+    path = tmp_path / "t.duckdb"
+    with duckdb.connect(str(path)) as con:
+        con.execute("CREATE TABLE t AS SELECT i % 3 AS a, i * 0.5 AS x, i % 2 AS y "
+                    "FROM range(60) r(i)")
+    probe = (
+        "import json, sys\nimport jinja2\ncompiled = []\nplain = jinja2.Environment.compile\n"
+        "def compile(self, source, name=None, *args, **kwargs):\n"
+        "    compiled.append(name)\n    return plain(self, source, name, *args, **kwargs)\n"
+        "jinja2.Environment.compile = compile\nfrom bitsift.cli import main\n"
+        "from bitsift.sql.templates import environment\n"
+        "try:\n    main(['rank', sys.argv[1], '--table', 't', '--target', 'y'])\n"
+        "except SystemExit as exit:\n    assert not exit.code, exit.code\n"
+        "used = sorted(t.name for t in environment().cache.values())\n"  # type: ignore[union-attr]
+        "print(json.dumps([compiled, used]))\n")
+    env = {**os.environ, "PYTHONPATH": str(ROOT / "src")}
+    done = subprocess.run([sys.executable, "-c", probe, str(path)], env=env,
+                          capture_output=True, text=True, timeout=120, check=False)
+    assert done.returncode == 0, done.stderr[-2000:]
+    compiled, used = json.loads(done.stdout.strip().splitlines()[-1])
+    assert compiled == []
+    assert {"rank.sql.j2", "quantile_cells.sql.j2", "sums.sql.j2"} <= set(used), used
+
+
+def test_the_p_value_import_waits_for_no_idle_thread(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Run mode hands the calling thread the p-values' import while the sessions work (and
+    only then); a failure there stops the sessions like any other."""
+    from bitsift.run import api, concurrent, metrics
+
+    calls: list[int] = []
+    seen: list[object] = []
+
+    def parts(engine: object, spec: object, sessions: int, max_size: int,
+              meanwhile: object = None) -> tuple[list[object], dict[str, list[float]]]:
+        seen.append(meanwhile)
+        return [], {}
+
+    monkeypatch.setattr(concurrent, "fetch_records_in_parts", parts)
+    monkeypatch.setattr(concurrent, "sessions_for", lambda engine, spec: 2)
+    api.fetch_records(object(), object())  # type: ignore[arg-type]
+    assert seen == [metrics.load_p_value]
+
+    class Pool:
+        def cancel(self) -> None:
+            calls.append(1)
+
+    def fail() -> None:
+        raise KeyboardInterrupt
+
+    from concurrent.futures import Future
+
+    done: Future[concurrent.PartResult] = Future()
+    done.set_result(concurrent.PartResult(cuts={}, records=[]))
+    with pytest.raises(KeyboardInterrupt):
+        concurrent._results([done], Pool(), fail)  # type: ignore[arg-type]
+    assert calls  # the sessions were told to stop
+    assert concurrent._results([done], Pool(), lambda: calls.clear()) == [done.result()]
+    assert calls == []
 
 
 def test_the_p_value_is_chi2_sf_bit_for_bit() -> None:

@@ -12,9 +12,9 @@ Nothing is written at run time: the modules are part of the source tree, like th
 
 from __future__ import annotations
 
-import functools
 import hashlib
 import importlib
+import threading
 from collections.abc import MutableMapping
 from importlib import resources
 from pathlib import Path
@@ -42,14 +42,27 @@ def templates_dir() -> Path:
     raise FileNotFoundError(f"bitsift templates not found in {packaged} nor {checkout}")
 
 
-@functools.cache
 def environment(html: bool = False) -> jinja2.Environment:
     """The Jinja2 environment: strict about undefined names, no autoescaping for SQL.
 
     HTML templates also show every control character of a value as a visible escape
     (:func:`~bitsift.names.escape_text`): a column name or value holding one is not silently
-    hidden or turned into a line break on the page.
+    hidden or turned into a line break on the page. One of each per process, however called
+    and from however many threads (run mode renders on several sessions' threads at once);
+    a compiled template's module serves one environment.
     """
+    with _ENVIRONMENTS_LOCK:
+        found = _ENVIRONMENTS.get(html)
+        if found is None:
+            found = _ENVIRONMENTS[html] = _new_environment(html)
+        return found
+
+
+_ENVIRONMENTS: dict[bool, jinja2.Environment] = {}
+_ENVIRONMENTS_LOCK = threading.Lock()
+
+
+def _new_environment(html: bool) -> jinja2.Environment:
     loader = jinja2.FileSystemLoader if html else PrecompiledLoader
     return jinja2.Environment(
         loader=loader(str(templates_dir())),
