@@ -168,4 +168,6 @@ def test_the_startup_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
     assert set(result["median_seconds"]) == {
         "python -c pass", "import duckdb", "bitsift: import bitsift.cli", "bitsift: bitsift rank"}
     assert all(len(v) == 1 and v[0] > 0 for v in result["seconds"].values())
+    assert set(result["cpu_seconds"]) == set(result["seconds"])
+    assert all(len(v) == 1 and v[0] > 0 for v in result["cpu_seconds"].values())
     assert "bitsift: bitsift rank" in done.stdout
