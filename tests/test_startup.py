@@ -171,3 +171,19 @@ def test_the_startup_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
     assert set(result["cpu_seconds"]) == set(result["seconds"])
     assert all(len(v) == 1 and v[0] > 0 for v in result["cpu_seconds"].values())
     assert "bitsift: bitsift rank" in done.stdout
+
+
+@pytest.mark.slow
+def test_the_phases_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
+    """benchmarks/startup_phases.py at a tiny size: every phase measured, the ranking's inside
+    the process's total."""
+    out = tmp_path / "phases.json"
+    done = subprocess.run(
+        [sys.executable, str(ROOT / "benchmarks" / "startup_phases.py"), "--rows", "500",
+         "--attributes", "3", "--repeats", "1", "--json", str(out)],
+        capture_output=True, text=True, timeout=300, check=False)
+    assert done.returncode == 0, done.stderr[-2000:]
+    medians = json.loads(out.read_text())["median_seconds"]
+    assert medians["statements run"] > 0 and medians["statements built"] > 0
+    assert 0 < medians["ranking"] < medians["total"]
+    assert "statements built" in done.stdout
