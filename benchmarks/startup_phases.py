@@ -24,6 +24,7 @@ Medians of wall-clock milliseconds. Imports of the command before ``main`` are s
 from __future__ import annotations
 
 import argparse
+import datetime
 import json
 import os
 import statistics
@@ -128,7 +129,10 @@ def main(argv: list[str] | None = None) -> int:
     for phase in PHASES:
         print(f"  {phase:<20} {1000 * medians[phase]:7.1f}")
     if args.json is not None:
-        args.json.write_text(json.dumps({"rows": args.rows, "attributes": args.attributes,
+        date = datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds")
+        args.json.write_text(json.dumps({"date": date, "cpus": os.cpu_count(),
+                                         "src": str(args.src), "rows": args.rows,
+                                         "attributes": args.attributes,
                                          "load_average_before": load_before,
                                          "load_average_after": load_after,
                                          "median_seconds": medians, "runs": runs}, indent=2)
