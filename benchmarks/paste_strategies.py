@@ -37,9 +37,8 @@ import bitsift
 from bitsift.sql import dialects
 
 POSTGRES_URL = "postgresql+psycopg://postgres@127.0.0.1:5432/test"
-STRATEGIES = {"mariadb": ("union_all", "cross_join", "cross_join+counts",
-                          "union_all+base+counts"),
-              "postgres": ("grouping_sets", "union_all", "cross_join")}
+STRATEGIES = {"mariadb": ("cross_join+counts", "union_all+base+counts", "union_scans+counts"),
+              "postgres": ("grouping_sets", "union_all", "cross_join", "union_scans")}
 
 
 def form_of(shipped: dialects.Capabilities, form: str) -> dialects.Capabilities:
