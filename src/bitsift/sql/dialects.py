@@ -279,8 +279,8 @@ CAPABILITIES: dict[str, Capabilities] = {
         # 172 s, 33 s with the cross join, 6 s in run mode; `counts` shared (one recursive
         # CTE, read five times) brought the cross join from 39.5 s to 7.8 s; union_scans
         # (each branch reads the table with only its own attribute's bounds) with `counts`
-        # shared: 7.8 s against 10.5 s for that cross join, measured side by side
-        # (benchmarks/paste_strategies.py, RESULTS.md).
+        # shared: 7.8 s against 10.5 s for that cross join, measured side by side (load 3;
+        # 1.3 x again at load 4-5) (benchmarks/paste_strategies.py, RESULTS.md).
         _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY",
                  paste_count_strategy="union_scans", paste_shared_ctes=("counts",)),
         _dialect("snowflake", quantile="percentile_cont"),
