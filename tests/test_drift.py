@@ -243,6 +243,14 @@ def test_nothing_to_compare_is_an_error_naming_what_exists(
         "tables there: 'history'\n")
     with pytest.raises(BitsiftError, match="job 'x' has no runs in results table"):
         drift(job.destination, "x")
+    # Found by hand: --results-table next to a JOB_FILE (or without --results) was ignored,
+    # and drift compared the job file's history: "no drift", exit 0, on a table never read.
+    beside = run_main(capsys, "drift", str(job_file), "--results-table", "histroy")
+    assert (beside.code, beside.out) == (2, "")
+    assert ("Error: --results-table names a history instead of JOB_FILE; "
+            f"{job_file} names its own in [results]") in beside.err
+    alone = run_main(capsys, "drift", "--results-table", "history", "--job", "nightly")
+    assert alone.code == 2 and "Error: --results-table needs --results" in alone.err
     # --new naming the oldest run: nothing before it, said so (not "nothing to compare yet").
     oldest = run_main(capsys, "drift", str(job_file), "--new", "day1")
     assert (oldest.code, oldest.out) == (1, "")

@@ -53,6 +53,26 @@ def test_a_decimal_comma_file_gets_a_note_and_reads_as_numbers_with_options(semi
         sorted(set(np.quantile(weights, [j / 10 for j in range(1, 10)]))), abs=1e-12)
 
 
+def test_numeric_on_a_text_column_holding_numbers_names_the_reader_option(semicolon_csv,
+                                                                           capsys):
+    # Found by hand on a fresh clone (issue 21 item 3): `--numeric` on a decimal-comma column
+    # was refused without the way out the note gives, and the note never showed (the error
+    # came first).
+    with pytest.raises(ColumnError) as caught:
+        bitsift.rank(str(semicolon_csv), target="grp", numeric="weight_g,tray")
+    message = str(caught.value)
+    assert message.startswith("numeric needs number columns")
+    assert "'weight_g' is read as text, but its values read as numbers with a decimal comma: " \
+           "read_option decimal=," in message
+    assert "'tray' is read as text" not in message  # integers: read as numbers already
+    with pytest.raises(ColumnError, match="'grp' \\(VARCHAR\\)$"):  # text: no hint
+        bitsift.rank(str(semicolon_csv), target="weight_g", numeric="grp")
+    cli = run_main(capsys, "rank", str(semicolon_csv), "-y", "grp", "--numeric", "weight_g")
+    assert (cli.code, cli.out) == (1, "")
+    assert cli.err.count("\n") == 1 and cli.err.startswith("Error: --numeric needs number")
+    assert "--read-option decimal=, (and delimiter=; for a semicolon file)" in cli.err
+
+
 def test_read_options_are_checked_all_at_once():
     from bitsift.engines.read_options import parse_read_options
     with pytest.raises(SpecError) as caught:

@@ -119,7 +119,7 @@ def test_counts_match_python_on_every_engine(engine: str, request: pytest.Fixtur
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join"])
+@pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join", "union_scans"])
 @pytest.mark.parametrize("missing", ["category", "drop"])
 def test_every_count_strategy_gives_the_same_counts(strategy: str, missing: str) -> None:
     dataset = random_dataset(seed=5, rows=400)

@@ -132,7 +132,7 @@ def test_segments_equal_separate_filtered_runs(engine: str,
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join"])
+@pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join", "union_scans"])
 def test_two_segment_columns_on_every_count_strategy(strategy: str) -> None:
     dataset = segmented_dataset(seed=8)
     connection = duckdb.connect()

@@ -81,7 +81,7 @@ def test_weights_equal_duplicated_rows(engine: str, request: pytest.FixtureReque
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join"])
+@pytest.mark.parametrize("strategy", ["grouping_sets", "union_all", "cross_join", "union_scans"])
 def test_weighted_segments_equal_duplicated_segments(strategy: str) -> None:
     dataset = segmented_dataset(seed=22, rows=600)
     connection = duckdb.connect()

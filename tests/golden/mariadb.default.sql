@@ -153,79 +153,162 @@ WITH RECURSIVE ordered_4 AS (
       ) * 0.75) + 1 THEN v END)
     ) AS c5_3
   FROM ordered_5
-), bounds AS (
-  SELECT
-    *
-  FROM bounds_4
-  CROSS JOIN bounds_5
-), base AS (
-  SELECT
-    CAST(src.`y` AS BINARY) AS y,
-    CAST(src.`word` AS BINARY) AS a1,
-    CAST(src.`level` AS BINARY) AS a2,
-    CAST(src.`noise` AS BINARY) AS a3,
-    CASE
-      WHEN src.`score` IS NULL
-      THEN NULL
-      WHEN CAST(src.`score` AS DOUBLE) < bounds.c4_1
-      THEN 0
-      WHEN CAST(src.`score` AS DOUBLE) < bounds.c4_2
-      THEN 1
-      WHEN CAST(src.`score` AS DOUBLE) < bounds.c4_3
-      THEN 2
-      ELSE 3
-    END AS a4,
-    CASE
-      WHEN src.`ratio` IS NULL
-      THEN NULL
-      WHEN CAST(src.`ratio` AS DOUBLE) < bounds.c5_1
-      THEN 0
-      WHEN CAST(src.`ratio` AS DOUBLE) < bounds.c5_2
-      THEN 1
-      WHEN CAST(src.`ratio` AS DOUBLE) < bounds.c5_3
-      THEN 2
-      ELSE 3
-    END AS a5
-  FROM `bitsift_golden` AS src
-  CROSS JOIN bounds
-), attribute_index AS (
-  SELECT
-    0 AS i
-  UNION ALL
-  SELECT
-    1 AS i
-  UNION ALL
-  SELECT
-    2 AS i
-  UNION ALL
-  SELECT
-    3 AS i
-  UNION ALL
-  SELECT
-    4 AS i
-  UNION ALL
-  SELECT
-    5 AS i
 ), counts AS (
   SELECT
-    k.i AS attr,
-    CASE WHEN k.i = 1 THEN b.a1 END AS a1,
-    CASE WHEN k.i = 2 THEN b.a2 END AS a2,
-    CASE WHEN k.i = 3 THEN b.a3 END AS a3,
-    CASE WHEN k.i = 4 THEN b.a4 END AS a4,
-    CASE WHEN k.i = 5 THEN b.a5 END AS a5,
-    b.y AS y,
+    0 AS attr,
+    a1,
+    a2,
+    a3,
+    a4,
+    a5,
+    y,
+    0 AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`word` AS BINARY) AS a1,
+      CAST(src.`level` AS BINARY) AS a2,
+      CAST(src.`noise` AS BINARY) AS a3,
+      0 AS a4,
+      0 AS a5
+    FROM `bitsift_golden` AS src
+  ) AS typed_row
+  WHERE
+    1 = 0
+  UNION ALL
+  SELECT
+    0 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
     COUNT(*) AS n
-  FROM base AS b
-  CROSS JOIN attribute_index AS k
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y
+    FROM `bitsift_golden` AS src
+  ) AS rows_0
   GROUP BY
-    k.i,
-    CASE WHEN k.i = 1 THEN b.a1 END,
-    CASE WHEN k.i = 2 THEN b.a2 END,
-    CASE WHEN k.i = 3 THEN b.a3 END,
-    CASE WHEN k.i = 4 THEN b.a4 END,
-    CASE WHEN k.i = 5 THEN b.a5 END,
-    b.y
+    y
+  UNION ALL
+  SELECT
+    1 AS attr,
+    a1 AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`word` AS BINARY) AS a1
+    FROM `bitsift_golden` AS src
+  ) AS rows_1
+  GROUP BY
+    a1,
+    y
+  UNION ALL
+  SELECT
+    2 AS attr,
+    NULL AS a1,
+    a2 AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`level` AS BINARY) AS a2
+    FROM `bitsift_golden` AS src
+  ) AS rows_2
+  GROUP BY
+    a2,
+    y
+  UNION ALL
+  SELECT
+    3 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    a3 AS a3,
+    NULL AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`noise` AS BINARY) AS a3
+    FROM `bitsift_golden` AS src
+  ) AS rows_3
+  GROUP BY
+    a3,
+    y
+  UNION ALL
+  SELECT
+    4 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    a4 AS a4,
+    NULL AS a5,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CASE
+        WHEN src.`score` IS NULL
+        THEN NULL
+        WHEN CAST(src.`score` AS DOUBLE) < bounds.c4_1
+        THEN 0
+        WHEN CAST(src.`score` AS DOUBLE) < bounds.c4_2
+        THEN 1
+        WHEN CAST(src.`score` AS DOUBLE) < bounds.c4_3
+        THEN 2
+        ELSE 3
+      END AS a4
+    FROM `bitsift_golden` AS src
+    CROSS JOIN bounds_4 AS bounds
+  ) AS rows_4
+  GROUP BY
+    a4,
+    y
+  UNION ALL
+  SELECT
+    5 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    NULL AS a4,
+    a5 AS a5,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CASE
+        WHEN src.`ratio` IS NULL
+        THEN NULL
+        WHEN CAST(src.`ratio` AS DOUBLE) < bounds.c5_1
+        THEN 0
+        WHEN CAST(src.`ratio` AS DOUBLE) < bounds.c5_2
+        THEN 1
+        WHEN CAST(src.`ratio` AS DOUBLE) < bounds.c5_3
+        THEN 2
+        ELSE 3
+      END AS a5
+    FROM `bitsift_golden` AS src
+    CROSS JOIN bounds_5 AS bounds
+  ) AS rows_5
+  GROUP BY
+    a5,
+    y
   UNION ALL
   SELECT
     attr,

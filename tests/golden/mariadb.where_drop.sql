@@ -63,56 +63,107 @@ WITH RECURSIVE ordered_3 AS (
       ) * 0.666666666667) + 1 THEN v END)
     ) AS c3_2
   FROM ordered_3
-), bounds AS (
-  SELECT
-    *
-  FROM bounds_3
-), base AS (
-  SELECT
-    CAST(src.`y` AS BINARY) AS y,
-    CAST(src.`word` AS BINARY) AS a1,
-    CAST(src.`level` AS BINARY) AS a2,
-    CASE
-      WHEN src.`score` IS NULL
-      THEN NULL
-      WHEN CAST(src.`score` AS DOUBLE) < bounds.c3_1
-      THEN 0
-      WHEN CAST(src.`score` AS DOUBLE) < bounds.c3_2
-      THEN 1
-      ELSE 2
-    END AS a3
-  FROM `bitsift_golden` AS src
-  CROSS JOIN bounds
-  WHERE
-    src.`level` <> 3 OR src.`word` IS NULL
-), attribute_index AS (
-  SELECT
-    0 AS i
-  UNION ALL
-  SELECT
-    1 AS i
-  UNION ALL
-  SELECT
-    2 AS i
-  UNION ALL
-  SELECT
-    3 AS i
 ), counts AS (
   SELECT
-    k.i AS attr,
-    CASE WHEN k.i = 1 THEN b.a1 END AS a1,
-    CASE WHEN k.i = 2 THEN b.a2 END AS a2,
-    CASE WHEN k.i = 3 THEN b.a3 END AS a3,
-    b.y AS y,
+    0 AS attr,
+    a1,
+    a2,
+    a3,
+    y,
+    0 AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`word` AS BINARY) AS a1,
+      CAST(src.`level` AS BINARY) AS a2,
+      0 AS a3
+    FROM `bitsift_golden` AS src
+  ) AS typed_row
+  WHERE
+    1 = 0
+  UNION ALL
+  SELECT
+    0 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    y,
     COUNT(*) AS n
-  FROM base AS b
-  CROSS JOIN attribute_index AS k
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y
+    FROM `bitsift_golden` AS src
+    WHERE
+      src.`level` <> 3 OR src.`word` IS NULL
+  ) AS rows_0
   GROUP BY
-    k.i,
-    CASE WHEN k.i = 1 THEN b.a1 END,
-    CASE WHEN k.i = 2 THEN b.a2 END,
-    CASE WHEN k.i = 3 THEN b.a3 END,
-    b.y
+    y
+  UNION ALL
+  SELECT
+    1 AS attr,
+    a1 AS a1,
+    NULL AS a2,
+    NULL AS a3,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`word` AS BINARY) AS a1
+    FROM `bitsift_golden` AS src
+    WHERE
+      src.`level` <> 3 OR src.`word` IS NULL
+  ) AS rows_1
+  GROUP BY
+    a1,
+    y
+  UNION ALL
+  SELECT
+    2 AS attr,
+    NULL AS a1,
+    a2 AS a2,
+    NULL AS a3,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CAST(src.`level` AS BINARY) AS a2
+    FROM `bitsift_golden` AS src
+    WHERE
+      src.`level` <> 3 OR src.`word` IS NULL
+  ) AS rows_2
+  GROUP BY
+    a2,
+    y
+  UNION ALL
+  SELECT
+    3 AS attr,
+    NULL AS a1,
+    NULL AS a2,
+    a3 AS a3,
+    y,
+    COUNT(*) AS n
+  FROM (
+    SELECT
+      CAST(src.`y` AS BINARY) AS y,
+      CASE
+        WHEN src.`score` IS NULL
+        THEN NULL
+        WHEN CAST(src.`score` AS DOUBLE) < bounds.c3_1
+        THEN 0
+        WHEN CAST(src.`score` AS DOUBLE) < bounds.c3_2
+        THEN 1
+        ELSE 2
+      END AS a3
+    FROM `bitsift_golden` AS src
+    CROSS JOIN bounds_3 AS bounds
+    WHERE
+      src.`level` <> 3 OR src.`word` IS NULL
+  ) AS rows_3
+  GROUP BY
+    a3,
+    y
   UNION ALL
   SELECT
     attr,

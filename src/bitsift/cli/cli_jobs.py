@@ -10,6 +10,7 @@ import sys
 from typing import Any
 
 import click
+from click.core import ParameterSource
 
 from bitsift.cli.cli_counts import counts_drift, drift_counts_options
 from bitsift.cli.cli_options import print_notes
@@ -113,12 +114,28 @@ def drift_command(ctx: click.Context, /, job_file: str | None, results: str | No
     """
     thresholds = drift_lib.DriftThresholds(ig_change=ig_change, rank_change=rank_change,
                                            ig_rule=ig_rule)
-    report = counts_drift(ctx, job_file, thresholds, window) or _history_drift(
-        job_file, results, results_table, job_name, old, new, thresholds)
+    report = counts_drift(ctx, job_file, thresholds, window)
+    if report is None:
+        _refuse_ignored_results(ctx, job_file)
+        report = _history_drift(job_file, results, results_table, job_name, old, new,
+                                thresholds)
     render = drift_lib.render_json if fmt == "json" else drift_lib.render_text
     click.echo(render(report), nl=False)
     if report.drifted:
         sys.exit(drift_lib.DRIFT_EXIT_CODE)
+
+
+def _refuse_ignored_results(ctx: click.Context, job_file: str | None) -> None:
+    """--results and --results-table name a history instead of JOB_FILE: given next to one
+    (or --results-table alone), they were ignored and drift compared another table's runs, a
+    cron line watching the wrong history (found by hand, issue 21 item 5)."""
+    given = [name for name in ("results", "results_table")
+             if ctx.get_parameter_source(name) is not ParameterSource.DEFAULT]
+    if job_file and given:
+        raise click.UsageError(f"--{given[0].replace('_', '-')} names a history instead of "
+                               f"JOB_FILE; {one_line(job_file)} names its own in [results]")
+    if given == ["results_table"]:
+        raise click.UsageError("--results-table needs --results (the destination holding it)")
 
 
 def _history_drift(job_file: str | None, results: str | None, results_table: str,

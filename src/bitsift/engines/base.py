@@ -26,7 +26,7 @@ from bitsift.errors import (
     unknown_names_message,
 )
 from bitsift.names import resolve_name
-from bitsift.spec.schema import Column
+from bitsift.spec.schema import Column, NumberHint
 from bitsift.sql.dialects import Capabilities
 
 #: Schemas searched for a table of the name that was not found (the error path only).
@@ -85,6 +85,9 @@ class Engine(ABC):
     notes: list[str] = field(default_factory=list)
     #: Every statement sent, in order (for --debug and for the tests' statement log).
     statements: list[str] = field(default_factory=list)
+    #: Text columns of a data file whose values read as numbers (:attr:`Column.number_hint`),
+    #: by name; :meth:`columns` hands them on.
+    number_hints: dict[str, NumberHint] = field(default_factory=dict)
     #: Set by :meth:`cancel`: the session sends no further statement.
     cancelled: threading.Event = field(default_factory=threading.Event, repr=False,
                                        compare=False)
@@ -102,7 +105,11 @@ class Engine(ABC):
     def columns(self, table: exp.Expression, display: str) -> list[Column]:
         """The table's columns in catalog order, or :class:`TableNotFoundError`; those the
         database cannot group by marked ``groupable=False``, with a note naming each."""
-        return self._mark_ungroupable(table, self.catalog_columns(table, display))
+        columns = self._mark_ungroupable(table, self.catalog_columns(table, display))
+        if not self.number_hints:
+            return columns
+        return [replace(c, number_hint=self.number_hints[c.name])
+                if c.name in self.number_hints else c for c in columns]
 
     @abstractmethod
     def catalog_columns(self, table: exp.Expression, display: str) -> list[Column]:

@@ -17,6 +17,8 @@ from sqlglot import exp
 
 from bitsift.engines.duckdb_engine import DuckDBEngine
 from bitsift.engines.read_options import ReadValue
+from bitsift.errors import Option, Problem, flag_name
+from bitsift.spec.schema import NumberHint
 
 #: Rows read from the start of the file for the check (a LIMIT: the reader stops there).
 SAMPLE_ROWS = 10_000
@@ -30,19 +32,25 @@ def _named(value: exp.Expression, name: str) -> exp.Expression:
     return exp.Alias(this=value, alias=exp.to_identifier(name))
 
 
-def numeric_text_notes(engine: DuckDBEngine, table: exp.Expression,
-                       options: Sequence[tuple[str, ReadValue]] = ()) -> list[str]:
-    """Notes naming the text columns of ``table`` whose sampled values all read as numbers,
-    with the reader option that reads them so."""
+def hint_note(name: str, hint: NumberHint) -> str:
+    """The note on a text column holding numbers (the CLI's spelling of the option)."""
+    return Problem(None, (f"column {name!r} is read as text, but ", *hint)).render(flag_name)
+
+
+def numeric_text_hints(engine: DuckDBEngine, table: exp.Expression,
+                       options: Sequence[tuple[str, ReadValue]] = ()) -> dict[str, NumberHint]:
+    """For each text column of ``table`` whose sampled values all read as numbers, why and the
+    reader option that reads it so (the end of a sentence about the column; also in the
+    refusal of such a column as ``numeric``, :attr:`bitsift.spec.schema.Column.number_hint`)."""
     try:
         relation = engine.con.sql(exp.select(exp.Star()).from_(table.copy()).limit(0)
                                   .sql("duckdb"))
         text = [n for n, t in zip(relation.columns, relation.types, strict=True)
                 if str(t) == "VARCHAR"]
     except duckdb.Error:
-        return []  # the reader's own error, reported when the columns are described
+        return {}  # the reader's own error, reported when the columns are described
     if not text:
-        return []
+        return {}
     measures: list[exp.Expression] = []
     for index, name in enumerate(text):
         column: exp.Expression = exp.column(exp.to_identifier(name, quoted=True))
@@ -57,21 +65,22 @@ def numeric_text_notes(engine: DuckDBEngine, table: exp.Expression,
     try:
         row = engine.con.execute(exp.select(*measures).from_(sample).sql("duckdb")).fetchone()
     except duckdb.Error:
-        return []
+        return {}
     if row is None:
-        return []
+        return {}
     decimal_comma = ("decimal", ",") in options
-    notes = []
+    hints: dict[str, NumberHint] = {}
+    read_option = Option("read_option")
     for index, name in enumerate(text):
         present, numbers, with_comma = row[3 * index:3 * index + 3]
         if not present:
             continue
         if numbers == present or (decimal_comma and with_comma == present):
-            notes.append(f"column {name!r} is read as text, but its values (first "
-                         f"{SAMPLE_ROWS:,} rows) all read as numbers (inf or nan among them?): "
-                         f"--read-option double={name} reads it as a number")
+            hints[name] = (f"its values (first {SAMPLE_ROWS:,} rows) all read as numbers (inf "
+                           "or nan among them?): ", read_option,
+                           f" double={name} reads it as a number")
         elif with_comma == present and not decimal_comma:
-            notes.append(f"column {name!r} is read as text, but its values read as numbers "
-                         "with a decimal comma: --read-option decimal=, (and delimiter=; for a "
-                         "semicolon file) reads it as a number")
-    return notes
+            hints[name] = ("its values read as numbers with a decimal comma: ", read_option,
+                           " decimal=, (and delimiter=; for a semicolon file) reads it as a "
+                           "number")
+    return hints

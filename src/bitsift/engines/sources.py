@@ -15,7 +15,7 @@ from sqlglot import exp
 
 from bitsift.engines.base import Engine
 from bitsift.engines.duckdb_engine import DuckDBEngine, file_reader, file_table, is_frame
-from bitsift.engines.file_checks import numeric_text_notes
+from bitsift.engines.file_checks import hint_note, numeric_text_hints
 from bitsift.engines.masking import mask_url
 from bitsift.engines.read_options import FileSource, ReadValue, reader_arguments
 from bitsift.engines.sqlite_support import is_sqlite_file
@@ -165,7 +165,9 @@ def _open_file(path: str, table: str | None,
     try:
         refuse_renamed_columns(engine, path, arguments)
         if reader == "read_csv_auto":
-            engine.notes += numeric_text_notes(engine, file_table(path, arguments), options)
+            engine.number_hints = numeric_text_hints(engine, file_table(path, arguments),
+                                                     options)
+            engine.notes += [hint_note(n, h) for n, h in engine.number_hints.items()]
     except SourceError:
         engine.close()
         raise

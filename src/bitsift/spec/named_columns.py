@@ -54,9 +54,12 @@ def check_binnable(named: NamedColumns, by_name: dict[str, Column]) -> None:
     binnable = NUMERIC_FAMILIES | TEMPORAL_FAMILIES
     not_numeric = [n for n in named.numeric if by_name[n].family not in binnable]
     if not_numeric:
-        raise ColumnError.option(
-            "numeric", " needs number columns (or dates and timestamps, binned as epoch "
-            "seconds); not those: " + typed_names(not_numeric, by_name))
+        # A data file's text column holding numbers: the reader option that reads it so.
+        hints = [part for n in not_numeric if by_name[n].number_hint
+                 for part in (f". {n!r} is read as text, but ", *by_name[n].number_hint)]
+        raise ColumnError(problems=[Problem("numeric", (
+            Option("numeric"), " needs number columns (or dates and timestamps, binned as "
+            "epoch seconds); not those: " + typed_names(not_numeric, by_name), *hints))])
     # "other": a column described without a connection (`bitsift sql` with no SOURCE).
     not_dates = [n for n in named.dated
                  if by_name[n].family not in TEMPORAL_FAMILIES | {"other"}]

@@ -36,6 +36,10 @@ for _t in (exp.DataType.Type.DECIMAL, exp.DataType.Type.BIGDECIMAL, exp.DataType
     _FAMILY_OF_TYPE[_t.value] = "decimal"
 
 
+#: Message parts (text and options, :class:`~bitsift.errors.Problem`'s) ending a sentence.
+NumberHint = tuple[str | Option, ...]
+
+
 @dataclass(frozen=True)
 class Column:
     """A column of the source table as the catalog spells it."""
@@ -46,6 +50,10 @@ class Column:
     #: False when the database cannot GROUP BY this column's type (PostgreSQL json, xml,
     #: point...): such a column can be neither ranked nor a target, segment or weight.
     groupable: bool = True
+    #: A text column of a data file whose values read as numbers: why, and the reader option
+    #: that reads it as one (message parts, the end of a sentence about the column; empty
+    #: otherwise). Named where the column is refused as ``numeric`` (issue 21 item 3).
+    number_hint: NumberHint = ()
 
     @property
     def default_kind(self) -> Kind:

@@ -41,12 +41,14 @@ SQLite 3.40.1          (not available)  9.5 s            37.7 s
 - Not executed here: every dialect with GROUPING SETS uses them (one scan); sqlglot cannot
   emit them for the others.
 - Pasted statements that compute their own cut points (a ``bounds`` CTE joined into
-  ``base``) use ``paste_count_strategy`` where it is set: MariaDB ``cross_join`` (``base`` is
+  ``base``) use ``paste_count_strategy`` where it is set: MariaDB ``union_scans`` (``base`` is
   evaluated once per reference there, so ``union_all`` recomputed every quantile per
-  attribute: 172 s against 33 s) with ``counts`` shared (``paste_shared_ctes``: each later
-  step's reference recomputed it, 39.5 s against 7.8 s), PostgreSQL ``union_all`` (at a
-  console's default work_mem: 5.6 s against 13.2 s for GROUPING SETS).
-  benchmarks/RESULTS.md, "Paste mode".
+  attribute: 172 s against 33 s for the cross join; reading the table per attribute with
+  only that attribute's bounds computes each quantile once: 7.8 s against 10.5 s for the
+  cross join) with ``counts`` shared (``paste_shared_ctes``: each later step's reference
+  recomputed it, 39.5 s against 7.8 s), PostgreSQL ``union_all`` (at a console's default
+  work_mem: 5.6 s against 13.2 s for GROUPING SETS; ``union_scans`` 5.9 s against 3.2 s:
+  PostgreSQL materializes a shared ``base`` once). benchmarks/RESULTS.md, "Paste mode".
 
 Text grouping: MySQL/MariaDB compare text under the column's collation; their defaults are
 case-insensitive and PAD SPACE, so ``GROUP BY`` would merge 'a' with 'A' and 'x' with 'x '.
@@ -69,7 +71,11 @@ from bitsift.errors import SpecError
 #: ``grouping_sets``: one scan, ``GROUP BY GROUPING SETS ((a1, y), (a2, y), ...)``.
 #: ``union_all``: one narrow ``GROUP BY ai, y`` per attribute glued by UNION ALL.
 #: ``cross_join``: one scan, rows repeated per attribute index, one GROUP BY.
-CountStrategy = Literal["grouping_sets", "union_all", "cross_join"]
+#: ``union_scans``: as ``union_all``, but each branch reads the table itself, joined with
+#: only its own attribute's cut points (a pasted statement's ``bounds`` parts): for engines
+#: that evaluate a CTE once per reference. The ranking statement only; the pair and drill-down
+#: statements count it as ``union_all`` (their cut points are always literals).
+CountStrategy = Literal["grouping_sets", "union_all", "cross_join", "union_scans"]
 
 #: How quantile boundaries of numeric attributes are computed.
 #: ``quantile_cont``: DuckDB's ``quantile_cont(x, p)`` aggregate (exact).
@@ -268,12 +274,15 @@ CAPABILITIES: dict[str, Capabilities] = {
         # MariaDB speaks MySQL's SQL (sqlglot's mysql dialect) and has no GROUPING() at all;
         # its default utf8mb4_general_ci is case-insensitive and PAD SPACE, so text is
         # grouped as BINARY.
-        # Pasted with its own cut points, union_all recomputed the window quantiles once per
-        # attribute: 200k rows x 3 categorical + 4 numeric took 172 s, 33 s with the cross
-        # join, 6 s in run mode; `counts` shared (one recursive CTE, read five times) brought
-        # the cross join from 39.5 s to 7.8 s (benchmarks/paste_strategies.py, RESULTS.md).
+        # Pasted with its own cut points, union_all over a shared `base` recomputed every
+        # window quantile once per attribute: 200k rows x 3 categorical + 4 numeric took
+        # 172 s, 33 s with the cross join, 6 s in run mode; `counts` shared (one recursive
+        # CTE, read five times) brought the cross join from 39.5 s to 7.8 s; union_scans
+        # (each branch reads the table with only its own attribute's bounds) with `counts`
+        # shared: 7.8 s against 10.5 s for that cross join, measured side by side (load 3;
+        # 1.3 x again at load 4-5) (benchmarks/paste_strategies.py, RESULTS.md).
         _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY",
-                 paste_count_strategy="cross_join", paste_shared_ctes=("counts",)),
+                 paste_count_strategy="union_scans", paste_shared_ctes=("counts",)),
         _dialect("snowflake", quantile="percentile_cont"),
         _dialect("bigquery"),
         # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.

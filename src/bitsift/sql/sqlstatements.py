@@ -41,6 +41,12 @@ from bitsift.sql.sqlbuild import (
 from bitsift.sql.templates import render
 
 
+def literal_cut_strategy(caps: Capabilities) -> str:
+    """The count strategy of a statement whose cut points are all literals (pairs, drill-down):
+    ``union_scans`` differs from ``union_all`` only where a branch joins computed cut points."""
+    return "union_all" if caps.count_strategy == "union_scans" else caps.count_strategy
+
+
 def _quantile_context(spec: RankSpec, attributes: Sequence[dict[str, object]],
                       caps: Capabilities) -> dict[str, object]:
     return {
@@ -173,7 +179,7 @@ def profile_statement(
         "target_exact": exact_grouping(spec.target_family, caps),
         "attributes": attributes,
         "where": where_sql(spec),
-        "strategy": caps.count_strategy,
+        "strategy": literal_cut_strategy(caps),
         "drop_missing": spec.options.missing == "drop",
     }
     return finish(render("profile.sql.j2", **context), caps, pretty)
@@ -252,7 +258,7 @@ def pairs_statement(
         "attributes": attributes,
         "pairs": pair_rows,
         "qualified_where": qualified_where_sql(spec),
-        "strategy": caps.count_strategy,
+        "strategy": literal_cut_strategy(caps),
         "drop_missing": spec.options.missing == "drop",
     }
     return finish(render("pairs.sql.j2", **context), caps, pretty)
