@@ -18,7 +18,7 @@ from bitsift.engines.duckdb_engine import file_reader, is_frame
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import Option, Problem, SpecError
 from bitsift.names import split_names
-from bitsift.run import concurrent, metrics
+from bitsift.run import concurrent
 from bitsift.run.cuts import fetch_cuts, fetch_mdl_cuts  # noqa: F401 - re-exported for callers
 from bitsift.run.readout import read_ranking, read_segments
 from bitsift.run.result import Ranking, SegmentedRanking
@@ -108,11 +108,9 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
     :func:`bitsift.run.concurrent.fetch_records_in_parts`.
     """
     # The engine's run_sessions (its run policy): parts of the attributes at once
-    # (benchmarks/RESULTS.md); one session runs the same parts one after another. While the
-    # sessions work, this thread imports what the p-values need (issue 20: fixed costs).
+    # (benchmarks/RESULTS.md); one session runs the same parts one after another.
     return concurrent.fetch_records_in_parts(engine, spec, concurrent.sessions_for(engine, spec),
-                                             MAX_ATTRIBUTES_PER_STATEMENT,
-                                             meanwhile=metrics.load_p_value)
+                                             MAX_ATTRIBUTES_PER_STATEMENT)
 
 
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:

@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import contextlib
 import math
 from collections.abc import Callable, Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
+from bitsift.run.chisquare import chi2_sf
 from bitsift.run.result import AttributeScore
 from bitsift.spec.rankspec import CONFIDENCE_Z, Thresholds
 
@@ -51,28 +51,19 @@ def snap_total(value: float) -> float:
 
 
 def p_value(g_statistic: float, dof: int) -> float:
-    """Chi-square survival function of the G statistic; 1.0 when there is no freedom.
+    """Chi-square survival function of the G statistic; 1.0 when there is no freedom (and for
+    a G that is not finite, which no table of counts gives).
 
-    SciPy's ``chdtrc``: the function ``scipy.stats.chi2.sf`` calls, the same bits
-    (tests/test_startup.py), without importing ``scipy.stats`` (most of a second).
+    Computed in pure Python (:func:`bitsift.run.chisquare.chi2_sf`), within 1e-12 relative of
+    ``scipy.stats.chi2.sf`` (tests/test_chisquare.py), so that a ranking imports neither
+    SciPy nor NumPy for it (0.4 s of CPU: issue 20, fixed costs).
 
     >>> round(p_value(3.841458820694124, 1), 6)
     0.05
     """
     if dof <= 0 or not math.isfinite(g_statistic):
         return 1.0
-    from scipy.special import chdtrc
-
-    return float(chdtrc(dof, max(g_statistic, 0.0)))
-
-
-def load_p_value() -> None:
-    """Import what :func:`p_value` needs (``scipy.special``, and with it NumPy: 0.15-0.25 s
-    of a small ranking's process) now, for a caller that would otherwise sit waiting for the
-    database (:func:`bitsift.run.concurrent.fetch_records_in_parts`). A failed import is left
-    for :func:`p_value` to raise where the p-value is needed."""
-    with contextlib.suppress(ImportError):
-        import scipy.special  # noqa: F401 - imported for its side effect: loaded once
+    return chi2_sf(max(g_statistic, 0.0), dof)
 
 
 def flags_for(distinct: int, rows: int, information_gain: float, target_entropy: float,
