@@ -67,7 +67,7 @@ def chi2_sf(statistic: float, dof: float) -> float:
     statistic, dof = float(statistic), float(dof)
     if math.isnan(statistic) or not math.isfinite(dof) or dof <= 0:
         return math.nan
-    if statistic <= 0:
+    if statistic / 2 <= 0:  # 5e-324 halves to 0: P(X < 5e-324) is below any double anyway
         return 1.0
     if statistic == math.inf:
         return 0.0
