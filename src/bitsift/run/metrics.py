@@ -3,16 +3,12 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping, Sequence
-from typing import TYPE_CHECKING, Any
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from typing import Any
 
 from bitsift.run.chisquare import chi2_sf
 from bitsift.run.result import AttributeScore
 from bitsift.spec.rankspec import CONFIDENCE_Z, Thresholds
-
-if TYPE_CHECKING:
-    import numpy as np
-    from numpy.typing import ArrayLike
 
 FLAG_DESCRIPTIONS: dict[str, str] = {
     "id_like": "distinct values close to the row count: an identifier, its IG is an artefact",
@@ -81,15 +77,12 @@ def flags_for(distinct: int, rows: int, information_gain: float, target_entropy:
     return flags
 
 
-def _n_ln_n(counts: np.ndarray) -> float:
+def _n_ln_n(counts: Iterable[float]) -> float:
     """The sum of n ln n over the positive counts, exactly rounded (so in any order the same)."""
-    import numpy as np
-
-    positive = counts[counts > 0]
-    return math.fsum((positive * np.log(positive)).tolist())
+    return math.fsum(n * math.log(n) for n in counts if n > 0)
 
 
-def table_row(table: ArrayLike) -> dict[str, Any] | None:
+def table_row(table: Iterable[Iterable[float]]) -> dict[str, Any] | None:
     """The fields the ranking statement computes for one attribute, from its value x class
     counts counted beforehand (rows: values, columns: classes; rows without a target and, with
     ``--missing drop``, the NULL value left out). None when no row is counted, where the
@@ -103,25 +96,30 @@ def table_row(table: ArrayLike) -> dict[str, Any] | None:
     >>> row["distinct_values"], row["dof"], round(row["information_gain"], 3)
     (3, 2, 0.247)
     """
-    import numpy as np
-
-    t = np.atleast_2d(np.asarray(table, dtype=float))
-    n_x, n_y = t.sum(axis=1), t.sum(axis=0)
-    n_total = math.fsum(n_x.tolist())
+    # Plain Python, not NumPy: the tables are small (values x classes) and a ranking with
+    # numeric attributes then imports no NumPy (issue 20, fixed costs).
+    t = [[float(n) for n in row] for row in table]
+    n_x = [math.fsum(row) for row in t]
+    n_y = [math.fsum(column) for column in zip(*t, strict=True)]
+    n_total = math.fsum(n_x)
     if n_total <= 0:
         return None
-    n_values, n_classes = int((n_x > 0).sum()), int((n_y > 0).sum())
-    s_xy, s_x, s_y = _n_ln_n(t.ravel()), _n_ln_n(n_x), _n_ln_n(n_y)
+    n_values, n_classes = sum(n > 0 for n in n_x), sum(n > 0 for n in n_y)
+    s_xy, s_x, s_y = _n_ln_n(n for row in t for n in row), _n_ln_n(n_x), _n_ln_n(n_y)
     ln_n, ln_2 = math.log(n_total), math.log(2)
     h_y = (ln_n - s_y / n_total) / ln_2 if n_classes > 1 else 0.0
     h_x = (ln_n - s_x / n_total) / ln_2 if n_values > 1 else 0.0
     gain = h_y - (s_x - s_xy) / n_total / ln_2
     ig = gain if n_values > 1 and gain > 0 else 0.0
     # K - J², as the statement computes it: Σ n·ratio² over the positive cells, exactly summed.
-    rows, columns = np.nonzero(t)
-    cells = t[rows, columns]
-    ratio = ((np.log(cells) - np.log(n_x[rows])) - (np.log(n_y[columns]) - ln_n))
-    k_bits = math.fsum((cells * ratio * ratio).tolist()) / n_total / (ln_2 * ln_2)
+    squares = []
+    for row, row_total in zip(t, n_x, strict=True):
+        for cell, column_total in zip(row, n_y, strict=True):
+            if cell > 0:
+                ratio = ((math.log(cell) - math.log(row_total))
+                         - (math.log(column_total) - ln_n))
+                squares.append(cell * ratio * ratio)
+    k_bits = math.fsum(squares) / n_total / (ln_2 * ln_2)
     variance = max(k_bits - gain * gain, 0.0)
     return {
         "rows_used": int(n_total),
