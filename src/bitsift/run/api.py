@@ -303,6 +303,12 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
     When the table has at most ``sample_rows`` rows the whole table is compared and the
     numbers must agree to 1e-9 (relative for the G statistic); otherwise a sample is pulled
     and the differences are reported for information only.
+
+    The p-values are compared as the other numbers of at most 1 are: absolutely, to 1e-9.
+    bitsift computes its chi-square tail itself (:mod:`bitsift.run.chisquare`, within 1e-12
+    relative of SciPy's), the reference with SciPy from its own G, so the check still sees
+    the p-value's formula and its input; a relative test of tails of 1e-100 would only
+    magnify G's last-bit differences (a tail moves by about G/2 times G's relative change).
     """
     if sample_rows < 1:
         raise SpecError.option("sample_rows", f" must be at least 1, not {sample_rows}")
