@@ -48,7 +48,8 @@ def _rank_loads(tmp_path: Path, columns: str) -> set[str]:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("columns", ["i % 3 AS a, (i % 5)::VARCHAR AS b", "i % 3 AS a, i * 0.5 AS x"])
+@pytest.mark.parametrize("columns", ["i % 3 AS a, (i % 5)::VARCHAR AS b",
+                                     "i % 3 AS a, i * 0.5 AS x"])
 def test_a_duckdb_ranking_loads_neither_scipy_nor_numpy(tmp_path: Path, columns: str) -> None:
     """The p-values are computed in pure Python (run/chisquare.py), and so are the metrics of
     numeric attributes counted in buckets (metrics.table_row): nothing on the list."""
