@@ -141,3 +141,25 @@ def test_check_detects_a_disagreement(con: duckdb.DuckDBPyConnection) -> None:
     report = _compare(ranking, spec, data, whole=True)
     assert not report.ok
     assert report.differences["information_gain"] == pytest.approx(1e-6, rel=1e-6)
+
+
+def test_check_accepts_the_p_values_rounding_and_sees_a_wrong_one(
+        con: duckdb.DuckDBPyConnection) -> None:
+    """bitsift's chi-square tail is within 1e-12 relative of SciPy's (tests/test_chisquare.py):
+    the check accepts that, and still fails a p-value off by 1e-6."""
+    ranking = bitsift.rank(con, target="c", table="t")
+    rows = con.execute("SELECT c, a, b, v FROM t").fetchall()
+    data = {name: [r[i] for r in rows] for i, name in enumerate(["c", "a", "b", "v"])}
+    columns = [Column("a", "integer"), Column("b", "integer"), Column("v", "float"),
+               Column("c", "text")]
+    spec = resolve(make_options("c"), columns, parse_table_name("t", "duckdb"), "t", "duckdb")
+    report = _compare(ranking, spec, data, whole=True)
+    assert report.ok and report.differences["p_value"] <= 1e-12
+    scored = ranking["b"]  # p 1.9e-15: a tail, where only an absolute test is not noise
+    assert scored.p_value is not None
+    scored.p_value *= 1 + 1e-12
+    assert _compare(ranking, spec, data, whole=True).ok
+    scored.p_value += 1e-6
+    report = _compare(ranking, spec, data, whole=True)
+    assert not report.ok
+    assert report.differences["p_value"] == pytest.approx(1e-6, rel=1e-3)

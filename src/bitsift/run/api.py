@@ -18,7 +18,7 @@ from bitsift.engines.duckdb_engine import file_reader, is_frame
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import Option, Problem, SpecError
 from bitsift.names import split_names
-from bitsift.run import concurrent, metrics
+from bitsift.run import concurrent
 from bitsift.run.cuts import fetch_cuts, fetch_mdl_cuts  # noqa: F401 - re-exported for callers
 from bitsift.run.readout import read_ranking, read_segments
 from bitsift.run.result import Ranking, SegmentedRanking
@@ -108,11 +108,9 @@ def fetch_records(engine: Engine, spec: RankSpec) -> tuple[list[dict[str, Any]],
     :func:`bitsift.run.concurrent.fetch_records_in_parts`.
     """
     # The engine's run_sessions (its run policy): parts of the attributes at once
-    # (benchmarks/RESULTS.md); one session runs the same parts one after another. While the
-    # sessions work, this thread imports what the p-values need (issue 20: fixed costs).
+    # (benchmarks/RESULTS.md); one session runs the same parts one after another.
     return concurrent.fetch_records_in_parts(engine, spec, concurrent.sessions_for(engine, spec),
-                                             MAX_ATTRIBUTES_PER_STATEMENT,
-                                             meanwhile=metrics.load_p_value)
+                                             MAX_ATTRIBUTES_PER_STATEMENT)
 
 
 def run_ranking(engine: Engine, spec: RankSpec) -> Ranking:
@@ -305,6 +303,12 @@ def check(source: Any, target: str, table: str | None = None, *, sample_rows: in
     When the table has at most ``sample_rows`` rows the whole table is compared and the
     numbers must agree to 1e-9 (relative for the G statistic); otherwise a sample is pulled
     and the differences are reported for information only.
+
+    The p-values are compared as the other numbers of at most 1 are: absolutely, to 1e-9.
+    bitsift computes its chi-square tail itself (:mod:`bitsift.run.chisquare`, within 1e-12
+    relative of SciPy's), the reference with SciPy from its own G, so the check still sees
+    the p-value's formula and its input; a relative test of tails of 1e-100 would only
+    magnify G's last-bit differences (a tail moves by about G/2 times G's relative change).
     """
     if sample_rows < 1:
         raise SpecError.option("sample_rows", f" must be at least 1, not {sample_rows}")

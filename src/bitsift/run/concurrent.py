@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import queue
 import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Iterator, Sequence
 from concurrent.futures import FIRST_EXCEPTION, Future, ThreadPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
@@ -150,15 +150,13 @@ def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> lis
 
 
 def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_size: int,
-                           meanwhile: Callable[[], object] | None = None,
                            ) -> tuple[list[Record], dict[str, list[float]]]:
     """Result rows and cut points of the ranking, as :func:`bitsift.run.api.fetch_records` returns
     them, computed in parts run at once on ``sessions`` sessions.
 
     The attributes are cut into ``sessions`` parts of about equal cost (more if one part would
     hold more than ``max_size`` attributes; see :func:`_groups`); each part is ranked by
-    :func:`rank_part` on the spec narrowed to it. ``meanwhile``: work for the calling thread
-    while the sessions run (it would only wait for them), done only when they run at once.
+    :func:`rank_part` on the spec narrowed to it.
     """
     groups = _groups(engine, spec, sessions, max_size)
     narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
@@ -169,22 +167,18 @@ def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_si
         max_workers=size, thread_name_prefix="bitsift"
     ) as executor:
         futures = [executor.submit(_run_on_pool, pool, part) for part in narrowed]
-        results = _results(futures, pool, meanwhile)
+        results = _results(futures, pool)
     return _merge(groups, results)
 
 
-def _results(futures: list[Future[PartResult]], pool: SessionPool,
-             meanwhile: Callable[[], object] | None = None) -> list[PartResult]:
+def _results(futures: list[Future[PartResult]], pool: SessionPool) -> list[PartResult]:
     """The parts' results in order, or the first part's failure once every other session's
-    statement is stopped; on Ctrl-C or SIGTERM too (a KeyboardInterrupt in this thread),
-    and if ``meanwhile``, run first, fails.
+    statement is stopped; on Ctrl-C or SIGTERM too (a KeyboardInterrupt in this thread).
 
     Waits for the first failure, not for the parts in order: a failed second session must not
     wait for the first one's statement to run to its end.
     """
     try:
-        if meanwhile is not None:
-            meanwhile()
         wait(futures, return_when=FIRST_EXCEPTION)
     except BaseException:
         _stop(futures, pool)

@@ -2,17 +2,13 @@
 
 from __future__ import annotations
 
-import contextlib
 import math
-from collections.abc import Callable, Mapping, Sequence
-from typing import TYPE_CHECKING, Any
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from typing import Any
 
+from bitsift.run.chisquare import chi2_sf
 from bitsift.run.result import AttributeScore
 from bitsift.spec.rankspec import CONFIDENCE_Z, Thresholds
-
-if TYPE_CHECKING:
-    import numpy as np
-    from numpy.typing import ArrayLike
 
 FLAG_DESCRIPTIONS: dict[str, str] = {
     "id_like": "distinct values close to the row count: an identifier, its IG is an artefact",
@@ -51,28 +47,19 @@ def snap_total(value: float) -> float:
 
 
 def p_value(g_statistic: float, dof: int) -> float:
-    """Chi-square survival function of the G statistic; 1.0 when there is no freedom.
+    """Chi-square survival function of the G statistic; 1.0 when there is no freedom (and for
+    a G that is not finite, which no table of counts gives).
 
-    SciPy's ``chdtrc``: the function ``scipy.stats.chi2.sf`` calls, the same bits
-    (tests/test_startup.py), without importing ``scipy.stats`` (most of a second).
+    Computed in pure Python (:func:`bitsift.run.chisquare.chi2_sf`), within 1e-12 relative of
+    ``scipy.stats.chi2.sf`` (tests/test_chisquare.py), so that a ranking imports neither
+    SciPy nor NumPy for it (0.4 s of CPU: issue 20, fixed costs).
 
     >>> round(p_value(3.841458820694124, 1), 6)
     0.05
     """
     if dof <= 0 or not math.isfinite(g_statistic):
         return 1.0
-    from scipy.special import chdtrc
-
-    return float(chdtrc(dof, max(g_statistic, 0.0)))
-
-
-def load_p_value() -> None:
-    """Import what :func:`p_value` needs (``scipy.special``, and with it NumPy: 0.15-0.25 s
-    of a small ranking's process) now, for a caller that would otherwise sit waiting for the
-    database (:func:`bitsift.run.concurrent.fetch_records_in_parts`). A failed import is left
-    for :func:`p_value` to raise where the p-value is needed."""
-    with contextlib.suppress(ImportError):
-        import scipy.special  # noqa: F401 - imported for its side effect: loaded once
+    return chi2_sf(max(g_statistic, 0.0), dof)
 
 
 def flags_for(distinct: int, rows: int, information_gain: float, target_entropy: float,
@@ -90,15 +77,12 @@ def flags_for(distinct: int, rows: int, information_gain: float, target_entropy:
     return flags
 
 
-def _n_ln_n(counts: np.ndarray) -> float:
+def _n_ln_n(counts: Iterable[float]) -> float:
     """The sum of n ln n over the positive counts, exactly rounded (so in any order the same)."""
-    import numpy as np
-
-    positive = counts[counts > 0]
-    return math.fsum((positive * np.log(positive)).tolist())
+    return math.fsum(n * math.log(n) for n in counts if n > 0)
 
 
-def table_row(table: ArrayLike) -> dict[str, Any] | None:
+def table_row(table: Iterable[Iterable[float]]) -> dict[str, Any] | None:
     """The fields the ranking statement computes for one attribute, from its value x class
     counts counted beforehand (rows: values, columns: classes; rows without a target and, with
     ``--missing drop``, the NULL value left out). None when no row is counted, where the
@@ -112,25 +96,30 @@ def table_row(table: ArrayLike) -> dict[str, Any] | None:
     >>> row["distinct_values"], row["dof"], round(row["information_gain"], 3)
     (3, 2, 0.247)
     """
-    import numpy as np
-
-    t = np.atleast_2d(np.asarray(table, dtype=float))
-    n_x, n_y = t.sum(axis=1), t.sum(axis=0)
-    n_total = math.fsum(n_x.tolist())
+    # Plain Python, not NumPy: the tables are small (values x classes) and a ranking with
+    # numeric attributes then imports no NumPy (issue 20, fixed costs).
+    t = [[float(n) for n in row] for row in table]
+    n_x = [math.fsum(row) for row in t]
+    n_y = [math.fsum(column) for column in zip(*t, strict=True)]
+    n_total = math.fsum(n_x)
     if n_total <= 0:
         return None
-    n_values, n_classes = int((n_x > 0).sum()), int((n_y > 0).sum())
-    s_xy, s_x, s_y = _n_ln_n(t.ravel()), _n_ln_n(n_x), _n_ln_n(n_y)
+    n_values, n_classes = sum(n > 0 for n in n_x), sum(n > 0 for n in n_y)
+    s_xy, s_x, s_y = _n_ln_n(n for row in t for n in row), _n_ln_n(n_x), _n_ln_n(n_y)
     ln_n, ln_2 = math.log(n_total), math.log(2)
     h_y = (ln_n - s_y / n_total) / ln_2 if n_classes > 1 else 0.0
     h_x = (ln_n - s_x / n_total) / ln_2 if n_values > 1 else 0.0
     gain = h_y - (s_x - s_xy) / n_total / ln_2
     ig = gain if n_values > 1 and gain > 0 else 0.0
     # K - J², as the statement computes it: Σ n·ratio² over the positive cells, exactly summed.
-    rows, columns = np.nonzero(t)
-    cells = t[rows, columns]
-    ratio = ((np.log(cells) - np.log(n_x[rows])) - (np.log(n_y[columns]) - ln_n))
-    k_bits = math.fsum((cells * ratio * ratio).tolist()) / n_total / (ln_2 * ln_2)
+    squares = []
+    for row, row_total in zip(t, n_x, strict=True):
+        for cell, column_total in zip(row, n_y, strict=True):
+            if cell > 0:
+                ratio = ((math.log(cell) - math.log(row_total))
+                         - (math.log(column_total) - ln_n))
+                squares.append(cell * ratio * ratio)
+    k_bits = math.fsum(squares) / n_total / (ln_2 * ln_2)
     variance = max(k_bits - gain * gain, 0.0)
     return {
         "rows_used": int(n_total),
