@@ -45,6 +45,15 @@ from bitsift.spec.rankspec import RankSpec
 from bitsift.sql.sqlbuild import rank_statement
 from bitsift.sql.sqlstatements import quantile_cells_statement, quantile_splits_statement
 
+#: A cut point on a bucket edge stands for the exact quantile when the rows it leaves below
+#: it differ from the exact quantile's by at most this share of a bin's rows (1 % of the
+#: rows at 10 bins); otherwise that attribute's exact quantiles are found (step 3).
+NEAR_SHARE = 0.1
+#: Up to this many rows with a value, every cut point is exact: step 3 reads so few rows that
+#: it costs next to nothing (measured on DuckDB: 2M rows x 4 numeric columns, step 3 took
+#: 0.28 s alone, against 0.23 s for step 2).
+EXACT_ROWS = 100_000
+
 #: A class as Python sees it (NaN made equal to NaN, as the engines group it); None: NULL.
 ClassKey = Hashable
 PerClass = dict[ClassKey, int]
@@ -79,6 +88,9 @@ class Cells:
     missing: PerClass = field(default_factory=dict)
     #: class (None included) -> rows, every row: the target's own counts.
     all_rows: PerClass = field(default_factory=dict)
+    #: bucket -> its lowest and its highest value, over the rows with a target.
+    low: dict[int, float] = field(default_factory=dict)
+    high: dict[int, float] = field(default_factory=dict)
 
     def totals(self) -> PerClass:
         found: PerClass = defaultdict(int)
@@ -126,7 +138,11 @@ def _cells(engine: Engine, spec: RankSpec, plans: Mapping[int, Plan]) -> dict[in
         elif bucket is None:
             _add(found.missing, key, n)
         else:
-            _add(found.buckets[int(bucket)], key, n)
+            at = int(bucket)
+            _add(found.buckets[at], key, n)
+            low, high = float(record["v_low"]), float(record["v_high"])
+            found.low[at] = min(low, found.low.get(at, low))
+            found.high[at] = max(high, found.high.get(at, high))
     for found in cells.values():
         found.plan.bucket_rows = {b: sum(c.values()) for b, c in found.buckets.items()}
     return cells
@@ -180,16 +196,78 @@ def _bins(cells: Cells, splits: Mapping[tuple[int, int, int], Split],
                 _add(counted, key, n)
         below[cut] = counted
     cuts = sorted(below)
-    bounds = [below[c] for c in cuts] + [totals]
+    counts = _differences([below[c] for c in cuts] + [totals])
+    if any(n < 0 for per_class in counts for n in per_class.values()):
+        return None  # cannot happen with consistent steps: never trust it silently
+    return cuts, counts
+
+
+def _known(cells: Cells, bucket: int, position: int) -> float | None:
+    """The value at ``position`` (from 1) of ``bucket`` where the bucket's lowest and highest
+    values give it (its first or last row, or a bucket of one value), else None."""
+    low, high = cells.low[bucket], cells.high[bucket]
+    if position == 1 or low == high:
+        return low
+    return high if position == cells.plan.bucket_rows[bucket] else None
+
+
+def _edge(cells: Cells, bins: int, h: float, k: int, k1: int,
+          near_share: float) -> tuple[float, int] | None:
+    """One quantile level's cut point and the bucket it starts (the cut leaves exactly the
+    buckets before that one below it), or None when the level needs step 3.
+
+    The exact quantile (numpy's, from ``v[k]`` and ``v[k1]``) where the counts alone place it
+    on a bucket edge: between the last value of one bucket and the first of the next, or on
+    the lowest value of its bucket. Otherwise the lowest value of the bucket holding ``v[k]``
+    or of the next bucket, whichever leaves below it a row count nearer to ``ceil(h)`` (the
+    rows below the exact quantile when no two values tie; the lower one on a tie); None when
+    that count is further from ``ceil(h)`` than ``near_share`` of a bin's rows."""
+    plan = cells.plan
+    (bucket, position), (bucket1, position1) = plan.locate(k), plan.locate(k1)
+    low, high = _known(cells, bucket, position), _known(cells, bucket1, position1)
+    if low is not None and high is not None:
+        cut = interpolate(low, high, h - k)
+        if cut > low and bucket1 != bucket:
+            return cut, bucket1
+        if cut == low == cells.low[bucket]:
+            return cut, bucket
+    at = plan.order.index(bucket)
+    target = math.ceil(h)
+    candidates = [(abs(plan.offsets[at] - target), plan.offsets[at], bucket)]
+    if at + 1 < len(plan.order):
+        after = plan.offsets[at + 1]
+        candidates.append((abs(after - target), after, plan.order[at + 1]))
+    miss, _, chosen = min(candidates)
+    if miss > near_share * plan.count / bins:
+        return None
+    return cells.low[chosen], chosen
+
+
+def _near_bins(cells: Cells, bins: int, near_share: float,
+               ) -> tuple[list[float], list[PerClass]] | None:
+    """Cut points on bucket edges (:func:`_edge`) and each bin's rows per class, from step 2
+    alone; None when some level needs step 3. The plan's levels are planned."""
+    starts: dict[int, float] = {}
+    for h, k, k1 in cells.plan.wanted:
+        found = _edge(cells, bins, h, k, k1, near_share)
+        if found is None:
+            return None
+        cut, bucket = found
+        starts[bucket] = min(cut, starts.get(bucket, cut))  # one cut per edge
+    edges = sorted(starts)
+    bounds = [cells.before(b) for b in edges] + [cells.totals()]
+    return [starts[b] for b in edges], _differences(bounds)
+
+
+def _differences(bounds: Sequence[PerClass]) -> list[PerClass]:
+    """Each bin's rows per class from the rows below each cut point (and the total last)."""
     counts: list[PerClass] = []
     previous: PerClass = {}
     for bound in bounds:
         counts.append({k: bound.get(k, 0) - previous.get(k, 0)
                        for k in set(bound) | set(previous)})
         previous = bound
-    if any(n < 0 for per_class in counts for n in per_class.values()):
-        return None  # cannot happen with consistent steps: never trust it silently
-    return cuts, counts
+    return counts
 
 
 def _table(per_value: Sequence[PerClass], classes: Sequence[ClassKey]) -> list[list[int]]:
@@ -222,26 +300,41 @@ def _counted_records(spec: RankSpec, indexes: Sequence[int], cells: Mapping[int,
     return records
 
 
-def rank_counted(engine: Engine, spec: RankSpec,
-                 buckets: int | None = None) -> tuple[list[Record], dict[str, list[float]]]:
+def rank_counted(engine: Engine, spec: RankSpec, buckets: int | None = None,
+                 exact_rows: int | None = None,
+                 ) -> tuple[list[Record], dict[str, list[float]]]:
     """Result rows (as the ranking statement returns them, ``attribute_index`` numbering
     ``spec.attributes``, the target's row included) and cut points of every attribute of
     ``spec``: those binned by quantile from counts, any other the usual way. ``buckets``: as
-    many as :func:`bitsift.run.quantiles.bucket_count` gives for the source's rows, unless given."""
+    many as :func:`bitsift.run.quantiles.bucket_count` gives for the source's rows, unless
+    given. ``exact_rows``: up to how many rows every cut point is exact (default
+    :data:`EXACT_ROWS`)."""
+    small = EXACT_ROWS if exact_rows is None else exact_rows
     indexes = quantile_indexes(spec) if counts_apply(spec) else []
     plans = fetch_plans(engine, spec, indexes, buckets) if indexes else {}
     cells = _cells(engine, spec, plans) if plans else {}
-    searched = {i: c.plan for i, c in cells.items()
-                if c.plan.usable and c.plan.count > 0 and c.plan.low != c.plan.high}
-    for i, plan in searched.items():
-        plan.plan_levels(spec.attributes[i - 1].bins or 2)
-    splits = _splits(engine, spec, searched) if searched else {}
     binned: dict[int, tuple[list[float], list[PerClass]]] = {}
+    refined: dict[int, Plan] = {}
     for i, found in cells.items():
-        if found.plan.usable:
-            result = _bins(found, splits)
-            if result is not None:
-                binned[i] = result
+        plan = found.plan
+        if not plan.usable:
+            continue
+        if plan.count == 0 or plan.low == plan.high:
+            result = _bins(found, {})
+        else:
+            bins = spec.attributes[i - 1].bins or 2
+            plan.plan_levels(bins)
+            result = _near_bins(found, bins, 0.0 if plan.count <= small else NEAR_SHARE)
+            if result is None:
+                refined[i] = plan
+                continue
+        if result is not None:
+            binned[i] = result
+    splits = _splits(engine, spec, refined) if refined else {}
+    for i in refined:
+        result = _bins(cells[i], splits)
+        if result is not None:
+            binned[i] = result
     counted = [i for i in indexes if i in binned]
     parts: list[tuple[list[int], list[Record]]] = []
     cuts: dict[str, list[float]] = {}
