@@ -30,6 +30,7 @@ then the ranking statement). Segments (``--by``) and weights take the usual way 
 
 from __future__ import annotations
 
+import bisect
 import math
 from collections import defaultdict
 from collections.abc import Hashable, Mapping, Sequence
@@ -91,6 +92,8 @@ class Cells:
     #: bucket -> its lowest and its highest value, over the rows with a target.
     low: dict[int, float] = field(default_factory=dict)
     high: dict[int, float] = field(default_factory=dict)
+    #: The buckets in order and the rows per class before each (and after the last).
+    _running: tuple[list[int], list[PerClass]] | None = field(default=None, repr=False)
 
     def totals(self) -> PerClass:
         found: PerClass = defaultdict(int)
@@ -100,13 +103,18 @@ class Cells:
         return found
 
     def before(self, bucket: int) -> PerClass:
-        """Rows per class in the buckets before ``bucket``."""
-        found: PerClass = defaultdict(int)
-        for b, per_class in self.buckets.items():
-            if b < bucket:
-                for key, n in per_class.items():
-                    found[key] += n
-        return found
+        """Rows per class in the buckets before ``bucket`` (running sums, made once)."""
+        if self._running is None:
+            order = sorted(self.buckets)
+            running: list[PerClass] = [{}]
+            for b in order:
+                total = dict(running[-1])
+                for key, n in self.buckets[b].items():
+                    total[key] = total.get(key, 0) + n
+                running.append(total)
+            self._running = (order, running)
+        order, running = self._running
+        return dict(running[bisect.bisect_left(order, bucket)])
 
 
 @dataclass(frozen=True)
@@ -127,9 +135,12 @@ def _cells(engine: Engine, spec: RankSpec, plans: Mapping[int, Plan]) -> dict[in
     """Step 2, read; an attribute showing a bucket that is not a finite number is unusable."""
     shapes = {i: (p.low, p.scale) for i, p in plans.items()}
     cells = {i: Cells(plan=p) for i, p in plans.items()}
-    for record in engine.fetch(quantile_cells_statement(spec, engine.caps, shapes).sql).records():
-        found = cells[int(record["attribute_index"])]
-        key, bucket, n = class_key(record["y"]), record["bucket"], int(record["n"])
+    result = engine.fetch(quantile_cells_statement(spec, engine.caps, shapes).sql)
+    at = {name: result.columns.index(name)
+          for name in ("attribute_index", "bucket", "y", "n", "v_low", "v_high")}
+    for row in result.rows:  # thousands of rows: read by position, not as dicts
+        found = cells[int(row[at["attribute_index"]])]
+        key, bucket, n = class_key(row[at["y"]]), row[at["bucket"]], int(row[at["n"]])
         _add(found.all_rows, key, n)
         if bucket is not None and not (isinstance(bucket, int | float) and math.isfinite(bucket)):
             found.plan.usable = False
@@ -138,11 +149,13 @@ def _cells(engine: Engine, spec: RankSpec, plans: Mapping[int, Plan]) -> dict[in
         elif bucket is None:
             _add(found.missing, key, n)
         else:
-            at = int(bucket)
-            _add(found.buckets[at], key, n)
-            low, high = float(record["v_low"]), float(record["v_high"])
-            found.low[at] = min(low, found.low.get(at, low))
-            found.high[at] = max(high, found.high.get(at, high))
+            b = int(bucket)
+            _add(found.buckets[b], key, n)
+            low, high = float(row[at["v_low"]]), float(row[at["v_high"]])
+            if low < found.low.get(b, math.inf):
+                found.low[b] = low
+            if high > found.high.get(b, -math.inf):
+                found.high[b] = high
     for found in cells.values():
         found.plan.bucket_rows = {b: sum(c.values()) for b, c in found.buckets.items()}
     return cells
@@ -247,16 +260,16 @@ def _near_bins(cells: Cells, bins: int, near_share: float,
                ) -> tuple[list[float], list[PerClass]] | None:
     """Cut points on bucket edges (:func:`_edge`) and each bin's rows per class, from step 2
     alone; None when some level needs step 3. The plan's levels are planned."""
-    starts: dict[int, float] = {}
+    starts: dict[float, int] = {}
     for h, k, k1 in cells.plan.wanted:
         found = _edge(cells, bins, h, k, k1, near_share)
         if found is None:
             return None
         cut, bucket = found
-        starts[bucket] = min(cut, starts.get(bucket, cut))  # one cut per edge
-    edges = sorted(starts)
-    bounds = [cells.before(b) for b in edges] + [cells.totals()]
-    return [starts[b] for b in edges], _differences(bounds)
+        starts[cut] = bucket  # equal cut points merged, as the exact ones are
+    cuts = sorted(starts)
+    bounds = [cells.before(starts[c]) for c in cuts] + [cells.totals()]
+    return cuts, _differences(bounds)
 
 
 def _differences(bounds: Sequence[PerClass]) -> list[PerClass]:
