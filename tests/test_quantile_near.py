@@ -1,4 +1,4 @@
-"""Quantile cut points chosen on fine-bucket edges from the cells scan (bitsift.run.quantile_counts).
+"""Quantile cut points on fine-bucket edges from the cells scan (bitsift.run.quantile_counts).
 
 Above :data:`~bitsift.run.quantile_counts.EXACT_ROWS` rows (forced to 0 here, so that small
 tables take the same way), a counted ranking reads one scan of (bucket, class) cells and
@@ -30,8 +30,8 @@ from helpers import COMPARED_METRICS, Dataset, loaded, numpy_cuts, rank_with
 from bitsift.errors import DataError
 from bitsift.run import quantile_counts, quantiles, reference
 from bitsift.run.api import make_options
-from bitsift.run.session import Session
 from bitsift.run.result import Ranking
+from bitsift.run.session import Session
 from bitsift.sql.sqlbuild import quantile_levels
 
 COUNTED = {"run_quantile": "counted"}
