@@ -62,8 +62,10 @@ class RunPolicy:
     #: ``statement``: the bounds pre-pass with the dialect's ``quantile``. ``buckets``: the same
     #: exact values from three aggregate statements that never sort a whole column
     #: (:mod:`bitsift.run.quantiles`). ``counted``: where there are no segments and no weight,
-    #: one scan counts (bucket, class) cells that give both the cut points and the bins'
-    #: counts, and no row is binned one by one (:mod:`bitsift.run.quantile_counts`); otherwise as
+    #: one scan counts (bucket, class) cells that give both the cut points (on fine-bucket
+    #: edges above 100,000 rows, exact below and where the buckets are too coarse) and the
+    #: bins' exact counts, and no row is binned one by one
+    #: (:mod:`bitsift.run.quantile_counts`); otherwise as
     #: ``buckets``; the metrics are computed in the client from the counts (the statements
     #: are plain aggregates and window functions). Measured in benchmarks/RESULTS.md.
     run_quantile: Literal["statement", "buckets", "counted"] = "statement"

@@ -3,25 +3,52 @@
 :mod:`bitsift.run.quantiles` finds exact quantile cut points without sorting a column; the ranking
 statement then bins every row with a CASE over those cut points, which on DuckDB costs as
 much as the counting itself (benchmarks/RESULTS.md). Here one scan counts each attribute's
-rows per (equal-width bucket, class), and that serves both the search for the cut points and
+rows per (equal-width bucket, class), and that serves both the choice of the cut points and
 the bins' counts:
 
 1. ``quantile_ranges.sql.j2``: the lowest and highest value (free on DuckDB);
-2. ``quantile_cells.sql.j2``: rows per (bucket, class), NULL values and NULL targets included;
-3. ``quantile_splits.sql.j2``: in the few buckets holding a wanted rank, that rank's value
-   ``v`` and, per class, the bucket's rows below ``v`` and equal to it;
+2. ``quantile_cells.sql.j2``: rows per (bucket, class), NULL values and NULL targets included,
+   with each cell's lowest and highest value;
+3. only where step 2 cannot place a cut point well (below): ``quantile_splits.sql.j2``, in the
+   few buckets holding a wanted rank, that rank's value ``v`` and, per class, the bucket's rows
+   below ``v`` and equal to it;
 4. the ranking statement's own formulas, computed here from the counts already in the client
    (:func:`bitsift.run.metrics.table_row`): no statement sends them back to the database, so
    their number is not capped and every dialect that runs steps 1-3 can count this way.
 
-Why it is exact: the bucket ``FLOOR((value - lo) * scale)`` never decreases as the value
-grows, so every row of an earlier bucket lies below a later bucket's values, and equal values
-share a bucket. A cut point ``c`` interpolated between the order statistics ``v[k]`` and
-``v[k + 1]`` (:func:`bitsift.run.quantiles.interpolate`, ``v[k] <= c <= v[k + 1]``) has below it
-the buckets before ``v[k]``'s, the rows of that bucket below ``v[k]``, and the rows equal to
-``v[k]`` when ``v[k] < c`` (no value lies strictly between two consecutive order statistics).
-A bin's count per class is then the difference of two such counts: the counts the ranking
-statement finds with ``CASE WHEN value < c ...``, to the row.
+The bucket ``FLOOR((value - lo) * scale)`` never decreases as the value grows, so every row of
+an earlier bucket lies below a later bucket's values, and equal values share a bucket. Hence
+a bucket's lowest value ``m`` is a cut point with exactly the earlier buckets below it
+(``value < m`` holds for those rows and for no other): any union of consecutive buckets is a
+bin whose count per class step 2 gives exactly, and whose edge bitsift can report.
+
+**How the cut points are chosen** (:func:`_edge`; ``n`` rows with a value, level ``p``,
+``h = (n - 1) p``, ``k = floor(h)``, numpy's linear quantile ``q`` between the order statistics
+``v[k]`` and ``v[k + 1]``):
+
+- ``q`` itself, numpy's value bit for bit, where step 2 places it on a bucket edge: when
+  ``v[k]`` is the last value of its bucket and ``v[k + 1]`` the first of a later one (both are
+  the buckets' highest and lowest values), or ``q`` equals the lowest value of its bucket
+  (a bucket of one value: ties);
+- otherwise the lowest value of the bucket holding ``v[k]`` or of the next non-empty bucket,
+  whichever leaves below it a number of rows nearer to ``ceil(h)`` (the rows below ``q`` when
+  no two values tie; the lower edge on a tie). That cut point lies within one fine bucket of
+  ``q``, its bins are exact unions of buckets, and the rows below it differ from ``q``'s by
+  at most half a bucket;
+- when that difference exceeds :data:`NEAR_SHARE` of a bin's rows (``n / bins``), the
+  attribute's buckets are too coarse where its quantiles lie (heavy tails: most rows in one
+  equal-width bucket), and step 3 finds its exact quantiles: a cut point ``c`` interpolated
+  between ``v[k]`` and ``v[k + 1]`` has below it the buckets before ``v[k]``'s, the rows of
+  that bucket below ``v[k]``, and the rows equal to ``v[k]`` when ``v[k] < c`` (no value lies
+  strictly between two consecutive order statistics): every bin's count, to the row;
+- up to :data:`EXACT_ROWS` rows, every cut point is exact (step 3 reads so few rows that it
+  costs nothing measurable): small tables get numpy's cut points, as pasted statements do.
+
+So above ``EXACT_ROWS`` rows a run-mode cut point may differ from the exact quantile that a
+pasted statement (``bitsift sql``, the bounds CTE) computes: by at most one fine bucket (of
+1,024 or more over the column's range), and its bins are counted exactly at the cut point
+reported; the ranking, the history and every later statement (drill-down, pairs) use that
+reported cut point.
 
 Where step 2 shows an infinite or NaN value, or step 3 a bucket whose rows changed (the table
 changed in between), the attribute is ranked the usual way (:func:`bitsift.run.cuts.fetch_cuts`,
