@@ -48,8 +48,11 @@ def fetch_mdl_cuts(engine: Engine, spec: RankSpec,
     class) histogram, :mod:`bitsift.run.discretize` splits it (Fayyad & Irani 1993).
     ``resolution``: fine bins at most (default :data:`~bitsift.run.discretize.MDL_RESOLUTION`).
 
-    NumPy (for the splitting) is imported only when an attribute is binned by mdl.
+    NumPy (for the splitting) is imported only when an attribute is binned by mdl: every
+    ranking part passes here, and the import costs 0.1-0.2 s.
     """
+    if not any(a.kind == "numeric" and a.binning == "mdl" for a in spec.attributes):
+        return {}
     from bitsift.run import discretize
 
     if resolution is None:
