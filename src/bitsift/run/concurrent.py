@@ -140,9 +140,10 @@ def _run_on_pool(pool: SessionPool, spec: RankSpec) -> PartResult:
 def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> list[list[int]]:
     """The parts' attribute positions. Where attributes binned by quantile are ranked from
     bucket counts, they make parts of their own (their statements read only their columns),
-    the other attributes share the other sessions; when everything fits in ``sessions``
-    statements, the part of the counted attributes also ranks as many of the others as
-    even out the sessions' loads (:func:`_balanced`)."""
+    the other attributes share the other sessions; where the run policy says
+    ``balance_counted_part`` and everything fits in ``sessions`` statements, the part of
+    the counted attributes also ranks as many of the others as even out the sessions'
+    loads (:func:`_balanced`)."""
     counted: list[int] = []
     if engine.policy.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         counted = [i - 1 for i in quantiles.quantile_indexes(spec)]
@@ -150,7 +151,8 @@ def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> lis
     if not counted or not others:
         parts = max(sessions, -(-len(spec.attributes) // max_size))
         return split(spec.attributes, parts, max_size)
-    if sessions > 1 and len(counted) <= max_size and len(others) <= (sessions - 1) * max_size:
+    if (engine.policy.balance_counted_part and sessions > 1 and len(counted) <= max_size
+            and len(others) <= (sessions - 1) * max_size):
         return _balanced(spec, counted, others, sessions, max_size)
     parts = max(sessions - 1, -(-len(others) // max_size))
     shared = split([spec.attributes[i] for i in others], parts, max_size)
