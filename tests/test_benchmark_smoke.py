@@ -223,3 +223,17 @@ def test_paste_strategies_agree(engine: str, request: pytest.FixtureRequest) -> 
         {"grouping_sets", "union_all", "cross_join", "union_scans"} if engine == "postgres"
         else {"cross_join+counts", "union_all+base+counts", "union_scans+counts"})
     assert float(lines[-1].rsplit(" ", 1)[-1]) <= TOLERANCE
+
+
+def test_the_harness_knows_where_bitsift_cuts_near_quantiles() -> None:
+    # benchmarks/run.py keeps its own copy (the harness does not import bitsift): the row
+    # count above which bitsift's run-mode quantile cut points lie on fine-bucket edges.
+    import ast
+
+    from bitsift.run import quantile_counts
+
+    found = [node.value for node in ast.parse(RUN.read_text()).body
+             if isinstance(node, ast.Assign) and isinstance(node.value, ast.Constant)
+             and any(isinstance(t, ast.Name) and t.id == "EXACT_QUANTILE_ROWS"
+                     for t in node.targets)]
+    assert [c.value for c in found] == [quantile_counts.EXACT_ROWS]

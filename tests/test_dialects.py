@@ -65,7 +65,8 @@ EXPECTED: dict[str, Expected] = {
             "from the client.",
         caps={"count_strategy": "grouping_sets", "quantile": "quantile_cont",
               "exact_key_type": None},
-        policy={"timeout": Timeout("client"), "run_quantile": "counted", "run_sessions": 2},
+        policy={"timeout": Timeout("client"), "run_quantile": "counted", "run_sessions": 2,
+                "balance_counted_part": False},
         executed_here=True,
         says=("QUANTILE_CONT(CAST(\"score\" AS DOUBLE), [0.25, 0.5, 0.75])", "GROUPING SETS",
               "LN(CAST(n AS DOUBLE))"),
@@ -92,7 +93,8 @@ EXPECTED: dict[str, Expected] = {
               "quantile": "percentile_cont"},
         policy={"read_only_statement": "SET TRANSACTION READ ONLY",
                 "timeout": Timeout("transaction", "SET LOCAL statement_timeout = {ms}",
-                                   2_147_483.647)},
+                                   2_147_483.647),
+                "balance_counted_part": True},
         executed_here=True,
         # Pasted with its own cut points: UNION ALL (2.4x faster than GROUPING SETS at the
         # console's default work_mem, RESULTS.md); test_paste_count_strategy covers the rest.

@@ -180,7 +180,9 @@ def test_a_table_changing_between_the_steps_is_ranked_the_usual_way(
     # mixed counts. (Rows landing only in buckets without a cut point change no bin; the
     # ranking is then that of the table as step 2 read it.)
     connection = duckdb.connect()
-    connection.execute("CREATE TABLE t AS SELECT i % 3 AS y, (i * 7919) % 1000 / 10.0 AS v "
+    # 3,000 distinct values in 1,024 buckets: the quantiles fall inside buckets of several
+    # values, so step 3 runs (a cut point between two buckets is exact from step 2 alone).
+    connection.execute("CREATE TABLE t AS SELECT i % 3 AS y, (i * 7919) % 3000 / 10.0 AS v "
                        "FROM range(3000) r(i)")
     values = [v for (v,) in connection.execute("SELECT v FROM t").fetchall()]
     cuts = [float(c) for c in np.quantile(values, [j / 10 for j in range(1, 10)])]

@@ -62,8 +62,10 @@ class RunPolicy:
     #: ``statement``: the bounds pre-pass with the dialect's ``quantile``. ``buckets``: the same
     #: exact values from three aggregate statements that never sort a whole column
     #: (:mod:`bitsift.run.quantiles`). ``counted``: where there are no segments and no weight,
-    #: one scan counts (bucket, class) cells that give both the cut points and the bins'
-    #: counts, and no row is binned one by one (:mod:`bitsift.run.quantile_counts`); otherwise as
+    #: one scan counts (bucket, class) cells that give both the cut points (on fine-bucket
+    #: edges above 100,000 rows, exact below and where the buckets are too coarse) and the
+    #: bins' exact counts, and no row is binned one by one
+    #: (:mod:`bitsift.run.quantile_counts`); otherwise as
     #: ``buckets``; the metrics are computed in the client from the counts (the statements
     #: are plain aggregates and window functions). Measured in benchmarks/RESULTS.md.
     run_quantile: Literal["statement", "buckets", "counted"] = "statement"
@@ -71,6 +73,13 @@ class RunPolicy:
     #: and run them at once, one per session (bitsift.run.concurrent), when bitsift opened the
     #: source itself. 1: one statement. Measured in benchmarks/RESULTS.md.
     run_sessions: int = 1
+    #: Where run mode counts quantile bins from cells in a part of their own (``counted``,
+    #: :attr:`run_sessions` > 1), that part also ranks as many of the other attributes as
+    #: even out the sessions' loads (:func:`bitsift.run.concurrent._balanced`). Pays where a
+    #: session runs a statement on one core (PostgreSQL 500k x 16: 1.27x -> 1.04x the
+    #: counting bound in one interleaved run); DuckDB spreads each statement over every core
+    #: already, and a second ranking statement only adds its own scan (1.49x -> 1.55x).
+    balance_counted_part: bool = False
     #: Run at the start of every transaction bitsift opens, to make it read-only. Must be
     #: transaction-scoped (PostgreSQL, MySQL/MariaDB ``SET TRANSACTION READ ONLY``) unless
     #: :attr:`read_only_reset` undoes it when bitsift closes the connection.
@@ -108,6 +117,7 @@ POLICIES: dict[str, RunPolicy] = {
     "postgres": RunPolicy(
         run_quantile="counted",
         run_sessions=2,
+        balance_counted_part=True,
         read_only_statement=READ_ONLY_TRANSACTION,
         # The planner estimates a binned column's groups from the raw column's distinct
         # values (millions) and, at the default 4MB, sorts and spills instead of hashing

@@ -49,7 +49,7 @@ def fetch_mdl_cuts(engine: Engine, spec: RankSpec,
     ``resolution``: fine bins at most (default :data:`~bitsift.run.discretize.MDL_RESOLUTION`).
 
     NumPy (for the splitting) is imported only when an attribute is binned by mdl: every
-    ranking with a numeric attribute passes here.
+    ranking part passes here, and the import costs 0.1-0.2 s.
     """
     if not any(a.kind == "numeric" and a.binning == "mdl" for a in spec.attributes):
         return {}
