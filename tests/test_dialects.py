@@ -78,7 +78,7 @@ EXPECTED: dict[str, Expected] = {
         caps={"count_strategy": "union_all", "quantile": "window"},
         policy={"read_only_statement": "PRAGMA query_only = ON",
                 "read_only_reset": "PRAGMA query_only = OFF", "timeout": Timeout("client"),
-                "register_math_functions": True},
+                "register_math_functions": True, "run_sessions": 2, "run_counts": "client"},
         executed_here=True,
         says=("UNION ALL", "ROW_NUMBER() OVER (ORDER BY CAST(\"score\" AS REAL) NULLS LAST)",
               "CAST(n AS REAL)"),
@@ -117,11 +117,13 @@ EXPECTED: dict[str, Expected] = {
             "points: the cross join), window quantiles, text "
             "grouped as BINARY. The timeout is a per-statement prefix (SET STATEMENT "
             "max_statement_time = s FOR ...), leaving no session state.",
-        caps={"count_strategy": "union_all", "paste_count_strategy": "cross_join",
-              "paste_shared_ctes": ("counts",), "exact_key_type": "BINARY"},
+        caps={"count_strategy": "union_all", "shared_ctes": ("counts",),
+              "paste_count_strategy": "cross_join", "paste_shared_ctes": ("counts",),
+              "exact_key_type": "BINARY"},
         policy={"timeout": Timeout("prefix", "SET STATEMENT max_statement_time = {seconds} FOR ",
                                    31_536_000.0),
-                "read_only_statement": "SET TRANSACTION READ ONLY"},
+                "read_only_statement": "SET TRANSACTION READ ONLY", "run_sessions": 2,
+                "run_counts": "client"},
         executed_here=True,
         # Pasted with its own cut points: the cross join reads `base` (and its bounds) once;
         # one UNION ALL branch per attribute recomputed every quantile (RESULTS.md).
