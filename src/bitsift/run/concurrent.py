@@ -160,7 +160,7 @@ def _single_parts(spec: RankSpec, counted: list[int], others: list[int], session
                   max_size: int) -> list[list[int]]:
     """The parts where each attribute is counted on its own (run policy ``run_counts``
     "client"): the attributes ranked from quantile cells cut into one part per session
-    (each part is three statements in a row: split, they run side by side), then one part per
+    (a part's statements run one after another: split, they run side by side), then one part per
     other attribute, heaviest first. Parts start in this order on whichever session is idle,
     so the long quantile parts start first and the short ones fill the gaps."""
     shares = -(-len(counted) // max_size) if counted else 0
