@@ -117,9 +117,8 @@ EXPECTED: dict[str, Expected] = {
             "points: the cross join), window quantiles, text "
             "grouped as BINARY. The timeout is a per-statement prefix (SET STATEMENT "
             "max_statement_time = s FOR ...), leaving no session state.",
-        caps={"count_strategy": "union_all", "shared_ctes": ("counts",),
-              "paste_count_strategy": "cross_join", "paste_shared_ctes": ("counts",),
-              "exact_key_type": "BINARY"},
+        caps={"count_strategy": "union_all", "paste_count_strategy": "cross_join",
+              "paste_shared_ctes": ("counts",), "exact_key_type": "BINARY"},
         policy={"timeout": Timeout("prefix", "SET STATEMENT max_statement_time = {seconds} FOR ",
                                    31_536_000.0),
                 "read_only_statement": "SET TRANSACTION READ ONLY", "run_sessions": 2,

@@ -140,7 +140,7 @@ POLICIES: dict[str, RunPolicy] = {
         run_quantile="counted",
         # Each attribute its own bare GROUP BY, metrics in the client, 2 sessions: 16
         # categorical x 200k rows, interleaved (load 4.7): 2.3 s, 2.7 s on one session,
-        # 12.1 s with the ranking statement (before it shared `counts`, sql/dialects.py);
+        # 12.1 s with the ranking statement (it reads `counts` once per reference);
         # the bound 2.2-2.9 s (issue 20).
         run_sessions=2,
         run_counts="client",

@@ -272,12 +272,12 @@ CAPABILITIES: dict[str, Capabilities] = {
         # attribute: 200k rows x 3 categorical + 4 numeric took 172 s, 33 s with the cross
         # join, 6 s in run mode; `counts` shared (one recursive CTE, read five times) brought
         # the cross join from 39.5 s to 7.8 s (benchmarks/paste_strategies.py, RESULTS.md).
-        # In run mode too `counts` is shared: the statement read it five times, 12
-        # categorical attributes of 200k rows took 5.2 s, 1.3 s shared (issue 20; run mode
-        # ranks unsegmented, unweighted attributes from bare counts, engines/policy.py).
+        # Run mode ranks unsegmented, unweighted attributes from bare counts instead of this
+        # statement (engines/policy.py, run/value_counts.py). Sharing `counts` in run mode too
+        # took 12 categorical attributes of 200k rows from 5.2 s to 1.3 s, but the model
+        # files' history script renames CTEs and then fails on the recursive one (issue 20).
         _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY",
-                 shared_ctes=("counts",), paste_count_strategy="cross_join",
-                 paste_shared_ctes=("counts",)),
+                 paste_count_strategy="cross_join", paste_shared_ctes=("counts",)),
         _dialect("snowflake", quantile="percentile_cont"),
         _dialect("bigquery"),
         # Redshift wants every PERCENTILE_CONT of one query to share its ORDER BY: window method.
