@@ -31,6 +31,11 @@ DIALECTS: dict[str, str] = {
 #: DuckDB and PostgreSQL). Spark runs two jobs at once on its one session; chdb's embedded
 #: session takes one statement at a time, and ClickHouse spreads each over every core anyway.
 BOUND_SESSIONS: dict[str, int] = {"clickhouse": 1}
+#: Engines whose bound is also measured on one session (e1), the faster of the two being the
+#: bound: on SQLite two connections reading one file were slower than one in a preliminary
+#: 200k x 16 run (issue 20), and MariaDB's server threads share the same 2 cores; which is
+#: faster depends on the machine's load, so both are measured side by side.
+ONE_SESSION_BOUND: frozenset[str] = frozenset({"sqlite", "mariadb"})
 #: The second export reader per engine: the engine's columnar (Arrow) export where it has
 #: one, else the plain DB-API fetch (cursor.fetchall into a DataFrame, no pandas.read_sql).
 FAST_READER: dict[str, str] = {

@@ -158,8 +158,9 @@ def test_terminated_backend_cancels_the_sibling_session(slow_pg: str,
 ])
 def test_signal_kills_the_mariadb_query(slow_mariadb: str, mariadb_engine: sa.Engine,
                                         sent: int, code: int, line: str) -> None:
+    # Run mode counts attributes a and b on two sessions at once: both statements are killed.
     _signal_stops_every_statement(MARIADB_URL, slow_mariadb,
-                                  lambda: mariadb_running(mariadb_engine, slow_mariadb), 1,
+                                  lambda: mariadb_running(mariadb_engine, slow_mariadb), 2,
                                   (sent, code, line), "the statement to leave the processlist")
 
 

@@ -79,7 +79,7 @@ EXPECTED: dict[str, Expected] = {
         caps={"count_strategy": "union_all", "quantile": "window"},
         policy={"read_only_statement": "PRAGMA query_only = ON",
                 "read_only_reset": "PRAGMA query_only = OFF", "timeout": Timeout("client"),
-                "register_math_functions": True},
+                "register_math_functions": True, "run_sessions": 2, "run_counts": "client"},
         executed_here=True,
         says=("UNION ALL", "ROW_NUMBER() OVER (ORDER BY CAST(\"score\" AS REAL) NULLS LAST)",
               "CAST(n AS REAL)"),
@@ -124,7 +124,8 @@ EXPECTED: dict[str, Expected] = {
               "paste_shared_ctes": ("counts",), "exact_key_type": "BINARY"},
         policy={"timeout": Timeout("prefix", "SET STATEMENT max_statement_time = {seconds} FOR ",
                                    31_536_000.0),
-                "read_only_statement": "SET TRANSACTION READ ONLY"},
+                "read_only_statement": "SET TRANSACTION READ ONLY", "run_sessions": 2,
+                "run_counts": "client"},
         executed_here=True,
         # Pasted with its own cut points: each attribute's branch reads the table joined with
         # its own bounds part only, so each quantile is computed once; UNION ALL over a shared

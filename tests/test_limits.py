@@ -29,6 +29,7 @@ from helpers import (
     fill_duckdb,
     loaded,
     quoted,
+    rank_with,
 )
 
 import bitsift
@@ -171,13 +172,19 @@ def test_500_columns_rank_in_batches(engine: str, request: pytest.FixtureRequest
     # Run mode splits the attributes: no ranking statement holds more than the batch size, and
     # together they hold each attribute once. Where quantile bins are counted from cells
     # (bitsift.run.quantile_counts), those attributes' metrics are computed in the client from
-    # the cells: no ranking statement holds them.
+    # the cells: no ranking statement holds them. Where the run policy counts in the client
+    # (bitsift.run.value_counts), every other attribute has a bare GROUP BY of its own instead.
     sizes = []
     for statement in (s for s in ranking.statements if "information_gain" in s):
         sizes.append(max(int(i) for i in re.findall(r"\bAS a(\d+)\b", statement)))
-    assert max(sizes) <= api.MAX_ATTRIBUTES_PER_STATEMENT
     counted = run_policy(engine).run_quantile == "counted"
-    assert sum(sizes) == WIDE_COLUMNS - (len(numeric) if counted else 0), engine
+    others = WIDE_COLUMNS - (len(numeric) if counted else 0)
+    bare = [s for s in ranking.statements if re.search(r"\bAS v\b.* LIMIT \d+$", s)]
+    if run_policy(engine).run_counts == "client":
+        assert not sizes and len(bare) == others, engine
+    else:
+        assert max(sizes) <= api.MAX_ATTRIBUTES_PER_STATEMENT
+        assert sum(sizes) == others and not bare, engine
     assert any("bucket_cells" in s for s in ranking.statements) == counted, engine
 
 
@@ -280,11 +287,13 @@ MEASURE_COLUMNS = ("information_gain", "g_statistic", "target_entropy")
 def test_counts_come_back_as_64_bit_integers(engine: str, request: pytest.FixtureRequest) -> None:
     # COUNT(*) is 64-bit on all four engines; the statement keeps counts in BIGINT (PostgreSQL
     # and MariaDB would sum them into NUMERIC/DECIMAL) and measurements in DOUBLE. Checked on
-    # the types each driver reports for the ranking statement's result columns.
+    # the types each driver reports for the ranking statement's result columns (the statement's
+    # way forced where the run policy counts in the client: the statement serves there too).
     dataset = Dataset(columns=(("y", "integer"), ("a", "integer")),
                       rows=[(i % 2, i % 4) for i in range(30)])
     with loaded(engine, dataset, request) as where:
-        sql = bitsift.rank(where.source, table=where.table, target="y").statements[-1]
+        sql = rank_with(where.source, where.table, "y",
+                        policy={"run_counts": "statement"}).statements[-1]
         types = result_types(where, sql)
     for name in COUNT_COLUMNS:
         assert types[name] == "integer64", (engine, name, types[name])

@@ -129,6 +129,15 @@ class SqlAlchemyEngine(Engine):
         sibling.secret = self.secret
         return sibling
 
+    def can_open_siblings(self) -> bool:
+        """As :meth:`Engine.can_open_siblings`, and never for an in-memory SQLite database:
+        a second connection would open an empty one of its own."""
+        url = self.con.engine.url
+        if url.get_backend_name() == "sqlite" and sqlite_support.in_memory(url.database or "",
+                                                                           url.query):
+            return False
+        return super().can_open_siblings()
+
     @classmethod
     def open_url(cls, url: str) -> SqlAlchemyEngine:
         if raw_at_in_password(url):

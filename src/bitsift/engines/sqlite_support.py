@@ -104,6 +104,22 @@ def missing_database(database: str, query: Mapping[str, Any]) -> str | None:
     >>> missing_database("file:shared?mode=memory", {"uri": "true"}) is None
     True
     """
+    path = _file_path(database, query)
+    return None if path is None or Path(path).exists() else path
+
+
+def in_memory(database: str, query: Mapping[str, Any]) -> bool:
+    """Whether a SQLite URL's database lives in its connection's memory: a second connection
+    would open another one (run mode then stays on one session).
+
+    >>> in_memory("", {}), in_memory("file:x?mode=memory", {"uri": "true"}), in_memory("x.db", {})
+    (True, True, False)
+    """
+    return _file_path(database, query) is None
+
+
+def _file_path(database: str, query: Mapping[str, Any]) -> str | None:
+    """The file a SQLite URL's database names, or None for an in-memory database."""
     if database in ("", ":memory:"):
         return None
     path = database
@@ -116,7 +132,7 @@ def missing_database(database: str, query: Mapping[str, Any]) -> str | None:
         path = unquote(location.path)
         if not path or path == ":memory:":
             return None
-    return None if Path(path).exists() else path
+    return path
 
 
 #: The first 16 bytes of every SQLite 3 database file (sqlite.org/fileformat.html, 1.3).

@@ -27,7 +27,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, replace
 
 from bitsift.engines.base import Engine
-from bitsift.run import quantile_counts, quantiles
+from bitsift.run import quantile_counts, quantiles, value_counts
 from bitsift.run.cuts import fetch_cuts
 from bitsift.run.parts import Record, merge_parts
 from bitsift.spec.rankspec import AttributeSpec, RankSpec
@@ -120,9 +120,14 @@ class PartResult:
 def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
     """The statements of one part on one session: the boundaries pre-pass and the ranking
     statement, or, where the run policy's ``run_quantile`` is "counted", the attributes binned
-    by quantile ranked from bucket counts (:mod:`bitsift.run.quantile_counts`)."""
+    by quantile ranked from bucket counts (:mod:`bitsift.run.quantile_counts`), or, where its
+    ``run_counts`` is "client", each attribute ranked from its bare counts
+    (:mod:`bitsift.run.value_counts`)."""
     if engine.policy.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         records, cuts = quantile_counts.rank_counted(engine, spec)
+        return PartResult(cuts=cuts, records=records)
+    if value_counts.counts_in_client(engine, spec):
+        records, cuts = value_counts.rank_by_counts(engine, spec)
         return PartResult(cuts=cuts, records=records)
     cuts = fetch_cuts(engine, spec)
     records = engine.fetch(rank_statement(spec, engine.caps, cuts).sql).records()
@@ -148,6 +153,8 @@ def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> lis
     if engine.policy.run_quantile == "counted" and quantile_counts.counts_apply(spec):
         counted = [i - 1 for i in quantiles.quantile_indexes(spec)]
     others = [i for i in range(len(spec.attributes)) if i not in counted]
+    if value_counts.counts_in_client(engine, spec):
+        return _single_parts(spec, counted, others, sessions, max_size)
     if not counted or not others:
         parts = max(sessions, -(-len(spec.attributes) // max_size))
         return split(spec.attributes, parts, max_size)
@@ -186,6 +193,21 @@ def _balanced(spec: RankSpec, counted: list[int], others: list[int], sessions: i
         ranked[lightest] += 1
         loads[lightest] += _WEIGHT[spec.attributes[i].kind]
     return [sorted(group) for group in groups if group]
+
+
+def _single_parts(spec: RankSpec, counted: list[int], others: list[int], sessions: int,
+                  max_size: int) -> list[list[int]]:
+    """The parts where each attribute is counted on its own (run policy ``run_counts``
+    "client"): the attributes ranked from quantile cells cut into one part per session
+    (a part's statements run one after another: split, they run side by side), then one part per
+    other attribute, heaviest first. Parts start in this order on whichever session is idle,
+    so the long quantile parts start first and the short ones fill the gaps."""
+    shares = -(-len(counted) // max_size) if counted else 0
+    quantile_parts = split([spec.attributes[i] for i in counted],
+                           max(sessions, shares), max_size) if counted else []
+    single = sorted(others, key=lambda i: -_WEIGHT[spec.attributes[i].kind])
+    return ([[counted[i] for i in part] for part in quantile_parts]
+            + [[i] for i in single])
 
 
 def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_size: int,

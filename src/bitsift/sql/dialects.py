@@ -281,6 +281,10 @@ CAPABILITIES: dict[str, Capabilities] = {
         # (each branch reads the table with only its own attribute's bounds) with `counts`
         # shared: 7.8 s against 10.5 s for that cross join, measured side by side (load 3;
         # 1.3 x again at load 4-5) (benchmarks/paste_strategies.py, RESULTS.md).
+        # Run mode ranks unsegmented, unweighted attributes from bare counts instead of this
+        # statement (engines/policy.py, run/value_counts.py). Sharing `counts` in run mode too
+        # took 12 categorical attributes of 200k rows from 5.2 s to 1.3 s, but the model
+        # files' history script renames CTEs and then fails on the recursive one (issue 20).
         _dialect("mariadb", "mysql", count_strategy="union_all", exact_key_type="BINARY",
                  paste_count_strategy="union_scans", paste_shared_ctes=("counts",)),
         _dialect("snowflake", quantile="percentile_cont"),

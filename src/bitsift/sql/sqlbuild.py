@@ -376,6 +376,27 @@ def rank_statement(
     return finish(render("rank.sql.j2", **context), caps, pretty)
 
 
+def value_counts_statement(spec: RankSpec, caps: Capabilities, index: int,
+                           cuts: Mapping[str, Sequence[float]], limit: int) -> Statement:
+    """One attribute's (value, class) counts, at most ``limit`` cells (templates/
+    value_counts.sql.j2): attribute ``index`` (1-based, in ``spec.attributes``) keyed and
+    binned at its literal ``cuts`` as :func:`rank_statement` does, rows without a value or a
+    target included. Unsegmented and unweighted specs only (:mod:`bitsift.run.value_counts`).
+    """
+    if spec.by or spec.weight:
+        raise BuildError("per-attribute counts are for unsegmented, unweighted rankings")
+    attribute = spec.attributes[index - 1]
+    return finish(render(
+        "value_counts.sql.j2",
+        a=measured_entry(index, attribute, caps, cuts),
+        source=source_sql(spec.source),
+        target=quote(spec.target),
+        target_exact=exact_grouping(spec.target_family, caps),
+        qualified_where=qualified_where_sql(spec),
+        limit=literal(limit),
+    ), caps, pretty=False)
+
+
 def _segments_and_weight(spec: RankSpec, caps: Capabilities) -> dict[str, object]:
     """The ranking template's segment columns (``--by``) and weight column (``--weight``).
 

@@ -1,7 +1,7 @@
 # templates/bounds.sql.j2 compiled by Jinja2 3.1.6: generated, do not edit.
 # BITSIFT_REGENERATE_TEMPLATES=1 .venv/bin/pytest tests/test_precompiled_templates.py
 # ruff: noqa
-SOURCE_DIGEST = '258203aae652fa9eda3f78976d7582fad74c4d460f8afb56cb776138b6765976'
+SOURCE_DIGEST = '36a93901f0c585353e2027e8de761a735d7cd59eca641b804de8caf98501f6bf'
 from jinja2.runtime import LoopContext, Macro, Markup, Namespace, TemplateNotFound, TemplateReference, TemplateRuntimeError, Undefined, escape, identity, internalcode, markup_join, missing, str_join
 name = 'bounds.sql.j2'
 
@@ -11,7 +11,7 @@ def root(context, missing=missing):
     concat = environment.concat
     cond_expr_undefined = Undefined
     if 0: yield None
-    l_0_rows_filter = l_0_value_filter = l_0_bounds_ctes = missing
+    l_0_rows_filter = l_0_value_filter = l_0_bounds_ctes = l_0_part_of = missing
     try:
         t_1 = environment.filters['join']
     except KeyError:
@@ -67,7 +67,7 @@ def root(context, missing=missing):
         return concat(t_3)
     context.exported_vars.add('value_filter')
     context.vars['value_filter'] = l_0_value_filter = Macro(environment, macro, 'value_filter', ('value', 'target', 'where'), False, False, False, context.eval_ctx.autoescape)
-    def macro(l_1_bounds, l_1_source, l_1_target, l_1_where):
+    def macro(l_1_bounds, l_1_source, l_1_target, l_1_where, l_1_combined):
         t_4 = []
         l_1__ = resolve('_')
         l_1_parts = missing
@@ -79,6 +79,8 @@ def root(context, missing=missing):
             l_1_target = undefined("parameter 'target' was not provided", name='target')
         if l_1_where is missing:
             l_1_where = undefined("parameter 'where' was not provided", name='where')
+        if l_1_combined is missing:
+            l_1_combined = True
         pass
         l_1_parts = []
         if environment.getattr(l_1_bounds, 'aggregated'):
@@ -329,14 +331,43 @@ def root(context, missing=missing):
             l_2__ = context.call(environment.getattr((undefined(name='parts') if l_1_parts is missing else l_1_parts), 'append'), str_join(('split_bound_', environment.getattr(l_2_a, 'index'), )), _loop_vars=_loop_vars)
             _loop_vars['_'] = l_2__
         l_2_a = l_2__ = missing
-        t_4.extend((
-            '\nbounds AS (\n  SELECT *\n  FROM ',
-            str(t_1(context.eval_ctx, (undefined(name='parts') if l_1_parts is missing else l_1_parts), ' CROSS JOIN ')),
-            '\n)',
-        ))
+        if l_1_combined:
+            pass
+            t_4.extend((
+                '\nbounds AS (\n  SELECT *\n  FROM ',
+                str(t_1(context.eval_ctx, (undefined(name='parts') if l_1_parts is missing else l_1_parts), ' CROSS JOIN ')),
+                '\n)',
+            ))
         return concat(t_4)
     context.exported_vars.add('bounds_ctes')
-    context.vars['bounds_ctes'] = l_0_bounds_ctes = Macro(environment, macro, 'bounds_ctes', ('bounds', 'source', 'target', 'where'), False, False, False, context.eval_ctx.autoescape)
+    context.vars['bounds_ctes'] = l_0_bounds_ctes = Macro(environment, macro, 'bounds_ctes', ('bounds', 'source', 'target', 'where', 'combined'), False, False, False, context.eval_ctx.autoescape)
+    def macro(l_1_bounds, l_1_a):
+        t_5 = []
+        if l_1_bounds is missing:
+            l_1_bounds = undefined("parameter 'bounds' was not provided", name='bounds')
+        if l_1_a is missing:
+            l_1_a = undefined("parameter 'a' was not provided", name='a')
+        pass
+        if (l_1_a in environment.getattr(l_1_bounds, 'windowed')):
+            pass
+            t_5.extend((
+                'bounds_',
+                str(environment.getattr(l_1_a, 'index')),
+            ))
+        elif (l_1_a in environment.getattr(l_1_bounds, 'splits')):
+            pass
+            t_5.extend((
+                'split_bound_',
+                str(environment.getattr(l_1_a, 'index')),
+            ))
+        else:
+            pass
+            t_5.append(
+                'bounds_aggregated',
+            )
+        return concat(t_5)
+    context.exported_vars.add('part_of')
+    context.vars['part_of'] = l_0_part_of = Macro(environment, macro, 'part_of', ('bounds', 'a'), False, False, False, context.eval_ctx.autoescape)
 
 blocks = {}
-debug_info = '16=18&17=27&19=40&20=51&22=66&23=79&24=80&28=86&29=92&30=96&31=100&32=104&34=108&36=119&37=124&39=138&41=146&42=148&46=152&47=160&48=163&49=167&50=181&51=185&53=197&54=201&59=211&61=213&64=219&66=221&67=223&69=225&70=227&72=229&74=233&75=238&76=240&77=244&78=248&80=262&82=265&84=268&95=274&97=276&98=278&100=280&101=282&102=284&104=288&105=290&107=292&108=294&110=296&115=298&116=300&117=302&120=304&127=306&130=308&136=310&138=312&140=314&143=316&144=318&145=320&146=322&149=325&153=330'
+debug_info = '17=18&18=27&20=40&21=51&23=66&24=81&25=82&29=88&30=94&31=98&32=102&33=106&35=110&37=121&38=126&40=140&42=148&43=150&47=154&48=162&49=165&50=169&51=183&52=187&54=199&55=203&60=213&62=215&65=221&67=223&68=225&70=227&71=229&73=231&75=235&76=240&77=242&78=246&79=250&81=264&83=267&85=270&96=276&98=278&99=280&101=282&102=284&103=286&105=290&106=292&108=294&109=296&111=298&116=300&117=302&118=304&121=306&128=308&131=310&137=312&139=314&141=316&144=318&145=320&146=322&147=324&150=327&152=330&155=334&161=340&162=347&163=353'

@@ -1,7 +1,7 @@
 # templates/quantile_cells.sql.j2 compiled by Jinja2 3.1.6: generated, do not edit.
 # BITSIFT_REGENERATE_TEMPLATES=1 .venv/bin/pytest tests/test_precompiled_templates.py
 # ruff: noqa
-SOURCE_DIGEST = '92025039640ad55e6ebf3e2637468e7064ac8a526d230c88f2a8b4499be3f4c6'
+SOURCE_DIGEST = '6ccd3b08264bb34bb9c5d2156d594ce898640e581da4fac93a45c61c3396685e'
 from jinja2.runtime import LoopContext, Macro, Markup, Namespace, TemplateNotFound, TemplateReference, TemplateRuntimeError, Undefined, escape, identity, internalcode, markup_join, missing, str_join
 name = 'quantile_cells.sql.j2'
 
@@ -27,7 +27,11 @@ def root(context, missing=missing):
         yield str(environment.getattr(l_1_a, 'bucket'))
         yield ' AS bucket,\n  '
         yield str((undefined(name='target_key') if l_1_target_key is missing else l_1_target_key))
-        yield ' AS y,\n  COUNT(*) AS n\nFROM '
+        yield ' AS y,\n  COUNT(*) AS n,\n  MIN(CAST('
+        yield str(environment.getattr(l_1_a, 'raw'))
+        yield ' AS DOUBLE)) AS v_low,\n  MAX(CAST('
+        yield str(environment.getattr(l_1_a, 'raw'))
+        yield ' AS DOUBLE)) AS v_high\nFROM '
         yield str((undefined(name='source') if l_1_source is missing else l_1_source))
         if (undefined(name='where') if l_1_where is missing else l_1_where):
             pass
@@ -44,4 +48,4 @@ def root(context, missing=missing):
     yield '\n) AS bucket_cells\n'
 
 blocks = {}
-debug_info = '10=14&12=21&13=23&14=25&16=27&17=28&18=31&20=33&21=36'
+debug_info = '13=14&15=21&16=23&17=25&19=27&20=29&21=31&22=32&23=35&25=37&26=40'

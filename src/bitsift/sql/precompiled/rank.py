@@ -1,7 +1,7 @@
 # templates/rank.sql.j2 compiled by Jinja2 3.1.6: generated, do not edit.
 # BITSIFT_REGENERATE_TEMPLATES=1 .venv/bin/pytest tests/test_precompiled_templates.py
 # ruff: noqa
-SOURCE_DIGEST = 'df689c4569acb155b6b5d08da6c9a9bac23424037df06750b90c486cb62cd7f3'
+SOURCE_DIGEST = '029f21420ab5645958baf7d68096cb580241f2793087467be2ee16b148cadab7'
 from jinja2.runtime import LoopContext, Macro, Markup, Namespace, TemplateNotFound, TemplateReference, TemplateRuntimeError, Undefined, escape, identity, internalcode, markup_join, missing, str_join
 name = 'rank.sql.j2'
 
@@ -13,126 +13,106 @@ def root(context, missing=missing):
     if 0: yield None
     l_0_shared = resolve('shared')
     l_0_stored_counts = resolve('stored_counts')
+    l_0_strategy = resolve('strategy')
+    l_0_scans = resolve('scans')
     l_0_bounds = resolve('bounds')
     l_0_bounds_macros = resolve('bounds_macros')
     l_0_source = resolve('source')
     l_0_target = resolve('target')
     l_0_where = resolve('where')
-    l_0_target_exact = resolve('target_exact')
-    l_0_segments = resolve('segments')
-    l_0_weight = resolve('weight')
     l_0_attributes = resolve('attributes')
-    l_0_qualified_where = resolve('qualified_where')
-    l_0_strategy = resolve('strategy')
+    l_0_segments = resolve('segments')
     l_0_counts_only = resolve('counts_only')
+    l_0_weight = resolve('weight')
     l_0_drop_missing = resolve('drop_missing')
     l_0_log_ratio = resolve('log_ratio')
     l_0_z = resolve('z')
     l_0_target_label = resolve('target_label')
     l_0_whole_weights = resolve('whole_weights')
     l_0_order_by_gain = resolve('order_by_gain')
-    l_0_sums = l_0_grouping_key = l_0_attribute_keys = l_0_segment_keys = l_0_segments_then = l_0_largest_double = l_0_measures = l_0_empty_measures = l_0_share = l_0_base_columns = l_0_count_columns = missing
+    l_0_sums = l_0_grouping_key = l_0_measured = l_0_attribute_keys = l_0_segment_keys = l_0_segments_then = l_0_largest_double = l_0_measures = l_0_empty_measures = l_0_share = l_0_row_keys = l_0_attribute_column = l_0_rows_where = l_0_base_columns = l_0_count_columns = missing
     try:
-        t_1 = environment.filters['length']
+        t_1 = environment.tests['defined']
     except KeyError:
         @internalcode
         def t_1(*unused):
-            raise TemplateRuntimeError("No filter named 'length' found.")
+            raise TemplateRuntimeError("No test named 'defined' found.")
     try:
-        t_2 = environment.tests['defined']
+        t_2 = environment.tests['none']
     except KeyError:
         @internalcode
         def t_2(*unused):
-            raise TemplateRuntimeError("No test named 'defined' found.")
-    try:
-        t_3 = environment.tests['none']
-    except KeyError:
-        @internalcode
-        def t_3(*unused):
             raise TemplateRuntimeError("No test named 'none' found.")
     pass
     l_0_sums = context.vars['sums'] = environment.get_template('sums.sql.j2', 'rank.sql.j2')._get_default_module(context)
     context.exported_vars.discard('sums')
-    def macro(l_1_exact, l_1_column):
-        t_4 = []
-        if l_1_exact is missing:
-            l_1_exact = undefined("parameter 'exact' was not provided", name='exact')
-        if l_1_column is missing:
-            l_1_column = undefined("parameter 'column' was not provided", name='column')
-        pass
-        if l_1_exact:
-            pass
-            t_4.extend((
-                'bitsift_exact_key(',
-                str(l_1_column),
-                ')',
-            ))
-        else:
-            pass
-            t_4.append(
-                str(l_1_column),
-            )
-        return concat(t_4)
-    context.exported_vars.add('grouping_key')
-    context.vars['grouping_key'] = l_0_grouping_key = Macro(environment, macro, 'grouping_key', ('exact', 'column'), False, False, False, context.eval_ctx.autoescape)
+    included_template = environment.get_template('measured.sql.j2', 'rank.sql.j2')._get_default_module(context)
+    l_0_grouping_key = getattr(included_template, 'grouping_key', missing)
+    if l_0_grouping_key is missing:
+        l_0_grouping_key = undefined(f"the template {included_template.__name__!r} (imported on line 10 in 'rank.sql.j2') does not export the requested name 'grouping_key'", name='grouping_key')
+    l_0_measured = getattr(included_template, 'measured', missing)
+    if l_0_measured is missing:
+        l_0_measured = undefined(f"the template {included_template.__name__!r} (imported on line 10 in 'rank.sql.j2') does not export the requested name 'measured'", name='measured')
+    context.vars.update({'grouping_key': l_0_grouping_key, 'measured': l_0_measured})
+    context.exported_vars.difference_update(('grouping_key', 'measured'))
     def macro():
-        t_5 = []
+        t_3 = []
         pass
         for l_2_a in (undefined(name='attributes') if l_0_attributes is missing else l_0_attributes):
             _loop_vars = {}
             pass
-            t_5.extend((
+            t_3.extend((
                 ', a',
                 str(environment.getattr(l_2_a, 'index')),
             ))
         l_2_a = missing
-        return concat(t_5)
+        return concat(t_3)
     context.exported_vars.add('attribute_keys')
     context.vars['attribute_keys'] = l_0_attribute_keys = Macro(environment, macro, 'attribute_keys', (), False, False, False, context.eval_ctx.autoescape)
     def macro(l_1_prefix):
-        t_6 = []
+        t_4 = []
         if l_1_prefix is missing:
             l_1_prefix = ''
         pass
         for l_2_s in (undefined(name='segments') if l_0_segments is missing else l_0_segments):
             _loop_vars = {}
             pass
-            t_6.extend((
+            t_4.extend((
                 ', ',
                 str(l_1_prefix),
                 's',
                 str(environment.getattr(l_2_s, 'index')),
             ))
         l_2_s = missing
-        return concat(t_6)
+        return concat(t_4)
     context.exported_vars.add('segment_keys')
     context.vars['segment_keys'] = l_0_segment_keys = Macro(environment, macro, 'segment_keys', ('prefix',), False, False, False, context.eval_ctx.autoescape)
     def macro():
-        t_7 = []
+        t_5 = []
         pass
         for l_2_s in (undefined(name='segments') if l_0_segments is missing else l_0_segments):
             _loop_vars = {}
             pass
-            t_7.extend((
+            t_5.extend((
                 's',
                 str(environment.getattr(l_2_s, 'index')),
                 ', ',
             ))
         l_2_s = missing
-        return concat(t_7)
+        return concat(t_5)
     context.exported_vars.add('segments_then')
     context.vars['segments_then'] = l_0_segments_then = Macro(environment, macro, 'segments_then', (), False, False, False, context.eval_ctx.autoescape)
     l_0_largest_double = '1.7976931348623157e308'
     context.vars['largest_double'] = l_0_largest_double
     context.exported_vars.add('largest_double')
     def macro(l_1_prefix):
-        t_8 = []
+        t_6 = []
         if l_1_prefix is missing:
             l_1_prefix = ''
         pass
         if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
             pass
-            t_8.extend((
+            t_6.extend((
                 '\n    SUM(CASE WHEN ',
                 str(l_1_prefix),
                 'w > 0 AND ',
@@ -167,30 +147,30 @@ def root(context, missing=missing):
             ))
         else:
             pass
-            t_8.append(
+            t_6.append(
                 '\n    COUNT(*) AS n',
             )
-        return concat(t_8)
+        return concat(t_6)
     context.exported_vars.add('measures')
     context.vars['measures'] = l_0_measures = Macro(environment, macro, 'measures', ('prefix',), False, False, False, context.eval_ctx.autoescape)
     def macro():
-        t_9 = []
+        t_7 = []
         pass
         if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
             pass
-            t_9.append(
+            t_7.append(
                 'CAST(0 AS DOUBLE) AS n, 0 AS m, 0 AS r, 0 AS w_negative, 0 AS w_fractional',
             )
         else:
             pass
-            t_9.append(
+            t_7.append(
                 '0 AS n',
             )
-        return concat(t_9)
+        return concat(t_7)
     context.exported_vars.add('empty_measures')
     context.vars['empty_measures'] = l_0_empty_measures = Macro(environment, macro, 'empty_measures', (), False, False, False, context.eval_ctx.autoescape)
     def macro(l_1_step, l_1_columns):
-        t_10 = []
+        t_8 = []
         if l_1_step is missing:
             l_1_step = undefined("parameter 'step' was not provided", name='step')
         if l_1_columns is missing:
@@ -198,36 +178,90 @@ def root(context, missing=missing):
         pass
         if (l_1_step in (undefined(name='shared') if l_0_shared is missing else l_0_shared)):
             pass
-            t_10.extend((
+            t_8.extend((
                 '\n  UNION ALL\n  SELECT ',
                 str(l_1_columns),
                 ' FROM ',
                 str(l_1_step),
                 ' WHERE 1 = 0',
             ))
-        return concat(t_10)
+        return concat(t_8)
     context.exported_vars.add('share')
     context.vars['share'] = l_0_share = Macro(environment, macro, 'share', ('step', 'columns'), False, False, False, context.eval_ctx.autoescape)
-    t_11 = []
+    def macro():
+        t_9 = []
+        l_1_target_exact = resolve('target_exact')
+        pass
+        t_9.extend((
+            str(context.call((undefined(name='grouping_key') if l_0_grouping_key is missing else l_0_grouping_key), (undefined(name='target_exact') if l_1_target_exact is missing else l_1_target_exact), str_join(('src.', (undefined(name='target') if l_0_target is missing else l_0_target), )))),
+            ' AS y',
+        ))
+        for l_2_s in (undefined(name='segments') if l_0_segments is missing else l_0_segments):
+            _loop_vars = {}
+            pass
+            t_9.extend((
+                ',\n    ',
+                str(context.call((undefined(name='grouping_key') if l_0_grouping_key is missing else l_0_grouping_key), environment.getattr(l_2_s, 'exact'), str_join(('src.', environment.getattr(l_2_s, 'column'), )), _loop_vars=_loop_vars)),
+                ' AS s',
+                str(environment.getattr(l_2_s, 'index')),
+            ))
+        l_2_s = missing
+        if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
+            pass
+            t_9.extend((
+                ',\n    CAST(src.',
+                str((undefined(name='weight') if l_0_weight is missing else l_0_weight)),
+                ' AS DOUBLE) AS w',
+            ))
+        return concat(t_9)
+    context.exported_vars.add('row_keys')
+    context.vars['row_keys'] = l_0_row_keys = Macro(environment, macro, 'row_keys', (), False, False, False, context.eval_ctx.autoescape)
+    def macro(l_1_a):
+        t_10 = []
+        if l_1_a is missing:
+            l_1_a = undefined("parameter 'a' was not provided", name='a')
+        pass
+        t_10.extend((
+            str(context.call((undefined(name='measured') if l_0_measured is missing else l_0_measured), l_1_a)),
+            ' AS a',
+            str(environment.getattr(l_1_a, 'index')),
+        ))
+        return concat(t_10)
+    context.exported_vars.add('attribute_column')
+    context.vars['attribute_column'] = l_0_attribute_column = Macro(environment, macro, 'attribute_column', ('a',), False, False, False, context.eval_ctx.autoescape)
+    def macro():
+        t_11 = []
+        l_1_qualified_where = resolve('qualified_where')
+        pass
+        if (undefined(name='qualified_where') if l_1_qualified_where is missing else l_1_qualified_where):
+            pass
+            t_11.extend((
+                '\n  WHERE ',
+                str((undefined(name='qualified_where') if l_1_qualified_where is missing else l_1_qualified_where)),
+            ))
+        return concat(t_11)
+    context.exported_vars.add('rows_where')
+    context.vars['rows_where'] = l_0_rows_where = Macro(environment, macro, 'rows_where', (), False, False, False, context.eval_ctx.autoescape)
+    t_12 = []
     pass
-    t_11.extend((
+    t_12.extend((
         'y',
         str(context.call((undefined(name='segment_keys') if l_0_segment_keys is missing else l_0_segment_keys))),
     ))
     if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
         pass
-        t_11.append(
+        t_12.append(
             ', w',
         )
-    t_11.append(
+    t_12.append(
         str(context.call((undefined(name='attribute_keys') if l_0_attribute_keys is missing else l_0_attribute_keys))),
     )
-    l_0_base_columns = (Markup if context.eval_ctx.autoescape else identity)(concat(t_11))
+    l_0_base_columns = (Markup if context.eval_ctx.autoescape else identity)(concat(t_12))
     context.vars['base_columns'] = l_0_base_columns
     context.exported_vars.add('base_columns')
-    t_12 = []
+    t_13 = []
     pass
-    t_12.extend((
+    t_13.extend((
         'attr',
         str(context.call((undefined(name='segment_keys') if l_0_segment_keys is missing else l_0_segment_keys))),
         str(context.call((undefined(name='attribute_keys') if l_0_attribute_keys is missing else l_0_attribute_keys))),
@@ -235,88 +269,54 @@ def root(context, missing=missing):
     ))
     if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
         pass
-        t_12.append(
+        t_13.append(
             ', m, r, w_negative, w_fractional',
         )
-    l_0_count_columns = (Markup if context.eval_ctx.autoescape else identity)(concat(t_12))
+    l_0_count_columns = (Markup if context.eval_ctx.autoescape else identity)(concat(t_13))
     context.vars['count_columns'] = l_0_count_columns
     context.exported_vars.add('count_columns')
     yield 'WITH'
     if (undefined(name='shared') if l_0_shared is missing else l_0_shared):
         pass
         yield ' RECURSIVE'
-    if (t_2((undefined(name='stored_counts') if l_0_stored_counts is missing else l_0_stored_counts)) and (undefined(name='stored_counts') if l_0_stored_counts is missing else l_0_stored_counts)):
+    if (t_1((undefined(name='stored_counts') if l_0_stored_counts is missing else l_0_stored_counts)) and (undefined(name='stored_counts') if l_0_stored_counts is missing else l_0_stored_counts)):
         pass
         yield '\n'
         yield str((undefined(name='stored_counts') if l_0_stored_counts is missing else l_0_stored_counts))
         yield ','
     else:
         pass
+        l_0_scans = ((undefined(name='strategy') if l_0_strategy is missing else l_0_strategy) == 'union_scans')
+        context.vars['scans'] = l_0_scans
+        context.exported_vars.add('scans')
         if (undefined(name='bounds') if l_0_bounds is missing else l_0_bounds):
             pass
             l_0_bounds_macros = context.vars['bounds_macros'] = environment.get_template('bounds.sql.j2', 'rank.sql.j2')._get_default_module(context)
             context.exported_vars.discard('bounds_macros')
             yield '\n'
-            yield str(context.call(environment.getattr((undefined(name='bounds_macros') if l_0_bounds_macros is missing else l_0_bounds_macros), 'bounds_ctes'), (undefined(name='bounds') if l_0_bounds is missing else l_0_bounds), (undefined(name='source') if l_0_source is missing else l_0_source), (undefined(name='target') if l_0_target is missing else l_0_target), (undefined(name='where') if l_0_where is missing else l_0_where)))
-            yield ','
-        yield '\nbase AS (\n  SELECT\n    '
-        yield str(context.call((undefined(name='grouping_key') if l_0_grouping_key is missing else l_0_grouping_key), (undefined(name='target_exact') if l_0_target_exact is missing else l_0_target_exact), str_join(('src.', (undefined(name='target') if l_0_target is missing else l_0_target), ))))
-        yield ' AS y'
-        for l_1_s in (undefined(name='segments') if l_0_segments is missing else l_0_segments):
-            _loop_vars = {}
-            pass
-            yield ',\n    '
-            yield str(context.call((undefined(name='grouping_key') if l_0_grouping_key is missing else l_0_grouping_key), environment.getattr(l_1_s, 'exact'), str_join(('src.', environment.getattr(l_1_s, 'column'), )), _loop_vars=_loop_vars))
-            yield ' AS s'
-            yield str(environment.getattr(l_1_s, 'index'))
-        l_1_s = missing
-        if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
-            pass
-            yield ',\n    CAST(src.'
-            yield str((undefined(name='weight') if l_0_weight is missing else l_0_weight))
-            yield ' AS DOUBLE) AS w'
-        l_1_loop = missing
-        for l_1_a, l_1_loop in LoopContext((undefined(name='attributes') if l_0_attributes is missing else l_0_attributes), undefined):
-            _loop_vars = {}
-            pass
-            yield ',\n    '
-            if (not t_3(environment.getattr(l_1_a, 'cuts'))):
+            yield str(context.call(environment.getattr((undefined(name='bounds_macros') if l_0_bounds_macros is missing else l_0_bounds_macros), 'bounds_ctes'), (undefined(name='bounds') if l_0_bounds is missing else l_0_bounds), (undefined(name='source') if l_0_source is missing else l_0_source), (undefined(name='target') if l_0_target is missing else l_0_target), (undefined(name='where') if l_0_where is missing else l_0_where), combined=(not (undefined(name='scans') if l_0_scans is missing else l_0_scans))))
+            if (not (undefined(name='scans') if l_0_scans is missing else l_0_scans)):
                 pass
-                yield 'CASE WHEN '
-                yield str(environment.getattr(l_1_a, 'value'))
-                yield ' IS NULL THEN NULL'
-                l_2_loop = missing
-                for l_2_cut, l_2_loop in LoopContext(environment.getattr(l_1_a, 'cuts'), undefined):
-                    _loop_vars = {}
-                    pass
-                    yield ' WHEN CAST('
-                    yield str(environment.getattr(l_1_a, 'value'))
-                    yield ' AS DOUBLE) < '
-                    yield str(l_2_cut)
-                    yield ' THEN '
-                    yield str(environment.getattr(l_2_loop, 'index0'))
-                l_2_loop = l_2_cut = missing
-                yield ' ELSE '
-                yield str(t_1(environment.getattr(l_1_a, 'cuts')))
-                yield ' END'
-            else:
+                yield ','
+        if (not (undefined(name='scans') if l_0_scans is missing else l_0_scans)):
+            pass
+            yield '\nbase AS (\n  SELECT\n'
+            yield str(context.call((undefined(name='row_keys') if l_0_row_keys is missing else l_0_row_keys)))
+            for l_1_a in (undefined(name='attributes') if l_0_attributes is missing else l_0_attributes):
+                _loop_vars = {}
                 pass
-                yield str(context.call((undefined(name='grouping_key') if l_0_grouping_key is missing else l_0_grouping_key), environment.getattr(l_1_a, 'exact'), environment.getattr(l_1_a, 'value'), _loop_vars=_loop_vars))
-            yield ' AS a'
-            yield str(environment.getattr(l_1_a, 'index'))
-        l_1_loop = l_1_a = missing
-        yield '\n  FROM '
-        yield str((undefined(name='source') if l_0_source is missing else l_0_source))
-        yield ' AS src'
-        if (undefined(name='bounds') if l_0_bounds is missing else l_0_bounds):
-            pass
-            yield ' CROSS JOIN bounds'
-        if (undefined(name='qualified_where') if l_0_qualified_where is missing else l_0_qualified_where):
-            pass
-            yield '\n  WHERE '
-            yield str((undefined(name='qualified_where') if l_0_qualified_where is missing else l_0_qualified_where))
-        yield str(context.call((undefined(name='share') if l_0_share is missing else l_0_share), 'base', (undefined(name='base_columns') if l_0_base_columns is missing else l_0_base_columns)))
-        yield '\n),'
+                yield ',\n    '
+                yield str(context.call((undefined(name='attribute_column') if l_0_attribute_column is missing else l_0_attribute_column), l_1_a, _loop_vars=_loop_vars))
+            l_1_a = missing
+            yield '\n  FROM '
+            yield str((undefined(name='source') if l_0_source is missing else l_0_source))
+            yield ' AS src'
+            if (undefined(name='bounds') if l_0_bounds is missing else l_0_bounds):
+                pass
+                yield ' CROSS JOIN bounds'
+            yield str(context.call((undefined(name='rows_where') if l_0_rows_where is missing else l_0_rows_where)))
+            yield str(context.call((undefined(name='share') if l_0_share is missing else l_0_share), 'base', (undefined(name='base_columns') if l_0_base_columns is missing else l_0_base_columns)))
+            yield '\n),'
         if ((undefined(name='strategy') if l_0_strategy is missing else l_0_strategy) == 'grouping_sets'):
             pass
             yield '\ncounts AS (\n  SELECT\n    CASE'
@@ -399,6 +399,95 @@ def root(context, missing=missing):
             l_1_a = missing
             yield str(context.call((undefined(name='share') if l_0_share is missing else l_0_share), 'counts', (undefined(name='count_columns') if l_0_count_columns is missing else l_0_count_columns)))
             yield '\n),'
+        elif (undefined(name='scans') if l_0_scans is missing else l_0_scans):
+            pass
+            yield '\ncounts AS (\n  SELECT 0 AS attr'
+            yield str(context.call((undefined(name='segment_keys') if l_0_segment_keys is missing else l_0_segment_keys)))
+            yield str(context.call((undefined(name='attribute_keys') if l_0_attribute_keys is missing else l_0_attribute_keys)))
+            yield ', y, '
+            yield str(context.call((undefined(name='empty_measures') if l_0_empty_measures is missing else l_0_empty_measures)))
+            yield '\n  FROM (\n    SELECT\n'
+            yield str(context.call((undefined(name='row_keys') if l_0_row_keys is missing else l_0_row_keys)))
+            for l_1_a in (undefined(name='attributes') if l_0_attributes is missing else l_0_attributes):
+                _loop_vars = {}
+                pass
+                yield ',\n    '
+                if (not t_2(environment.getattr(l_1_a, 'cuts'))):
+                    pass
+                    yield '0'
+                else:
+                    pass
+                    yield str(context.call((undefined(name='grouping_key') if l_0_grouping_key is missing else l_0_grouping_key), environment.getattr(l_1_a, 'exact'), environment.getattr(l_1_a, 'value'), _loop_vars=_loop_vars))
+                yield ' AS a'
+                yield str(environment.getattr(l_1_a, 'index'))
+            l_1_a = missing
+            yield '\n    FROM '
+            yield str((undefined(name='source') if l_0_source is missing else l_0_source))
+            yield ' AS src\n  ) AS typed_row\n  WHERE 1 = 0\n  UNION ALL\n  SELECT 0 AS attr'
+            yield str(context.call((undefined(name='segment_keys') if l_0_segment_keys is missing else l_0_segment_keys)))
+            for l_1_b in (undefined(name='attributes') if l_0_attributes is missing else l_0_attributes):
+                _loop_vars = {}
+                pass
+                yield ', NULL AS a'
+                yield str(environment.getattr(l_1_b, 'index'))
+            l_1_b = missing
+            yield ', y,'
+            yield str(context.call((undefined(name='measures') if l_0_measures is missing else l_0_measures)))
+            yield '\n  FROM (\n    SELECT\n'
+            yield str(context.call((undefined(name='row_keys') if l_0_row_keys is missing else l_0_row_keys)))
+            yield '\n    FROM '
+            yield str((undefined(name='source') if l_0_source is missing else l_0_source))
+            yield ' AS src'
+            yield str(context.call((undefined(name='rows_where') if l_0_rows_where is missing else l_0_rows_where)))
+            yield '\n  ) AS rows_0\n  GROUP BY '
+            yield str(context.call((undefined(name='segments_then') if l_0_segments_then is missing else l_0_segments_then)))
+            yield 'y'
+            for l_1_a in (undefined(name='attributes') if l_0_attributes is missing else l_0_attributes):
+                _loop_vars = {}
+                pass
+                yield '\n  UNION ALL\n  SELECT '
+                yield str(environment.getattr(l_1_a, 'index'))
+                yield ' AS attr'
+                yield str(context.call((undefined(name='segment_keys') if l_0_segment_keys is missing else l_0_segment_keys), _loop_vars=_loop_vars))
+                for l_2_b in (undefined(name='attributes') if l_0_attributes is missing else l_0_attributes):
+                    _loop_vars = {}
+                    pass
+                    yield ', '
+                    if (environment.getattr(l_2_b, 'index') == environment.getattr(l_1_a, 'index')):
+                        pass
+                        yield 'a'
+                        yield str(environment.getattr(l_2_b, 'index'))
+                    else:
+                        pass
+                        yield 'NULL'
+                    yield ' AS a'
+                    yield str(environment.getattr(l_2_b, 'index'))
+                l_2_b = missing
+                yield ', y,'
+                yield str(context.call((undefined(name='measures') if l_0_measures is missing else l_0_measures), _loop_vars=_loop_vars))
+                yield '\n  FROM (\n    SELECT\n'
+                yield str(context.call((undefined(name='row_keys') if l_0_row_keys is missing else l_0_row_keys), _loop_vars=_loop_vars))
+                yield ',\n    '
+                yield str(context.call((undefined(name='attribute_column') if l_0_attribute_column is missing else l_0_attribute_column), l_1_a, _loop_vars=_loop_vars))
+                yield '\n    FROM '
+                yield str((undefined(name='source') if l_0_source is missing else l_0_source))
+                yield ' AS src'
+                if t_1(environment.getattr(l_1_a, 'method')):
+                    pass
+                    yield ' CROSS JOIN '
+                    yield str(context.call(environment.getattr((undefined(name='bounds_macros') if l_0_bounds_macros is missing else l_0_bounds_macros), 'part_of'), (undefined(name='bounds') if l_0_bounds is missing else l_0_bounds), l_1_a, _loop_vars=_loop_vars))
+                    yield ' AS bounds'
+                yield str(context.call((undefined(name='rows_where') if l_0_rows_where is missing else l_0_rows_where), _loop_vars=_loop_vars))
+                yield '\n  ) AS rows_'
+                yield str(environment.getattr(l_1_a, 'index'))
+                yield '\n  GROUP BY '
+                yield str(context.call((undefined(name='segments_then') if l_0_segments_then is missing else l_0_segments_then), _loop_vars=_loop_vars))
+                yield 'a'
+                yield str(environment.getattr(l_1_a, 'index'))
+                yield ', y'
+            l_1_a = missing
+            yield str(context.call((undefined(name='share') if l_0_share is missing else l_0_share), 'counts', (undefined(name='count_columns') if l_0_count_columns is missing else l_0_count_columns)))
+            yield '\n),'
         else:
             pass
             yield '\nattribute_index AS (\n  SELECT 0 AS i'
@@ -444,7 +533,7 @@ def root(context, missing=missing):
             yield ', b.y'
             yield str(context.call((undefined(name='share') if l_0_share is missing else l_0_share), 'counts', (undefined(name='count_columns') if l_0_count_columns is missing else l_0_count_columns)))
             yield '\n),'
-    if (t_2((undefined(name='counts_only') if l_0_counts_only is missing else l_0_counts_only)) and (undefined(name='counts_only') if l_0_counts_only is missing else l_0_counts_only)):
+    if (t_1((undefined(name='counts_only') if l_0_counts_only is missing else l_0_counts_only)) and (undefined(name='counts_only') if l_0_counts_only is missing else l_0_counts_only)):
         pass
         yield '\ncounted AS (\n  SELECT attr'
         yield str(context.call((undefined(name='segment_keys') if l_0_segment_keys is missing else l_0_segment_keys)))
@@ -614,23 +703,23 @@ def root(context, missing=missing):
             yield '\n  g.n_total_f AS weight_used,\n  e.rows_without_weight AS rows_without_weight,\n  e.rows_negative_weight AS rows_negative_weight,\n  e.rows_fractional_weight AS rows_fractional_weight,'
         yield '\n  g.n_values AS distinct_values,\n  g.n_classes AS classes,\n  g.h_y AS target_entropy,\n  g.h_x AS attribute_entropy,\n  g.h_y - g.ig AS conditional_entropy,\n  g.ig AS information_gain,\n  CASE WHEN g.n_values > 1 THEN g.ig / g.h_x ELSE 0 END AS gain_ratio,\n  CASE WHEN g.h_x + g.h_y > 0 THEN 2 * g.ig / (g.h_x + g.h_y) ELSE 0 END AS symmetric_uncertainty,\n  2 * g.n_total_f * LN(2) * g.ig AS g_statistic,\n  (g.n_values - 1) * (g.n_classes - 1) AS dof,'
         def macro(l_1_value):
-            t_13 = []
+            t_14 = []
             if l_1_value is missing:
                 l_1_value = undefined("parameter 'value' was not provided", name='value')
             pass
             if (undefined(name='weight') if l_0_weight is missing else l_0_weight):
                 pass
-                t_13.extend((
+                t_14.extend((
                     'CASE WHEN e.rows_fractional_weight = 0 THEN ',
                     str(l_1_value),
                     ' END',
                 ))
             else:
                 pass
-                t_13.append(
+                t_14.append(
                     str(l_1_value),
                 )
-            return concat(t_13)
+            return concat(t_14)
         context.exported_vars.add('whole_weights')
         context.vars['whole_weights'] = l_0_whole_weights = Macro(environment, macro, 'whole_weights', ('value',), False, False, False, context.eval_ctx.autoescape)
         yield '\n  '
@@ -645,7 +734,7 @@ def root(context, missing=missing):
         yield str(context.call((undefined(name='whole_weights') if l_0_whole_weights is missing else l_0_whole_weights), 'r.rank_high'))
         yield ' AS rank_high\nFROM excluded AS e\nLEFT JOIN gains AS g\n  ON '
         l_1_loop = missing
-        t_14 = 1
+        t_15 = 1
         for l_1_s, l_1_loop in LoopContext((undefined(name='segments') if l_0_segments is missing else l_0_segments), undefined):
             _loop_vars = {}
             pass
@@ -661,9 +750,9 @@ def root(context, missing=missing):
             yield ' IS NULL AND g.s'
             yield str(environment.getattr(l_1_s, 'index'))
             yield ' IS NULL))'
-            t_14 = 0
+            t_15 = 0
         l_1_loop = l_1_s = missing
-        if t_14:
+        if t_15:
             pass
             yield '1 = 1'
         yield '\nLEFT JOIN uncertainty AS u\n  ON u.attr = g.attr'
@@ -711,4 +800,4 @@ def root(context, missing=missing):
     yield '\n'
 
 blocks = {}
-debug_info = '7=50&10=52&11=59&13=74&14=77&18=88&19=93&21=106&22=109&29=121&30=124&31=129&32=133&33=141&35=147&36=153&41=172&42=175&46=188&47=195&49=199&53=211&52=221&56=228&55=237&58=241&61=244&62=247&64=251&66=253&67=256&74=259&75=261&76=265&78=269&79=272&81=275&82=279&83=282&84=285&85=300&87=305&88=310&89=313&90=314&92=316&95=319&96=331&98=333&100=347&104=350&108=355&110=365&111=367&113=371&115=391&116=396&121=401&122=405&128=409&129=413&131=417&132=421&134=428&137=430&143=443&145=446&153=452&155=454&158=458&159=461&160=464&161=466&162=468&165=470&168=473&169=476&176=487&183=491&184=493&188=500&189=502&190=504&191=506&193=508&197=510&210=512&232=514&235=516&236=520&239=524&251=526&256=528&258=542&262=544&265=547&266=549&267=556&274=560&275=564&286=578&287=582&290=588&291=598&294=608&311=612&312=617&314=633&316=635&317=637&318=639&319=641&323=645&325=666&327=680&329=694&330=698&332=701&334=704'
+debug_info = '7=43&10=45&11=54&12=57&16=68&17=73&19=86&20=89&27=101&28=104&29=109&30=113&31=121&33=127&34=133&39=152&40=155&44=168&45=175&47=179&51=187&52=192&53=195&54=200&56=205&57=209&62=215&63=221&67=228&68=232&69=236&73=245&72=255&76=262&75=271&78=275&81=278&82=281&84=285&85=288&88=290&89=293&90=294&92=297&98=300&99=301&100=305&102=308&105=316&108=319&109=331&111=333&113=347&117=350&121=355&123=365&124=367&126=371&128=391&129=396&131=398&138=401&141=406&142=407&143=411&145=421&149=423&152=433&153=435&155=439&156=441&158=445&161=465&162=467&163=469&164=471&165=478&166=480&167=485&172=490&173=494&179=498&180=502&182=506&183=510&185=517&188=519&194=532&196=535&204=541&206=543&209=547&210=550&211=553&212=555&213=557&216=559&219=562&220=565&227=576&234=580&235=582&239=589&240=591&241=593&242=595&244=597&248=599&261=601&283=603&286=605&287=609&290=613&302=615&307=617&309=631&313=633&316=636&317=638&318=645&325=649&326=653&337=667&338=671&341=677&342=687&345=697&362=701&363=706&365=722&367=724&368=726&369=728&370=730&374=734&376=755&378=769&380=783&381=787&383=790&385=793'
