@@ -29,10 +29,17 @@ $(VENV)/.installed-test-all: pyproject.toml constraints.txt | $(PY)
 	$(PIP_INSTALL) -e '.[test-all]'
 	touch $@ $(VENV)/.installed-test $(VENV)/.installed
 
-install: $(VENV)/.installed
+## The SQL templates compiled ahead (src/bitsift/sql/precompiled/, ignored by git): rewritten
+## whenever a template or the installed packages are newer than the last run.
+PRECOMPILED := $(VENV)/.precompiled
+$(PRECOMPILED): templates/*.sql.j2 $(VENV)/.installed
+	$(PY) -m bitsift.sql.precompile
+	touch $@
+
+install: $(VENV)/.installed $(PRECOMPILED)
 
 ## demo: generate the greenhouse demo data and rank it on the embedded DuckDB
-demo: $(VENV)/.installed
+demo: $(VENV)/.installed $(PRECOMPILED)
 	$(PY) examples/make_demo.py --rows $(ROWS)
 	$(VENV)/bin/bitsift rank examples/data/greenhouse.duckdb --table trays --target outcome
 	$(VENV)/bin/bitsift run examples/greenhouse_job.toml
@@ -49,13 +56,13 @@ browser:
 
 ## test: lint and type check, then the whole suite (PostgreSQL and MariaDB tests need the
 ## local servers; Spark and ClickHouse tests run too). CI runs this (.ci/run).
-test: $(VENV)/.installed-test-all
+test: $(VENV)/.installed-test-all $(PRECOMPILED)
 	$(VENV)/bin/ruff check src tests examples benchmarks
 	$(VENV)/bin/mypy
 	$(PY) -m pytest
 
 ## test-fast: ruff, then the suite without Spark, ClickHouse, the servers and slow tests
-test-fast: $(VENV)/.installed-test
+test-fast: $(VENV)/.installed-test $(PRECOMPILED)
 	$(VENV)/bin/ruff check src tests examples benchmarks
 	$(PY) -m pytest -m "$(FAST_MARKERS)"
 
@@ -70,3 +77,4 @@ bench: $(VENV)/.installed-test
 
 clean:
 	rm -rf $(VENV) examples/data .pytest_cache .ruff_cache .mypy_cache dist build
+	find src/bitsift/sql/precompiled -name '*.py' ! -name __init__.py -delete

@@ -33,7 +33,10 @@ def run(*args: str | Path, cwd: Path | None = None) -> subprocess.CompletedProce
 
 @pytest.fixture(scope="module")
 def wheel(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """The wheel of this checkout."""
+    """The wheel of this checkout, its SQL templates compiled first (as make does)."""
+    from bitsift.sql.precompile import write_all
+
+    write_all()
     wheels = tmp_path_factory.mktemp("wheels")
     run(sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "--quiet",
         "--wheel-dir", wheels, ROOT)

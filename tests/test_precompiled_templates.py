@@ -2,19 +2,22 @@
 one per template, each exactly what Jinja2 compiles from the template's current text, used
 instead of compiling it, and never used once the template's text differs.
 
-After changing a SQL template (or moving Jinja2's pinned version), regenerate them with
-``BITSIFT_REGENERATE_TEMPLATES=1 .venv/bin/pytest tests/test_precompiled_templates.py``.
+They are build output: ``make`` writes them (``python -m bitsift.sql.precompile``) whenever a
+template is newer than the last run, and git ignores them. After changing a SQL template
+outside make, run that command (or ``BITSIFT_REGENERATE_TEMPLATES=1`` with this file).
 """
 
 from __future__ import annotations
 
 import importlib
 import os
+import subprocess
+import sys
 from pathlib import Path
 
 import pytest
 
-from bitsift.sql import templates
+from bitsift.sql.precompile import PRECOMPILED_DIR, module_path, sql_templates, write_all
 from bitsift.sql.templates import (
     environment,
     precompiled_module,
@@ -23,37 +26,67 @@ from bitsift.sql.templates import (
     templates_dir,
 )
 
-REGENERATE = os.environ.get("BITSIFT_REGENERATE_TEMPLATES") == "1"
-PRECOMPILED = Path(templates.__file__).parent / "precompiled"
-SQL_TEMPLATES = sorted(p.name for p in templates_dir().glob("*.sql.j2"))
-
-
-def _module_path(name: str) -> Path:
-    return PRECOMPILED / f"{name.removesuffix('.sql.j2')}.py"
+ROOT = Path(__file__).resolve().parents[1]
+if os.environ.get("BITSIFT_REGENERATE_TEMPLATES") == "1":
+    write_all()
+SQL_TEMPLATES = sql_templates()
 
 
 @pytest.mark.parametrize("name", SQL_TEMPLATES)
 def test_every_sql_template_has_its_current_compiled_module(name: str) -> None:
-    path = _module_path(name)
-    text = precompiled_source(name)
-    if REGENERATE:
-        path.write_text(text, encoding="utf-8")
-    assert path.exists(), f"{path.name} missing: run with BITSIFT_REGENERATE_TEMPLATES=1"
-    assert path.read_text(encoding="utf-8") == text, (
-        f"{path.name} is stale: regenerate with BITSIFT_REGENERATE_TEMPLATES=1")
+    path = module_path(name)
+    assert path.exists(), f"{path.name} missing: run make (python -m bitsift.sql.precompile)"
+    assert path.read_text(encoding="utf-8") == precompiled_source(name), (
+        f"{path.name} is stale: run make (python -m bitsift.sql.precompile)")
 
 
 def test_no_compiled_module_without_its_template() -> None:
-    modules = {p.name for p in PRECOMPILED.glob("*.py")} - {"__init__.py"}
-    assert modules == {_module_path(n).name for n in SQL_TEMPLATES}
+    modules = {p.name for p in PRECOMPILED_DIR.glob("*.py")} - {"__init__.py"}
+    assert modules == {module_path(n).name for n in SQL_TEMPLATES}
     assert len(SQL_TEMPLATES) >= 10  # the folder was found
+
+
+def test_the_compiled_modules_are_build_output_that_git_ignores() -> None:
+    """Generated code is not source: git tracks only the package's __init__.py, and ignores
+    every module make writes."""
+    tracked = subprocess.run(["git", "ls-files", str(PRECOMPILED_DIR)], cwd=ROOT,
+                             capture_output=True, text=True, check=True).stdout.split()
+    assert tracked == ["src/bitsift/sql/precompiled/__init__.py"]
+    rank = module_path("rank.sql.j2")
+    ignored = subprocess.run(["git", "check-ignore", "-q", str(rank)], cwd=ROOT, check=False)
+    assert ignored.returncode == 0, f"{rank} is not ignored by git"
+
+
+def test_write_all_rewrites_a_stale_module_and_removes_a_stray(tmp_path: Path) -> None:
+    path = module_path("sums.sql.j2")
+    stray = PRECOMPILED_DIR / "no_such_template.py"
+    original = path.read_text(encoding="utf-8")
+    try:
+        path.write_text(original + "\n# edited\n", encoding="utf-8")
+        stray.write_text("SOURCE_DIGEST = ''\n", encoding="utf-8")
+        written = write_all()
+        assert written == [path]
+        assert path.read_text(encoding="utf-8") == original
+        assert not stray.exists()
+        assert write_all() == []  # nothing changed: nothing written
+    finally:
+        path.write_text(original, encoding="utf-8")
+        stray.unlink(missing_ok=True)
+
+
+def test_the_command_writes_them(tmp_path: Path) -> None:
+    done = subprocess.run([sys.executable, "-m", "bitsift.sql.precompile"], cwd=tmp_path,
+                          env={**os.environ, "PYTHONPATH": str(ROOT / "src")},
+                          capture_output=True, text=True, timeout=120, check=False)
+    assert done.returncode == 0, done.stderr
+    assert "compiled SQL template(s) written to" in done.stderr
 
 
 def test_the_sql_environment_loads_the_compiled_module() -> None:
     env = environment()
     env.cache.clear()  # type: ignore[union-attr]
     template = env.get_template("rank.sql.j2")
-    assert template.filename == str(_module_path("rank.sql.j2"))
+    assert template.filename == str(module_path("rank.sql.j2"))
     assert environment(html=True).get_template("report.html.j2").filename.endswith(
         "report.html.j2")
 
@@ -71,7 +104,7 @@ def test_a_stale_module_is_never_used(monkeypatch: pytest.MonkeyPatch) -> None:
     env.cache.clear()  # type: ignore[union-attr]
     fresh = env.get_template(name)
     env.cache.clear()  # type: ignore[union-attr]
-    assert compiled.filename == str(_module_path(name))
+    assert compiled.filename == str(module_path(name))
     assert fresh.filename == str(templates_dir() / name)
     assert fresh.render(**context) == compiled.render(**context)
     assert "MIN(CAST(\"x\" AS DOUBLE)) AS lo1" in fresh.render(**context)

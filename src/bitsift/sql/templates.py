@@ -1,13 +1,13 @@
 """Finding and loading the Jinja2 templates (SQL and HTML) shipped inside the wheel.
 
 The SQL templates are also shipped compiled (``bitsift/sql/precompiled/``, one Python module
-per template, written by tests/test_precompiled_templates.py): Jinja2 takes 60-75 ms to
+per template, written by ``make``: :mod:`bitsift.sql.precompile`): Jinja2 takes 60-75 ms to
 compile rank.sql.j2 alone (lexing, parsing, code generation and Python's ``compile``; 2-core
 machine, 2026-12-05), on every run of the command, while importing the compiled module reads
 its cached bytecode. A compiled module is used only when it was compiled from exactly the
 template's current text by the running Jinja2 version (:func:`source_digest`); otherwise the
 template is compiled from its text as before, so a stale module costs time, never SQL.
-Nothing is written at run time: the modules are part of the source tree, like the templates.
+Nothing is written at run time: the modules are build output (make, the wheel), ignored by git.
 """
 
 from __future__ import annotations
@@ -116,8 +116,7 @@ def precompiled_source(name: str) -> str:
     code = env.compile(source, name, filename, raw=True, defer_init=True)
     return (f"# templates/{name} compiled by Jinja2 {getattr(jinja2, '__version__', '')}: "
             "generated, do not edit.\n"
-            "# BITSIFT_REGENERATE_TEMPLATES=1 .venv/bin/pytest "
-            "tests/test_precompiled_templates.py\n"
+            "# written by make (python -m bitsift.sql.precompile)\n"
             "# ruff: noqa\n"
             f"SOURCE_DIGEST = {source_digest(source)!r}\n{code}")
 
