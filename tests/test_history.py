@@ -14,6 +14,7 @@ import signal
 import subprocess
 import sys
 import textwrap
+import threading
 import time
 from collections.abc import Iterator
 from pathlib import Path
@@ -402,6 +403,68 @@ def test_a_results_file_held_too_long_fails_before_ranking(tmp_path: Path,
            "0.5 s, so nothing was written to it: IO Error: Could not set lock" in message
     assert ranked == []
     assert history_count(destination) == {}
+
+
+def _real_duckdb_header(folder: Path) -> bytes:
+    made = folder / "made.duckdb"
+    duckdb.connect(str(made)).close()
+    return made.read_bytes()
+
+
+def test_which_short_files_look_half_created(tmp_path: Path) -> None:
+    # The CI failure this guards: a racing first run opened the results file after another
+    # run had created it and before DuckDB wrote its headers ("exists, but it is not a valid
+    # DuckDB database file"), and failed instead of waiting its turn.
+    header = _real_duckdb_header(tmp_path)
+    assert len(header) == duckdb_file.HEADER_BYTES
+    cases = {b"": True, bytes(100): True, header[:4096]: True, header: False,
+             b"run,position\n1,2\n": False, b"x" * 20000: False}
+    for number, (content, expected) in enumerate(cases.items()):
+        path = tmp_path / f"{number}.duckdb"
+        path.write_bytes(content)
+        assert duckdb_file.being_created(path) is expected, content[:20]
+    assert not duckdb_file.being_created(tmp_path / "missing.duckdb")
+
+
+def test_a_results_file_being_created_is_waited_for(tmp_path: Path) -> None:
+    header = _real_duckdb_header(tmp_path)
+    path = tmp_path / "h.duckdb"
+    path.write_bytes(b"")
+    staged = tmp_path / "staged.duckdb"
+    staged.write_bytes(header)
+    finisher = threading.Timer(0.3, os.replace, (staged, path))
+    finisher.start()
+    try:
+        con = duckdb_file.connect_file(path, read_only=False)
+    finally:
+        finisher.join()
+    try:
+        assert con.execute("SELECT 42").fetchone() == (42,)
+    finally:
+        con.close()
+
+
+def test_a_file_that_stays_half_created_fails_in_one_line(tmp_path: Path,
+                                                         monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(duckdb_file, "CREATION_WAIT_SECONDS", 0.2)
+    path = tmp_path / "h.duckdb"
+    path.write_bytes(b"")
+    with pytest.raises(HistoryError) as caught:
+        duckdb_file.connect_file(path, read_only=False)
+    message = str(caught.value)
+    assert message.startswith(f"cannot open results file {path}: ")
+    assert "not a valid DuckDB database file" in message and "\n" not in message
+
+
+def test_a_file_that_is_not_duckdb_fails_at_once(tmp_path: Path,
+                                                 monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(duckdb_file, "CREATION_WAIT_SECONDS", 30.0)
+    path = tmp_path / "h.duckdb"
+    path.write_text("run,position\n1,2\n", encoding="utf-8")
+    started = time.monotonic()
+    with pytest.raises(HistoryError, match="cannot open results file"):
+        duckdb_file.connect_file(path, read_only=False)
+    assert time.monotonic() - started < 5
 
 
 TWIN_JOBS = ("Sales", "sales", "sales ")
