@@ -47,8 +47,8 @@ def _ranking_statements(ranking: Ranking) -> list[str]:
     return [s for s in ranking.statements if "information_gain" in s]
 
 
-def test_mariadb_and_sqlite_count_in_the_client() -> None:
-    for engine in ("mariadb", "sqlite"):
+def test_duckdb_mariadb_and_sqlite_count_in_the_client() -> None:
+    for engine in ("duckdb", "mariadb", "sqlite"):
         policy = run_policy(engine)
         assert (policy.run_counts, policy.run_sessions) == ("client", 2), engine
     assert run_policy("postgres").run_counts == "statement"

@@ -113,7 +113,8 @@ class RunPolicy:
 
 
 POLICIES: dict[str, RunPolicy] = {
-    "duckdb": RunPolicy(run_quantile="counted", run_sessions=2, timeout=Timeout("client")),
+    "duckdb": RunPolicy(run_quantile="counted", run_sessions=2, run_counts="client",
+                        timeout=Timeout("client")),
     "sqlite": RunPolicy(
         # 500k rows x 4 numeric + 3 categorical: 19.2 s with the window quantile, 6.7 s
         # with bucket cut points, 5.8 s counted (benchmarks/quantile_methods.py).
