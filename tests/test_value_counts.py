@@ -186,7 +186,7 @@ def test_in_memory_sqlite_opens_no_sibling(tmp_path: Path) -> None:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("engine", ["sqlite", "mariadb"])
+@pytest.mark.parametrize("engine", ENGINES)
 def test_segments_and_weights_keep_the_statement(engine: str,
                                                  request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=2, rows=300)
