@@ -32,6 +32,9 @@ class Task:
     params: dict[str, Any] = field(default_factory=dict)
     #: Rows the measured time stands for (> dataset.rows: the time is scaled linearly).
     stands_for_rows: int | None = None
+    #: The worker's PYTHONPATH (another bitsift tree's src: ``run.py --before``); None: this
+    #: process's.
+    pythonpath: str | None = None
 
     def to_json(self) -> str:
         return json.dumps(
@@ -62,11 +65,13 @@ def run_task(task: Task, round_number: int) -> Measurement:
     # stderr goes to a file so a chatty worker cannot block on a full pipe; the parent reaps
     # the child itself with wait4 (Popen.wait would discard the child's resource usage).
     with tempfile.TemporaryFile(mode="w+") as errors:
+        env = None if task.pythonpath is None else {**os.environ, "PYTHONPATH": task.pythonpath}
         process = subprocess.Popen(
             [sys.executable, str(WORKER), task.to_json()],
             stdout=subprocess.PIPE,
             stderr=errors,
             text=True,
+            env=env,
         )
         try:
             stdout = process.stdout.read()  # type: ignore[union-attr]

@@ -108,6 +108,9 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     parser.add_argument("--mariadb-url", default=DEFAULT_MARIADB_URL)
     parser.add_argument("--spark-master", default=SPARK_SETTINGS["spark.master"])
     parser.add_argument("--spark-driver-memory", default=SPARK_SETTINGS["spark.driver.memory"])
+    parser.add_argument("--before", type=Path, default=None,
+                        help="another bitsift tree's src folder: its bitsift.rank runs as (a0), "
+                             "interleaved with the others")
     parser.add_argument("--json", type=Path, default=None, help="also write the results here")
     parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
     args = parser.parse_args(argv)
@@ -122,9 +125,13 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     return args
 
 
-def side_by_side_tasks(dataset: Dataset, export_dataset: Dataset | None) -> list[Task]:
-    """(a) (b) (b') (c) (d) (e), in the interleaving order."""
+def side_by_side_tasks(dataset: Dataset, export_dataset: Dataset | None,
+                       before: Path | None = None) -> list[Task]:
+    """(a) (b) (b') (c) (d) (e), in the interleaving order; (a0) first with ``before``."""
     tasks = []
+    if before is not None:
+        tasks.append(Task(label="a0", contender="bitsift", dataset=dataset,
+                          pythonpath=str(before.resolve())))
     for key, (contender, params) in SIDE_BY_SIDE.items():
         on = dataset
         if key == "b_fast":
@@ -146,6 +153,8 @@ def side_by_side_label(key: str, engine: str) -> str:
     """The report's name of a side-by-side contender on ``engine``."""
     if key in LABELS:
         return LABELS[key]
+    if key == "a0":
+        return "(a0) bitsift.rank, the --before tree"
     if key == "e":
         sessions = {"spark": "2 jobs at once", "clickhouse": "one at a time"}.get(
             engine, "2 sessions")
@@ -169,7 +178,7 @@ def strategy_tasks(dataset: Dataset, strategies: Sequence[str], workers: int) ->
 
 
 def label_of(key: str, workers: int = 2, engine: str = "duckdb") -> str:
-    if key in SIDE_BY_SIDE:
+    if key in SIDE_BY_SIDE or key == "a0":
         return side_by_side_label(key, engine)
     if key == "per_attribute_concurrent":
         return f"per-attribute statements, {workers} sessions"
@@ -216,6 +225,10 @@ def side_by_side_ratios(s: dict[str, Summary], engine: str, categorical_only: bo
         ratio = a / e
         ratios.append(Ratio("a/e (bitsift / counting bound)", ratio, f"<= {bound}",
                             ratio <= bound))
+        if "a0" in s:
+            before = s["a0"].median_seconds / e
+            ratios.append(Ratio("a0/e (the --before tree / counting bound)", before,
+                                f"<= {bound}", before <= bound))
     return ratios
 
 
@@ -402,7 +415,7 @@ def measure_all(args: argparse.Namespace) -> dict[str, Any]:
 def _measure(args: argparse.Namespace, dataset: Dataset, export_dataset: Dataset | None,
              ) -> dict[str, Any]:
     if args.mode == "side-by-side":
-        tasks = side_by_side_tasks(dataset, export_dataset)
+        tasks = side_by_side_tasks(dataset, export_dataset, args.before)
     else:
         tasks = strategy_tasks(dataset, args.strategies, args.workers)
     load_before = os.getloadavg()

@@ -66,7 +66,7 @@ EXPECTED: dict[str, Expected] = {
         caps={"count_strategy": "grouping_sets", "quantile": "quantile_cont",
               "exact_key_type": None},
         policy={"timeout": Timeout("client"), "run_quantile": "counted", "run_sessions": 2,
-                "balance_counted_part": False},
+                "balance_counted_part": False, "run_counts": "client"},
         executed_here=True,
         says=("QUANTILE_CONT(CAST(\"score\" AS DOUBLE), [0.25, 0.5, 0.75])", "GROUPING SETS",
               "LN(CAST(n AS DOUBLE))"),

@@ -80,7 +80,7 @@ def test_a_duckdb_ranking_compiles_no_sql_template(tmp_path: Path) -> None:
     assert done.returncode == 0, done.stderr[-2000:]
     compiled, used = json.loads(done.stdout.strip().splitlines()[-1])
     assert compiled == []
-    assert {"rank.sql.j2", "quantile_cells.sql.j2", "sums.sql.j2"} <= set(used), used
+    assert {"value_counts.sql.j2", "quantile_cells.sql.j2", "measured.sql.j2"} <= set(used), used
 
 
 def test_lazy_commands_name_the_commands_they_load() -> None:

@@ -366,10 +366,20 @@ def test_same_bytes_in_any_row_order() -> None:
 
 
 def test_no_extra_statement() -> None:
-    # Categorical attributes only: the ranking is one statement, reading the table once.
+    # Categorical attributes only: the ranking statement is one statement, reading the table
+    # once; counted in the client (DuckDB's run policy), one bare GROUP BY per attribute and
+    # nothing more: the uncertainty comes from the same counts.
+    from helpers import rank_with
+
     con = duckdb.connect()
     _random_table(con, seed=1, rows=100)
-    ranking = bitsift.rank(con, target="y", table="t")
+    ranking = rank_with(con, "t", "y", policy={"run_counts": "statement"})
     assert len(ranking.statements) == 1
     text = str(ranking.statements[0])
     assert text.count('"t" AS src') == 1 and text.count(" AS src") == 1
+    client = bitsift.rank(con, target="y", table="t")
+    assert len(client.statements) == 4
+    for text, attribute in zip(client.statements, ("strong", "weak", "noise", "many"),
+                               strict=True):
+        assert text.count(" AS src") == 1 and f'GROUP BY src."{attribute}", src."y"' in text
+    assert all(getattr(a, key) is not None for a in client.attributes for key in FIELDS)

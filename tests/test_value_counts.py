@@ -1,6 +1,6 @@
 """Run mode where attributes are counted one by one and their metrics computed in the client.
 
-bitsift.run.value_counts (run policy ``run_counts = "client"``: MariaDB, SQLite) against two
+bitsift.run.value_counts (run policy ``run_counts = "client"``: DuckDB, MariaDB, SQLite) against two
 independent checks: the NumPy reference (bitsift.run.reference: p log p formulas on tables
 counted in Python) and the ranking statement (``run_counts = "statement"``, metrics in SQL) on
 the same table. Data: helpers.random_dataset (NULLs, case and padding variants, ties), seeded
@@ -14,12 +14,14 @@ import re
 import sqlite3
 from pathlib import Path
 
+import duckdb
 import pytest
 from helpers import (
     NUMERIC_COLUMNS,
     Dataset,
     assert_matches_reference,
     assert_same_ranking,
+    fill_duckdb,
     loaded,
     random_dataset,
     rank_with,
@@ -47,8 +49,8 @@ def _ranking_statements(ranking: Ranking) -> list[str]:
     return [s for s in ranking.statements if "information_gain" in s]
 
 
-def test_mariadb_and_sqlite_count_in_the_client() -> None:
-    for engine in ("mariadb", "sqlite"):
+def test_duckdb_mariadb_and_sqlite_count_in_the_client() -> None:
+    for engine in ("duckdb", "mariadb", "sqlite"):
         policy = run_policy(engine)
         assert (policy.run_counts, policy.run_sessions) == ("client", 2), engine
     assert run_policy("postgres").run_counts == "statement"
@@ -184,7 +186,7 @@ def test_in_memory_sqlite_opens_no_sibling(tmp_path: Path) -> None:
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("engine", ["sqlite", "mariadb"])
+@pytest.mark.parametrize("engine", ENGINES)
 def test_segments_and_weights_keep_the_statement(engine: str,
                                                  request: pytest.FixtureRequest) -> None:
     dataset = random_dataset(seed=2, rows=300)
@@ -195,3 +197,104 @@ def test_segments_and_weights_keep_the_statement(engine: str,
                                 attributes="word,noise")
     for result in (segmented, weighted):
         assert not _bare(result) and _ranking_statements(result), engine
+
+
+# --- DuckDB: the client path's edge cases (issue 20) ---------------------------------------------
+
+
+def _duckdb_file(tmp_path: Path, create: str) -> str:
+    path = tmp_path / "t.duckdb"
+    with duckdb.connect(str(path)) as connection:
+        connection.execute(create)
+    return str(path)
+
+
+def test_duckdb_nonfinite_values_and_nulls_are_counted_like_the_statement(
+        tmp_path: Path) -> None:
+    # NaN is one value, ±inf two more, NULL one more (missing=category); the numeric column
+    # holding NaN too.
+    path = _duckdb_file(tmp_path, """
+        CREATE TABLE t AS SELECT
+          CASE WHEN i % 7 = 0 THEN NULL ELSE ['p', 'q', 'r'][i % 3 + 1] END AS y,
+          CASE i % 6 WHEN 0 THEN 'NaN'::DOUBLE WHEN 1 THEN 'inf'::DOUBLE
+                     WHEN 2 THEN '-inf'::DOUBLE WHEN 3 THEN NULL ELSE i % 4 END AS odd,
+          CASE WHEN i % 5 = 0 THEN 'NaN'::DOUBLE WHEN i % 11 = 0 THEN NULL
+               ELSE (i * 37 % 101) / 7.0 END AS measure
+        FROM range(400) r(i)""")
+    for missing in ("category", "drop"):
+        client = rank_with(path, "t", "y", categorical="odd", missing=missing)
+        statement = rank_with(path, "t", "y", policy=STATEMENT, categorical="odd",
+                              missing=missing)
+        # odd is counted bare; measure holds NaN, so its quantile part falls back to binning
+        # row by row in the ranking statement (quantile_counts), which ranks it alone.
+        assert len(_bare(client)) == 1 and '"odd" AS v' in _bare(client)[0], missing
+        (fallback,) = _ranking_statements(client)
+        assert '"measure"' in fallback and '"odd"' not in fallback
+        assert_same_ranking(client, statement, context=missing)
+        assert client["measure"].cuts == statement["measure"].cuts
+    category = rank_with(path, "t", "y", categorical="odd")
+    assert category["odd"].distinct == 8  # NaN, inf, -inf, NULL and i % 4 (0..3)
+    assert category.rows_excluded == len([i for i in range(400) if i % 7 == 0])
+
+
+@pytest.mark.parametrize("rows", [[], [(None, "a")]], ids=["empty", "no-target"])
+def test_duckdb_without_a_target_row_fails_as_the_statement_does(
+        rows: list[tuple[object, ...]]) -> None:
+    connection = duckdb.connect()
+    connection.execute("CREATE TABLE t (y TEXT, a TEXT, b INTEGER)")
+    for y, a in rows:
+        connection.execute("INSERT INTO t VALUES (?, ?, 1)", [y, a])
+    with pytest.raises(DataError) as client:
+        bitsift.rank(connection, table="t", target="y")
+    with pytest.raises(DataError) as statement:
+        rank_with(connection, "t", "y", policy=STATEMENT)
+    assert str(client.value) == str(statement.value)
+
+
+def test_duckdb_one_row_and_two(tmp_path: Path) -> None:
+    # One row has one class: the same error both ways; two rows rank alike.
+    path = _duckdb_file(tmp_path, "CREATE TABLE t AS SELECT 'p' AS y, 'a' AS a, 2.5 AS m")
+    with pytest.raises(DataError) as client_error:
+        bitsift.rank(path, table="t", target="y")
+    with pytest.raises(DataError) as statement_error:
+        rank_with(path, "t", "y", policy=STATEMENT)
+    assert str(client_error.value) == str(statement_error.value)
+    path = _duckdb_file(tmp_path / "..", "CREATE TABLE t AS SELECT * FROM (VALUES "
+                                         "('p', 'a', 2.5), ('q', 'b', 3.5)) v(y, a, m)")
+    client = bitsift.rank(path, table="t", target="y")
+    statement = rank_with(path, "t", "y", policy=STATEMENT)
+    assert _bare(client) and not _ranking_statements(client)
+    assert_same_ranking(client, statement)
+    assert (client.rows, client["a"].distinct, client["a"].information_gain) == (2, 2, 1.0)
+
+
+def test_duckdb_unicode_names_and_case_twin_values(tmp_path: Path) -> None:
+    # DuckDB refuses column names that differ in case only (a catalog error), so the twins
+    # here are values: 'a'/'A' and 'x'/'x ' are four values, as in the reference.
+    rng = random.Random(12)
+    rows = [(rng.choice(["Ja", "ja", "JA"]), rng.choice(["a", "A", "x", "x "]),
+             rng.choice(["α", "β", None]), rng.randrange(4)) for _ in range(500)]
+    names = ("Zielgröße", 'we"ird name', "名前", "Größe")
+    dataset = Dataset(columns=tuple(zip(names, ("text", "text", "text", "integer"),
+                                        strict=True)), rows=rows)
+    connection = duckdb.connect(str(tmp_path / "t.duckdb"))
+    fill_duckdb(connection, ["Tä ble"], dataset)
+    connection.close()
+    client = bitsift.rank(str(tmp_path / "t.duckdb"), table="Tä ble", target="Zielgröße")
+    assert len(_bare(client)) == 3 and not _ranking_statements(client)
+    assert client['we"ird name'].distinct == 4
+    assert_matches_reference(client, dataset, "Zielgröße")
+    statement = rank_with(str(tmp_path / "t.duckdb"), "Tä ble", "Zielgröße", policy=STATEMENT)
+    assert_same_ranking(client, statement)
+
+
+def test_duckdb_too_many_cells_go_to_the_statement(tmp_path: Path) -> None:
+    path = _duckdb_file(tmp_path, "CREATE TABLE t AS SELECT ['p', 'q'][i % 2 + 1] AS y, "
+                                  "i AS id, i % 3 AS small FROM range(300) r(i)")
+    capped = rank_with(path, "t", "y", policy={"client_cells": 50})
+    statement = rank_with(path, "t", "y", policy=STATEMENT)
+    assert all(s.endswith("LIMIT 51") for s in _bare(capped)) and len(_bare(capped)) == 2
+    (fallback,) = _ranking_statements(capped)
+    assert '"id"' in fallback and '"small"' not in fallback
+    assert_same_ranking(capped, statement)
+    assert "id_like" in capped["id"].flags

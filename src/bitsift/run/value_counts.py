@@ -1,6 +1,6 @@
 """Attributes ranked in run mode from bare per-attribute counts, the metrics computed in the client.
 
-On engines whose run policy says ``run_counts = "client"`` (MariaDB, SQLite), each attribute
+On engines whose run policy says ``run_counts = "client"`` (DuckDB, MariaDB, SQLite), each attribute
 that is not ranked from quantile cells (:mod:`bitsift.run.quantile_counts`) is counted by one
 statement of its own, ``SELECT value, class, COUNT(*) ... GROUP BY value, class``
 (templates/value_counts.sql.j2): the least counting an exact ranking needs. Only those
@@ -14,8 +14,8 @@ Why: the ranking statement's window functions and derived tables cost these engi
 the counting itself. On MariaDB 10.11 each reference to a plain CTE is evaluated again (the
 statement read ``counts`` about five times: 5.2 s for 12 attributes of 200,000 rows, against
 1.0 s for their 12 bare GROUP BYs one after the other); SQLite sorts the rows once per
-attribute either way, and the statement's steps after the counting added 20-40 %
-(benchmarks/RESULTS.md, issue 20).
+attribute either way, and the statement's steps after the counting added 20-40 %; on DuckDB
+the GROUPING SETS statement cost 1.3-1.45x the bare GROUP BYs (benchmarks/RESULTS.md, issue 20).
 
 Bounded: an attribute whose counts have more than ``client_cells`` (value, class) cells (the
 statement asks for one more, so the engine never sends more than that), or whose value x class
