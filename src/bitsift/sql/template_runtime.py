@@ -22,10 +22,11 @@ calls, and only those the SQL templates' code makes, with Jinja2 3.1's meaning:
   without the importer's variables (Jinja2's default module) and read its exported names.
 
 No autoescaping (SQL), so ``Markup`` and ``escape`` are only named for the generated import
-line. Which Jinja2 versions' generated code this was checked against:
-:data:`SUPPORTED_JINJA2`; a module written by another is passed over and the template is
-compiled by Jinja2 itself (:mod:`bitsift.sql.templates`). tests/test_template_runtime.py
-renders every statement the suite builds both ways and compares the text.
+line (MarkupSafe is imported if one is ever called). Which Jinja2 versions' generated code
+this was checked against: :data:`SUPPORTED_JINJA2`; a module written by another is passed
+over and the template is compiled by Jinja2 itself (:mod:`bitsift.sql.templates`).
+tests/test_template_runtime.py renders each construct, and every statement of a spread of
+commands, both ways and compares the text (or the error).
 """
 
 from __future__ import annotations
@@ -34,8 +35,6 @@ import threading
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from types import ModuleType
 from typing import Any
-
-from markupsafe import Markup, escape
 
 __all__ = [
     "LoopContext", "Macro", "Markup", "Namespace", "TemplateNotFound", "TemplateReference",
@@ -75,6 +74,21 @@ class TemplateRuntimeError(TemplateError):
 
 class TemplateNotFound(TemplateError):
     """A template imported another that has no current compiled module."""
+
+
+def Markup(value: Any = "") -> Any:  # noqa: N802 - the name the generated code imports
+    """MarkupSafe's ``Markup`` (escaped text), imported on first use: never in the SQL
+    templates, which are not autoescaped."""
+    from markupsafe import Markup as markup
+
+    return markup(value)
+
+
+def escape(value: Any) -> Any:
+    """MarkupSafe's ``escape``, imported on first use (never in the SQL templates)."""
+    from markupsafe import escape as markup_escape
+
+    return markup_escape(value)
 
 
 def identity(value: Any) -> Any:
