@@ -108,7 +108,8 @@ def markup_join(values: Iterable[Any]) -> str:
     """``a ~ b`` where an operand may be markup (never in the SQL templates: no escaping)."""
     parts = list(values)
     if any(hasattr(part, "__html__") for part in parts):
-        return Markup("").join(escape(part) for part in parts)
+        joined: str = Markup("").join(escape(part) for part in parts)
+        return joined
     return str_join(parts)
 
 
