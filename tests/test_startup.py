@@ -138,3 +138,31 @@ def test_the_phases_benchmark_runs_at_a_small_size(tmp_path: Path) -> None:
     assert medians["statements run"] > 0 and medians["statements built"] > 0
     assert 0 < medians["ranking"] < medians["total"]
     assert "statements built" in done.stdout
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(("table", "code"), [("t", 0), ("no_such_table", 1)])
+def test_the_console_skips_python_teardown_only_after_a_finished_ranking(
+        tmp_path: Path, table: str, code: int) -> None:
+    """``bitsift rank`` ends the process once its output is flushed (atexit handlers do not
+    run: Python's teardown took 45-50 ms); an error exits as Python always does."""
+    path = tmp_path / "t.duckdb"
+    with duckdb.connect(str(path)) as con:
+        con.execute("CREATE TABLE t AS SELECT i % 3 AS a, i * 0.5 AS x, i % 2 AS y "
+                    "FROM range(60) r(i)")
+    probe = ("import atexit, sys\n"
+             "atexit.register(lambda: sys.stderr.write('teardown ran\\n'))\n"
+             "from bitsift.cli import console\n"
+             "sys.argv = ['bitsift', 'rank', sys.argv[1], '--table', sys.argv[2], "
+             "'--target', 'y', '--format', 'json']\n"
+             "console()\n")
+    env = {**os.environ, "PYTHONPATH": str(ROOT / "src")}
+    done = subprocess.run([sys.executable, "-c", probe, str(path), table], env=env,
+                          capture_output=True, text=True, timeout=120, check=False)
+    assert done.returncode == code, done.stderr[-2000:]
+    if code == 0:
+        assert "teardown ran" not in done.stderr
+        assert [a["attribute"] for a in json.loads(done.stdout)["attributes"]] == ["a", "x"]
+    else:
+        assert "teardown ran" in done.stderr
+        assert "Error: unknown table" in done.stderr and not done.stdout
