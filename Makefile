@@ -30,9 +30,10 @@ $(VENV)/.installed-test-all: pyproject.toml constraints.txt | $(PY)
 	touch $@ $(VENV)/.installed-test $(VENV)/.installed
 
 ## The SQL templates compiled ahead (src/bitsift/sql/precompiled/, ignored by git): rewritten
-## whenever a template or the installed packages are newer than the last run.
+## whenever a template, the code that writes them or the installed packages are newer than
+## the last run.
 PRECOMPILED := $(VENV)/.precompiled
-$(PRECOMPILED): templates/*.sql.j2 $(VENV)/.installed
+$(PRECOMPILED): templates/*.sql.j2 src/bitsift/sql/templates.py src/bitsift/sql/precompile.py $(VENV)/.installed
 	$(PY) -m bitsift.sql.precompile
 	touch $@
 

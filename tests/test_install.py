@@ -85,12 +85,12 @@ def test_wheel_ships_templates_and_type_marker(wheel: Path) -> None:
 INSPECT = """
 import json, sys
 import bitsift
-from bitsift.sql.templates import environment, templates_dir
+from bitsift.sql.templates import compiled_template, templates_dir
 ranking = bitsift.rank(sys.argv[1], target="growth")
 print(json.dumps({
     "module": bitsift.__file__,
     "templates": str(templates_dir()),
-    "rank_template": environment().get_template("rank.sql.j2").filename,
+    "rank_template": compiled_template("rank.sql.j2").filename,
     "gains": {a.attribute: a.information_gain for a in ranking.attributes},
 }))
 """

@@ -17,13 +17,15 @@ from pathlib import Path
 
 import pytest
 
+from bitsift.sql import template_runtime, templates
 from bitsift.sql.precompile import PRECOMPILED_DIR, module_path, sql_templates, write_all
 from bitsift.sql.templates import (
+    compiled_template,
     environment,
     precompiled_module,
     precompiled_source,
+    render,
     source_digest,
-    templates_dir,
 )
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -82,29 +84,44 @@ def test_the_command_writes_them(tmp_path: Path) -> None:
     assert "compiled SQL template(s) written to" in done.stderr
 
 
-def test_the_sql_environment_loads_the_compiled_module() -> None:
-    env = environment()
-    env.cache.clear()  # type: ignore[union-attr]
-    template = env.get_template("rank.sql.j2")
+def test_sql_templates_render_from_their_compiled_modules() -> None:
+    template = compiled_template("rank.sql.j2")
+    assert template is not None
     assert template.filename == str(module_path("rank.sql.j2"))
     assert environment(html=True).get_template("report.html.j2").filename.endswith(
         "report.html.j2")
 
 
-def test_a_stale_module_is_never_used(monkeypatch: pytest.MonkeyPatch) -> None:
-    """A module compiled from other text (or by another Jinja2) is passed over: the
-    template is compiled from its text, and renders the same."""
-    env = environment()
+@pytest.mark.parametrize("field", ["SOURCE_DIGEST", "JINJA2_VERSION"])
+def test_a_stale_module_is_never_used(monkeypatch: pytest.MonkeyPatch, field: str) -> None:
+    """A module compiled from other text (or by a Jinja2 whose generated code the runtime
+    was not checked against) is passed over: Jinja2 compiles the template from its text,
+    and it renders the same."""
     name = "quantile_ranges.sql.j2"
     context = {"attributes": [{"raw": '"x"', "index": 1}], "source": '"t"'}
-    env.cache.clear()  # type: ignore[union-attr]
-    compiled = env.get_template(name)
+    compiled = render(name, **context)
     module = importlib.import_module(precompiled_module(name))
+    stale = source_digest("some other text") if field == "SOURCE_DIGEST" else "0.0"
+    monkeypatch.setattr(module, field, stale)
+    monkeypatch.setattr(templates, "_SQL_TEMPLATES",
+                        template_runtime.SqlEnvironment(templates._current_module))
+    assert compiled_template(name) is None
+    assert render(name, **context) == compiled
+    assert "MIN(CAST(\"x\" AS DOUBLE)) AS lo1" in compiled
+
+
+def test_a_stale_imported_module_makes_jinja2_render_the_whole_template(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    """rank.sql.j2's module is current but that of sums.sql.j2, which it imports, is not:
+    the runtime stops at the import, and Jinja2 renders rank.sql.j2 from its text instead."""
+    from helpers import paste_sql
+
+    current = paste_sql("duckdb", "default")
+    module = importlib.import_module(precompiled_module("sums.sql.j2"))
     monkeypatch.setattr(module, "SOURCE_DIGEST", source_digest("some other text"))
-    env.cache.clear()  # type: ignore[union-attr]
-    fresh = env.get_template(name)
-    env.cache.clear()  # type: ignore[union-attr]
-    assert compiled.filename == str(module_path(name))
-    assert fresh.filename == str(templates_dir() / name)
-    assert fresh.render(**context) == compiled.render(**context)
-    assert "MIN(CAST(\"x\" AS DOUBLE)) AS lo1" in fresh.render(**context)
+    fresh = template_runtime.SqlEnvironment(templates._current_module)
+    monkeypatch.setattr(templates, "_SQL_TEMPLATES", fresh)
+    assert compiled_template("rank.sql.j2") is not None
+    with pytest.raises(template_runtime.TemplateNotFound):
+        fresh.get_template("sums.sql.j2")
+    assert paste_sql("duckdb", "default") == current

@@ -1,6 +1,6 @@
 """``python -m bitsift.cli``: the command line."""
 
-from bitsift.cli import main
+from bitsift.cli import console
 
 if __name__ == "__main__":
-    main()
+    console()

@@ -36,6 +36,10 @@ class CliState:
 
     #: ``--debug``: tracebacks and the statements sent.
     debug: bool = False
+    #: Set by a command that has written all it writes to stdout/stderr and closed every
+    #: session it opened: the console entry may then end the process without Python's
+    #: teardown (:func:`bitsift.cli.console`).
+    output_done: bool = False
 
 
 def cli_state() -> CliState:
