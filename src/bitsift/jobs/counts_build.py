@@ -4,19 +4,21 @@
 from __future__ import annotations
 
 import dataclasses
-import datetime as _dt
-from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from functools import partial
 from typing import Any
 
+from bitsift.engines.base import Engine
 from bitsift.engines.sources import parse_table_name
 from bitsift.errors import SpecError
+from bitsift.jobs.counts_rows import CountedPart, CountsRows, counts_rows
 from bitsift.jobs.counts_store import CountsConflict, CountsStore, Write, open_counts_store
 from bitsift.jobs.history import Destination
 from bitsift.names import one_line, resolve_name, split_names
 from bitsift.run.api import make_options
+from bitsift.run.concurrent import run_on_sessions, sessions_for, split
 from bitsift.run.counts_meta import DEFAULT_COUNTS_TABLE, CountsMeta
-from bitsift.run.counts_values import encode, parse_partition, partition_value
+from bitsift.run.counts_values import parse_partition
 from bitsift.run.cuts import fetch_cuts
 from bitsift.run.session import Session, session_for
 from bitsift.spec.rankspec import RankOptions, RankSpec
@@ -139,7 +141,7 @@ class Counted:
     plan: CountsPlan
     spec: RankSpec
     cuts: dict[str, list[float]]
-    rows: list[list[Any]]
+    rows: CountsRows
     partitions: list[str | int]
     notes: list[str]
     statements: list[str]
@@ -147,13 +149,24 @@ class Counted:
 
 
 def count_partitions(session: Session, plan: CountsPlan) -> Counted:
-    """Count the plan's partitions in the source (one statement); nothing is written."""
+    """Count the plan's partitions in the source; nothing is written. Where the run policy
+    spreads a ranking over sessions, the attributes are cut into as many parts, each
+    counted by its own statement on its own session, at once (the counts are the same)."""
     spec, partitioning = plan.spec, plan.partitioning
-    cuts = plan.stored.cuts if plan.stored is not None else fetch_cuts(session.engine, spec)
-    statement = counting_statement(spec, session.engine.caps, cuts, partitioning,
-                                   after=plan.after, from_=plan.start)
-    fetched = session.engine.fetch(statement.sql)
-    rows, partitions = _rows(fetched.columns, fetched.rows, spec, partitioning.kind)
+    engine = session.engine
+    cuts = plan.stored.cuts if plan.stored is not None else fetch_cuts(engine, spec)
+    groups = split(spec.attributes, sessions_for(engine, spec)) if spec.attributes else [[]]
+
+    def count(positions: list[int], on: Engine) -> CountedPart:
+        part = dataclasses.replace(spec, attributes=tuple(spec.attributes[i]
+                                                          for i in positions))
+        statement = counting_statement(part, on.caps, cuts, partitioning, after=plan.after,
+                                       from_=plan.start)
+        return CountedPart(positions, on.fetch(statement.sql))
+
+    parts = run_on_sessions(engine, [partial(count, g) for g in groups], len(groups),
+                            spec.options.timeout)
+    rows, partitions = counts_rows(parts, spec, partitioning.kind)
     return Counted(plan=plan, spec=spec, cuts={k: list(v) for k, v in cuts.items()}, rows=rows,
                    partitions=partitions, notes=list(session.notes),
                    statements=session.record().statements, dialect=session.engine.caps.name)
@@ -165,8 +178,9 @@ def store_counts(counted: Counted) -> CountsReport:
     notes = list(counted.notes)
     cap = plan.rank_options.thresholds.high_cardinality
     if plan.stored is None:
-        spec, rows, dropped = _capped(spec, rows, cap)
+        spec, kept, dropped = _capped(spec, rows.as_lists(), cap)
         if dropped:
+            rows = CountsRows.from_lists(kept, plan.partitioning.kind)
             notes.append(f"not stored, more than {cap} distinct values in a partition "
                          "(--high-cardinality): " + ", ".join(dropped))
     meta = dataclasses.replace(plan.asked, attributes=tuple(
@@ -289,49 +303,6 @@ def _plain(value: Any) -> Any:
     if isinstance(value, tuple | list):
         return [_plain(v) for v in value]
     return value
-
-
-#: Types whose equal values convert alike (unlike, say, datetimes of one instant in two
-#: time zones): their conversions are remembered.
-_PLAIN_TYPES = (str, int, float, _dt.date)
-
-
-def _remembered(convert: Callable[[Any], Any]) -> Callable[[Any], Any]:
-    """``convert``, run once per distinct value of a plain type."""
-    seen: dict[tuple[type, Any], Any] = {}
-
-    def converted(value: Any) -> Any:
-        if type(value) not in _PLAIN_TYPES:
-            return convert(value)
-        key = (type(value), value)
-        if key not in seen:
-            seen[key] = convert(value)
-        return seen[key]
-
-    return converted
-
-
-def _rows(columns: Sequence[str], fetched: Sequence[Sequence[Any]], spec: RankSpec,
-          kind: str) -> tuple[list[list[Any]], list[str | int]]:
-    """The counting statement's rows as counts-table rows, and their partitions in order."""
-    at = {name: i for i, name in enumerate(columns)}
-    names = {i: a.name for i, a in enumerate(spec.attributes, start=1)}
-    value_at = {i: at[f"a{i}"] for i in names}
-    attr, part, cls, count = at["attr"], at["s1"], at["y"], at["n"]
-    # Partitions and values repeat over many rows: each is converted once.
-    tag = _remembered(encode)
-    key_of = _remembered(lambda raw: partition_value(raw, kind))
-    rows = []
-    partitions: set[str | int] = set()
-    for record in fetched:
-        index = int(record[attr])
-        key = key_of(record[part])
-        partitions.add(key)
-        rows.append([key, index, names.get(index, spec.target),
-                     tag(record[value_at[index]]) if index else None, tag(record[cls]),
-                     int(record[count])])
-    rows.sort(key=lambda r: (r[0], r[1], r[3] is None, r[3] or "", r[4] is None, r[4] or ""))
-    return rows, sorted(partitions)
 
 
 def _capped(spec: RankSpec, rows: list[list[Any]], cap: int,

@@ -14,11 +14,11 @@ from dataclasses import dataclass
 from typing import Any
 
 import duckdb
-import numpy as np
 import sqlalchemy as sa
 from sqlalchemy.dialects import mysql
 from sqlglot import exp
 
+from bitsift.jobs.counts_rows import CountsRows
 from bitsift.jobs.duckdb_file import connect_file, write_transaction
 from bitsift.jobs.history import Destination, HistoryError
 from bitsift.jobs.history_sqlalchemy import SqlAlchemyStore
@@ -30,7 +30,6 @@ _BATCH = 100_000
 #: Partitions named per DELETE ... IN (...).
 _IN_BATCH = 500
 
-Row = Sequence[Any]
 
 
 class CountsConflict(HistoryError):
@@ -42,7 +41,7 @@ class Write:
     """One run's write: its metadata, rows, the partitions they replace, and how."""
 
     meta: CountsMeta
-    rows: Sequence[Row]
+    rows: CountsRows
     partitions: list[str | int]
     recount_from: str | int | None = None
     refit: bool = False
@@ -138,15 +137,12 @@ class DuckDBCounts(CountsStore):
             con.execute(exp.Create(this=exp.Schema(this=table.copy(), expressions=definitions),
                                    kind="TABLE", exists=True).sql("duckdb"))
 
-    def _insert(self, con: duckdb.DuckDBPyConnection, rows: Sequence[Row], kind: str) -> None:
-        """The rows in one statement, read from NumPy columns registered on the connection:
-        executemany() inserts about a thousand rows a second, list parameters about 300,000,
-        a registered column scan (no per-value conversion) over a million."""
+    def _insert(self, con: duckdb.DuckDBPyConnection, rows: CountsRows, kind: str) -> None:
+        """The rows in one statement, read from their NumPy columns registered on the
+        connection: executemany() inserts about a thousand rows a second, list parameters
+        about 300,000, a registered column scan (no per-value conversion) over a million."""
         types = self._types(kind)
-        columns = list(zip(*rows, strict=True))
-        arrays = {c: np.array(values, dtype=np.int64 if types[c] in ("BIGINT", "INTEGER")
-                              else object)
-                  for c, values in zip(COUNTS_COLUMNS, columns, strict=True)}
+        arrays = dict(zip(COUNTS_COLUMNS, rows.columns, strict=True))
         view = f"bitsift_rows_{uuid.uuid4().hex}"
         con.register(view, arrays)
         try:
@@ -243,7 +239,8 @@ class SqlAlchemyCounts(CountsStore):
         with self._store._connection(write=False) as connection:
             return self._read(connection)
 
-    def _insert(self, connection: sa.Connection, counts: sa.Table, rows: Sequence[Row]) -> None:
+    def _insert(self, connection: sa.Connection, counts: sa.Table, rows: list[list[Any]],
+                ) -> None:
         """The rows by PostgreSQL's COPY where the driver is psycopg (a tenth of the time of
         batched INSERTs), else by batched INSERTs; in the connection's transaction either way."""
         driver = connection.connection.driver_connection
@@ -272,7 +269,7 @@ class SqlAlchemyCounts(CountsStore):
                     counts.c.partition >= write.recount_from))
             for chunk in _chunks(write.partitions, _IN_BATCH):
                 connection.execute(sa.delete(counts).where(counts.c.partition.in_(list(chunk))))
-            self._insert(connection, counts, write.rows)
+            self._insert(connection, counts, write.rows.as_lists())
             connection.execute(sa.delete(meta))
             connection.execute(sa.insert(meta), [{"key": k, "value": v}
                                                  for k, v in write.meta.rows()])

@@ -21,10 +21,12 @@ from __future__ import annotations
 
 import queue
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from concurrent.futures import FIRST_EXCEPTION, Future, ThreadPoolExecutor, wait
 from contextlib import contextmanager
 from dataclasses import dataclass, replace
+from functools import partial
+from typing import TypeVar
 
 from bitsift.engines.base import Engine
 from bitsift.run import quantile_counts, quantiles, value_counts
@@ -37,6 +39,9 @@ from bitsift.sql.sqlbuild import rank_statement
 CANCEL_RETRY = 0.25
 #: How long bitsift keeps cancelling before it leaves the sessions to end on their own.
 STOP_WITHIN = 30.0
+
+#: What one job on a session returns.
+_Done = TypeVar("_Done")
 
 #: Relative cost of an attribute in a part: a numeric one adds a quantile pre-pass and binning.
 _WEIGHT = {"numeric": 4, "categorical": 1}
@@ -134,12 +139,28 @@ def rank_part(engine: Engine, spec: RankSpec) -> PartResult:
     return PartResult(cuts=cuts, records=records)
 
 
-def _run_on_pool(pool: SessionPool, spec: RankSpec) -> PartResult:
+def _run_on_pool(pool: SessionPool, job: Callable[[Engine], _Done]) -> _Done:
     member = pool.idle.get()
     try:
-        return rank_part(member, spec)
+        return job(member)
     finally:
         pool.idle.put(member)
+
+
+def run_on_sessions(engine: Engine, jobs: Sequence[Callable[[Engine], _Done]], sessions: int,
+                    timeout: float | None) -> list[_Done]:
+    """Each job run on one of ``sessions`` sessions (``engine`` and siblings of it), at most
+    ``sessions`` at once, in the order given; their results in that order. The first failure
+    (or Ctrl-C) cancels the statements still running and is raised once they have stopped.
+    With one session, or one job, the jobs run one after another on ``engine``."""
+    size = max(1, min(sessions, len(jobs)))
+    if size == 1:
+        return [job(engine) for job in jobs]
+    with session_pool(engine, size, timeout) as pool, ThreadPoolExecutor(
+        max_workers=size, thread_name_prefix="bitsift"
+    ) as executor:
+        futures = [executor.submit(_run_on_pool, pool, job) for job in jobs]
+        return _results(futures, pool)
 
 
 def _groups(engine: Engine, spec: RankSpec, sessions: int, max_size: int) -> list[list[int]]:
@@ -221,18 +242,15 @@ def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_si
     """
     groups = _groups(engine, spec, sessions, max_size)
     narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
-    size = max(1, min(sessions, len(narrowed)))
-    if size == 1:
-        return _merge(groups, [rank_part(engine, part) for part in narrowed])
-    with session_pool(engine, size, spec.options.timeout) as pool, ThreadPoolExecutor(
-        max_workers=size, thread_name_prefix="bitsift"
-    ) as executor:
-        futures = [executor.submit(_run_on_pool, pool, part) for part in narrowed]
-        results = _results(futures, pool)
-    return _merge(groups, results)
+    jobs = [partial(_ranked_part, part) for part in narrowed]
+    return _merge(groups, run_on_sessions(engine, jobs, sessions, spec.options.timeout))
 
 
-def _results(futures: list[Future[PartResult]], pool: SessionPool) -> list[PartResult]:
+def _ranked_part(spec: RankSpec, engine: Engine) -> PartResult:
+    return rank_part(engine, spec)
+
+
+def _results(futures: list[Future[_Done]], pool: SessionPool) -> list[_Done]:
     """The parts' results in order, or the first part's failure once every other session's
     statement is stopped; on Ctrl-C or SIGTERM too (a KeyboardInterrupt in this thread).
 
@@ -251,7 +269,7 @@ def _results(futures: list[Future[PartResult]], pool: SessionPool) -> list[PartR
     return [future.result() for future in futures]
 
 
-def _stop(futures: list[Future[PartResult]], pool: SessionPool) -> None:
+def _stop(futures: Sequence[Future[_Done]], pool: SessionPool) -> None:
     """Drop the parts not started and cancel the running ones, again until they have ended:
     a cancel that lands while a session is between two statements stops neither."""
     for future in futures:
