@@ -288,6 +288,23 @@ def test_duckdb_unicode_names_and_case_twin_values(tmp_path: Path) -> None:
     assert_same_ranking(client, statement)
 
 
+def test_duckdb_nested_values_are_counted_like_the_statement(tmp_path: Path) -> None:
+    # LIST/ARRAY arrive in Python as lists, STRUCT/MAP as dicts: unhashable. Before, the client
+    # path failed with "unexpected TypeError: unhashable type"; NaN inside a list is one value.
+    path = _duckdb_file(tmp_path, """
+        CREATE TABLE t AS SELECT ['p', 'q', 'r'][i % 3 + 1] AS y,
+          [i % 2, i % 3] AS l, {'a': i % 2, 'b': [i % 5]} AS s, MAP([i % 2], [i % 3]) AS m,
+          [CASE WHEN i % 4 = 0 THEN 'NaN'::DOUBLE ELSE (i % 3)::DOUBLE END] AS f,
+          [i % 2, i % 3]::INTEGER[2] AS a
+        FROM range(300) r(i)""")
+    client = bitsift.rank(path, table="t", target="y")
+    statement = rank_with(path, "t", "y", policy=STATEMENT)
+    assert len(_bare(client)) == 5 and not _ranking_statements(client)
+    assert_same_ranking(client, statement)
+    # f holds [NaN], [0], [1] and [2].
+    assert [client[name].distinct for name in ("l", "s", "m", "f", "a")] == [6, 10, 6, 4, 6]
+
+
 def test_duckdb_too_many_cells_go_to_the_statement(tmp_path: Path) -> None:
     path = _duckdb_file(tmp_path, "CREATE TABLE t AS SELECT ['p', 'q'][i % 2 + 1] AS y, "
                                   "i AS id, i % 3 AS small FROM range(300) r(i)")

@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Hashable, Mapping, Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 from bitsift.engines.base import Engine
@@ -57,13 +57,31 @@ class _NaN:
 _NAN = _NaN()
 
 
+@dataclass(frozen=True)
+class _Nested:
+    """The key of a nested value (DuckDB's LIST and ARRAY arrive as lists, STRUCT and MAP as
+    dicts: unhashable), its parts keyed in the order the engine gave them."""
+
+    kind: str
+    parts: tuple[Key, ...]
+
+
 def key(value: Any) -> Key:
-    """A value or class as the engine grouped it: every NaN one key, anything else itself.
+    """A value or class as the engine grouped it: every NaN one key (inside nested values
+    too), a list or dict a hashable :class:`_Nested`, anything else itself.
 
     >>> key(float("nan")) is key(float("nan")), key(b"A") == key(b"a")
     (True, False)
+    >>> key([1, float("nan")]) == key([1, float("nan")]), key({"a": [1]}) == key({"a": [2]})
+    (True, False)
     """
-    return _NAN if isinstance(value, float) and math.isnan(value) else value
+    if isinstance(value, float) and math.isnan(value):
+        return _NAN
+    if isinstance(value, list | tuple):
+        return _Nested("list", tuple(key(part) for part in value))
+    if isinstance(value, dict):
+        return _Nested("dict", tuple((key(k), key(v)) for k, v in value.items()))
+    return value
 
 
 def counts_in_client(engine: Engine, spec: RankSpec) -> bool:
