@@ -81,7 +81,8 @@ def key(value: Any) -> Key:
         return _Nested("list", tuple(key(part) for part in value))
     if isinstance(value, dict):
         return _Nested("dict", tuple((key(k), key(v)) for k, v in value.items()))
-    return value
+    scalar: Key = value
+    return scalar
 
 
 def counts_in_client(engine: Engine, spec: RankSpec) -> bool:
