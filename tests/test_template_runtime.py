@@ -159,11 +159,11 @@ def test_every_statement_of_the_commands_renders_as_jinja2_renders_it(
     plain = template_runtime.Template.render
     seen: list[tuple[str, dict[str, Any]]] = []
 
-    def recording(self: template_runtime.Template, **variables: Any) -> str:
+    def capturing(self: template_runtime.Template, **variables: Any) -> str:
         seen.append((self.name, variables))
         return plain(self, **variables)
 
-    monkeypatch.setattr(template_runtime.Template, "render", recording)
+    monkeypatch.setattr(template_runtime.Template, "render", capturing)
     path = tmp_path / "t.duckdb"
     with duckdb.connect(str(path)) as con:
         con.execute(

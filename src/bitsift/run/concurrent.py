@@ -242,12 +242,8 @@ def fetch_records_in_parts(engine: Engine, spec: RankSpec, sessions: int, max_si
     """
     groups = _groups(engine, spec, sessions, max_size)
     narrowed = [replace(spec, attributes=tuple(spec.attributes[i] for i in g)) for g in groups]
-    jobs = [partial(_ranked_part, part) for part in narrowed]
+    jobs = [partial(rank_part, spec=part) for part in narrowed]
     return _merge(groups, run_on_sessions(engine, jobs, sessions, spec.options.timeout))
-
-
-def _ranked_part(spec: RankSpec, engine: Engine) -> PartResult:
-    return rank_part(engine, spec)
 
 
 def _results(futures: list[Future[_Done]], pool: SessionPool) -> list[_Done]:
