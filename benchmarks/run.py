@@ -99,6 +99,9 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     parser.add_argument("--export-rows", type=int, default=None,
                         help="measure the export path on this many rows and scale linearly")
     parser.add_argument("--no-export", action="store_true", help="leave the export path out")
+    parser.add_argument("--skip", default="",
+                        help="side-by-side contenders to leave out, by key (a0 a b b_fast c d e "
+                             "e1), comma-separated: e.g. c where the K queries take minutes")
     parser.add_argument("--strategies", default=",".join(STRATEGIES),
                         help="which strategies --mode strategies runs (comma-separated)")
     parser.add_argument("--workers", type=int, default=2,
@@ -122,17 +125,24 @@ def parse_args(argv: Sequence[str] | None) -> argparse.Namespace:
     unknown = sorted(set(args.strategies) - set(STRATEGIES))
     if unknown or not args.strategies:
         parser.error(f"--strategies: unknown {', '.join(unknown)}; known: {', '.join(STRATEGIES)}")
+    args.skip = {k.strip() for k in args.skip.split(",") if k.strip()}
+    essential = {"a", "d", "e"} & args.skip
+    if essential or args.skip - set(SIDE_BY_SIDE):
+        parser.error(f"--skip: a, d and e are always measured; known: {', '.join(SIDE_BY_SIDE)}")
     return args
 
 
 def side_by_side_tasks(dataset: Dataset, export_dataset: Dataset | None,
-                       before: Path | None = None) -> list[Task]:
+                       before: Path | None = None, skip: frozenset[str] = frozenset(),
+                       ) -> list[Task]:
     """(a) (b) (b') (c) (d) (e), in the interleaving order; (a0) first with ``before``."""
     tasks = []
     if before is not None:
         tasks.append(Task(label="a0", contender="bitsift", dataset=dataset,
                           pythonpath=str(before.resolve())))
     for key, (contender, params) in SIDE_BY_SIDE.items():
+        if key in skip:
+            continue
         on = dataset
         if key == "b_fast":
             params = {"reader": FAST_READER[dataset.engine]}
@@ -208,9 +218,10 @@ def side_by_side_ratios(s: dict[str, Summary], engine: str, categorical_only: bo
         ratios.append(Ratio("b'/a (fastest export / bitsift)", s["b_fast"].scaled_seconds / a))
         ratios.append(Ratio("peak RSS b'/a",
                             s["b_fast"].scaled_peak_rss_mib / s["a"].median_peak_rss_mib))
-    c = s["c"].median_seconds / a
-    ratios.append(Ratio("c/a (K queries / bitsift)", c,
-                        *(("> 1", c > 1) if engine == "postgres" else ("", None))))
+    if "c" in s:
+        c = s["c"].median_seconds / a
+        ratios.append(Ratio("c/a (K queries / bitsift)", c,
+                            *(("> 1", c > 1) if engine == "postgres" else ("", None))))
     if "e" in s:
         # The counting bound against the scan floor: what the a/d target asks of the counting
         # alone; and how far bitsift (cut points and metrics included) stays above it. Where
@@ -415,7 +426,7 @@ def measure_all(args: argparse.Namespace) -> dict[str, Any]:
 def _measure(args: argparse.Namespace, dataset: Dataset, export_dataset: Dataset | None,
              ) -> dict[str, Any]:
     if args.mode == "side-by-side":
-        tasks = side_by_side_tasks(dataset, export_dataset, args.before)
+        tasks = side_by_side_tasks(dataset, export_dataset, args.before, frozenset(args.skip))
     else:
         tasks = strategy_tasks(dataset, args.strategies, args.workers)
     load_before = os.getloadavg()
@@ -434,6 +445,7 @@ def _measure(args: argparse.Namespace, dataset: Dataset, export_dataset: Dataset
         "rows": args.rows,
         "attributes": args.attributes,
         "categorical_only": args.categorical_only,
+        "skipped": sorted(args.skip),
         "dataset": describe_dataset(dataset),
         "dataset_table": dataset.table,
         "repeats": args.repeats,
